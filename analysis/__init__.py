@@ -1,0 +1,26 @@
+"""Upstroke's analysis core: Qt-free, numpy and scipy only, usable from a notebook.
+
+The stable API is small::
+
+    from analysis import open_recording, analyze
+    rec = open_recording("cell.abf")
+    result = analyze(rec)
+    result.beats          # BeatTable with the beats CSV's columns
+"""
+
+from .errors import InputError, RecordingError, ResultsFileError, SettingsError
+from .recording import Channel, Recording
+from .table import CSV_COLUMNS, BeatTable
+
+__all__ = [
+    "BeatTable",
+    "CSV_COLUMNS",
+    "Channel",
+    "InputError",
+    "Recording",
+    "RecordingError",
+    "ResultsFileError",
+    "SettingsError",
+]
+
+__version__ = "0.1.0"
