@@ -9,6 +9,7 @@ The stable API is small::
 """
 
 from .errors import InputError, RecordingError, ResultsFileError, SettingsError
+from .readers import open_recording, supported_extensions
 from .recording import Channel, Recording
 from .table import CSV_COLUMNS, BeatTable
 
@@ -21,6 +22,8 @@ __all__ = [
     "RecordingError",
     "ResultsFileError",
     "SettingsError",
+    "open_recording",
+    "supported_extensions",
 ]
 
 __version__ = "0.1.0"

@@ -1,0 +1,267 @@
+"""Neurodata Without Borders (NWB 2) files: current-clamp series read with pynwb.
+
+Every ``CurrentClampSeries`` and ``IZeroClampSeries`` in the file's acquisition group is one
+sweep, in the order of their ``starting_time``. Series recorded through different intracellular
+electrodes become different channels, when the electrodes' series line up sweep for sweep.
+Samples are scaled as the NWB standard defines, ``data * conversion + offset`` (volts for these
+series), and shown in mV. Samples stay in the file: each read slices the HDF5 dataset through
+h5py.
+"""
+
+from __future__ import annotations
+
+import os
+from collections import defaultdict
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..errors import RecordingError
+from ..recording import CURRENT_CLAMP, MIN_SAMPLES_PER_SWEEP, Channel, Recording, clamp_mode_from_units
+from ._timebase import rate_from_times
+
+__all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff"]
+
+EXTENSIONS = (".nwb",)
+SNIFF_BY_SIGNATURE = True
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+#: NWB neurodata types read, all of them current clamp.
+SERIES_TYPES = ("CurrentClampSeries", "IZeroClampSeries")
+
+# Units of the scaled data -> (units shown, factor): volts are shown as mV.
+_UNIT_SCALE = {"volts": ("mV", 1e3), "volt": ("mV", 1e3), "v": ("mV", 1e3), "mv": ("mV", 1.0),
+               "millivolts": ("mV", 1.0)}
+_CORRUPT_FIX = "the file is damaged or incomplete; export it again from the original"
+
+
+def sniff(head: bytes) -> bool:
+    """True when the bytes hold an HDF5 signature (NWB 2 files are HDF5) at a superblock offset."""
+    return any(head[off:off + 8] == HDF5_SIGNATURE for off in (0, 512, 1024, 2048))
+
+
+@dataclass(frozen=True)
+class _Series:
+    name: str
+    kind: str
+    electrode: str
+    start_s: float
+    sweep_number: int | None
+    rate_hz: float
+    n_samples: int
+    filename: str
+    dataset: str
+    conversion: float
+    offset: float
+    units: str
+    factor: float
+    stimulus: str
+
+
+def read(path: str | os.PathLike) -> Recording:
+    """Open an NWB file's current-clamp series as the sweeps of one recording.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    Recording
+        One channel per intracellular electrode (named after it), in mV, clamp mode current
+        clamp; one sweep per series, ordered by starting time (then sweep number, then name),
+        each starting at its ``starting_time``. ``format`` is ``"nwb"``.
+
+    Raises
+    ------
+    RecordingError
+        For a file that is not HDF5 or not NWB, a truncated or corrupt file, no current-clamp
+        series, series at different rates or with uneven ``timestamps``, electrodes whose series
+        do not line up, or sweeps shorter than
+        :data:`analysis.recording.MIN_SAMPLES_PER_SWEEP`.
+    """
+    origin = os.fspath(path)
+    nwb_version = _check_hdf5(origin)
+    series, file_meta = _collect(origin)
+    groups: dict[str, list[_Series]] = defaultdict(list)
+    for s in series:
+        groups[s.electrode].append(s)
+    for members in groups.values():
+        members.sort(key=lambda s: (s.start_s, s.sweep_number if s.sweep_number is not None else -1, s.name))
+    columns = list(groups.values())
+    _check_aligned(origin, groups)
+    rates = sorted({round(s.rate_hz, 6) for s in series})
+    if len(rates) > 1:
+        raise RecordingError(
+            origin, f"its current-clamp series are sampled at different rates "
+            f"({', '.join(f'{r:g}' for r in rates)} Hz)",
+            "export series of one sampling rate per file",
+        )
+    lengths = [s.n_samples for s in columns[0]]
+    if max(lengths) < MIN_SAMPLES_PER_SWEEP:
+        raise RecordingError(
+            origin, f"only {max(lengths)} samples per sweep",
+            f"an analysis needs at least {MIN_SAMPLES_PER_SWEEP}; export longer series",
+        )
+    channels = [
+        Channel(name, members[0].units, clamp_mode_from_units(members[0].units, CURRENT_CLAMP))
+        for name, members in groups.items()
+    ]
+    meta = dict(file_meta)
+    meta["nwb_version"] = nwb_version
+    meta["sweep_series"] = [s.name for s in columns[0]]
+    meta["sweep_types"] = [s.kind for s in columns[0]]
+    stimuli = [s.stimulus for s in columns[0]]
+    if any(st and st != "N/A" for st in stimuli):
+        meta["sweep_stimuli"] = stimuli
+    return Recording(
+        channels=channels,
+        sampling_rate_hz=series[0].rate_hz,
+        sweep_lengths=lengths,
+        sweep_starts_s=[s.start_s for s in columns[0]],
+        loader=_NwbSamples(origin, columns),
+        source_path=origin,
+        format="nwb",
+        metadata=meta,
+    )
+
+
+def _check_hdf5(origin: str) -> str:
+    """The file's NWB version, after refusing files h5py cannot open or that are not NWB."""
+    import h5py
+
+    try:
+        with h5py.File(origin, "r") as fh:
+            version = fh.attrs.get("nwb_version")
+    except OSError as exc:
+        raise RecordingError(
+            origin, f"the HDF5 file is truncated or corrupt (h5py: {_first_line(exc)})", _CORRUPT_FIX,
+        ) from None
+    if version is None:
+        raise RecordingError(
+            origin, "is an HDF5 file but not an NWB file (it has no nwb_version attribute)",
+            "give an NWB recording; an Upstroke results file opens with `upstroke export` or the app",
+        )
+    return version.decode() if isinstance(version, bytes) else str(version)
+
+
+def _collect(origin: str) -> tuple[list[_Series], dict[str, Any]]:
+    """The file's current-clamp series and its session metadata, read with pynwb."""
+    import pynwb  # imported here: it takes most of a second, and ABF or text files never need it
+
+    try:
+        with pynwb.NWBHDF5IO(origin, "r", load_namespaces=True) as io:
+            nwbfile = io.read()
+            found = list(nwbfile.acquisition.values())
+            series = [_describe(s, origin) for s in found if type(s).__name__ in SERIES_TYPES]
+            meta = _session_metadata(nwbfile)
+    except RecordingError:
+        raise
+    except Exception as exc:  # pynwb and hdmf raise many kinds of errors on malformed files
+        raise RecordingError(
+            origin, f"pynwb could not read the file ({type(exc).__name__}: {_first_line(exc)})",
+            _CORRUPT_FIX,
+        ) from None
+    if not series:
+        kinds = sorted({type(s).__name__ for s in found})
+        holds = f"its acquisition holds {', '.join(kinds)}" if kinds else "its acquisition is empty"
+        raise RecordingError(
+            origin, f"the recording has no channels Upstroke reads: no CurrentClampSeries or "
+            f"IZeroClampSeries ({holds})",
+            "store the membrane potential as a CurrentClampSeries in the file's acquisition",
+        )
+    return series, meta
+
+
+def _describe(s: Any, origin: str) -> _Series:
+    data = s.data
+    shape = tuple(getattr(data, "shape", ()))
+    if len(shape) == 2 and shape[1] == 1:
+        shape = shape[:1]
+    if len(shape) != 1:
+        raise RecordingError(
+            origin, f"series {s.name!r} holds data of shape {shape}, not one sample per time",
+            "store one channel per series",
+        )
+    n = int(shape[0])
+    if s.rate is not None:
+        rate = float(s.rate)
+        start = float(s.starting_time or 0.0)
+    else:
+        times = np.asarray(s.timestamps[:], dtype=np.float64)
+        if times.size != n:
+            raise RecordingError(
+                origin, f"series {s.name!r} has {times.size} timestamps for {n} samples", _CORRUPT_FIX,
+            )
+        rate = rate_from_times(times, origin, what=f"the timestamps of series {s.name!r}")
+        start = float(times[0])
+    if not (np.isfinite(rate) and rate > 0):
+        raise RecordingError(origin, f"series {s.name!r} has a sampling rate of {rate!r} Hz", _CORRUPT_FIX)
+    shown, factor = _UNIT_SCALE.get(str(s.unit).strip().lower(), (str(s.unit), 1.0))
+    electrode = getattr(s, "electrode", None)
+    return _Series(
+        name=str(s.name), kind=type(s).__name__,
+        electrode=str(electrode.name) if electrode is not None else "electrode",
+        start_s=start, sweep_number=None if s.sweep_number is None else int(s.sweep_number),
+        rate_hz=rate, n_samples=n, filename=str(data.file.filename), dataset=str(data.name),
+        conversion=float(s.conversion), offset=float(getattr(s, "offset", 0.0) or 0.0),
+        units=shown, factor=factor, stimulus=str(getattr(s, "stimulus_description", "") or ""),
+    )
+
+
+def _check_aligned(origin: str, groups: dict[str, list[_Series]]) -> None:
+    """Refuse electrodes whose series cannot be read as the same sweeps."""
+    counts = {name: [s.n_samples for s in members] for name, members in groups.items()}
+    if len({tuple(c) for c in counts.values()}) > 1:
+        listed = ", ".join(f"{name}: {len(c)} series" for name, c in counts.items())
+        raise RecordingError(
+            origin, f"the electrodes' current-clamp series do not line up as sweeps ({listed})",
+            "export each electrode's series to its own file",
+        )
+
+
+class _NwbSamples:
+    """The loader of an NWB recording: slices of the HDF5 datasets, scaled to the shown units."""
+
+    def __init__(self, origin: str, columns: list[list[_Series]]) -> None:
+        self._origin = origin
+        self._columns = columns
+        self._files: dict[str, Any] = {}
+
+    def __call__(self, sweep: int, channel: int, start: int, stop: int) -> np.ndarray:
+        import h5py
+
+        s = self._columns[channel][sweep]
+        fh = self._files.get(s.filename)
+        if fh is None:
+            fh = self._files[s.filename] = h5py.File(s.filename, "r")
+        raw = fh[s.dataset][start:stop]
+        values = np.asarray(raw, dtype=np.float64).reshape(-1)
+        values *= s.conversion
+        values += s.offset
+        values *= s.factor
+        bad = ~np.isfinite(values)
+        if bad.any():
+            raise RecordingError(
+                self._origin, f"{int(bad.sum())} NaN or Inf sample(s) in series {s.name!r} "
+                f"(sweep {sweep}), first at sample {start + int(np.argmax(bad))}",
+                "remove or interpolate them before analysis",
+            )
+        return values
+
+
+def _session_metadata(nwbfile: Any) -> dict[str, Any]:
+    meta: dict[str, Any] = {}
+    for key in ("identifier", "session_description"):
+        value = getattr(nwbfile, key, None)
+        if value:
+            meta[key] = str(value)
+    start = getattr(nwbfile, "session_start_time", None)
+    if start is not None:
+        meta["recorded_at"] = start.isoformat()
+    return meta
+
+
+def _first_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return text[0] if text else type(exc).__name__
