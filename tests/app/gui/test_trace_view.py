@@ -1,0 +1,82 @@
+"""The trace view draws each beat's markers where the table puts them, and rejected beats apart."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+pytest.importorskip("pytestqt")
+
+from app.gui.trace_data import SweepLevels  # noqa: E402
+from app.gui.trace_view import TraceView  # noqa: E402
+
+from .handmade import handmade  # noqa: E402
+
+
+@pytest.fixture
+def view(qtbot):
+    w = TraceView()
+    qtbot.addWidget(w)
+    w.resize(1000, 400)
+    w.show()
+    return w
+
+
+def test_markers_equal_the_table_for_the_sweep_shown(view):
+    rec, beats = handmade()
+    view.set_sweep(SweepLevels(rec, 1, 0))
+    view.set_beats(beats)
+    drawn = view.drawn_markers()
+    rows = np.flatnonzero(beats["sweep"] == 1)
+    assert np.array_equal(view.sweep_rows(), rows)
+    # MDP and peak markers are the table's values (hand-built table)
+    t, v, r = drawn["mdp"]
+    keep = np.isfinite(beats["t_mdp_s"][rows])
+    assert np.array_equal(r, rows[keep])
+    assert np.array_equal(t, beats["t_mdp_s"][rows][keep]) and np.array_equal(v, beats["mdp_mV"][rows][keep])
+    t, v, _ = drawn["apd90"]
+    ok = np.isfinite(beats["apa_mV"][rows])
+    assert np.allclose(v, (beats["peak_mV"] - 0.9 * beats["apa_mV"])[rows][ok])  # 90 % repolarised, MEASUREMENTS.md
+    # the upstroke marker sits on the trace sample at i_upstroke
+    t, v, r = drawn["upstroke"]
+    assert np.array_equal(v, rec.sweep(1)[beats["i_upstroke"][r]])
+
+
+def test_rejected_beat_is_drawn_apart_with_its_reason(view):
+    rec, beats = handmade(n_sweeps=1)
+    accepted = beats["accepted"].copy()
+    reason = beats["reject_reason"].copy()
+    accepted[3], reason[3] = 0, "seal trouble"
+    beats = beats.with_columns(accepted=accepted, reject_reason=reason)
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    view.set_beats(beats)
+    for kind, (_t, _v, rows) in view.drawn_markers().items():
+        assert 3 not in rows, kind
+    assert len(view.rejected_markers.data) == 1
+    assert view.reject_bands._labels == ["✕ seal trouble"]
+    t_up = beats["t_upstroke_s"][3]
+    assert view.reject_bands.band_at(t_up) == 0
+    assert "REJECTED: seal trouble" in view.describe_beat(3)
+    assert view.beat_at(t_up + 0.01) == 3
+
+
+def test_current_beat_is_scrolled_into_view_and_phases_toggle(view):
+    rec, beats = handmade(n_sweeps=1, seconds=30.0)
+    view.set_sweep(SweepLevels(rec, 0, 0), window_s=4.0)
+    view.set_beats(beats)
+    far = int(np.argmax(beats["t_upstroke_s"] > 20.0))
+    view.set_current_beat(far)
+    x0, x1 = view.x_range()
+    assert x0 < beats["t_upstroke_s"][far] < x1 and x1 - x0 == pytest.approx(4.0)
+    assert not view.phases_visible()
+    view.set_phases_visible(True)
+    assert view.phases_visible() and len(view.phase_bands) > 0
+
+
+def test_cursor_drag_end_emits_both_times(view, qtbot):
+    rec, beats = handmade(n_sweeps=1)
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    view.set_cursors_visible(True)
+    with qtbot.waitSignal(view.cursors_finished) as sig:
+        view.set_cursor_times(2.5, 1.25)
+    assert sig.args == [1.25, 2.5]
