@@ -57,7 +57,8 @@ def rate_from_times(
     ------
     RecordingError
         When the times do not increase, when they are printed too coarsely to show the interval,
-        or when any time lies further from the even grid than
+        when one step differs from the interval by more than twice the tolerance (a gap), or
+        when any time lies further from the even grid than the tolerance,
         ``max(RELATIVE_TOLERANCE * interval, resolution_s / 2)``.
 
     Examples
@@ -72,15 +73,8 @@ def rate_from_times(
     span = float(t[-1] - t[0])
     if not np.isfinite(span) or span <= 0:
         raise RecordingError(
-            origin, f"{what} do not increase (first {t[0]!r} s, last {t[-1]!r} s)",
+            origin, f"{what} do not increase (first {t[0]:.9g} s, last {t[-1]:.9g} s)",
             "export times in increasing order, one per sample",
-        )
-    step = np.diff(t)
-    if np.any(step <= 0):
-        i = int(np.argmax(step <= 0)) + 1
-        raise RecordingError(
-            origin, f"{what} do not increase at {where(i)} ({t[i - 1]!r} s then {t[i]!r} s)",
-            "export one recording with one time per sample; Upstroke reads one sweep per text file",
         )
     dt = span / (t.size - 1)
     rounding_s = 0.5 * resolution_s
@@ -94,6 +88,24 @@ def rate_from_times(
             origin, f"{what} are written too coarsely ({resolution_s:g} s steps) to show a "
             f"{dt * 1e3:.4g} ms sample interval",
             "export the times with more decimals",
+        )
+    step = np.diff(t)
+    if np.any(step <= 0):
+        i = int(np.argmax(step <= 0)) + 1
+        raise RecordingError(
+            origin, f"{what} do not increase at {where(i)} ({t[i - 1]:.9g} s then {t[i]:.9g} s)",
+            "export one recording with one time per sample; Upstroke reads one sweep per text file",
+        )
+    # Local check first, so that a gap is reported where it is, then the drift of the whole grid.
+    jumps = np.abs(step - dt) > 2 * tolerance * (1 + 1e-9)
+    if jumps.any():
+        i = int(np.argmax(jumps))
+        raise RecordingError(
+            origin, f"sampling is irregular: {what} step by {step[i] * 1e3:.6g} ms at "
+            f"{where(i + 1)} where the sample interval is {dt * 1e3:.6g} ms (tolerance "
+            f"{RELATIVE_TOLERANCE:.0%} of the interval)",
+            "Upstroke needs evenly sampled data without gaps; export the original samples or "
+            "resample them evenly",
         )
     grid = t[0] + dt * np.arange(t.size)
     deviation = np.abs(t - grid)
