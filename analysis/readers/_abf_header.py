@@ -116,9 +116,8 @@ def _check_abf2(head: bytes, size: int, origin: str) -> None:
         end = block * BLOCK_BYTES + max(entry_bytes, 1) * count
         if end > size:
             raise RecordingError(
-                origin, f"the ABF 2 header is corrupt: its {name} section ({count} entries of "
-                f"{entry_bytes} bytes from byte {block * BLOCK_BYTES}) reaches past the end of the "
-                f"{size}-byte file", _CORRUPT_FIX,
+                origin, f"the ABF 2 header is corrupt: its {name} section ({count} entries) "
+                f"reaches past the end of the {size}-byte file", _CORRUPT_FIX,
             )
     _check_channels(sections["ADC"][2], origin, limit=None)
     block, _, count = sections["protocol"]
@@ -167,5 +166,6 @@ def _check_data(start: int, n_samples: int, sample_bytes: int, size: int, origin
         raise RecordingError(
             origin, f"the header declares {n_samples} samples ({n_samples * sample_bytes} bytes "
             f"from byte {start}) but the file holds only {size} bytes, "
-            f"{need - size} too few", _TRUNCATED_FIX,
+            f"{need - size} too few", "the file was cut short or its header is damaged; copy it "
+            "again from the acquisition computer",
         )

@@ -57,7 +57,7 @@ def rate_from_times(
     ------
     RecordingError
         When the times do not increase, when they are printed too coarsely to show the interval,
-        when one step differs from the interval by more than twice the tolerance (a gap), or
+        when one step differs from the median step by more than twice the tolerance (a gap), or
         when any time lies further from the even grid than the tolerance,
         ``max(RELATIVE_TOLERANCE * interval, resolution_s / 2)``.
 
@@ -97,12 +97,13 @@ def rate_from_times(
             "export one recording with one time per sample; Upstroke reads one sweep per text file",
         )
     # Local check first, so that a gap is reported where it is, then the drift of the whole grid.
-    jumps = np.abs(step - dt) > 2 * tolerance * (1 + 1e-9)
+    typical = float(np.median(step))
+    jumps = np.abs(step - typical) > 2 * tolerance * (1 + 1e-9)
     if jumps.any():
         i = int(np.argmax(jumps))
         raise RecordingError(
             origin, f"sampling is irregular: {what} step by {step[i] * 1e3:.6g} ms at "
-            f"{where(i + 1)} where the sample interval is {dt * 1e3:.6g} ms (tolerance "
+            f"{where(i + 1)} where the sample interval is {typical * 1e3:.6g} ms (tolerance "
             f"{RELATIVE_TOLERANCE:.0%} of the interval)",
             "Upstroke needs evenly sampled data without gaps; export the original samples or "
             "resample them evenly",
