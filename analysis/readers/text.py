@@ -5,7 +5,8 @@ The first line that is not a ``#`` comment names the columns, with units: ``time
 Cells are separated by tabs, commas, semicolons or runs of spaces (whichever the header uses).
 The time column (the first in s, ms or us) gives the sampling rate and must be evenly spaced;
 every other column is a channel in mV, V, uV (all shown as mV) or a current (pA, nA, ...), kept
-as given. The whole file is parsed at open (text cannot be mapped), with numpy's C parser.
+as given. The whole file is parsed at open (text cannot be mapped), streamed from disk by numpy's
+C parser so that only the numbers are held in memory.
 """
 
 from __future__ import annotations
@@ -25,6 +26,8 @@ __all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff", "parse_label"]
 
 EXTENSIONS = (".csv", ".tsv", ".txt")
 SNIFF_BY_SIGNATURE = False
+#: Bytes read to find the header (comment lines, names, units).
+HEAD_BYTES = 1 << 18
 
 # Units recognised in a header, lower-cased -> (kind, units shown, factor to the shown units).
 _UNITS: dict[str, tuple[str, str, float]] = {
@@ -101,14 +104,14 @@ def read(path: str | os.PathLike) -> Recording:
         :data:`analysis.recording.MIN_SAMPLES_PER_SWEEP` samples.
     """
     origin = os.fspath(path)
-    lines = _decode(origin).splitlines()
+    lines = _head_lines(origin)
     header_at, labels, delimiter = _find_header(lines, origin)
     columns = _columns(labels, origin)
     time_index = next(i for i, c in enumerate(columns) if c.kind == "time")
     signals = [i for i in range(len(columns)) if i != time_index]
-    body = lines[header_at + 1:]
-    values = _parse_numbers(body, delimiter, len(columns), origin, first_line=header_at + 2)
-    row_line = _RowLines(body, first_line=header_at + 2)
+    body = _Body(origin, skip=header_at + 1)
+    values = _parse_numbers(body, delimiter, len(columns), origin)
+    row_line = _RowLines(body)
     for i, col in enumerate(columns):
         _check_finite_column(values[:, i], col.label, origin, row_line)
     n = values.shape[0]
@@ -137,18 +140,42 @@ def read(path: str | os.PathLike) -> Recording:
     )
 
 
-def _decode(origin: str) -> str:
+def _head_lines(origin: str) -> list[str]:
+    """The complete lines among the file's first :data:`HEAD_BYTES` (enough for any header)."""
     with open(origin, "rb") as fh:
-        raw = fh.read()
+        raw = fh.read(HEAD_BYTES + 1)
     if b"\x00" in raw[:65536]:
         raise RecordingError(
             origin, "is not a text file (it holds binary data)",
             "give a delimited text export (CSV or TSV), or the recording in its own format",
         )
+    if len(raw) > HEAD_BYTES:
+        raw = raw[: raw.rfind(b"\n", 0, HEAD_BYTES) + 1]  # drop the line cut in two
     try:
-        return raw.decode("utf-8-sig")
+        text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
-        return raw.decode("latin-1")  # older exports; only the header can hold such characters
+        text = raw.decode("latin-1")  # older exports; only the header can hold such characters
+    # Universal newlines, as the file is read later (str.splitlines would also split on \f).
+    return text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+
+
+class _Body:
+    """The file's lines after the header, read from disk each time they are walked.
+
+    Data lines are digits, signs, points and delimiters, so Latin-1 decodes them whatever the
+    file's encoding; nothing is held in memory between walks.
+    """
+
+    def __init__(self, origin: str, *, skip: int) -> None:
+        self.origin = origin
+        self.skip = skip
+        self.first_line = skip + 1  # 1-based number of the first line after the header
+
+    def __iter__(self):
+        with open(self.origin, encoding="latin-1") as fh:
+            for _ in range(self.skip):
+                next(fh, None)
+            yield from fh
 
 
 def _find_header(lines: list[str], origin: str) -> tuple[int, list[str], str | None]:
@@ -215,30 +242,28 @@ def _columns(labels: list[str], origin: str) -> list[_Column]:
     return columns
 
 
-def _parse_numbers(body: list[str], delimiter: str | None, n_columns: int, origin: str,
-                   *, first_line: int) -> np.ndarray:
+def _parse_numbers(body: _Body, delimiter: str | None, n_columns: int, origin: str) -> np.ndarray:
     """All data rows as floats, or the first bad cell with its line number."""
     try:
         values = np.loadtxt(
-            body, delimiter=delimiter, comments="#", dtype=np.float64, ndmin=2,
-            usecols=range(n_columns), quotechar='"',
+            origin, delimiter=delimiter, comments="#", dtype=np.float64, ndmin=2,
+            usecols=range(n_columns), quotechar='"', skiprows=body.skip, encoding="latin-1",
         )
     except (ValueError, IndexError):
-        _raise_first_bad_cell(body, delimiter, n_columns, origin, first_line)
+        _raise_first_bad_cell(body, delimiter, n_columns, origin)
         raise  # the scan found nothing that numpy refused: a fault, not the user's input
     if values.shape[0] == 0:
         raise RecordingError(origin, "has a header but no samples", "export the recording again")
     return values
 
 
-def _raise_first_bad_cell(body: list[str], delimiter: str | None, n_columns: int, origin: str,
-                          first_line: int) -> None:
+def _raise_first_bad_cell(body: _Body, delimiter: str | None, n_columns: int, origin: str) -> None:
     for k, line in enumerate(body):
         stripped = line.split("#", 1)[0].strip()
         if not stripped:
             continue
         cells = stripped.split(delimiter) if delimiter else stripped.split()
-        line_no = first_line + k
+        line_no = body.first_line + k
         if len(cells) < n_columns:
             raise RecordingError(
                 origin, f"line {line_no} has {len(cells)} cell(s) where the header names {n_columns}",
@@ -255,18 +280,17 @@ def _raise_first_bad_cell(body: list[str], delimiter: str | None, n_columns: int
 class _RowLines:
     """Maps a data row's index to its line number in the file (built only when asked)."""
 
-    def __init__(self, body: list[str], *, first_line: int) -> None:
+    def __init__(self, body: _Body) -> None:
         self._body = body
-        self._first = first_line
-        self._lines: list[int] | None = None
 
     def __call__(self, row: int) -> int:
-        if self._lines is None:
-            self._lines = [
-                self._first + k for k, line in enumerate(self._body)
-                if line.split("#", 1)[0].strip()
-            ]
-        return self._lines[row]
+        seen = -1
+        for k, line in enumerate(self._body):
+            if line.split("#", 1)[0].strip():
+                seen += 1
+                if seen == row:
+                    return self._body.first_line + k
+        raise IndexError(row)
 
 
 def _check_finite_column(values: np.ndarray, label: str, origin: str, row_line: Callable[[int], int]) -> None:
@@ -279,7 +303,7 @@ def _check_finite_column(values: np.ndarray, label: str, origin: str, row_line: 
         )
 
 
-def _time_resolution(body: list[str], delimiter: str | None, index: int, rows: int = 1000) -> float:
+def _time_resolution(body: _Body, delimiter: str | None, index: int, rows: int = 1000) -> float:
     """The step in which times were written (1e-4 for four decimals), in the column's units."""
     decimals = 0
     seen = 0

@@ -141,3 +141,14 @@ def test_timebase_tolerance():
         rate_from_times(coarse, "x", resolution_s=1e-4)
     # Whole milliseconds at 1 kHz are exact, not coarse.
     assert rate_from_times(np.arange(1000) * 1e-3, "x", resolution_s=1e-3) == pytest.approx(1000.0)
+
+
+def test_windows_export_with_bom_and_crlf(tmp_path):
+    rows = files.regular_rows(1000, 10_000.0)
+    body = "\r\n".join(f"{t * 1e3:.1f}\t{v:.3f}" for t, v in rows)
+    path = tmp_path / "excel.txt"
+    path.write_bytes(("\ufeff# Zelle 3, µ-Elektrode\r\nZeit (ms)\tVm (mV)\r\n").encode("utf-8")
+                     + body.encode() + b"\r\n")
+    rec = open_recording(path)
+    assert rec.channels[0].name == "Vm" and rec.sampling_rate_hz == pytest.approx(10_000.0)
+    np.testing.assert_allclose(rec.sweep(0), rows[:, 1], atol=5e-4)  # the 3 decimals written
