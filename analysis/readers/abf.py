@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -112,11 +113,23 @@ def _parse_header(origin: str) -> Any:
         ) from None
 
 
+@dataclass(frozen=True)
 class _Layout:
     """Where each sweep's samples sit in the data block, and how to scale them."""
 
-    def __init__(self, **fields: Any) -> None:
-        self.__dict__.update(fields)
+    n_channels: int
+    n_frames: int  # samples per channel in the data block
+    dtype: np.dtype
+    byte_offset: int
+    rate_hz: float
+    lengths: list[int]
+    frame_starts: np.ndarray  # first frame of each sweep
+    starts_s: list[float]
+    variable: bool
+    gains: list[float]
+    offsets: list[float]
+    major: int
+    mode: int
 
     @classmethod
     def from_abf(cls, abf: Any, origin: str) -> "_Layout":
