@@ -249,9 +249,12 @@ def _parse_numbers(body: _Body, delimiter: str | None, n_columns: int, origin: s
             origin, delimiter=delimiter, comments="#", dtype=np.float64, ndmin=2,
             usecols=range(n_columns), quotechar='"', skiprows=body.skip, encoding="latin-1",
         )
-    except (ValueError, IndexError):
+    except (ValueError, IndexError) as exc:
         _raise_first_bad_cell(body, delimiter, n_columns, origin)
-        raise  # the scan found nothing that numpy refused: a fault, not the user's input
+        # The line-by-line scan found every cell a number; say what numpy's parser refused.
+        raise RecordingError(
+            origin, f"the numbers could not be parsed ({' '.join(str(exc).split())})", _FIX_CELLS,
+        ) from None
     if values.shape[0] == 0:
         raise RecordingError(origin, "has a header but no samples", "export the recording again")
     return values
