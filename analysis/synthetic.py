@@ -21,7 +21,8 @@ Examples
 from __future__ import annotations
 
 import dataclasses
-from dataclasses import dataclass, field
+from dataclasses import dataclass
+from functools import cached_property
 from typing import Sequence
 
 import numpy as np
@@ -256,15 +257,40 @@ class Truth:
         return self.events["t_s"][self.events["kind"] == kind]
 
 
-@dataclass(frozen=True)
 class Synthetic:
-    """A synthetic recording, its truth and the waveform that made both."""
+    """A synthetic recording, its truth and the waveform that made both.
 
-    recording: Recording
-    truth: Truth
-    train: BeatTrain
-    cell: CellParams
-    sweep_starts_s: tuple[float, ...] = field(default=(0.0,))
+    Attributes
+    ----------
+    recording : Recording
+    truth : Truth
+        Computed on first use (a 30-minute recording's truth takes a few seconds).
+    train : BeatTrain
+        The exact waveform: ``train.evaluate(t_s)`` gives V (mV) and dV/dt (mV/s).
+    cell : CellParams
+    sweep_starts_s : tuple of float
+        Each sweep's start on the train's clock.
+    """
+
+    def __init__(self, recording: Recording, train: BeatTrain, cell: CellParams, sweep_starts_s, duration_s,
+                 planted, artefacts, pauses, seal_troubles) -> None:
+        self.recording = recording
+        self.train = train
+        self.cell = cell
+        self.sweep_starts_s = tuple(sweep_starts_s)
+        self._duration_s = duration_s
+        self._planted = (planted, tuple(artefacts), tuple(pauses), tuple(seal_troubles))
+
+    @cached_property
+    def truth(self) -> Truth:
+        beats = BeatTable.concat(
+            [
+                beat_truth(self.train, start_s=t0, stop_s=t0 + self._duration_s, sweep=i)
+                for i, t0 in enumerate(self.sweep_starts_s)
+            ]
+        )
+        events = _event_table(self.train, *self._planted, self.sweep_starts_s, self._duration_s)
+        return Truth(beats, events)
 
 
 _CHUNK = 1 << 20
@@ -468,7 +494,7 @@ def synthesize(
     for i, t0 in enumerate(starts):
         for j in range(0, n_samples, _CHUNK):
             t = t0 + np.arange(j, min(n_samples, j + _CHUNK)) / fs_hz
-            v = train.evaluate(t, derivative=False)[0]
+            v = train.evaluate(t, derivative=False, assume_sorted=True)[0]
             sd = np.full_like(t, noise_mV)
             for s in seal_troubles:
                 sd = np.hypot(sd, s.noise_mV * smooth_window(t, s.start_s, s.stop_s, s.ramp_s)[0])
@@ -484,12 +510,8 @@ def synthesize(
         data[a.sweep, max(i0, 0):min(i0 + a.n_samples, n_samples)] += a.amplitude_mV
     data.setflags(write=False)
 
-    beats = BeatTable.concat(
-        [beat_truth(train, start_s=t0, stop_s=t0 + duration_s, sweep=i) for i, t0 in enumerate(starts)]
-    )
     recording = _recording(data, fs_hz, starts, cell, seed)
-    events = _event_table(train, planted, artefacts, pauses, seal_troubles, starts, duration_s)
-    return Synthetic(recording, Truth(beats, events), train, cell, tuple(starts))
+    return Synthetic(recording, train, cell, starts, duration_s, planted, artefacts, pauses, seal_troubles)
 
 
 def _sweep_of(t: float, starts: Sequence[float], duration_s: float) -> tuple[int, float]:

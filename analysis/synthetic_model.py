@@ -306,45 +306,57 @@ class BeatTrain:
             raise ValueError("the diastole is too short for this slow an upstroke")
 
     # -- evaluation -------------------------------------------------------------------------------
-    def cell_voltage(self, t_s: np.ndarray, *, derivative: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
-        """The cell's own V (mV) and dV/dt (mV/s) before drift and shunts."""
+    def _piece(self, piece: int, k, tt: np.ndarray, derivative: bool):
+        """V and dV/dt of one phase (0 phase 4, 1 late upstroke, 2 repolarisation) of beats k."""
+        if piece == 0:
+            return self._phase4(k, tt, derivative=derivative)
+        if piece == 1:
+            lk, gk = self.l_s[k], self.g_mV_per_s[k]
+            u = (tt - self.t_up_s[k]) / lk
+            u2 = u * u
+            vv = self.v_up_mV[k] + gk * lk * u * (1.0 - 2.0 * u2 / 3.0 + u2 * u2 / 5.0)
+            return vv, (gk * (1.0 - u2) ** 2 if derivative else None)
+        dk = self.d_s[k]
+        drop = self.peak_mV[k] - self.mdp_mV[k + 1]
+        f, df = self.shape.fall((tt - self.t_peak_s[k]) / dk, derivative)
+        return self.peak_mV[k] - drop * f, (-drop * df / dk if derivative else None)
+
+    def cell_voltage(
+        self, t_s: np.ndarray, *, derivative: bool = True, assume_sorted: bool = False,
+    ) -> tuple[np.ndarray, np.ndarray | None]:
+        """The cell's own V (mV) and dV/dt (mV/s) before drift and shunts.
+
+        ``assume_sorted`` promises a 1-D array of increasing times (a sweep's samples): each
+        phase is then a contiguous slice worked with its beat's scalars, about twice as fast.
+        """
         t = np.asarray(t_s, dtype=float)
         flat = t.reshape(-1)
         v = np.empty_like(flat)
-        dv = np.empty_like(flat) if derivative else None
-        j = np.searchsorted(self.edges_s, flat, side="right") - 1
-        before = j < 0
-        after = j >= 3 * self.n
-        v[before] = self.mdp_mV[0]
-        v[after] = self.mdp_mV[-1]
-        if derivative:
-            dv[before | after] = 0.0
-        inside = ~(before | after)
-        k_all = j // 3
-        seg = j % 3
-        for piece in (0, 1, 2):
-            sel = np.flatnonzero(inside & (seg == piece))
-            if sel.size == 0:
-                continue
-            k = k_all[sel]
-            tt = flat[sel]
-            if piece == 0:
-                vv, dd = self._phase4(k, tt, derivative=derivative)
-            elif piece == 1:
-                lk, gk = self.l_s[k], self.g_mV_per_s[k]
-                u = (tt - self.t_up_s[k]) / lk
-                u2 = u * u
-                vv = self.v_up_mV[k] + gk * lk * u * (1.0 - 2.0 * u2 / 3.0 + u2 * u2 / 5.0)
-                dd = gk * (1.0 - u2) ** 2
-            else:
-                dk = self.d_s[k]
-                drop = self.peak_mV[k] - self.mdp_mV[k + 1]
-                f, df = self.shape.fall((tt - self.t_peak_s[k]) / dk, derivative)
-                vv = self.peak_mV[k] - drop * f
-                dd = -drop * df / dk if derivative else None
-            v[sel] = vv
-            if derivative:
-                dv[sel] = dd
+        dv = np.zeros_like(flat) if derivative else None
+        last = 3 * self.n
+        if assume_sorted:
+            bounds = np.searchsorted(flat, self.edges_s, side="left")
+            v[:bounds[0]] = self.mdp_mV[0]
+            v[bounds[-1]:] = self.mdp_mV[-1]
+            for j in np.flatnonzero(bounds[1:] > bounds[:-1]):
+                i0, i1 = bounds[j], bounds[j + 1]
+                k, piece = divmod(int(j), 3)
+                vv, dd = self._piece(piece, k, flat[i0:i1], derivative)
+                v[i0:i1] = vv
+                if derivative:
+                    dv[i0:i1] = dd
+        else:
+            j = np.searchsorted(self.edges_s, flat, side="right") - 1
+            outside = (j < 0) | (j >= last)
+            v[j < 0] = self.mdp_mV[0]
+            v[j >= last] = self.mdp_mV[-1]
+            for piece in (0, 1, 2):
+                sel = np.flatnonzero(~outside & (j % 3 == piece))
+                if sel.size:
+                    vv, dd = self._piece(piece, j[sel] // 3, flat[sel], derivative)
+                    v[sel] = vv
+                    if derivative:
+                        dv[sel] = dd
         self._add_events(flat, v, dv)
         return v.reshape(t.shape), (dv.reshape(t.shape) if derivative else None)
 
@@ -367,13 +379,16 @@ class BeatTrain:
         if dv is not None:
             dv[sel] += amp * (d1 / rise - d2 / fall)
 
-    def evaluate(self, t_s: np.ndarray, *, derivative: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
+    def evaluate(
+        self, t_s: np.ndarray, *, derivative: bool = True, assume_sorted: bool = False,
+    ) -> tuple[np.ndarray, np.ndarray | None]:
         """Membrane potential (mV) and its exact derivative (mV/s) at the given times (s).
 
         Drift and seal-trouble shunts are included; noise, hum and electrical artefacts, which
-        belong to the recording rather than the cell, are not.
+        belong to the recording rather than the cell, are not. ``assume_sorted``: see
+        :meth:`cell_voltage`.
         """
-        v, dv = self.cell_voltage(t_s, derivative=derivative)
+        v, dv = self.cell_voltage(t_s, derivative=derivative, assume_sorted=assume_sorted)
         t = np.asarray(t_s, dtype=float)
         for start, stop, ramp, fraction in self.shunts:
             s, ds = smooth_window(t, start, stop, ramp)
