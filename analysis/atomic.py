@@ -1,0 +1,124 @@
+"""Writing output files so that a failure or a kill never leaves a partial or broken file.
+
+Every output (results file, CSV, figure) is written to a temporary file in the same folder, flushed
+and fsynced, then moved over the target with :func:`os.replace`, which is atomic on POSIX and on
+Windows within one volume. Until that last step the previous file (if any) is untouched; after it,
+the new file is complete. A process killed in between leaves only a hidden temporary file
+(``.NAME.tmp-PID-...``), which the next write to the same target removes when its process is gone.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+import tempfile
+from typing import Iterator
+
+__all__ = ["atomic_output", "write_text_atomic", "temp_prefix"]
+
+
+def temp_prefix(path: str | os.PathLike) -> str:
+    """The name prefix of the temporary files written for ``path``."""
+    return f".{os.path.basename(os.fspath(path))}.tmp-"
+
+
+def _remove_stale(path: str) -> None:
+    folder = os.path.dirname(os.path.abspath(path))
+    prefix = temp_prefix(path)
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        if not name.startswith(prefix):
+            continue
+        m = re.match(r"(\d+)-", name[len(prefix):])
+        if m is None or int(m.group(1)) == os.getpid() or _alive(int(m.group(1))):
+            continue
+        with contextlib.suppress(OSError):
+            os.remove(os.path.join(folder, name))
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OSError):
+        return True
+    return True
+
+
+def _fsync_path(path: str) -> None:
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _fsync_folder(folder: str) -> None:
+    # Makes the rename itself durable; folders cannot be opened this way on Windows.
+    with contextlib.suppress(OSError):
+        _fsync_path(folder)
+
+
+def _mode_for(target: str) -> int:
+    # mkstemp makes a private (0600) file; give the result the permissions the file it replaces
+    # had, or those an ordinary new file would get.
+    try:
+        return os.stat(target).st_mode & 0o7777
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | os.PathLike) -> Iterator[str]:
+    """A temporary path to write to; on success it replaces ``path``, on any error it is removed.
+
+    Parameters
+    ----------
+    path : str or path
+        The final file. Its folder must exist.
+
+    Yields
+    ------
+    str
+        The temporary file's path (in the same folder, so the final move is atomic). The caller
+        writes and closes it inside the ``with`` block.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> target = os.path.join(tempfile.mkdtemp(), "out.txt")
+    >>> with atomic_output(target) as tmp:
+    ...     with open(tmp, "w") as fh:
+    ...         _ = fh.write("done\\n")
+    >>> open(target).read()
+    'done\\n'
+    """
+    target = os.path.abspath(os.fspath(path))
+    folder = os.path.dirname(target)
+    _remove_stale(target)
+    fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=folder)
+    os.close(fd)
+    try:
+        yield tmp
+        _fsync_path(tmp)
+        os.chmod(tmp, _mode_for(target))
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.remove(tmp)
+        raise
+    _fsync_folder(folder)
+
+
+def write_text_atomic(path: str | os.PathLike, text: str) -> None:
+    """Write ``text`` (UTF-8, ``\\n`` line ends as given) to ``path`` atomically."""
+    with atomic_output(path) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(text)
