@@ -1,0 +1,436 @@
+"""Event and quality flags on measured beats, and the automatic rejection rules.
+
+Flags are suggestions the user confirms in review, except where a rejection rule of the quality
+settings says otherwise. By default only artefact-like detections (``artefact``, ``clipped``)
+are rejected; every physiological flag stays a suggestion, and ``no_overshoot`` can never reject
+(central nodal cells can peak near 0 mV).
+
+Vocabulary (the words of the ``flags`` column this module adds, in the order they are written)
+------------------------------------------------------------------------------------------------
+ead
+    Early afterdepolarisation: during repolarisation, between ``ead_start_repol_pct`` % of
+    repolarisation and APD90, the membrane potential (moving average over ``ead_smooth_ms``)
+    climbs again by at least
+    ``ead_min_mV`` with a smoothed dV/dt above ``ead_min_dvdt_V_per_s`` (Cranefield's definition of
+    an EAD as a depolarisation interrupting repolarisation; phase-2 EADs take off above -40 mV,
+    phase-3 ones between -70 and -50 mV: Zhang & Qu 2021, Physiol Rep 9:e14883). The amplitude
+    and take-off potential go to the ``ead_mV`` and ``ead_takeoff_mV`` columns.
+dad
+    Delayed afterdepolarisation: in the diastole after the beat (from its APD90 to the next
+    beat's take-off, or to the end of the sweep), a transient depolarisation (moving average over
+    ``dad_smooth_ms``) of at least ``dad_min_mV`` that falls back by as much before the next
+    take-off, so that it did not fire
+    (MEASUREMENTS.md: 1-5 mV, from memory). The flag goes on the beat the DAD follows; its
+    amplitude to ``dad_mV``. A steadily rising phase 4 never counts: it does not fall back.
+pause
+    The beat's cycle length exceeds ``pause_factor`` times the running median of the cycle
+    lengths around it (``pause_median_beats`` beats, same sweep; from memory, a setting).
+clipped
+    The beat's samples hold a run of at least ``clip_min_flat_ms`` (and 3 samples) exactly at
+    the sweep's highest or lowest value: the signal sat at the amplifier's or converter's limit.
+noisy
+    The rms noise of the beat's diastole (``noise_mV_rms`` column) exceeds ``noise_max_mV_rms``:
+    the rms of the samples from MDP to take-off minus their zero-phase low-pass (second-order
+    Butterworth, forward and backward, corner ``noise_highpass_hz``), so that white noise and
+    50/60 Hz hum count fully and the slow phase-4 depolarisation does not. Diastoles shorter
+    than two periods of the corner frequency are not assessed.
+mdp_drift
+    The MDP lies more than ``mdp_drift_max_mV`` from the median MDP of the recording's first
+    ``mdp_reference_beats`` beats (a slowly failing seal or a drifting electrode).
+low_apa
+    APA below ``apa_min_mV``.
+no_overshoot
+    Peak below ``overshoot_min_mV`` (0 mV): a flag only, never a rejection.
+artefact
+    A detection no action potential can produce: dV/dt max above ``artefact_max_dvdt_V_per_s``
+    or APD90 shorter than ``artefact_min_apd90_ms``.
+
+Rejections set ``accepted`` to 0 and write ``auto: FLAG (why)`` to ``reject_reason``.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+from scipy.ndimage import uniform_filter1d
+from scipy.signal import butter, sosfiltfilt
+
+from .table import BeatTable
+
+__all__ = [
+    "AUTO_PREFIX",
+    "EVENT_FLAGS",
+    "REJECTABLE_FLAGS",
+    "apply_events",
+    "is_event_warning",
+    "rejection_flags",
+    "strip_events",
+    "sweep_trace_events",
+    "table_events",
+]
+
+#: The flag words this module writes, in the order they appear in the ``flags`` column.
+EVENT_FLAGS: tuple[str, ...] = (
+    "ead", "dad", "pause", "clipped", "noisy", "mdp_drift", "low_apa", "no_overshoot", "artefact",
+)
+#: Flags a quality rule may reject automatically (``no_overshoot`` is deliberately absent).
+REJECTABLE_FLAGS: tuple[str, ...] = (
+    "artefact", "clipped", "noisy", "low_apa", "mdp_drift", "ead", "dad", "pause",
+)
+#: Extra columns this module adds to the beat table.
+EVENT_COLUMNS: tuple[str, ...] = ("ead_mV", "ead_takeoff_mV", "dad_mV", "noise_mV_rms")
+AUTO_PREFIX = "auto: "
+
+
+def rejection_flags(quality) -> tuple[str, ...]:
+    """The flags the quality settings reject automatically (their ``reject_FLAG`` fields)."""
+    return tuple(f for f in REJECTABLE_FLAGS if bool(getattr(quality, f"reject_{f}", False)))
+
+
+# -- traces ------------------------------------------------------------------------------------
+def _index(t_s: np.ndarray, fs_hz: float, n: int) -> np.ndarray:
+    """Sample indices of times (NaN -> -1), clipped into the sweep."""
+    out = np.full(t_s.shape, -1, dtype=np.int64)
+    ok = np.isfinite(t_s)
+    out[ok] = np.clip(np.rint(t_s[ok] * fs_hz).astype(np.int64), 0, n - 1)
+    return out
+
+
+def _flat_runs_at_extremes(raw: np.ndarray, min_len: int) -> list[tuple[int, int, float]]:
+    """Runs ``(start, stop, value)`` of at least ``min_len`` equal samples at the max or min."""
+    runs = []
+    if raw.size < min_len:
+        return runs
+    for value in (float(np.max(raw)), float(np.min(raw))):
+        at = raw == value
+        if np.count_nonzero(at) < min_len:
+            continue
+        edges = np.diff(np.concatenate(([0], at.view(np.int8), [0])))
+        starts = np.flatnonzero(edges == 1)
+        stops = np.flatnonzero(edges == -1)
+        for a, b in zip(starts, stops):
+            if b - a >= min_len:
+                runs.append((int(a), int(b), value))
+    return runs
+
+
+def sweep_trace_events(
+    v_mV: np.ndarray,
+    fs_hz: float,
+    beats: BeatTable,
+    quality,
+    *,
+    raw: np.ndarray | None = None,
+) -> dict[str, np.ndarray]:
+    """The trace-based events of the beats of one sweep: EAD, DAD, clipped, noise.
+
+    Parameters
+    ----------
+    v_mV : ndarray
+        The sweep's membrane potential after LJP correction, in mV.
+    fs_hz : float
+        Sampling rate.
+    beats : BeatTable
+        The beats of this sweep only, in time order, with the marker columns ``t_upstroke_s``,
+        ``t_mdp_s``, ``t_top_s``, ``t_peak_s``, ``t_apd90_s``, ``peak_mV`` and ``apa_mV``.
+    quality
+        The quality settings section.
+    raw : ndarray or None
+        The samples as stored (before any correction) for the clipping test; None uses
+        ``v_mV``.
+
+    Returns
+    -------
+    dict of str to ndarray
+        Boolean arrays ``ead``, ``dad``, ``clipped``, ``noisy`` and float arrays ``ead_mV``,
+        ``ead_takeoff_mV``, ``dad_mV``, ``noise_mV_rms`` (NaN where not found or not assessable),
+        one entry per beat; ``clip_detail`` holds the flat level and duration as text.
+    """
+    v = np.asarray(v_mV, dtype=np.float64)
+    n = v.size
+    k = len(beats)
+    out: dict[str, np.ndarray] = {
+        "ead": np.zeros(k, bool), "dad": np.zeros(k, bool), "clipped": np.zeros(k, bool),
+        "noisy": np.zeros(k, bool), "ead_mV": np.full(k, np.nan), "ead_takeoff_mV": np.full(k, np.nan),
+        "dad_mV": np.full(k, np.nan), "noise_mV_rms": np.full(k, np.nan),
+        "clip_detail": np.full(k, "", dtype=object),
+    }
+    if k == 0 or n == 0:
+        return out
+    width = max(1, int(round(quality.ead_smooth_ms * 1e-3 * fs_hz)))
+    vs = uniform_filter1d(v, size=width, mode="nearest") if width > 1 else v
+    dvdt = np.gradient(vs) * fs_hz * 1e-3  # V/s
+    # DADs are slow (tens of ms), so a wider window can take out noise and hum.
+    dad_width = max(1, int(round(quality.dad_smooth_ms * 1e-3 * fs_hz)))
+    vd = uniform_filter1d(v, size=dad_width, mode="nearest") if dad_width > 1 else v
+    i_up = _index(np.asarray(beats["t_upstroke_s"], float), fs_hz, n)
+    i_peak = _index(np.asarray(beats["t_peak_s"], float), fs_hz, n)
+    i_apd90 = _index(np.asarray(beats["t_apd90_s"], float), fs_hz, n)
+    i_mdp = _index(np.asarray(beats["t_mdp_s"], float), fs_hz, n)
+    i_top = _index(np.asarray(beats["t_top_s"], float), fs_hz, n)
+    peak = np.asarray(beats["peak_mV"], float)
+    apa = np.asarray(beats["apa_mV"], float)
+
+    # Phase 4 lies well below the noise corner; hum (50/60 Hz) and white noise lie above it.
+    corner_hz = min(quality.noise_highpass_hz, 0.4 * fs_hz)
+    sos = butter(2, corner_hz, fs=fs_hz, output="sos")
+    pad = int(round(fs_hz / corner_hz))
+    min_noise_samples = 2 * pad
+    for b in range(k):
+        # EAD: the climb above the running minimum of the repolarising trace.
+        if i_peak[b] >= 0 and i_apd90[b] > i_peak[b] and math.isfinite(apa[b]):
+            level = peak[b] - quality.ead_start_repol_pct / 100.0 * apa[b]
+            # The crossing is taken on the unsmoothed trace, and the search starts only where
+            # the smoothing window no longer reaches back into the upstroke.
+            below = np.flatnonzero(v[i_peak[b]:i_apd90[b] + 1] <= level)
+            a = i_peak[b] + int(below[0]) if below.size else -1
+            a = max(a, i_peak[b] + width // 2 + 1) if a >= 0 else -1
+            if 0 <= a < i_apd90[b]:
+                seg = vs[a:i_apd90[b] + 1]
+                floor = np.minimum.accumulate(seg)
+                rise = seg - floor
+                j = int(np.argmax(rise))
+                if rise[j] >= quality.ead_min_mV:
+                    start = int(np.flatnonzero(seg[: j + 1] == floor[j])[-1])
+                    if np.max(dvdt[a + start:a + j + 1]) >= quality.ead_min_dvdt_V_per_s:
+                        out["ead"][b] = True
+                        out["ead_mV"][b] = float(rise[j])
+                        out["ead_takeoff_mV"][b] = float(seg[start])
+        # DAD: a hump that rises and falls back by dad_min_mV before the next take-off.
+        if i_apd90[b] >= 0:
+            a = i_apd90[b]
+            if b + 1 < k:
+                stop = i_top[b + 1] if i_top[b + 1] > a else i_up[b + 1] - dad_width
+                # Keep the smoothing window from reaching into the next upstroke.
+                stop = min(stop, i_up[b + 1] - dad_width // 2 - 1)
+            else:
+                stop = n - 1
+            if stop - a > 2:
+                seg = vd[a:stop + 1]
+                rise = seg - np.minimum.accumulate(seg)
+                fall = seg - np.minimum.accumulate(seg[::-1])[::-1]
+                hump = np.minimum(rise, fall)
+                j = int(np.argmax(hump))
+                if hump[j] >= quality.dad_min_mV:
+                    out["dad"][b] = True
+                    out["dad_mV"][b] = float(hump[j])
+        # Noise of the diastole before this beat: what a zero-phase low-pass leaves out.
+        if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
+            seg = v[i_mdp[b]:i_top[b] + 1]
+            if seg.size >= min_noise_samples:
+                resid = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=min(seg.size - 1, 3 * pad))
+                out["noise_mV_rms"][b] = float(np.sqrt(np.mean(resid**2)))
+    out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)
+
+    # Clipping: each beat owns the samples from its MDP (the sweep start for the first beat) to
+    # the next beat's MDP, so every flat run belongs to exactly one beat.
+    samples = v if raw is None else np.asarray(raw)
+    min_len = max(3, int(math.ceil(quality.clip_min_flat_ms * 1e-3 * fs_hz)))
+    runs = _flat_runs_at_extremes(samples, min_len)
+    if runs:
+        owner_start = np.where(i_mdp >= 0, i_mdp, np.maximum(i_up - 1, 0))
+        owner_start[0] = 0
+        owner_start = np.maximum.accumulate(owner_start)
+        for a, stop, value in runs:
+            b = int(np.searchsorted(owner_start, a, side="right") - 1)
+            b = min(max(b, 0), k - 1)
+            if not out["clipped"][b]:
+                out["clipped"][b] = True
+                out["clip_detail"][b] = f"flat at {value:.4g} for {1e3 * (stop - a) / fs_hz:.3g} ms"
+    return out
+
+
+def _running_median(x: np.ndarray, size: int) -> np.ndarray:
+    size = max(1, int(size)) | 1
+    half = size // 2
+    padded = np.concatenate((np.full(half, np.nan), x, np.full(half, np.nan)))
+    windows = np.lib.stride_tricks.sliding_window_view(padded, size)
+    med = np.full(x.size, np.nan)
+    ok = np.isfinite(windows).any(axis=1)
+    if ok.any():
+        med[ok] = np.nanmedian(windows[ok], axis=1)
+    return med
+
+
+def table_events(beats: BeatTable, quality) -> tuple[dict[str, np.ndarray], list[str]]:
+    """The table-based events: pause, MDP drift, low APA, no overshoot, artefact.
+
+    Parameters
+    ----------
+    beats : BeatTable
+        All beats of the recording, sorted by sweep then time.
+    quality
+        The quality settings section.
+
+    Returns
+    -------
+    (dict of str to ndarray, list of str)
+        Boolean flag arrays and ``artefact_detail`` text per beat; warnings for the recording.
+    """
+    k = len(beats)
+    warnings: list[str] = []
+    sweep = np.asarray(beats["sweep"])
+    cl = np.asarray(beats["cl_ms"], float)
+    pause = np.zeros(k, bool)
+    for s in np.unique(sweep):
+        rows = np.flatnonzero(sweep == s)
+        med = _running_median(cl[rows], quality.pause_median_beats)
+        with np.errstate(invalid="ignore"):
+            pause[rows] = np.isfinite(cl[rows]) & (cl[rows] > quality.pause_factor * med)
+    mdp = np.asarray(beats["mdp_mV"], float)
+    drift = np.zeros(k, bool)
+    finite = np.flatnonzero(np.isfinite(mdp))
+    if finite.size:
+        reference = float(np.median(mdp[finite[: int(quality.mdp_reference_beats)]]))
+        with np.errstate(invalid="ignore"):
+            drift = np.isfinite(mdp) & (np.abs(mdp - reference) > quality.mdp_drift_max_mV)
+        spread = float(np.max(np.abs(mdp[finite] - reference)))
+        if drift.any():
+            warnings.append(
+                f"MDP drifts by up to {spread:.1f} mV from the first beats' median ({reference:.1f} mV); "
+                f"{int(drift.sum())} beat(s) flagged mdp_drift"
+            )
+    apa = np.asarray(beats["apa_mV"], float)
+    peak = np.asarray(beats["peak_mV"], float)
+    dvdt = np.asarray(beats["dvdt_max_V_per_s"], float)
+    apd90 = np.asarray(beats["apd90_ms"], float)
+    with np.errstate(invalid="ignore"):
+        low_apa = np.isfinite(apa) & (apa < quality.apa_min_mV)
+        no_overshoot = np.isfinite(peak) & (peak < quality.overshoot_min_mV)
+        too_fast = np.isfinite(dvdt) & (dvdt > quality.artefact_max_dvdt_V_per_s)
+        too_short = np.isfinite(apd90) & (apd90 < quality.artefact_min_apd90_ms)
+    detail = np.full(k, "", dtype=object)
+    for i in np.flatnonzero(too_fast | too_short):
+        parts = []
+        if too_fast[i]:
+            parts.append(f"dV/dt max {dvdt[i]:.4g} V/s > {quality.artefact_max_dvdt_V_per_s:g}")
+        if too_short[i]:
+            parts.append(f"APD90 {apd90[i]:.3g} ms < {quality.artefact_min_apd90_ms:g}")
+        detail[i] = ", ".join(parts)
+    flags = {
+        "pause": pause, "mdp_drift": drift, "low_apa": low_apa, "no_overshoot": no_overshoot,
+        "artefact": too_fast | too_short, "artefact_detail": detail,
+    }
+    return flags, warnings
+
+
+_WARNING_MARKS = ("beat(s) rejected automatically by the quality rules", "beat(s) flagged mdp_drift")
+
+
+def is_event_warning(text: str) -> bool:
+    """True for a warning this module wrote (replaced when the events are run again)."""
+    return any(mark in text for mark in _WARNING_MARKS)
+
+
+def strip_events(beats: BeatTable) -> BeatTable:
+    """The table without this module's flags, columns and automatic rejections.
+
+    Makes :func:`apply_events` idempotent, so that a change of the quality settings re-runs only
+    the events, on the measured table.
+    """
+    if len(beats) == 0:
+        return beats
+    mine = set(EVENT_FLAGS)
+    flags = np.array(
+        [";".join(w for w in str(f).split(";") if w and w not in mine) for f in beats["flags"]], dtype=object,
+    )
+    reasons = beats.get("reject_reason")
+    accepted = np.asarray(beats["accepted"]).copy()
+    if reasons is not None:
+        kept = []
+        for i, r in enumerate(reasons):
+            parts = [p for p in str(r).split("; ") if p and not p.startswith(AUTO_PREFIX)]
+            if str(r) and not parts:
+                accepted[i] = 1
+            kept.append("; ".join(parts))
+        reasons = np.array(kept, dtype=object)
+    cols = beats.columns()
+    for c in EVENT_COLUMNS:
+        cols.pop(c, None)
+    cols["flags"] = flags
+    cols["accepted"] = accepted
+    if reasons is not None:
+        cols["reject_reason"] = reasons
+    return BeatTable(cols)
+
+
+def apply_events(
+    beats: BeatTable,
+    sweeps_v_mV: Sequence[np.ndarray] | dict[int, np.ndarray] | None,
+    fs_hz: float,
+    quality,
+    *,
+    sweeps_raw: Sequence[np.ndarray] | dict[int, np.ndarray] | None = None,
+) -> tuple[BeatTable, list[str]]:
+    """Add event and quality flags to a measured table and apply the rejection rules.
+
+    Parameters
+    ----------
+    beats : BeatTable
+        The measured beats (any earlier events are replaced, see :func:`strip_events`).
+    sweeps_v_mV : mapping or sequence of ndarray, or None
+        ``sweeps_v_mV[s]`` is sweep ``s`` after LJP correction, in mV. None skips the
+        trace-based events (EAD, DAD, clipped, noisy).
+    fs_hz : float
+    quality
+        The quality settings section.
+    sweeps_raw : mapping or sequence of ndarray, or None
+        The uncorrected samples per sweep for the clipping test (None: use ``sweeps_v_mV``).
+
+    Returns
+    -------
+    (BeatTable, list of str)
+        The flagged table, with the columns ``ead_mV``, ``ead_takeoff_mV``, ``dad_mV`` and
+        ``noise_mV_rms`` added and ``accepted`` / ``reject_reason`` set by the rejection rules;
+        warnings for the recording.
+    """
+    base = strip_events(beats)
+    k = len(base)
+    found = {f: np.zeros(k, bool) for f in EVENT_FLAGS}
+    extra = {c: np.full(k, np.nan) for c in EVENT_COLUMNS}
+    details = {f: np.full(k, "", dtype=object) for f in ("clipped", "artefact")}
+    sweep = np.asarray(base["sweep"]) if k else np.empty(0, int)
+    if sweeps_v_mV is not None:
+        for s in np.unique(sweep):
+            rows = np.flatnonzero(sweep == s)
+            raw = None if sweeps_raw is None else sweeps_raw[int(s)]
+            res = sweep_trace_events(sweeps_v_mV[int(s)], fs_hz, base.take(rows), quality, raw=raw)
+            for f in ("ead", "dad", "clipped", "noisy"):
+                found[f][rows] = res[f]
+            for c in EVENT_COLUMNS:
+                extra[c][rows] = res[c]
+            details["clipped"][rows] = res["clip_detail"]
+    table_flags, warnings = table_events(base, quality) if k else ({}, [])
+    for f in ("pause", "mdp_drift", "low_apa", "no_overshoot", "artefact"):
+        if k:
+            found[f] = table_flags[f]
+    if k:
+        details["artefact"] = table_flags["artefact_detail"]
+
+    flags_out = []
+    for i, old in enumerate(base["flags"]):
+        words = [w for w in str(old).split(";") if w] + [f for f in EVENT_FLAGS if found[f][i]]
+        flags_out.append(";".join(words))
+    accepted = np.asarray(base["accepted"]).copy()
+    reasons = list(base["reject_reason"]) if "reject_reason" in base else [""] * k
+    rules = rejection_flags(quality)
+    n_auto = 0
+    for i in range(k):
+        why = []
+        for f in rules:
+            if found[f][i]:
+                detail = details[f][i] if f in details else ""
+                why.append(f"{AUTO_PREFIX}{f}" + (f" ({detail})" if detail else ""))
+        if why:
+            n_auto += int(accepted[i] == 1)
+            accepted[i] = 0
+            reasons[i] = "; ".join([r for r in [str(reasons[i])] if r] + why)
+    if n_auto:
+        warnings.append(f"{n_auto} beat(s) rejected automatically by the quality rules ({', '.join(rules)})")
+    table = base.with_columns(
+        flags=np.array(flags_out, dtype=object), accepted=accepted,
+        reject_reason=np.array(reasons, dtype=object), **extra,
+    )
+    return table, warnings

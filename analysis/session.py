@@ -1,0 +1,807 @@
+"""A review session: recordings, their settings and results, decisions, conditions; undo and redo.
+
+A :class:`Session` is the model the desktop app and the command line share. It holds any number
+of analysed recordings, keyed by their source path, each with its own settings, its automatic
+beat table (measurement, events and quality rules), the user's review decisions (an append-only
+:class:`~analysis.decisions.DecisionLog`) and its conditions. :meth:`Session.beats` gives the
+table as the user sees it: decisions applied to ``accepted`` and ``reject_reason``, the
+``condition`` column filled in, and a ``reviewed`` column (1 where a review decision applies).
+
+Every edit is a command on an undo stack. Change notifications are plain Python callbacks
+(:meth:`Session.subscribe`), so the app can forward them as Qt signals and the core stays
+Qt-free. A session is not thread-safe: call it from one thread. Heavy work can still run
+elsewhere: :meth:`Session.prepare_settings` only reads, and its result is applied later with
+:meth:`Session.apply_settings`.
+
+Events
+------
+``recording_added``, ``recording_removed``, ``results_changed`` (re-analysed),
+``decisions_changed`` (``rows`` holds the rows decided), ``conditions_changed``,
+``settings_changed``, ``history_changed`` (undo/redo availability, modified state), ``saved``,
+``warning`` (``detail`` holds the text). Subscribe to ``"*"`` for all of them.
+
+Examples
+--------
+>>> from analysis.synthetic import preset, synthesize
+>>> from analysis.conditions import parse_condition
+>>> syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=5_000.0, seed=3)
+>>> s = Session()
+>>> key = s.add(syn.recording, label="cell-07")
+>>> s.reject(key, [2], "electrode bump")
+>>> int(s.beats(key)["accepted"][2]), s.beats(key)["reject_reason"][2]
+(0, 'electrode bump')
+>>> s.undo(); int(s.beats(key)["accepted"][2])
+1
+>>> s.set_conditions(key, [parse_condition("baseline=0-8s")])
+>>> s.beats(key)["condition"][3]
+'baseline'
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field, replace
+from typing import Any, Callable, Iterable, Sequence
+
+import numpy as np
+
+from .conditions import Condition, assign_conditions, check_conditions
+from .decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
+from .errors import RecordingError
+from .recording import Recording
+from .table import BeatTable
+
+__all__ = ["Change", "EVENTS", "RecordingInfo", "Session", "SettingsChange"]
+
+EVENTS = (
+    "recording_added", "recording_removed", "results_changed", "decisions_changed",
+    "conditions_changed", "settings_changed", "history_changed", "saved", "warning",
+)
+#: Columns the session adds to the automatic table in its view.
+VIEW_COLUMNS = ("reviewed",)
+
+
+@dataclass(frozen=True)
+class Change:
+    """One change notification.
+
+    Attributes
+    ----------
+    event : str
+        One of :data:`EVENTS`.
+    recording : str or None
+        The recording's key, when the change concerns one.
+    rows : tuple of int
+        Rows of :meth:`Session.beats` concerned (decisions), else empty.
+    detail : str
+        Text for ``warning`` and ``saved`` (the path), else empty.
+    """
+
+    event: str
+    recording: str | None = None
+    rows: tuple[int, ...] = ()
+    detail: str = ""
+
+
+@dataclass
+class RecordingInfo:
+    """What the session knows about one recording besides its beats.
+
+    Attributes mirror :class:`analysis.store.StoredRecording`: ``source_path``, ``label``,
+    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
+    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
+    ``provenance``.
+    """
+
+    source_path: str
+    label: str
+    sha256: str = ""
+    reader: str = ""
+    channel: int = 0
+    channel_name: str = ""
+    units: str = "mV"
+    ljp_mV: float = 0.0
+    sweeps: tuple[int, ...] | None = None
+    sampling_rate_hz: float = math.nan
+    sweep_starts_s: tuple[float, ...] = ()
+    sweep_lengths: tuple[int, ...] = ()
+    provenance: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def sweep_durations_s(self) -> tuple[float, ...]:
+        return tuple(n / self.sampling_rate_hz for n in self.sweep_lengths)
+
+
+@dataclass
+class _Entry:
+    info: RecordingInfo
+    settings: Any
+    table: BeatTable
+    warnings: tuple[str, ...]
+    decisions: DecisionLog
+    conditions: tuple[Condition, ...]
+    recording: Recording | None = None
+    requested_channel: int | str | None = None
+    summaries: list | None = None
+
+
+@dataclass(frozen=True)
+class SettingsChange:
+    """New settings and the results they give, computed by :meth:`Session.prepare_settings`.
+
+    Attributes
+    ----------
+    settings : Settings
+    scopes : dict of str to str
+        Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
+        ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
+        (detection and measurement re-run).
+    tables, warnings, provenance : dict
+        The new results of the recordings that were re-analysed.
+    """
+
+    settings: Any
+    scopes: dict[str, str]
+    tables: dict[str, BeatTable]
+    warnings: dict[str, tuple[str, ...]]
+    provenance: dict[str, dict[str, str]]
+
+
+def _key_of(source: str) -> str:
+    return os.path.normcase(os.path.abspath(source))
+
+
+class Session:
+    """Recordings with their results, review decisions and conditions, with undo and redo.
+
+    Parameters
+    ----------
+    default_settings : Settings or None
+        Settings for recordings added without their own; None takes the defaults.
+    match_tolerance_s : float
+        A decision applies to the beat of its sweep whose upstroke lies nearest its own, when
+        within this many seconds; it then survives re-analyses that shift upstrokes slightly
+        (for example a change of the upstroke-time definition).
+    """
+
+    def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010) -> None:
+        from .settings import Settings
+
+        self.default_settings = default_settings if default_settings is not None else Settings()
+        self.match_tolerance_s = float(match_tolerance_s)
+        self._entries: dict[str, _Entry] = {}
+        self._undo: list[_Command] = []
+        self._redo: list[_Command] = []
+        self._listeners: dict[str, list[Callable[[Change], None]]] = {}
+        self._clean_depth: int | None = 0
+        self.path: str | None = None
+        self.open_warnings: list[str] = []
+
+    # -- notifications -----------------------------------------------------------------------
+    def subscribe(self, event: str, callback: Callable[[Change], None]) -> Callable[[], None]:
+        """Call ``callback(change)`` after every change of kind ``event`` (``"*"``: all).
+
+        Returns
+        -------
+        callable
+            Calling it unsubscribes.
+        """
+        if event != "*" and event not in EVENTS:
+            raise ValueError(f"unknown session event {event!r}; choose from {', '.join(EVENTS)} or '*'")
+        self._listeners.setdefault(event, []).append(callback)
+
+        def unsubscribe() -> None:
+            with_cb = self._listeners.get(event, [])
+            if callback in with_cb:
+                with_cb.remove(callback)
+
+        return unsubscribe
+
+    def _emit(self, event: str, recording: str | None = None, rows: Sequence[int] = (), detail: str = "") -> None:
+        change = Change(event, recording, tuple(int(r) for r in rows), detail)
+        for cb in list(self._listeners.get(event, ())) + list(self._listeners.get("*", ())):
+            cb(change)
+
+    # -- recordings --------------------------------------------------------------------------
+    @property
+    def recordings(self) -> tuple[str, ...]:
+        """Keys of the recordings, in the order they were added."""
+        return tuple(self._entries)
+
+    def add(
+        self,
+        source: Recording | str | os.PathLike,
+        *,
+        settings: Any = None,
+        channel: int | str | None = None,
+        sweeps: Sequence[int] | None = None,
+        label: str | None = None,
+        conditions: Sequence[Condition] = (),
+        result: Any = None,
+        keep_review: bool = True,
+    ) -> str:
+        """Analyse a recording and add it; returns its key.
+
+        Parameters
+        ----------
+        source : Recording or path
+            A path is opened with :func:`analysis.open_recording`.
+        settings : Settings or None
+            None uses :attr:`default_settings`.
+        channel, sweeps
+            As for :func:`analysis.analyze` (None: the current-clamp channel; all sweeps).
+        label : str or None
+            The ``file`` column; None uses the path as given (or ``"recording-N"``).
+        conditions : sequence of Condition
+        result : AnalysisResult or None
+            A result already computed for exactly these arguments (for example in a worker
+            thread or a batch); None analyses here.
+        keep_review : bool
+            When a recording of the same source is already in the session it is replaced; True
+            carries its decisions (matched by upstroke time) and, if none are given here, its
+            conditions over to the new analysis.
+
+        Raises
+        ------
+        RecordingError, SettingsError
+            On a bad recording, channel or settings.
+
+        Notes
+        -----
+        Adding clears nothing from the undo history, but adding is not itself undoable.
+        """
+        from . import open_recording
+        from .pipeline import analyze
+
+        given = source if not isinstance(source, Recording) else None
+        rec = source if isinstance(source, Recording) else open_recording(source)
+        settings = settings if settings is not None else self.default_settings
+        if label is None:
+            label = os.fspath(given) if given is not None else (rec.source_path or f"recording-{len(self._entries) + 1}")
+        if result is None:
+            result = analyze(rec, settings=settings, channel=channel, sweeps=sweeps, label=label)
+        key = _key_of(rec.source_path) if rec.source_path else label
+        info = self._info_from(rec, result, label, sweeps)
+        entry = _Entry(
+            info=info, settings=settings, table=result.beats, warnings=tuple(result.warnings),
+            decisions=DecisionLog(), conditions=(), recording=rec, requested_channel=channel,
+        )
+        old = self._entries.get(key)
+        if old is not None and keep_review:
+            entry.decisions = old.decisions.copy()
+            if not conditions:
+                conditions = old.conditions
+        entry.conditions = check_conditions(conditions, info.sweep_starts_s, info.sweep_durations_s, where=label)
+        if old is not None:
+            self._drop_history(key)
+        self._entries[key] = entry
+        self._touch()
+        self._emit("recording_added", key)
+        for w in entry.warnings:
+            self._emit("warning", key, detail=w)
+        return key
+
+    def _info_from(self, rec: Recording, result: Any, label: str, sweeps: Sequence[int] | None) -> RecordingInfo:
+        from .store import provenance_now
+
+        return RecordingInfo(
+            source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
+            label=label,
+            sha256=(rec.sha256 or "") if rec.source_path else "",
+            reader=rec.format,
+            channel=int(result.channel),
+            channel_name=str(result.channel_name),
+            units=rec.units(int(result.channel)),
+            ljp_mV=float(result.ljp_mV),
+            sweeps=None if sweeps is None else tuple(int(s) for s in sweeps),
+            sampling_rate_hz=rec.sampling_rate_hz,
+            sweep_starts_s=tuple(rec.sweep_starts_s),
+            sweep_lengths=tuple(rec.sweep_lengths),
+            provenance=provenance_now(),
+        )
+
+    def remove(self, key: str) -> None:
+        """Take a recording out of the session (not undoable; its history is dropped)."""
+        self._entry(key)
+        del self._entries[key]
+        self._drop_history(key)
+        self._touch()
+        self._emit("recording_removed", key)
+
+    def _entry(self, key: str) -> _Entry:
+        try:
+            return self._entries[key]
+        except KeyError:
+            raise KeyError(f"no recording {key!r} in the session; it holds {list(self._entries)}") from None
+
+    def info(self, key: str) -> RecordingInfo:
+        """Source, reader, channel, LJP, geometry and provenance of a recording."""
+        return self._entry(key).info
+
+    def label(self, key: str) -> str:
+        return self._entry(key).info.label
+
+    def settings(self, key: str) -> Any:
+        """The settings a recording was analysed with."""
+        return self._entry(key).settings
+
+    def warnings(self, key: str) -> tuple[str, ...]:
+        """The analysis warnings of a recording."""
+        return self._entry(key).warnings
+
+    def recording(self, key: str) -> Recording:
+        """The recording itself, opened from its source on first use after :meth:`open`.
+
+        Raises
+        ------
+        RecordingError
+            When the source is missing or unreadable (results opened from a file still work
+            without it; only re-analysis and traces need it).
+        """
+        e = self._entry(key)
+        if e.recording is None:
+            from . import open_recording
+
+            path = e.info.source_path
+            if not os.path.isfile(path):
+                raise RecordingError(path, "the source recording is not there", "put it back or re-link it, then try again")
+            e.recording = open_recording(path)
+        return e.recording
+
+    def trace_mV(self, key: str, sweep: int) -> np.ndarray:
+        """One sweep of the analysed channel in mV after the LJP correction (no filters)."""
+        e = self._entry(key)
+        raw = self.recording(key).sweep(int(sweep), e.info.channel)
+        return raw * _mV_scale(e.info.units) - e.info.ljp_mV
+
+    # -- tables ------------------------------------------------------------------------------
+    def auto_beats(self, key: str) -> BeatTable:
+        """The automatic beat table (measurement, events and quality rules; no review)."""
+        return self._entry(key).table
+
+    def beats(self, key: str) -> BeatTable:
+        """The beat table as reviewed: decisions and conditions applied.
+
+        Returns
+        -------
+        BeatTable
+            The automatic table's columns in their order, with ``accepted`` and
+            ``reject_reason`` after the latest applying decision, ``condition`` filled in, and
+            ``reviewed`` (1 where a review decision applies, 0 where the automatic verdict
+            stands).
+        """
+        e = self._entry(key)
+        t = e.table
+        n = len(t)
+        sweep = np.asarray(t["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
+        t_up = np.asarray(t["t_upstroke_s"], dtype=np.float64) if n else np.empty(0)
+        verdict, reason = e.decisions.state(sweep, t_up, tolerance_s=self.match_tolerance_s)
+        accepted = np.asarray(t["accepted"]).copy() if n else np.empty(0, np.int64)
+        reasons = np.array(t["reject_reason"], dtype=object) if "reject_reason" in t else np.full(n, "", dtype=object)
+        decided = verdict != CLEAR
+        accepted[decided] = verdict[decided]
+        reasons[decided & (verdict == ACCEPT)] = ""
+        rejected = decided & (verdict == REJECT)
+        reasons[rejected] = reason[rejected]
+        starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
+        t_rec = starts[sweep] + t_up if n else np.empty(0)
+        condition = assign_conditions(sweep, t_rec, e.conditions)
+        return t.with_columns(
+            accepted=accepted, reject_reason=reasons, condition=condition, reviewed=decided.astype(np.int64),
+        )
+
+    def all_beats(self, keys: Sequence[str] | None = None) -> BeatTable:
+        """The reviewed tables of several recordings (all by default), one after another."""
+        keys = list(self._entries) if keys is None else list(keys)
+        tables = [self.beats(k) for k in keys]
+        if not tables:
+            return BeatTable.empty()
+        names = tables[0].names
+        common = [c for c in names if all(c in t for t in tables)]
+        return BeatTable.concat([BeatTable({c: t[c] for c in common}) for t in tables])
+
+    # -- decisions ---------------------------------------------------------------------------
+    def decisions(self, key: str) -> DecisionLog:
+        """A copy of a recording's decision log (every entry ever made, oldest first)."""
+        return self._entry(key).decisions.copy()
+
+    def orphaned_decisions(self, key: str) -> list[Decision]:
+        """Decisions whose beat no longer exists (no upstroke within the tolerance)."""
+        e = self._entry(key)
+        t = e.table
+        _, orphan = e.decisions.match(t["sweep"], t["t_upstroke_s"], tolerance_s=self.match_tolerance_s)
+        return [d for d, o in zip(e.decisions, orphan) if o]
+
+    def decide(self, key: str, rows: Iterable[int], accepted: bool | None, reason: str = "") -> None:
+        """Accept (True), reject (False) or clear (None: back to automatic) beats; one undo step.
+
+        Parameters
+        ----------
+        key : str
+        rows : iterable of int
+            Rows of :meth:`beats` (for example every beat in a dragged region).
+        accepted : bool or None
+        reason : str
+            Why, for a rejection (kept in the log and the ``reject_reason`` column).
+        """
+        e = self._entry(key)
+        rows = sorted({int(r) for r in rows})
+        if not rows:
+            return
+        n = len(e.table)
+        bad = [r for r in rows if not 0 <= r < n]
+        if bad:
+            raise IndexError(f"no beat row {bad[0]} in {e.info.label} (it has {n} beats)")
+        value = CLEAR if accepted is None else (ACCEPT if accepted else REJECT)
+        view = self.beats(key)
+        stamp = now_utc()
+        new = [
+            Decision(int(view["sweep"][r]), int(view["beat"][r]), float(view["t_upstroke_s"][r]), value,
+                     reason if value == REJECT else "", stamp, "review")
+            for r in rows
+        ]
+        before = [
+            (int(view["reviewed"][r]), int(view["accepted"][r]), str(view["reject_reason"][r])) for r in rows
+        ]
+        verb = {ACCEPT: "Accept", REJECT: "Reject", CLEAR: "Clear the decision on"}[value]
+        text = f"{verb} {len(rows)} beat{'s' if len(rows) != 1 else ''}"
+        self._run(_DecideCommand(self, key, rows, new, before, text))
+
+    def accept(self, key: str, rows: Iterable[int]) -> None:
+        """Accept beats (one undo step)."""
+        self.decide(key, rows, True)
+
+    def reject(self, key: str, rows: Iterable[int], reason: str) -> None:
+        """Reject beats with a reason (one undo step)."""
+        self.decide(key, rows, False, reason)
+
+    def clear_decisions(self, key: str, rows: Iterable[int]) -> None:
+        """Return beats to their automatic verdict (one undo step)."""
+        self.decide(key, rows, None)
+
+    # -- conditions --------------------------------------------------------------------------
+    def conditions(self, key: str) -> tuple[Condition, ...]:
+        """A recording's conditions, sorted by start."""
+        return self._entry(key).conditions
+
+    def set_conditions(self, key: str, conditions: Sequence[Condition]) -> None:
+        """Replace a recording's conditions (one undo step).
+
+        Raises
+        ------
+        ConditionError
+            When two share a name or overlap.
+        """
+        e = self._entry(key)
+        new = check_conditions(conditions, e.info.sweep_starts_s, e.info.sweep_durations_s, where=e.info.label)
+        if new == e.conditions:
+            return
+        self._run(_ConditionsCommand(self, key, e.conditions, new))
+
+    def add_condition(self, key: str, condition: Condition) -> None:
+        """Add one condition (one undo step)."""
+        self.set_conditions(key, list(self.conditions(key)) + [condition])
+
+    def remove_condition(self, key: str, name: str) -> None:
+        """Remove the condition of that name (one undo step)."""
+        self.set_conditions(key, [c for c in self.conditions(key) if c.name != name])
+
+    def replace_condition(self, key: str, name: str, condition: Condition) -> None:
+        """Replace the condition of that name, e.g. a new range or steady-state window."""
+        self.set_conditions(key, [condition if c.name == name else c for c in self.conditions(key)])
+
+    # -- settings ----------------------------------------------------------------------------
+    def prepare_settings(self, settings: Any, keys: Sequence[str] | None = None) -> SettingsChange:
+        """Compute the results new settings give, without changing the session.
+
+        Only what the change affects is recomputed: nothing for the summary section, the events
+        and quality rules for the quality section, the whole analysis otherwise. Safe to run in
+        a worker thread while the session is not being edited.
+        """
+        from .pipeline import analyze
+
+        keys = list(self._entries) if keys is None else list(keys)
+        scopes, tables, warnings, prov = {}, {}, {}, {}
+        for key in keys:
+            e = self._entry(key)
+            scope = _scope(e.settings, settings)
+            scopes[key] = scope
+            if scope == "analysis":
+                rec = self.recording(key)
+                channel = e.requested_channel if e.requested_channel is not None else e.info.channel
+                res = analyze(rec, settings=settings, channel=channel, sweeps=e.info.sweeps, label=e.info.label)
+                tables[key], warnings[key] = res.beats, tuple(res.warnings)
+            elif scope == "events":
+                from .pipeline import flag_and_reject
+
+                tables[key], w = flag_and_reject(
+                    e.table, self.recording(key), e.info.channel, settings, scale=_mV_scale(e.info.units),
+                )
+                kept = tuple(x for x in e.warnings if not _is_event_warning(x))
+                warnings[key] = kept + tuple(w)
+            if scope in ("analysis", "events"):
+                from .store import provenance_now
+
+                prov[key] = provenance_now()
+        return SettingsChange(settings, scopes, tables, warnings, prov)
+
+    def apply_settings(self, change: SettingsChange) -> None:
+        """Apply prepared settings and results (one undo step)."""
+        keys = [k for k, s in change.scopes.items() if s != "none" and k in self._entries]
+        if not keys:
+            return
+        self._run(_SettingsCommand(self, change, keys))
+
+    def set_settings(self, settings: Any, keys: Sequence[str] | None = None) -> dict[str, str]:
+        """Change the settings of some (default: all) recordings and re-analyse what they affect.
+
+        Decisions stay on the beats that still exist (matched by upstroke time). One undo step.
+
+        Returns
+        -------
+        dict of str to str
+            Per recording, what was recomputed (see :class:`SettingsChange`).
+        """
+        change = self.prepare_settings(settings, keys)
+        self.apply_settings(change)
+        return change.scopes
+
+    # -- summaries ---------------------------------------------------------------------------
+    def summaries(self, key: str) -> list:
+        """The recording's summaries (:class:`analysis.summary.Summary`), cached until a change."""
+        e = self._entry(key)
+        if e.summaries is None:
+            e.summaries = self._compute_summaries(key)
+        return e.summaries
+
+    def _compute_summaries(self, key: str) -> list:
+        from .ensemble import measure_cycle
+        from .summary import summarize
+
+        e = self._entry(key)
+        settings = e.settings
+        source = None
+        measure = None
+        try:
+            if getattr(settings.summary, "ensemble", True):
+                self.recording(key)
+                source = lambda s: self.trace_mV(key, s)  # noqa: E731
+                measure = self._cycle_measurer(key)
+        except RecordingError:
+            source = None
+        return summarize(
+            self.beats(key), label=e.info.label, sweep_starts_s=e.info.sweep_starts_s,
+            sweep_durations_s=e.info.sweep_durations_s, conditions=e.conditions,
+            settings=settings.summary, settings_hash=settings.short_hash(), ensemble_source=source,
+            fs_hz=e.info.sampling_rate_hz, measure_ensemble=measure,
+        )
+
+    def _cycle_measurer(self, key: str) -> Callable[[np.ndarray], dict | None]:
+        from .ensemble import measure_cycle
+        from .pipeline import analyze
+
+        e = self._entry(key)
+        settings, ljp = e.settings, e.info.ljp_mV
+
+        def analyze_trace(v_mV: np.ndarray, fs_hz: float) -> BeatTable:
+            # The averaged cycle is already corrected; analyze subtracts the LJP once more.
+            rec = Recording.from_array(v_mV + ljp, fs_hz, units="mV")
+            return analyze(rec, settings=settings, channel=0).beats
+
+        return lambda v: measure_cycle(v, e.info.sampling_rate_hz, analyze_trace, cycle_samples=v.size // 3)
+
+    def summary_table(self, keys: Sequence[str] | None = None) -> dict[str, np.ndarray]:
+        """The summaries of several recordings (all by default) as summary-CSV columns."""
+        from .summary import summary_columns
+
+        keys = list(self._entries) if keys is None else list(keys)
+        return summary_columns([s for k in keys for s in self.summaries(k)])
+
+    # -- undo / redo -------------------------------------------------------------------------
+    @property
+    def can_undo(self) -> bool:
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        return bool(self._redo)
+
+    @property
+    def undo_text(self) -> str:
+        """What :meth:`undo` would undo ("" when nothing)."""
+        return self._undo[-1].text if self._undo else ""
+
+    @property
+    def redo_text(self) -> str:
+        return self._redo[-1].text if self._redo else ""
+
+    @property
+    def modified(self) -> bool:
+        """True when the session differs from what was last saved or opened."""
+        return self._clean_depth != len(self._undo)
+
+    def undo(self) -> None:
+        """Undo the latest edit (decisions are undone by log entries that restore the state)."""
+        if not self._undo:
+            return
+        cmd = self._undo.pop()
+        cmd.undo()
+        self._redo.append(cmd)
+        self._emit("history_changed")
+
+    def redo(self) -> None:
+        """Redo the latest undone edit."""
+        if not self._redo:
+            return
+        cmd = self._redo.pop()
+        cmd.redo()
+        self._undo.append(cmd)
+        self._emit("history_changed")
+
+    def _run(self, cmd: "_Command") -> None:
+        cmd.do()
+        if self._clean_depth is not None and self._clean_depth > len(self._undo):
+            self._clean_depth = None  # the saved state can no longer be reached by undo
+        self._undo.append(cmd)
+        self._redo.clear()
+        self._emit("history_changed")
+
+    def _touch(self) -> None:
+        self._clean_depth = None
+        self._emit("history_changed")
+
+    def _drop_history(self, key: str) -> None:
+        self._undo = [c for c in self._undo if key not in c.keys]
+        self._redo = [c for c in self._redo if key not in c.keys]
+
+    def _invalidate(self, key: str) -> None:
+        self._entries[key].summaries = None
+
+    # -- files -------------------------------------------------------------------------------
+    def save(self, path: str | os.PathLike) -> None:
+        """Write the session to a results file, atomically (see :mod:`analysis.store`)."""
+        from .session_io import save_session
+
+        save_session(self, path)
+        self.path = os.path.abspath(os.fspath(path))
+        self._clean_depth = len(self._undo)
+        self._emit("saved", detail=self.path)
+        self._emit("history_changed")
+
+    @classmethod
+    def open(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
+        """A session restored from a results file.
+
+        Recordings are opened from their sources only when needed (traces, re-analysis);
+        a changed or missing source adds a line to :attr:`open_warnings` and the results open.
+
+        Raises
+        ------
+        ResultsFileError
+            When the file is missing, damaged, foreign or of a newer schema.
+        """
+        from .session_io import open_session
+
+        return open_session(cls, path, verify_sources=verify_sources, match_tolerance_s=match_tolerance_s)
+
+
+def _scope(old: Any, new: Any) -> str:
+    if old == new:
+        return "none"
+    changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
+    if changed <= {"summary"}:
+        return "summary"
+    if changed <= {"summary", "quality"}:
+        return "events"
+    return "analysis"
+
+
+def _is_event_warning(text: str) -> bool:
+    from .events import is_event_warning
+
+    return is_event_warning(text)
+
+
+def _mV_scale(units: str) -> float:
+    """Factor from a voltage channel's units to mV (1 for mV and for unknown units)."""
+    return {"v": 1000.0, "uv": 1e-3, "µv": 1e-3}.get(units.strip().lower(), 1.0)
+
+
+# -- commands ----------------------------------------------------------------------------------
+class _Command:
+    text = ""
+    keys: tuple[str, ...] = ()
+
+    def do(self) -> None:
+        raise NotImplementedError
+
+    def undo(self) -> None:
+        raise NotImplementedError
+
+    def redo(self) -> None:
+        self.do()
+
+
+class _DecideCommand(_Command):
+    """Appends review entries; undo appends entries that restore each beat's earlier verdict."""
+
+    def __init__(self, session: Session, key: str, rows: list[int], new: list[Decision], before, text: str) -> None:
+        self.session, self.key, self.rows, self.new, self.before, self.text = session, key, rows, new, before, text
+        self.keys = (key,)
+
+    def _append(self, entries: list[Decision]) -> None:
+        s = self.session
+        s._entries[self.key].decisions.append(entries)
+        s._invalidate(self.key)
+        s._emit("decisions_changed", self.key, self.rows)
+
+    def do(self) -> None:
+        self._append(self.new)
+
+    def undo(self) -> None:
+        stamp = now_utc()
+        restore = [
+            replace(d, accepted=(acc if reviewed else CLEAR), reason=(why if reviewed and acc == REJECT else ""),
+                    time_utc=stamp, action="undo")
+            for d, (reviewed, acc, why) in zip(self.new, self.before)
+        ]
+        self._append(restore)
+
+    def redo(self) -> None:
+        stamp = now_utc()
+        self._append([replace(d, time_utc=stamp, action="redo") for d in self.new])
+
+
+class _ConditionsCommand(_Command):
+    def __init__(self, session: Session, key: str, old, new) -> None:
+        self.session, self.key, self.old, self.new = session, key, old, new
+        self.keys = (key,)
+        self.text = "Change the conditions"
+
+    def _set(self, value) -> None:
+        s = self.session
+        s._entries[self.key].conditions = value
+        s._invalidate(self.key)
+        s._emit("conditions_changed", self.key)
+
+    def do(self) -> None:
+        self._set(self.new)
+
+    def undo(self) -> None:
+        self._set(self.old)
+
+
+class _SettingsCommand(_Command):
+    def __init__(self, session: Session, change: SettingsChange, keys: list[str]) -> None:
+        self.session, self.change = session, change
+        self.keys = tuple(keys)
+        self.text = "Change the settings"
+        self.old = {
+            k: (e.settings, e.table, e.warnings, dict(e.info.provenance))
+            for k, e in ((k, session._entries[k]) for k in keys)
+        }
+
+    def _set(self, key: str, settings, table, warnings, provenance, reanalysed: bool) -> None:
+        s = self.session
+        e = s._entries[key]
+        e.settings, e.table, e.warnings = settings, table, warnings
+        e.info.provenance = provenance
+        s._invalidate(key)
+        s._emit("settings_changed", key)
+        if reanalysed:
+            s._emit("results_changed", key)
+
+    def do(self) -> None:
+        c = self.change
+        for k in self.keys:
+            e = self.session._entries[k]
+            self._set(
+                k, c.settings, c.tables.get(k, e.table), c.warnings.get(k, e.warnings),
+                c.provenance.get(k, dict(e.info.provenance)), k in c.tables,
+            )
+
+    def undo(self) -> None:
+        for k in self.keys:
+            settings, table, warnings, prov = self.old[k]
+            self._set(k, settings, table, warnings, prov, k in self.change.tables)

@@ -1,0 +1,179 @@
+"""Event and quality flags on synthetic cells with planted events and on hand-built tables.
+
+The beats are the synthetic recordings' exact truth tables (:mod:`analysis.synthetic`), so these
+tests check the events alone, independent of detection and measurement.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from analysis.events import AUTO_PREFIX, EVENT_FLAGS, apply_events, strip_events
+from analysis.settings import Settings
+from analysis.synthetic import DAD, EAD, Pause, SealTrouble, preset, synthesize
+from analysis.table import BeatTable
+
+QUALITY = Settings().quality
+
+
+def _table(syn) -> BeatTable:
+    t = syn.truth.beats
+    n = len(t)
+    return t.with_columns(
+        file=np.full(n, "syn", dtype=object), accepted=np.ones(n, dtype=np.int64),
+        condition=np.full(n, "", dtype=object), reject_reason=np.full(n, "", dtype=object),
+    )
+
+
+def _run(syn, quality=QUALITY, v=None):
+    table = _table(syn)
+    rec = syn.recording
+    sweeps = {s: (rec.sweep(s) if v is None else v[s]) for s in range(rec.n_sweeps)}
+    return apply_events(table, sweeps, rec.sampling_rate_hz, quality)
+
+
+def _flagged(table: BeatTable, flag: str) -> set[int]:
+    return {int(b) for b, f in zip(table["train_beat"], table["flags"]) if flag in str(f).split(";")}
+
+
+CELLS = ["nodal-like", "ventricular-like", "purkinje-like", "atrial-like"]
+
+
+@pytest.mark.parametrize("name", CELLS)
+def test_no_event_on_clean_traces(name):
+    # Planted-event truth of analysis.synthetic: nothing planted, nothing found.
+    syn = synthesize(preset(name), duration_s=12.0, fs_hz=10_000.0, seed=2, noise_mV=0.3, hum_mV=0.3)
+    table, warnings = _run(syn)
+    for flag in EVENT_FLAGS:
+        if flag == "no_overshoot":
+            continue
+        assert _flagged(table, flag) == set(), (name, flag)
+    assert (table["accepted"] == 1).all()
+
+
+@pytest.mark.parametrize("name", CELLS)
+def test_every_planted_ead_dad_and_pause_is_found(name):
+    cell = preset(name)
+    eads = [EAD(3, amplitude_mV=6.0), EAD(7, amplitude_mV=8.0, at_repolarisation=0.5)]
+    dads = [DAD(4, amplitude_mV=3.0), DAD(8, amplitude_mV=4.0)]
+    pauses = [Pause(6, factor=2.6)]
+    syn = synthesize(cell, duration_s=cell.cl_ms * 14 / 1000.0, fs_hz=10_000.0, seed=5, noise_mV=0.2,
+                     hum_mV=0.2, eads=eads, dads=dads, pauses=pauses)
+    table, _ = _run(syn)
+    # Truth: the beats the events were planted at (analysis.synthetic's event table).
+    assert _flagged(table, "ead") == {3, 7}
+    assert _flagged(table, "dad") == {4, 8}
+    assert _flagged(table, "pause") == {6}
+    # Physiology flags are suggestions by default (MEASUREMENTS.md): nothing rejected.
+    assert (table["accepted"] == 1).all()
+    ead_rows = np.flatnonzero(np.isfinite(table["ead_mV"]))
+    assert np.all(table["ead_mV"][ead_rows] >= QUALITY.ead_min_mV)
+
+
+def test_ead_takeoff_potential_is_reported():
+    # Zhang & Qu 2021 (Physiol Rep 9:e14883): phase-2 EADs take off above -40 mV.
+    syn = synthesize(preset("ventricular-like"), duration_s=12.0, fs_hz=10_000.0, seed=1,
+                     eads=[EAD(4, amplitude_mV=8.0, at_repolarisation=0.3)])
+    table, _ = _run(syn)
+    row = int(np.flatnonzero(table["train_beat"] == 4)[0])
+    truth_t = float(syn.truth.times("ead")[0])
+    assert "ead" in table["flags"][row]
+    assert table["ead_takeoff_mV"][row] > -40.0
+    # The reported take-off matches the trace at the planted take-off time within a few mV.
+    v = syn.recording.sweep(0)
+    assert table["ead_takeoff_mV"][row] == pytest.approx(v[int(truth_t * 10_000)], abs=4.0)
+
+
+def test_rejection_rules_are_settings():
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=10_000.0, seed=3, eads=[EAD(4, amplitude_mV=6.0)])
+    quality = Settings().replace("quality.reject_ead", True).quality
+    table, warnings = _run(syn, quality)
+    row = int(np.flatnonzero(table["train_beat"] == 4)[0])
+    assert table["accepted"][row] == 0
+    assert table["reject_reason"][row].startswith(AUTO_PREFIX + "ead")
+    assert int((table["accepted"] == 0).sum()) == 1
+    assert any("rejected automatically" in w for w in warnings)
+
+
+def test_clipped_beats_are_rejected_by_default():
+    # An amplifier saturating at +10 mV: every beat whose peak the clip cuts is flagged
+    # (common practice, no source: flat at the converter's limit).
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=10_000.0, seed=4, noise_mV=0.2)
+    v = {0: np.minimum(syn.recording.sweep(0), 10.0)}
+    table, _ = _run(syn, v=v)
+    cut = np.asarray(syn.truth.beats["peak_mV"]) > 10.5
+    flagged = np.array(["clipped" in str(f) for f in table["flags"]])
+    assert np.array_equal(flagged, cut)
+    assert np.all(table["accepted"][cut] == 0)
+    assert all("flat at 10 for" in r for r in table["reject_reason"][cut])
+
+
+def test_noise_level_and_noisy_flag():
+    # White noise of known rms (numpy's generator as the reference): the diastolic estimate
+    # reads it within 10 %, and hum counts as noise.
+    for noise, hum in ((0.5, 0.0), (0.3, 0.4)):
+        syn = synthesize(preset("ventricular-like"), duration_s=12.0, fs_hz=10_000.0, seed=6, noise_mV=noise, hum_mV=hum)
+        table, _ = _run(syn)
+        expected = np.hypot(noise, hum / np.sqrt(2.0))  # rms of a sinusoid: amplitude / sqrt 2
+        est = np.nanmedian(table["noise_mV_rms"])
+        assert est == pytest.approx(expected, rel=0.10)
+    syn = synthesize(preset("ventricular-like"), duration_s=12.0, fs_hz=10_000.0, seed=6, noise_mV=1.5)
+    table, _ = _run(syn)
+    measured = np.isfinite(table["noise_mV_rms"])
+    assert measured.sum() >= 5
+    assert all("noisy" in table["flags"][i] for i in np.flatnonzero(measured))
+    assert (table["accepted"] == 1).all()  # noisy is a suggestion by default
+
+
+def test_mdp_drift_flags_the_leaky_stretch():
+    # A seal that leaks for a while depolarises the MDP by 15 mV (synthetic truth).
+    syn = synthesize(preset("ventricular-like"), duration_s=40.0, fs_hz=5_000.0, seed=2,
+                     seal_troubles=[SealTrouble(20.0, 32.0, depolarisation_mV=15.0, noise_mV=0.0, ramp_s=0.5)])
+    table, warnings = _run(syn)
+    mdp = np.asarray(table["mdp_mV"])
+    ref = np.nanmedian(mdp[np.isfinite(mdp)][:10])
+    expect = np.isfinite(mdp) & (np.abs(mdp - ref) > QUALITY.mdp_drift_max_mV)
+    assert expect.sum() >= 3
+    flagged = np.array(["mdp_drift" in str(f) for f in table["flags"]])
+    assert np.array_equal(flagged, expect)
+    assert any("MDP drifts" in w for w in warnings)
+
+
+def _hand_table(**over):
+    # Common practice, no source: artefact-like detections cannot be action potentials.
+    n = 4
+    cols = {
+        "file": ["h"] * n, "sweep": [0] * n, "beat": list(range(n)), "t_upstroke_s": [0.5, 1.3, 2.1, 2.9],
+        "accepted": [1] * n, "flags": ["no_diastole", "", "", ""], "condition": [""] * n,
+        "cl_ms": [np.nan, 800, 800, 800], "rate_bpm": [np.nan, 75, 75, 75], "mdp_mV": [np.nan, -60, -61, -60],
+        "top_mV": [np.nan, -45, -45, -45], "ddr_mV_per_s": [np.nan, 50, 50, 50], "ddr100_mV_per_s": [np.nan] * n,
+        "dvdt_max_V_per_s": [5, 5, 2500, 5], "peak_mV": [10, 10, 10, -3], "apa_mV": [np.nan, 70, 71, 30],
+        "apd20_ms": [np.nan] * n, "apd50_ms": [np.nan] * n, "apd90_ms": [np.nan, 150, 1.2, 150],
+        "reject_reason": [""] * n,
+    }
+    cols.update(over)
+    return BeatTable(cols)
+
+
+def test_artefacts_rejected_overshoot_only_flagged():
+    table, _ = apply_events(_hand_table(), None, 10_000.0, QUALITY)
+    assert table["flags"][2] == "artefact"
+    assert table["accepted"][2] == 0
+    assert "dV/dt max 2500 V/s > 1000" in table["reject_reason"][2]
+    assert "APD90 1.2 ms < 10" in table["reject_reason"][2]
+    # MEASUREMENTS.md: overshoot below 0 mV is a flag, never an automatic rejection.
+    assert table["flags"][3] == "low_apa;no_overshoot"
+    assert table["accepted"][3] == 1
+    assert not hasattr(QUALITY, "reject_no_overshoot")
+
+
+def test_events_are_idempotent_and_strippable():
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=10_000.0, seed=3, dads=[DAD(3)])
+    once, _ = _run(syn)
+    sweeps = {0: syn.recording.sweep(0)}
+    twice, _ = apply_events(once, sweeps, 10_000.0, QUALITY)
+    assert twice.equals(once)
+    base = strip_events(once)
+    assert list(base["flags"]) == list(syn.truth.beats["flags"])
+    assert "dad_mV" not in base

@@ -1,0 +1,224 @@
+"""The review session: decisions, conditions, undo/redo, notifications, settings, save/open."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from analysis.conditions import Condition, ConditionError, SteadyState, parse_condition
+from analysis.session import Session
+from analysis.settings import Settings
+from analysis.synthetic import EAD, preset, synthesize
+from analysis.synthetic_io import write_abf
+
+
+@pytest.fixture(scope="module")
+def syn():
+    return synthesize(preset("nodal-like"), duration_s=20.0, fs_hz=5_000.0, seed=11, noise_mV=0.2,
+                      eads=[EAD(6, amplitude_mV=8.0)])
+
+
+@pytest.fixture
+def session(syn):
+    s = Session()
+    s.add(syn.recording, label="cell-07")
+    return s
+
+
+def test_the_view_applies_decisions_and_keeps_every_row(session):
+    key = session.recordings[0]
+    n = len(session.auto_beats(key))
+    assert n == len(session.beats(key)) > 10
+    session.reject(key, [3, 4], "electrode bump")
+    session.accept(key, [5])
+    b = session.beats(key)
+    assert len(b) == n  # rows are never deleted (CONTRACT.md)
+    assert list(b["accepted"][3:6]) == [0, 0, 1]
+    assert list(b["reject_reason"][3:5]) == ["electrode bump"] * 2
+    assert list(b["reviewed"][2:7]) == [0, 1, 1, 1, 0]
+    assert int(session.auto_beats(key)["accepted"][3]) == 1  # the automatic table is untouched
+    session.clear_decisions(key, [3])
+    b = session.beats(key)
+    assert b["accepted"][3] == 1 and b["reviewed"][3] == 0 and b["reject_reason"][3] == ""
+    log = session.decisions(key)
+    assert [d.accepted for d in log] == [0, 0, 1, -1]  # a log: latest wins, nothing removed
+
+
+def _state(session, key):
+    b = session.beats(key)
+    return (b["accepted"].tolist(), b["reject_reason"].tolist(), b["condition"].tolist())
+
+
+def test_undo_redo_restores_every_intermediate_state(session):
+    key = session.recordings[0]
+    states = [_state(session, key)]
+    steps = [
+        lambda: session.reject(key, [1, 2], "noise burst"),
+        lambda: session.reject(key, [2], "spike"),
+        lambda: session.accept(key, [1]),
+        lambda: session.set_conditions(key, [parse_condition("baseline=0-10s")]),
+        lambda: session.clear_decisions(key, [2]),
+        lambda: session.reject(key, [7, 8, 9], "drift"),
+    ]
+    for step in steps:
+        step()
+        states.append(_state(session, key))
+    assert len({repr(s) for s in states}) == len(states)  # every step changed something
+    for i in range(len(steps), 0, -1):
+        assert session.undo_text
+        session.undo()
+        assert _state(session, key) == states[i - 1], f"undo to state {i - 1}"
+    assert not session.can_undo
+    for i in range(1, len(steps) + 1):
+        session.redo()
+        assert _state(session, key) == states[i], f"redo to state {i}"
+    assert not session.can_redo
+    session.undo()
+    session.reject(key, [0], "new branch")  # a new edit drops the redo history
+    assert not session.can_redo
+
+
+def test_notifications_are_plain_callbacks(session):
+    key = session.recordings[0]
+    seen = []
+    unsubscribe = session.subscribe("decisions_changed", seen.append)
+    everything = []
+    session.subscribe("*", lambda c: everything.append(c.event))
+    session.reject(key, [4, 2], "bump")
+    assert seen[-1].recording == key and seen[-1].rows == (2, 4)
+    session.undo()
+    assert len(seen) == 2 and "history_changed" in everything
+    unsubscribe()
+    session.redo()
+    assert len(seen) == 2
+    with pytest.raises(ValueError):
+        session.subscribe("no_such_event", print)
+
+
+def test_conditions_are_checked_and_fill_the_column(session, syn):
+    key = session.recordings[0]
+    session.set_conditions(key, [parse_condition("drug=10-end,steady=last5beats"), parse_condition("baseline=0-10s")])
+    conds = session.conditions(key)
+    assert [c.name for c in conds] == ["baseline", "drug"]  # sorted by start
+    b = session.beats(key)
+    t = b["t_upstroke_s"]
+    assert set(b["condition"][t < 10.0]) == {"baseline"} and set(b["condition"][t >= 10.0]) == {"drug"}
+    with pytest.raises(ConditionError, match="overlap"):
+        session.add_condition(key, parse_condition("washout=9-12s"))
+    with pytest.raises(ConditionError, match="two conditions"):
+        session.add_condition(key, parse_condition("drug=30-40s"))
+    session.replace_condition(key, "drug", Condition("drug", 10.0, math.inf, steady=SteadyState("all")))
+    rows = {s.values["condition"]: s.values for s in session.summaries(key)}
+    assert rows["drug"]["window"] == "all"
+    assert rows["drug"]["n_accepted"] == int(((b["condition"] == "drug") & (b["accepted"] == 1)).sum())
+
+
+@pytest.mark.parametrize(
+    "text, expected",
+    [
+        ("baseline=0-60s", ("baseline", 0.0, 60.0, "s", "auto")),
+        ("drug=1min-3.5min,steady=last30s", ("drug", 60.0, 210.0, "s", "last30s")),
+        ("washout=180-end", ("washout", 180.0, math.inf, "s", "auto")),
+        ("episodic=sweeps:2-5,steady=last20beats", ("episodic", 2.0, 5.0, "sweeps", "last20beats")),
+        ("one=sweep:4,steady=all", ("one", 4.0, 4.0, "sweeps", "all")),
+    ],
+)
+def test_condition_syntax(text, expected):
+    c = parse_condition(text)
+    assert (c.name, c.start, c.end, c.unit, c.steady.text()) == expected
+    assert parse_condition(c.text()) == c
+
+
+@pytest.mark.parametrize("bad", ["baseline", "x=60-0s", "x=a-b", "x=0-1s,steady=soon", "=0-5s", "x=0-5s,colour=red"])
+def test_bad_condition_text_is_refused_with_the_syntax(bad):
+    with pytest.raises(ConditionError) as err:
+        parse_condition(bad)
+    assert "\n" not in err.value.one_line()
+
+
+def test_settings_changes_recompute_only_what_they_affect(session):
+    key = session.recordings[0]
+    auto = session.auto_beats(key)
+    assert session.set_settings(Settings().replace("summary.steady_window_s", 30.0)) == {key: "summary"}
+    assert session.auto_beats(key) is auto
+    scopes = session.set_settings(session.settings(key).replace("quality.reject_ead", True))
+    assert scopes == {key: "events"}
+    after = session.auto_beats(key)
+    assert np.array_equal(after["t_upstroke_s"], auto["t_upstroke_s"])  # nothing re-detected
+    ead = np.array(["ead" in f for f in after["flags"]])
+    assert ead.sum() == 1 and after["accepted"][ead][0] == 0  # the rule now rejects it
+    session.undo()
+    assert session.auto_beats(key).equals(auto) and not session.settings(key).quality.reject_ead
+
+
+def test_decisions_survive_a_reanalysis_matched_by_time(session):
+    key = session.recordings[0]
+    session.reject(key, [3], "bump")
+    session.accept(key, [8])
+    before = session.beats(key)["t_upstroke_s"].copy()
+    t3 = before[3]
+    new = Settings().replace("measurement.upstroke_time_method", "voltage_level")
+    assert session.set_settings(new) == {key: "analysis"}
+    b = session.beats(key)
+    shifted = b["t_upstroke_s"]
+    assert shifted.size == before.size
+    moved = np.abs(shifted - before)
+    assert moved.min() > 0 and moved.max() < 0.010  # re-measured: every upstroke moved a little
+    i3 = int(np.argmin(np.abs(shifted - t3)))
+    assert abs(shifted[i3] - t3) < 0.010
+    assert b["accepted"][i3] == 0 and b["reject_reason"][i3] == "bump" and b["reviewed"].sum() == 2
+    assert session.orphaned_decisions(key) == []
+
+
+def test_decisions_whose_beat_is_gone_are_reported(syn):
+    s = Session(match_tolerance_s=1e-9)
+    key = s.add(syn.recording, label="cell-07")
+    s.reject(key, [2], "bump")
+    s.set_settings(Settings().replace("measurement.upstroke_time_method", "voltage_level"))
+    assert [d.reason for d in s.orphaned_decisions(key)] == ["bump"]
+    assert (s.beats(key)["reviewed"] == 0).all()
+
+
+def test_save_and_open_restore_the_session_exactly(session, syn, tmp_path):
+    key = session.recordings[0]
+    session.reject(key, [2, 3], "bump")
+    session.accept(key, [4])
+    session.undo()
+    session.set_conditions(key, [parse_condition("baseline=0-9.5s,steady=last5beats"), parse_condition("drug=9.5-end")])
+    session.set_settings(Settings().replace("quality.noise_max_mV_rms", 0.5))
+    assert session.modified
+    path = tmp_path / "study.h5"
+    session.save(path)
+    assert not session.modified
+    back = Session.open(path)
+    assert back.recordings == session.recordings and not back.modified
+    assert back.beats(key).equals(session.beats(key))
+    assert back.auto_beats(key).equals(session.auto_beats(key))
+    assert back.decisions(key) == session.decisions(key)
+    assert back.conditions(key) == session.conditions(key)
+    assert back.settings(key) == session.settings(key)
+    assert back.warnings(key) == session.warnings(key)
+    assert back.summary_table() .keys() == session.summary_table().keys()
+    for name, col in session.summary_table().items():
+        other = back.summary_table()[name]
+        assert np.array_equal(col, other, equal_nan=col.dtype.kind == "f"), name
+    # Re-saving the reopened session (no source: in-memory data) keeps the same datasets.
+    back.save(tmp_path / "again.h5")
+    again = Session.open(tmp_path / "again.h5")
+    assert again.beats(key).equals(session.beats(key))
+
+
+def test_replacing_a_recording_keeps_its_review(tmp_path, syn):
+    path = tmp_path / "cell.abf"
+    write_abf(syn.recording, path)
+    s = Session()
+    key = s.add(str(path))
+    s.reject(key, [3], "bump")
+    s.set_conditions(key, [parse_condition("baseline=0-10s")])
+    key2 = s.add(str(path), settings=Settings().replace("quality.apa_min_mV", 50.0))
+    assert key2 == key and s.recordings == (key,)
+    assert s.beats(key)["reject_reason"][3] == "bump"
+    assert s.conditions(key)[0].name == "baseline"
+    assert s.info(key).sha256 and s.info(key).reader == "abf"
