@@ -9,11 +9,14 @@ The stable API is small::
 """
 
 from .errors import InputError, RecordingError, ResultsFileError, SettingsError
+from .pipeline import AnalysisResult, analyze
 from .readers import open_recording, supported_extensions
 from .recording import Channel, Recording
+from .settings import Settings
 from .table import CSV_COLUMNS, BeatTable
 
 __all__ = [
+    "AnalysisResult",
     "BeatTable",
     "CSV_COLUMNS",
     "Channel",
@@ -22,6 +25,8 @@ __all__ = [
     "RecordingError",
     "ResultsFileError",
     "SettingsError",
+    "Settings",
+    "analyze",
     "open_recording",
     "supported_extensions",
 ]

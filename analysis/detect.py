@@ -1,0 +1,296 @@
+"""Beat detection in one sweep: where the action potentials' upstrokes are.
+
+The method (common practice, no source) is a hysteresis (Schmitt-trigger) detector on a lightly
+smoothed membrane potential with adaptive levels, followed by checks of each candidate:
+
+1. ``vs`` = V smoothed by a moving average of ``smoothing_ms`` (electrical spikes a few samples
+   long shrink by the ratio of their width to the window), and ``dvs`` = the difference of two
+   adjacent moving averages of ``derivative_window_ms / 2`` each (a smoothed dV/dt whose noise is
+   low enough to see a 2 V/s nodal upstroke under 1 mV rms of noise).
+2. The diastolic level (1st percentile of ``vs``) and the peak level (99th percentile) are
+   estimated in blocks of ``level_window_s`` aligned to the sweep's start, and interpolated
+   between block centres, so the levels follow slow drift. A block without beats has a span below
+   ``min_amplitude_mV``; its levels are then set as if the span were ``min_amplitude_mV``, so noise
+   and sub-threshold depolarisations (DADs) cannot reach them.
+3. An upstroke candidate is a rise of ``vs`` from below ``diastole + low_fraction x span`` to
+   above ``diastole + high_fraction x span`` (vectorised: the state of every sample is
+   forward-filled and rising transitions are read off).
+4. Each candidate (a loop over beats, never over samples) must rise at least
+   ``min_amplitude_mV``, have a smoothed dV/dt above ``max(min_dvdt_V_per_s, noise_factor x the
+   derivative's noise)``, and be at least ``min_width_ms`` wide at half its amplitude; narrower
+   events are electrical artefacts. Upstrokes closer than ``min_interval_ms`` to the previous
+   accepted one are artefacts too.
+
+Long sweeps are worked in chunks of ``chunk_s`` with ``chunk_overlap_s`` of context on each side;
+chunk and block boundaries are aligned so that every sample sees the same levels whatever the
+chunk size, and a candidate belongs to the chunk in whose core its rising crossing lies, so a beat
+on a chunk edge is counted once.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from .settings import DetectionSettings
+from .signal import noise_rms_mV
+
+__all__ = ["Detection", "detect_beats", "detect_sweep", "estimate_noise_mV", "ARTEFACT_REASONS"]
+
+#: Why a candidate was not taken as a beat.
+ARTEFACT_REASONS = {
+    "narrow": "narrower than min_width_ms at half amplitude (an electrical spike)",
+    "slow": "smoothed dV/dt below the detection threshold",
+    "too_close": "closer than min_interval_ms to the previous upstroke",
+}
+
+
+@dataclass(frozen=True)
+class Detection:
+    """Beats found in one sweep.
+
+    Attributes
+    ----------
+    i_upstroke : ndarray of int64
+        Sample index of each beat's steepest smoothed rise (refined later by the measurement).
+    i_peak : ndarray of int64
+        Sample index of the highest smoothed V of each beat's upstroke event.
+    i_artefact : ndarray of int64
+        Sample index of each rejected candidate.
+    artefact_reason : ndarray of str
+        The reason (a key of :data:`ARTEFACT_REASONS`) for each rejected candidate.
+    threshold_V_per_s : float
+        The smoothed-dV/dt threshold used.
+    noise_mV : float
+        The white-noise rms the threshold was scaled to.
+    """
+
+    i_upstroke: np.ndarray
+    i_peak: np.ndarray
+    i_artefact: np.ndarray = field(default_factory=lambda: np.empty(0, np.int64))
+    artefact_reason: np.ndarray = field(default_factory=lambda: np.empty(0, object))
+    threshold_V_per_s: float = math.nan
+    noise_mV: float = math.nan
+
+    def __len__(self) -> int:
+        return len(self.i_upstroke)
+
+
+def estimate_noise_mV(load: Callable[[int, int], np.ndarray], n: int, *, pieces: int = 16, piece: int = 4096) -> float:
+    """White-noise rms of a sweep from evenly spaced pieces (independent of any chunking)."""
+    if n <= pieces * piece:
+        return noise_rms_mV(load(0, n))
+    starts = np.linspace(0, n - piece, pieces).astype(np.int64)
+    return float(np.median([noise_rms_mV(load(int(a), int(a) + piece)) for a in starts]))
+
+
+def detect_beats(
+    v_mV: np.ndarray, fs_hz: float, *, settings: DetectionSettings | None = None, noise_mV: float | None = None,
+) -> Detection:
+    """Beats in one sweep of membrane potential held in memory.
+
+    Parameters
+    ----------
+    v_mV : ndarray
+        The sweep (after any LJP correction and filtering), in mV.
+    fs_hz : float
+        Sampling rate.
+    settings : DetectionSettings or None
+        None for the defaults.
+    noise_mV : float or None
+        White-noise rms of the sweep; None estimates it.
+
+    Returns
+    -------
+    Detection
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> fs = 10_000.0
+    >>> t = np.arange(int(3 * fs)) / fs
+    >>> phase = (t % 0.5) / 0.5
+    >>> v = -60 + 80 * np.exp(-((phase - 0.3) / 0.05) ** 2)
+    >>> detect_beats(v, fs).i_upstroke.size
+    6
+    """
+    v = np.asarray(v_mV, dtype=np.float64)
+    return detect_sweep(lambda a, b: v[a:b], v.size, fs_hz, settings=settings, noise_mV=noise_mV)
+
+
+def detect_sweep(
+    load: Callable[[int, int], np.ndarray], n: int, fs_hz: float, *,
+    settings: DetectionSettings | None = None, noise_mV: float | None = None, pad: int = 0,
+) -> Detection:
+    """Beats in one sweep read in chunks through ``load(start, stop)``.
+
+    Parameters
+    ----------
+    load : callable
+        ``load(start, stop)`` returns the preprocessed samples ``[start, stop)`` in mV.
+    n : int
+        Samples in the sweep.
+    fs_hz : float
+    settings : DetectionSettings or None
+    noise_mV : float or None
+    pad : int
+        Extra samples read on each side of a chunk's context (filter edges, smoothing).
+    """
+    s = settings or DetectionSettings()
+    if noise_mV is None:
+        noise_mV = estimate_noise_mV(load, n)
+    block = max(16, int(round(s.level_window_s * fs_hz)))
+    chunk = max(1, int(math.ceil(s.chunk_s * fs_hz / block))) * block
+    overlap = max(1, int(math.ceil(s.chunk_overlap_s * fs_hz / block))) * block
+    h_der = max(1, int(round(s.derivative_window_ms * 1e-3 * fs_hz / 2)))
+    threshold = max(s.min_dvdt_V_per_s, s.noise_factor * _box_slope_noise(noise_mV, fs_hz, h_der))
+    pad = pad + 4 * h_der + int(round(s.smoothing_ms * 1e-3 * fs_hz)) + 8
+
+    ups, peaks, arts, reasons = [], [], [], []
+    for core_a in range(0, n, chunk):
+        core_b = min(n, core_a + chunk)
+        lo = max(0, core_a - overlap)
+        hi = min(n, core_b + overlap)
+        ra, rb = max(0, lo - pad), min(n, hi + pad)
+        v = np.asarray(load(ra, rb), dtype=np.float64)
+        u, p, a, r = _detect_region(v, ra, fs_hz, s, threshold, levels_from=(lo, hi), block=block, n_total=n,
+                                    core=(core_a, core_b))
+        ups.append(u)
+        peaks.append(p)
+        arts.append(a)
+        reasons.extend(r)
+    up = np.concatenate(ups) if ups else np.empty(0, np.int64)
+    pk = np.concatenate(peaks) if peaks else np.empty(0, np.int64)
+    art = list(np.concatenate(arts)) if arts else []
+    order = np.argsort(up, kind="stable")
+    up, pk = up[order], pk[order]
+    # Minimum interval, in time order over the whole sweep (so chunking cannot change it).
+    min_gap = s.min_interval_ms * 1e-3 * fs_hz
+    keep = np.ones(up.size, bool)
+    last = -np.inf
+    for k in range(up.size):
+        if up[k] - last < min_gap:
+            keep[k] = False
+            art.append(int(up[k]))
+            reasons.append("too_close")
+        else:
+            last = up[k]
+    art_arr = np.asarray(art, dtype=np.int64)
+    why = np.empty(len(reasons), dtype=object)
+    why[:] = reasons
+    o = np.argsort(art_arr, kind="stable")
+    return Detection(up[keep], pk[keep], art_arr[o], why[o], float(threshold), float(noise_mV))
+
+
+def _box_slope_noise(noise_mV: float, fs_hz: float, h: int) -> float:
+    # Difference of two means of h samples whose centres are h samples apart.
+    return noise_mV * math.sqrt(2.0 / h) / (h / fs_hz) / 1000.0
+
+
+def _moving_mean(x: np.ndarray, m: int) -> np.ndarray:
+    """Centred moving mean over m samples (odd), shorter windows at the edges (no wrap)."""
+    if m <= 1:
+        return x
+    c = np.empty(x.size + 1)
+    c[0] = 0.0
+    np.cumsum(x - x[0], out=c[1:])
+    h = m // 2
+    i = np.arange(x.size)
+    a = np.clip(i - h, 0, x.size)
+    b = np.clip(i + h + 1, 0, x.size)
+    return (c[b] - c[a]) / (b - a) + x[0]
+
+
+def _box_slope(x: np.ndarray, h: int, fs_hz: float) -> np.ndarray:
+    """Smoothed dV/dt (V/s for mV): mean of the next h samples minus mean of the previous h, / h dt."""
+    c = np.empty(x.size + 1)
+    c[0] = 0.0
+    np.cumsum(x - x[0], out=c[1:])
+    n = x.size
+    i = np.arange(n)
+    a0 = np.clip(i - h, 0, n)
+    b1 = np.clip(i + h + 1, 0, n)
+    left = (c[i] - c[a0]) / np.maximum(i - a0, 1)
+    right = (c[b1] - c[np.minimum(i + 1, n)]) / np.maximum(b1 - i - 1, 1)
+    dist = (np.maximum(i - a0, 1) + np.maximum(b1 - i - 1, 1)) / 2.0
+    return (right - left) / dist * fs_hz / 1000.0
+
+
+def _levels(vs: np.ndarray, offset: int, lo: int, hi: int, block: int, n_total: int, s: DetectionSettings):
+    """Per-sample low and high hysteresis levels of the region ``[lo, hi)`` (global indices)."""
+    edges = list(range(lo - lo % block, hi, block)) + [hi]
+    edges[0] = lo
+    # A short last block of the sweep joins the one before it.
+    if len(edges) > 2 and hi == n_total and edges[-1] - edges[-2] < block // 2:
+        del edges[-2]
+    stride = max(1, block // 8192)
+    centres, low, high = [], [], []
+    for a, b in zip(edges[:-1], edges[1:]):
+        seg = vs[a - offset:b - offset:stride]
+        p1, p99 = np.percentile(seg, [1.0, 99.0])
+        span = max(p99 - p1, s.min_amplitude_mV)
+        centres.append(0.5 * (a + b))
+        low.append(p1 + s.low_fraction * span)
+        high.append(p1 + s.high_fraction * span)
+    x = np.arange(offset, offset + vs.size, dtype=np.float64)
+    return np.interp(x, centres, low), np.interp(x, centres, high)
+
+
+def _detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total, core):
+    m = max(1, int(round(s.smoothing_ms * 1e-3 * fs_hz))) | 1
+    vs = _moving_mean(v, m)
+    h_der = max(1, int(round(s.derivative_window_ms * 1e-3 * fs_hz / 2)))
+    dvs = _box_slope(v, h_der, fs_hz)
+    lo_lvl, hi_lvl = _levels(vs, offset, levels_from[0], levels_from[1], block, n_total, s)
+    state = np.zeros(vs.size, np.int8)
+    state[vs < lo_lvl] = -1
+    state[vs > hi_lvl] = 1
+    nz = np.flatnonzero(state)
+    empty = np.empty(0, np.int64)
+    if nz.size < 2:
+        return empty, empty, empty, []
+    st = state[nz]
+    change = np.flatnonzero(st[1:] != st[:-1]) + 1
+    rises = change[st[change] == 1]
+    falls_all = nz[change[st[change] == -1]]
+    width_min = s.min_width_ms * 1e-3 * fs_hz
+    ups, peaks, arts, reasons = [], [], [], []
+    # (arm, cross, in_core): a candidate belongs to the chunk whose core holds its first crossing.
+    queue = [(int(nz[j - 1]), int(nz[j]), core[0] <= int(nz[j]) + offset < core[1]) for j in rises]
+    qi = 0
+    while qi < len(queue):
+        arm, cross, in_core = queue[qi]
+        qi += 1
+        if not in_core:
+            continue
+        k = np.searchsorted(falls_all, cross)
+        end = int(falls_all[k]) if k < falls_all.size else vs.size
+        ip = cross + int(np.argmax(vs[cross:end]))
+        base = float(np.min(vs[arm:cross + 1]))
+        amp = float(vs[ip]) - base
+        iu = arm + int(np.argmax(dvs[arm:ip + 1]))
+        half = base + 0.5 * amp
+        left = np.flatnonzero(vs[arm:ip + 1] < half)
+        t_left = arm + int(left[-1]) if left.size else arm
+        right = np.flatnonzero(vs[ip:end] < half)
+        t_right = ip + int(right[0]) if right.size else end
+        if amp < s.min_amplitude_mV:
+            continue  # a sub-threshold depolarisation (or noise), not a beat and not an artefact
+        if t_right - t_left < width_min:
+            arts.append(iu + offset)
+            reasons.append("narrow")
+            # A spike may hide a real upstroke later in the same event: look again after it.
+            above = np.flatnonzero(vs[t_right:end] > hi_lvl[t_right:end])
+            if above.size:
+                queue.append((t_right, t_right + int(above[0]), True))
+            continue
+        if dvs[iu] < threshold:
+            arts.append(iu + offset)
+            reasons.append("slow")
+            continue
+        ups.append(iu + offset)
+        peaks.append(ip + offset)
+    return (np.asarray(ups, np.int64), np.asarray(peaks, np.int64), np.asarray(arts, np.int64), reasons)

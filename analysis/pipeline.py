@@ -1,0 +1,382 @@
+"""``analyze``: one recording in, the beats table out.
+
+recording -> channel (current clamp only) -> per sweep: LJP correction and filters, chunked
+detection, chunked measurement -> feature registry -> beat table -> events and quality rules
+(:func:`flag_and_reject`, the one hook where :mod:`analysis.events` works) -> result.
+
+Memory is bounded by a chunk (``detection.chunk_s``), not by the recording: samples are read from
+the recording's loader chunk by chunk, once to find the beats and once to measure them.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
+
+import numpy as np
+
+from .detect import detect_sweep, estimate_noise_mV
+from .errors import RecordingError
+from .markers import apd_name, measure_beats
+from .measure import features_of_sweep, marker_columns
+from .recording import CURRENT_CLAMP, VOLTAGE_CLAMP, Recording
+from .settings import Settings
+from .signal import filter_pad_samples, preprocess
+from .table import CSV_COLUMNS, BeatTable
+
+__all__ = ["AnalysisResult", "analyze", "choose_channel", "flag_and_reject", "looks_like_membrane_potential"]
+
+_TO_MV = {"mv": 1.0, "v": 1000.0, "uv": 1e-3, "µv": 1e-3}
+
+#: ``progress(done, total)`` in samples worked (detection and measurement both count).
+Progress = Callable[[int, int], None]
+
+
+@dataclass
+class AnalysisResult:
+    """The beats of one recording and how they were obtained.
+
+    Attributes
+    ----------
+    beats : BeatTable
+        One row per beat: the beats CSV's columns, then marker times, ``i_upstroke`` and
+        ``reject_reason``.
+    warnings : list of str
+        Notes for the user (channel chosen, sampling too slow for dV/dt max, sweeps without beats).
+    channel : int
+    channel_name : str
+    settings : Settings
+    recording : Recording
+    ljp_mV : float
+        The liquid-junction potential subtracted (V_true = V_measured - LJP).
+    artefacts : dict of int to (ndarray, ndarray)
+        Per sweep, the sample indices and reasons of detection candidates not taken as beats.
+    """
+
+    beats: BeatTable
+    warnings: list[str]
+    channel: int
+    channel_name: str
+    settings: Settings
+    recording: Recording
+    ljp_mV: float
+    artefacts: dict = field(default_factory=dict)
+
+
+def looks_like_membrane_potential(recording: Recording, channel: int, *, seconds: float = 20.0) -> bool:
+    """Whether a channel's samples plainly look like a membrane potential in mV.
+
+    True when the first ``seconds`` of the first sweep stay within about -100..+70 and hold at
+    least one upstroke-like transient (found by the beat detector with the default settings).
+    """
+    fs = recording.sampling_rate_hz
+    n = min(recording.n_samples(0), int(seconds * fs))
+    x = recording.sweep(0, channel, 0, n)
+    lo, hi = np.percentile(x, [0.5, 99.5])
+    if not (-110.0 <= lo and hi <= 80.0 and hi - lo >= 20.0):
+        return False
+    from .detect import detect_beats
+
+    return len(detect_beats(x, fs)) >= 1
+
+
+def choose_channel(recording: Recording, channel: int | str | None) -> tuple[int, str | None]:
+    """The channel to analyse and, when Upstroke picked it, a note saying which.
+
+    Raises
+    ------
+    RecordingError
+        For a voltage-clamp (current) channel, or when no channel holds a membrane potential;
+        when a current channel plainly holds a membrane potential, the message says how to
+        override its units.
+    """
+    path = recording.source_path
+    if channel is not None:
+        idx = recording.channel_index(channel)
+        _refuse_if_current(recording, idx)
+        return idx, None
+    cc = recording.current_clamp_channels()
+    if cc:
+        idx = cc[0]
+        ch = recording.channels[idx]
+        if len(recording.channels) == 1:
+            return idx, None
+        others = ", ".join(f"{i}={c.name} ({c.units})" for i, c in enumerate(recording.channels) if i != idx)
+        return idx, (
+            f"analysed channel {idx} ({ch.name}, {ch.units}), the {'only' if len(cc) == 1 else 'first'} "
+            f"current-clamp channel; others: {others} (choose with --channel)"
+        )
+    unknown = [i for i, c in enumerate(recording.channels) if c.clamp_mode not in (CURRENT_CLAMP, VOLTAGE_CLAMP)]
+    if unknown:
+        idx = unknown[0]
+        ch = recording.channels[idx]
+        return idx, f"analysed channel {idx} ({ch.name}) as mV: its units {ch.units!r} do not say what it holds"
+    for i in range(recording.n_channels):
+        _refuse_if_current(recording, i)
+    raise RecordingError(path, "no current-clamp channel", "record the membrane potential in current clamp")
+
+
+def _refuse_if_current(recording: Recording, idx: int) -> None:
+    ch = recording.channels[idx]
+    if ch.clamp_mode != VOLTAGE_CLAMP:
+        return
+    if looks_like_membrane_potential(recording, idx):
+        hint = (
+            f"its samples look like a membrane potential in mV: if the file mislabels them, "
+            f"override the units with --units {idx}=mV"
+        )
+    else:
+        hint = (
+            f"Upstroke analyses a membrane potential recorded in current clamp: choose a mV channel, "
+            f"or, if this channel holds a membrane potential mislabelled as {ch.units}, declare its "
+            f"units with --units {idx}=mV"
+        )
+    raise RecordingError(
+        recording.source_path,
+        f"channel {idx} ({ch.name}) is in {ch.units}, a voltage-clamp (current) channel", hint,
+    )
+
+
+def _sweep_list(recording: Recording, sweeps: Sequence[int] | None) -> list[int]:
+    if sweeps is None:
+        return list(range(recording.n_sweeps))
+    out = []
+    for s in sweeps:
+        i = int(s)
+        if not 0 <= i < recording.n_sweeps:
+            raise RecordingError(
+                recording.source_path, f"no sweep {i}",
+                f"choose sweeps from 0 to {recording.n_sweeps - 1}",
+            )
+        out.append(i)
+    return sorted(set(out))
+
+
+def analyze(
+    recording: Recording,
+    settings: Settings | None = None,
+    channel: int | str | None = None,
+    sweeps: Sequence[int] | None = None,
+    progress: Progress | None = None,
+    *,
+    label: str | None = None,
+) -> AnalysisResult:
+    """Detect and measure every beat of a current-clamp recording.
+
+    Parameters
+    ----------
+    recording : Recording
+    settings : Settings or None
+        None for the defaults (MEASUREMENTS.md).
+    channel : int, str or None
+        Channel index or name; None picks the current-clamp channel and says which in the
+        warnings.
+    sweeps : sequence of int or None
+        Which sweeps (None: all).
+    progress : callable or None
+        ``progress(done, total)``, in samples worked.
+    label : str or None
+        The ``file`` column (default: the recording's file name, or ``"recording"``).
+
+    Returns
+    -------
+    AnalysisResult
+
+    Raises
+    ------
+    RecordingError
+        For a voltage-clamp channel, a missing channel or sweep.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from analysis.recording import Recording
+    >>> fs = 10_000.0
+    >>> t = np.arange(int(2.2 * fs)) / fs
+    >>> v = -60 + 80 * np.exp(-(((t % 0.5) / 0.5 - 0.3) / 0.05) ** 2)
+    >>> result = analyze(Recording.from_array(v, fs))
+    >>> len(result.beats), round(float(result.beats["cl_ms"][1]), 1)
+    (5, 500.0)
+    """
+    s = settings or Settings()
+    idx, note = choose_channel(recording, channel)
+    ch = recording.channels[idx]
+    warnings: list[str] = [note] if note else []
+    for name, change in dict(recording.metadata.get("units_overridden", {})).items():
+        warnings.append(f"units of channel {name} overridden ({change})")
+    scale = _TO_MV.get(ch.units.strip().lower(), 1.0)
+    fs = recording.sampling_rate_hz
+    file_label = label if label is not None else (
+        os.path.basename(recording.source_path) if recording.source_path else "recording"
+    )
+    sweep_ids = _sweep_list(recording, sweeps)
+    total = 2 * sum(recording.n_samples(i) for i in sweep_ids)
+    done = [0]
+
+    def tick(n: int) -> None:
+        done[0] += n
+        if progress is not None:
+            progress(min(done[0], total), total)
+
+    parts, artefacts, rise = [], {}, []
+    for sw in sweep_ids:
+        cols, art, rise_sw = _analyse_sweep(recording, sw, idx, scale, s, tick)
+        artefacts[sw] = art
+        if cols is None:
+            warnings.append(f"sweep {sw}: no beats found{_artefact_note(art)}")
+            continue
+        cols["file"] = np.array([file_label] * len(cols["sweep"]), dtype=object)
+        parts.append(cols)
+        rise.extend(rise_sw)
+    beats = _table(parts, s)
+    _sampling_warning(rise, fs, s, warnings)
+    beats, more = flag_and_reject(beats, recording, idx, s, scale=scale)
+    warnings.extend(more)
+    return AnalysisResult(
+        beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
+        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts,
+    )
+
+
+def _artefact_note(art) -> str:
+    reasons = list(art[1])
+    if not reasons:
+        return ""
+    from .detect import ARTEFACT_REASONS
+
+    parts = [f"{reasons.count(r)} {r}" for r in ARTEFACT_REASONS if r in reasons]
+    return f" ({', '.join(parts)} event(s) rejected as artefacts; see the detection settings)"
+
+
+def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
+    fs = recording.sampling_rate_hz
+
+    def load(a: int, b: int) -> np.ndarray:
+        x = recording.sweep(sw, ch, a, b)
+        if scale != 1.0:
+            x = x * scale
+        return preprocess(x, fs, s.preprocess)
+
+    return load
+
+
+def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
+    fs = recording.sampling_rate_hz
+    n = recording.n_samples(sw)
+    load = _loader(recording, sw, ch, scale, s)
+    pad = filter_pad_samples(fs, s.preprocess)
+    noise = estimate_noise_mV(load, n)
+    det = detect_sweep(load, n, fs, settings=s.detection, noise_mV=noise, pad=pad)
+    tick(n)
+    art = (det.i_artefact, det.artefact_reason)
+    ups = det.i_upstroke
+    if ups.size == 0:
+        tick(n)
+        return None, art, []
+    chunk = max(int(s.detection.chunk_s * fs), 1)
+    margin = pad + int(0.25 * fs) + 64
+    markers = []
+    k0 = 0
+    while k0 < ups.size:
+        start_at = ups[k0 - 1] if k0 > 0 else 0
+        k1 = k0 + 1
+        while k1 < ups.size and ups[k1] - start_at < chunk:
+            k1 += 1
+        stop_at = ups[k1] if k1 < ups.size else n
+        ra, rb = max(0, int(start_at) - margin), min(n, int(stop_at) + margin)
+        v = load(ra, rb)
+        prev = np.concatenate(([ups[k0 - 1] - ra if k0 > 0 else -1], ups[k0:k1 - 1] - ra))
+        nxt = np.concatenate((ups[k0 + 1:k1] - ra, [ups[k1] - ra if k1 < ups.size else rb - ra]))
+        markers.append(measure_beats(
+            v, fs, ups[k0:k1] - ra, i_previous=prev, i_next=nxt, settings=s.measurement, noise_mV=noise,
+            sweep_end=(rb == n), offset=ra,
+        ))
+        tick(int(stop_at - start_at))
+        k0 = k1
+    cols = _sweep_columns(markers, sw, s)
+    rise = [float(x) for m in markers for x in m.values["rise_samples"]]
+    return cols, art, rise
+
+
+def _sweep_columns(markers, sw: int, s: Settings) -> dict[str, np.ndarray]:
+    merged = {name: np.concatenate([m.columns()[name] for m in markers]) for name in markers[0].columns()}
+    feats = features_of_sweep(merged, s.measurement)
+    k = len(merged["i_upstroke"])
+    flags = [";".join(f) for m in markers for f in m.flags]
+    cols: dict[str, np.ndarray] = {
+        "sweep": np.full(k, sw, np.int64),
+        "beat": np.arange(k, dtype=np.int64),
+        "accepted": np.ones(k, np.int64),
+        "flags": np.array(flags, dtype=object),
+        "condition": np.array([""] * k, dtype=object),
+    }
+    cols.update(feats)
+    for name in marker_columns(s.measurement.apd_percent):
+        cols[name] = merged[name]
+    cols["reject_reason"] = np.array([""] * k, dtype=object)
+    return cols
+
+
+def _table(parts: list[dict], s: Settings) -> BeatTable:
+    percents = s.measurement.apd_percent
+    extra_apd = [f"{apd_name(p)}_ms" for p in percents if f"{apd_name(p)}_ms" not in CSV_COLUMNS]
+    names = [*CSV_COLUMNS, *extra_apd, *marker_columns(percents), "reject_reason"]
+    if not parts:
+        return BeatTable({n: [] for n in names})
+    return BeatTable({n: np.concatenate([p[n] for p in parts]) for n in names})
+
+
+def _sampling_warning(rise_samples: list[float], fs: float, s: Settings, warnings: list[str]) -> None:
+    r = np.asarray([x for x in rise_samples if math.isfinite(x)])
+    if r.size == 0:
+        return
+    med = float(np.median(r))
+    need = s.measurement.min_rise_samples
+    if med < need:
+        rise_ms = med / fs * 1e3
+        warnings.append(
+            f"the upstrokes rise 10-90 % in a median of {med:.1f} samples ({rise_ms:.2f} ms at "
+            f"{fs / 1e3:g} kHz), fewer than {need:g}: dV/dt max cannot be trusted (and upstroke times "
+            f"are coarse); record at {math.ceil(need / rise_ms):g} kHz or more for these cells"
+        )
+
+
+def flag_and_reject(
+    beats: BeatTable, recording: Recording, channel: int, settings: Settings, *, scale: float = 1.0,
+) -> tuple[BeatTable, list[str]]:
+    """The hook where events and quality rules flag and automatically reject measured beats.
+
+    Runs :func:`analysis.events.apply_events` when the settings carry a ``quality`` section;
+    otherwise returns the table unchanged. The events module gets each sweep's preprocessed
+    samples on demand (one sweep in memory at a time).
+    """
+    quality = getattr(settings, "quality", None)
+    if quality is None or len(beats) == 0:
+        return beats, []
+    from . import events
+
+    sweeps_v = _LazySweeps(recording, channel, scale, settings, preprocessed=True)
+    sweeps_raw = _LazySweeps(recording, channel, scale, settings, preprocessed=False)
+    return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw)
+
+
+class _LazySweeps:
+    """``sweeps[i]``: one sweep's samples in mV, read (and preprocessed) when asked for."""
+
+    def __init__(self, recording: Recording, channel: int, scale: float, settings: Settings, *, preprocessed: bool):
+        self._rec, self._ch, self._scale, self._s, self._pre = recording, channel, scale, settings, preprocessed
+        self._cache: tuple[int, np.ndarray] | None = None
+
+    def __getitem__(self, sweep: int) -> np.ndarray:
+        if self._cache is not None and self._cache[0] == sweep:
+            return self._cache[1]
+        x = self._rec.sweep(int(sweep), self._ch) * self._scale
+        if self._pre:
+            x = preprocess(x, self._rec.sampling_rate_hz, self._s.preprocess)
+        self._cache = (sweep, x)
+        return x
+
+    def __len__(self) -> int:
+        return self._rec.n_sweeps

@@ -1,0 +1,224 @@
+"""``upstroke analyze FILE...``: detect and measure every beat, write the beats CSV.
+
+The command runs in three steps, each its own function so that more outputs slot in beside the
+CSV: :func:`settings_from_args` (defaults, ``--settings``, ``--ljp``), :func:`analyse_files` (one
+:class:`analysis.pipeline.AnalysisResult` per file, in order; any bad file stops the command before
+anything is written), and :func:`write_outputs` (one writer per output option, each written to a
+temporary file in the target's folder and moved into place, so a failure never leaves a partial
+file nor replaces a good one). :func:`report` prints a short summary per file and the warnings.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import sys
+from typing import Any, Callable, Sequence
+
+import numpy as np
+
+from analysis.errors import InputError
+from analysis.settings import Settings
+
+__all__ = [
+    "add_parser", "run", "parse_sweeps", "parse_units", "settings_from_args", "analyse_files",
+    "write_outputs", "summary_line", "OUTPUT_WRITERS",
+]
+
+
+class OutputError(InputError):
+    """An output file cannot be written where the user asked."""
+
+
+def parse_sweeps(text: str) -> list[int]:
+    """``"0-3,5"`` -> ``[0, 1, 2, 3, 5]`` (argparse type: bad text is a command-line error)."""
+    out: list[int] = []
+    try:
+        for part in text.split(","):
+            part = part.strip()
+            if not part:
+                continue
+            if "-" in part:
+                a, b = (int(x) for x in part.split("-", 1))
+                if b < a or a < 0:
+                    raise ValueError
+                out.extend(range(a, b + 1))
+            else:
+                i = int(part)
+                if i < 0:
+                    raise ValueError
+                out.append(i)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--sweeps {text!r} is not a list such as 0-3,5") from None
+    if not out:
+        raise argparse.ArgumentTypeError("--sweeps is empty; give a list such as 0-3,5")
+    return sorted(set(out))
+
+
+def parse_units(text: str) -> tuple[int | str, str]:
+    """``"0=mV"`` or ``"Vm=mV"`` -> ``(0, "mV")`` / ``("Vm", "mV")``."""
+    channel, sep, units = text.partition("=")
+    if not sep or not channel.strip() or not units.strip():
+        raise argparse.ArgumentTypeError(f"--units {text!r} is not CHANNEL=UNITS, e.g. 0=mV")
+    channel = channel.strip()
+    return (int(channel) if channel.isdigit() else channel), units.strip()
+
+
+def _channel(text: str) -> int | str:
+    return int(text) if text.strip().isdigit() else text
+
+
+def add_parser(subparsers: Any) -> argparse.ArgumentParser:
+    """Register ``analyze`` with the command line."""
+    p = subparsers.add_parser(
+        "analyze",
+        help="detect and measure every beat; write the beats CSV",
+        description="Detect every beat of current-clamp recordings and measure it (MDP, TOP, DDR, "
+        "dV/dt max, peak, APA, APD20/50/90, cycle length) with the default or given settings; "
+        "print a short summary per file. A research tool, not a medical device.",
+    )
+    p.add_argument("files", nargs="+", metavar="FILE", help="recordings (ABF, NWB or delimited text)")
+    p.add_argument("--channel", type=_channel, metavar="NAME-or-INDEX",
+                   help="the membrane-potential channel (default: the current-clamp channel)")
+    p.add_argument("--sweeps", type=parse_sweeps, metavar="LIST", help="sweeps to analyse, e.g. 0-3,5 (default: all)")
+    p.add_argument("--settings", metavar="FILE.toml", help="analysis settings (default: the published defaults)")
+    p.add_argument("--ljp", type=float, metavar="MV",
+                   help="liquid-junction potential to subtract, in mV (V_true = V_measured - LJP)")
+    p.add_argument("--units", type=parse_units, action="append", default=[], metavar="CHANNEL=UNITS",
+                   help="declare a channel's units when the file mislabels them, e.g. 0=mV (repeatable)")
+    p.add_argument("--csv", metavar="BEATS.csv", help="write the beats table (one row per beat)")
+    from app.review_outputs import add_arguments
+
+    add_arguments(p)
+    p.set_defaults(run=run)
+    return p
+
+
+def settings_from_args(args: argparse.Namespace) -> Settings:
+    """The defaults, then the ``--settings`` file, then ``--ljp``."""
+    from analysis.settings import load_settings
+
+    settings = load_settings(args.settings) if getattr(args, "settings", None) else Settings()
+    if getattr(args, "ljp", None) is not None:
+        settings = settings.replace("preprocess.ljp_mV", args.ljp)
+    return settings
+
+
+def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Callable | None = None) -> list:
+    """Open and analyse each file in order; the first bad file raises (nothing written yet)."""
+    from analysis import open_recording
+    from analysis.pipeline import analyze
+
+    units = dict(args.units) if getattr(args, "units", None) else None
+    results = []
+    for path in args.files:
+        rec = open_recording(path, units=units)
+        results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=progress, label=path))
+    return results
+
+
+def _write_csv(results: Sequence, path: str) -> None:
+    from analysis.atomic import atomic_output
+    from analysis.table import BeatTable
+
+    table = BeatTable.concat([r.beats for r in results])
+    with atomic_output(path) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            table.to_csv(fh)
+
+
+#: ``(argument name, writer(results, path))`` for each output option, in the order written.
+def _write_summary(results: Sequence, path: str) -> None:
+    from app.review_outputs import write_summary
+
+    write_summary(results, path)
+
+
+def _write_results(results: Sequence, path: str) -> None:
+    from app.review_outputs import write_results
+
+    write_results(results, path)
+
+
+OUTPUT_WRITERS: list[tuple[str, Callable[[Sequence, str], None]]] = [
+    ("csv", _write_csv), ("summary_csv", _write_summary), ("out", _write_results),
+]
+
+
+def write_outputs(args: argparse.Namespace, results: Sequence) -> list[str]:
+    """Write every output the arguments ask for; returns the paths written."""
+    written = []
+    for name, writer in OUTPUT_WRITERS:
+        path = getattr(args, name, None)
+        if not path:
+            continue
+        folder = os.path.dirname(os.path.abspath(path))
+        if not os.path.isdir(folder):
+            raise OutputError(path, "the output folder does not exist", "create it or write elsewhere")
+        if os.path.isdir(path):
+            raise OutputError(path, "is a folder", "give a file name")
+        try:
+            writer(results, path)
+        except PermissionError:
+            raise OutputError(path, "cannot be written (permission denied)", "choose a folder you can write to") from None
+        written.append(path)
+    return written
+
+
+def _mean(values: np.ndarray) -> float:
+    v = np.asarray(values, dtype=np.float64)
+    v = v[np.isfinite(v)]
+    return float(v.mean()) if v.size else math.nan
+
+
+def summary_line(result) -> str:
+    """``FILE: N beats (A accepted) in S sweeps; CL ... ms (... bpm), MDP ... mV, dV/dt max ... V/s``.
+
+    Means are over accepted beats without ``no_diastole`` or ``truncated`` flags.
+    """
+    b = result.beats
+    n = len(b)
+    label = b["file"][0] if n else (result.recording.source_path or "recording")
+    if n == 0:
+        return f"{label}: no beats found (channel {result.channel} {result.channel_name})"
+    accepted = np.asarray(b["accepted"]) == 1
+    clean = accepted & np.array(
+        [not ({"no_diastole", "truncated"} & set(str(f).split(";"))) for f in b["flags"]], dtype=bool,
+    )
+    n_sweeps = len(np.unique(b["sweep"]))
+
+    def fmt(name: str, unit: str, digits: int = 1) -> str:
+        m = _mean(b[name][clean])
+        return f"{m:.{digits}f} {unit}" if math.isfinite(m) else "n/a"
+
+    return (
+        f"{label}: {n} beats ({int(accepted.sum())} accepted) in {n_sweeps} sweep{'s' * (n_sweeps != 1)}; "
+        f"mean CL {fmt('cl_ms', 'ms')} ({fmt('rate_bpm', 'bpm')}), MDP {fmt('mdp_mV', 'mV')}, "
+        f"dV/dt max {fmt('dvdt_max_V_per_s', 'V/s')}"
+    )
+
+
+def report(results: Sequence, written: Sequence[str], *, out=None, err=None) -> None:
+    """Print the summaries (stdout) and the warnings (stderr)."""
+    out = out or sys.stdout
+    err = err or sys.stderr
+    for r in results:
+        print(summary_line(r), file=out)
+        label = r.beats["file"][0] if len(r.beats) else (r.recording.source_path or "recording")
+        for w in r.warnings:
+            print(f"upstroke analyze: warning: {label}: {w}", file=err)
+    for path in written:
+        print(f"wrote {path}", file=out)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Analyse the files and write the outputs; 0 on success (bad input raises InputError)."""
+    settings = settings_from_args(args)
+    results = analyse_files(args, settings)
+    from app.review_outputs import review
+
+    results = review(args, results, settings)  # --out, --summary-csv, --condition
+    written = write_outputs(args, results)
+    report(results, written)
+    return 0
