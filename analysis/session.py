@@ -346,7 +346,11 @@ class Session:
             path = e.info.source_path
             if not os.path.isfile(path):
                 raise RecordingError(path, "the source recording is not there", "put it back or re-link it, then try again")
-            e.recording = open_recording(path)
+            rec = open_recording(path)
+            if rec.units(e.info.channel) != e.info.units:
+                # The units were declared anew when it was analysed (a mislabelled channel).
+                rec = rec.with_units(e.info.channel, e.info.units)
+            e.recording = rec
         return e.recording
 
     def trace_mV(self, key: str, sweep: int) -> np.ndarray:

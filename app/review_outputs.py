@@ -1,0 +1,119 @@
+"""The results-file side of ``upstroke analyze``: ``--out``, ``--summary-csv`` and ``--condition``.
+
+:func:`review` puts the analysed files into a :class:`analysis.session.Session`: a new one, or the
+one saved in the ``--out`` file when it exists (a recording of the same source replaces the
+saved one and keeps its review decisions, matched by upstroke time, and its conditions unless
+``--condition`` gives new ones; other recordings are added after those already there). The
+results then carry the session's view of each table (conditions filled in, decisions applied),
+so the beats CSV, the summary CSV and the results file all say the same, and ``upstroke export``
+of the results file reproduces analyze's CSVs byte for byte.
+
+Conditions on the command line
+------------------------------
+``--condition NAME=START-END[,steady=RULE]``, repeatable, applies to every file given:
+
+* ``--condition baseline=0-60s --condition drug=60-180s --condition washout=180-end``
+  (seconds from the start of the recording; ``s`` is optional, ``min`` works too: ``1min-3min``);
+* ``--condition drug=sweeps:4-7`` (inclusive sweep numbers, for episodic files);
+* ``,steady=RULE`` chooses the condition's steady-state window for its summary: ``auto`` (the
+  suggested steady state, the default), ``all``, ``last30s``, ``last2min`` or ``last20beats``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+from typing import Sequence
+
+from analysis.errors import InputError
+
+__all__ = ["Reviewed", "add_arguments", "review", "write_results", "write_summary"]
+
+
+class Reviewed(list):
+    """The analysis results of one command, with the session that holds them (``.session``)."""
+
+    session = None
+    keys: list[str] = []
+    kept: dict[str, int] = {}
+
+
+def _condition(text: str):
+    from analysis.conditions import ConditionError, parse_condition
+
+    try:
+        return parse_condition(text)
+    except ConditionError as exc:
+        raise argparse.ArgumentTypeError(exc.one_line()) from None
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Add ``--out``, ``--summary-csv`` and ``--condition`` to a command's parser."""
+    parser.add_argument("--out", metavar="RESULTS.h5",
+                        help="write (or add to) a results file: settings, beats, decisions, conditions, summaries")
+    parser.add_argument("--summary-csv", dest="summary_csv", metavar="SUMMARY.csv",
+                        help="write the summaries (one row per file x sweep group x condition)")
+    parser.add_argument("--condition", dest="conditions", type=_condition, action="append", default=[],
+                        metavar="NAME=START-END[,steady=RULE]",
+                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180-end, "
+                        "or sweeps:0-3; steady=auto|all|last30s|last20beats picks its summary window (repeatable)")
+
+
+def _check_outputs(args: argparse.Namespace) -> None:
+    paths = [p for p in (getattr(args, "csv", None), getattr(args, "summary_csv", None), getattr(args, "out", None)) if p]
+    if len({os.path.abspath(p) for p in paths}) != len(paths):
+        raise InputError(paths[-1], "is given for two outputs", "give each output its own file")
+    inputs = {os.path.abspath(f) for f in args.files}
+    for p in paths:
+        if os.path.abspath(p) in inputs:
+            raise InputError(p, "is one of the recordings", "give another name for the output")
+        if not os.path.isdir(os.path.dirname(os.path.abspath(p))):
+            raise InputError(p, "the output folder does not exist", "create it or write elsewhere")
+
+
+def review(args: argparse.Namespace, results: Sequence, settings) -> Sequence:
+    """Put the results into a session when ``--out``, ``--summary-csv`` or ``--condition`` asks.
+
+    Returns the results unchanged when none does; otherwise a :class:`Reviewed` list whose
+    results' ``beats`` are the session's reviewed tables.
+    """
+    out = getattr(args, "out", None)
+    conditions = list(getattr(args, "conditions", []) or [])
+    if not (out or getattr(args, "summary_csv", None) or conditions):
+        return results
+    from analysis.session import Session
+
+    _check_outputs(args)
+    if out and os.path.exists(out):
+        session = Session.open(out)  # a damaged or foreign file stops here: it is never replaced
+        session.default_settings = settings
+    else:
+        session = Session(settings)
+    reviewed = Reviewed(results)
+    reviewed.session = session
+    reviewed.kept = {}
+    reviewed.keys = []
+    for r, path in zip(results, args.files):
+        key = session.add(
+            r.recording, settings=r.settings, channel=args.channel, sweeps=args.sweeps, label=path,
+            conditions=conditions, result=r,
+        )
+        reviewed.keys.append(key)
+        n_kept = len(session.decisions(key))
+        if n_kept:
+            reviewed.kept[path] = n_kept
+        r.beats = session.beats(key)
+    return reviewed
+
+
+def write_summary(results: Sequence, path: str) -> None:
+    """Write the summary CSV of the session :func:`review` built."""
+    from analysis.atomic import write_text_atomic
+    from analysis.summary import summary_csv
+
+    write_text_atomic(path, summary_csv(results.session.summary_table(results.keys)))
+
+
+def write_results(results: Sequence, path: str) -> None:
+    """Save the session :func:`review` built to the results file (atomically)."""
+    results.session.save(path)
