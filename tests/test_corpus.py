@@ -176,8 +176,6 @@ KNOWN_DEFECTS: dict[str, str] = {
     "abf2-rate-absurdly-high": "the ABF reader accepts a 1e15 Hz rate",
     "abf1-huge-sweep-count": "the sweep count is not checked before pyabf lists the sweeps",
     "abf2-huge-sweep-count": "the sweep count is not checked before pyabf lists the sweeps",
-    "abf2-huge-synch-count-int32": "section counts are checked as int64, pyabf reads int32",
-    "abf2-huge-data-count-int32": "section counts are checked as int64, pyabf reads int32",
     "abf2-negative-sweep-length": "a negative synch-array length opens as a sweep",
     "nwb-no-data": "pynwb's warnings reach stderr",
     "nwb-rate-zero": "pynwb's warnings reach stderr",

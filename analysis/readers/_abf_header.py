@@ -137,6 +137,15 @@ def _check_abf2(head: bytes, size: int, origin: str) -> None:
             f"{data_format}", _CORRUPT_FIX,
         )
     _check_data(block * BLOCK_BYTES, count, expected, size, origin)
+    for name, offset in _ABF2_SECTIONS.items():
+        # pyabf reads only the low half of each 64-bit count, as an int32 (pyabf/abf2/section.py),
+        # so a count whose halves disagree would size pyabf's lists by a number never checked.
+        (low,) = struct.unpack_from("<i", head, offset + 8)
+        if low != sections[name][2]:
+            raise RecordingError(
+                origin, f"the ABF 2 header is corrupt: its {name} section's entry count "
+                f"({sections[name][2]}) is beyond 32 bits", _CORRUPT_FIX,
+            )
 
 
 def _check_channels(n_channels: int, origin: str, *, limit: int | None) -> None:
