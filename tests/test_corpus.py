@@ -174,8 +174,6 @@ KNOWN_DEFECTS: dict[str, str] = {
     "abf1-rate-absurdly-high": "the ABF reader accepts a 1e15 Hz rate",
     "abf1-rate-absurdly-low": "pyabf divides by its rounded rate of 0 Hz",
     "abf2-rate-absurdly-high": "the ABF reader accepts a 1e15 Hz rate",
-    "abf1-huge-sweep-count": "the sweep count is not checked before pyabf lists the sweeps",
-    "abf2-huge-sweep-count": "the sweep count is not checked before pyabf lists the sweeps",
     "abf2-negative-sweep-length": "a negative synch-array length opens as a sweep",
     "nwb-no-data": "pynwb's warnings reach stderr",
     "nwb-rate-zero": "pynwb's warnings reach stderr",

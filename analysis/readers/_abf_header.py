@@ -94,6 +94,7 @@ def _check_abf1(head: bytes, size: int, origin: str) -> None:
             f"data block {data_block})", _CORRUPT_FIX,
         )
     _check_data(data_block * BLOCK_BYTES + points_ignored, acq_length, 2, size, origin)
+    _check_sweeps(episodes, acq_length // n_channels, origin)
     if n_tags > 0 and tag_block * BLOCK_BYTES + 64 * n_tags > size:
         raise RecordingError(
             origin, f"the ABF 1 header declares {n_tags} tags past the end of the file", _CORRUPT_FIX,
@@ -137,6 +138,8 @@ def _check_abf2(head: bytes, size: int, origin: str) -> None:
             f"{data_format}", _CORRUPT_FIX,
         )
     _check_data(block * BLOCK_BYTES, count, expected, size, origin)
+    (episodes,) = struct.unpack_from("<I", head, 12)
+    _check_sweeps(episodes, max(count, 0) // sections["ADC"][2], origin)
     for name, offset in _ABF2_SECTIONS.items():
         # pyabf reads only the low half of each 64-bit count, as an int32 (pyabf/abf2/section.py),
         # so a count whose halves disagree would size pyabf's lists by a number never checked.
@@ -146,6 +149,16 @@ def _check_abf2(head: bytes, size: int, origin: str) -> None:
                 origin, f"the ABF 2 header is corrupt: its {name} section's entry count "
                 f"({sections[name][2]}) is beyond 32 bits", _CORRUPT_FIX,
             )
+
+
+def _check_sweeps(n_sweeps: int, n_frames: int, origin: str) -> None:
+    # pyabf lists and times every sweep the header counts before it reads any data; a sweep holds
+    # at least one sample per channel, so more sweeps than that is header garbage.
+    if n_sweeps > max(n_frames, 1):
+        raise RecordingError(
+            origin, f"the ABF header is corrupt: it declares {n_sweeps} sweeps for {n_frames} "
+            "samples per channel", _CORRUPT_FIX,
+        )
 
 
 def _check_channels(n_channels: int, origin: str, *, limit: int | None) -> None:
