@@ -171,9 +171,6 @@ def test_corpus_has_every_kind_of_bad_input():
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
 KNOWN_DEFECTS: dict[str, str] = {
-    "abf1-rate-absurdly-high": "the ABF reader accepts a 1e15 Hz rate",
-    "abf1-rate-absurdly-low": "pyabf divides by its rounded rate of 0 Hz",
-    "abf2-rate-absurdly-high": "the ABF reader accepts a 1e15 Hz rate",
     "abf2-negative-sweep-length": "a negative synch-array length opens as a sweep",
     "nwb-no-data": "pynwb's warnings reach stderr",
     "nwb-rate-zero": "pynwb's warnings reach stderr",
@@ -182,13 +179,11 @@ KNOWN_DEFECTS: dict[str, str] = {
     "nwb-no-rate": "pynwb's construct errors quoted whole",
     "nwb-no-electrode": "pynwb's construct errors quoted whole",
     "nwb-2d-data": "pynwb's construct errors quoted whole",
-    "nwb-rate-absurd": "the NWB reader accepts a 1e15 Hz rate",
     "nwb-text-data": "text samples are accepted",
     "nwb-huge-unstored-data": "declared samples are not checked against those stored",
     "nwb-huge-unstored-timestamps": "timestamps are read whole before their size is checked",
     "text-random-junk": "a long header cell is quoted three times",
     "text-header-only": "numpy's empty-input warning reaches stderr",
-    "text-rate-absurd": "the text reader accepts a 10 THz rate",
 }
 
 

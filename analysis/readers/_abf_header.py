@@ -14,6 +14,7 @@ import math
 import struct
 
 from ..errors import RecordingError
+from ._timebase import check_rate
 
 __all__ = ["ABF1_SIGNATURE", "ABF2_SIGNATURE", "check_layout"]
 
@@ -80,7 +81,7 @@ def _check_abf1(head: bytes, size: int, origin: str) -> None:
     (n_channels,) = struct.unpack_from("<h", head, 120)
     (interval_us,) = struct.unpack_from("<f", head, 122)
     _check_channels(n_channels, origin, limit=16)
-    _check_interval(interval_us, origin)
+    _check_interval(interval_us, origin, n_channels=n_channels)
     if data_format == 1:
         raise RecordingError(
             origin, "holds ABF 1 floating-point samples, which pyabf cannot read",
@@ -174,12 +175,15 @@ def _check_channels(n_channels: int, origin: str, *, limit: int | None) -> None:
         )
 
 
-def _check_interval(interval_us: float, origin: str) -> None:
+def _check_interval(interval_us: float, origin: str, *, n_channels: int = 1) -> None:
     if not (math.isfinite(interval_us) and interval_us > 0):
         raise RecordingError(
             origin, f"the ABF header is corrupt: its sample interval is {interval_us!r} us",
             _CORRUPT_FIX,
         )
+    # ABF 1 gives the interval between samples of all channels, ABF 2 per channel (as pyabf reads them).
+    check_rate(1e6 / (interval_us * n_channels), origin,
+               what="the ABF header is corrupt: its sampling rate", fix=_CORRUPT_FIX)
 
 
 def _check_data(start: int, n_samples: int, sample_bytes: int, size: int, origin: str) -> None:

@@ -13,11 +13,32 @@ import numpy as np
 
 from ..errors import RecordingError
 
-__all__ = ["RELATIVE_TOLERANCE", "rate_from_times"]
+__all__ = ["RELATIVE_TOLERANCE", "MIN_RATE_HZ", "MAX_RATE_HZ", "check_rate", "rate_from_times"]
 
 #: Largest allowed distance of a sample time from the even grid, as a fraction of the sample
 #: interval. 1 % keeps a single dropped or doubled sample (an error of 100 %) well outside it.
 RELATIVE_TOLERANCE = 0.01
+#: Sampling rates outside these are damage (or times in the wrong units), not a recording: no
+#: patch-clamp digitiser samples faster than 10 MHz, and below 1 Hz pyabf's whole-hertz rate is 0
+#: (common practice, no source).
+MIN_RATE_HZ = 1.0
+MAX_RATE_HZ = 1e7
+
+
+def check_rate(
+    rate_hz: float,
+    origin: str,
+    *,
+    what: str = "the sampling rate",
+    fix: str = "the file is damaged; open the original recording",
+) -> float:
+    """``rate_hz``, after refusing one outside :data:`MIN_RATE_HZ` to :data:`MAX_RATE_HZ`."""
+    if not (np.isfinite(rate_hz) and MIN_RATE_HZ <= rate_hz <= MAX_RATE_HZ):
+        raise RecordingError(
+            origin, f"{what} is {rate_hz:.6g} Hz, outside the {MIN_RATE_HZ:g} Hz to "
+            f"{MAX_RATE_HZ / 1e6:g} MHz of any recording", fix,
+        )
+    return float(rate_hz)
 
 
 def rate_from_times(
@@ -119,4 +140,7 @@ def rate_from_times(
             f"{RELATIVE_TOLERANCE:.0%} of the interval)",
             "Upstroke needs evenly sampled data; export the original samples or resample them evenly",
         )
-    return float((t.size - 1) / span)
+    return check_rate(
+        float((t.size - 1) / span), origin, what=f"the sampling rate of {what}",
+        fix="check the units of the times (s, ms or us) or export the original samples",
+    )

@@ -19,7 +19,7 @@ import numpy as np
 
 from ..errors import RecordingError
 from ..recording import CURRENT_CLAMP, MIN_SAMPLES_PER_SWEEP, Channel, Recording, clamp_mode_from_units
-from ._timebase import rate_from_times
+from ._timebase import check_rate, rate_from_times
 
 __all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff"]
 
@@ -197,6 +197,7 @@ def _describe(s: Any, origin: str) -> _Series:
         start = float(times[0])
     if not (np.isfinite(rate) and rate > 0):
         raise RecordingError(origin, f"series {s.name!r} has a sampling rate of {rate!r} Hz", _CORRUPT_FIX)
+    check_rate(rate, origin, what=f"the sampling rate of series {s.name!r}", fix=_CORRUPT_FIX)
     shown, factor = _UNIT_SCALE.get(str(s.unit).strip().lower(), (str(s.unit), 1.0))
     electrode = getattr(s, "electrode", None)
     return _Series(
