@@ -171,7 +171,6 @@ def test_corpus_has_every_kind_of_bad_input():
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
 KNOWN_DEFECTS: dict[str, str] = {
-    "abf2-negative-sweep-length": "a negative synch-array length opens as a sweep",
     "nwb-no-data": "pynwb's warnings reach stderr",
     "nwb-rate-zero": "pynwb's warnings reach stderr",
     "nwb-rate-negative": "pynwb's warnings reach stderr",

@@ -149,6 +149,12 @@ class _Layout:
         if variable:
             # pyabf's setSweep: lengths in multiplexed samples, starts in synch time units.
             lengths = [int(n) // n_channels for n in synch.lLength]
+            if min(lengths) < 0:
+                raise RecordingError(
+                    origin, "the ABF header is corrupt: its synch array gives sweep "
+                    f"{int(np.argmin(lengths))} a negative length ({min(lengths)} samples)",
+                    "the file is damaged; open the original recording",
+                )
             frame_starts = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(np.int64)
             unit_us = float(abf._protocolSection.fSynchTimeUnit)
             starts_s = [
