@@ -6,12 +6,18 @@ The stable API is small::
     rec = open_recording("cell.abf")
     result = analyze(rec)
     result.beats          # BeatTable with the beats CSV's columns
+
+Review, conditions, summaries and the results file go through :class:`Session`::
+
+    from analysis import Session
+    session = Session.open("study.h5")    # or Session(); session.add("cell.abf")
 """
 
 from .errors import InputError, RecordingError, ResultsFileError, SettingsError
 from .pipeline import AnalysisResult, analyze
 from .readers import open_recording, supported_extensions
 from .recording import Channel, Recording
+from .session import Session
 from .settings import Settings
 from .table import CSV_COLUMNS, BeatTable
 
@@ -25,6 +31,7 @@ __all__ = [
     "RecordingError",
     "ResultsFileError",
     "SettingsError",
+    "Session",
     "Settings",
     "analyze",
     "open_recording",
