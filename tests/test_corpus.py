@@ -171,10 +171,6 @@ def test_corpus_has_every_kind_of_bad_input():
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
 KNOWN_DEFECTS: dict[str, str] = {
-    "nwb-no-data": "pynwb's warnings reach stderr",
-    "nwb-rate-zero": "pynwb's warnings reach stderr",
-    "nwb-rate-negative": "pynwb's warnings reach stderr",
-    "nwb-timestamps-count": "pynwb's warnings reach stderr",
     "nwb-no-rate": "pynwb's construct errors quoted whole",
     "nwb-no-electrode": "pynwb's construct errors quoted whole",
     "nwb-2d-data": "pynwb's construct errors quoted whole",

@@ -11,6 +11,7 @@ h5py.
 from __future__ import annotations
 
 import os
+import warnings
 from collections import defaultdict
 from dataclasses import dataclass
 from typing import Any
@@ -150,7 +151,10 @@ def _collect(origin: str) -> tuple[list[_Series], dict[str, Any]]:
     import pynwb  # imported here: it takes most of a second, and ABF or text files never need it
 
     try:
-        with pynwb.NWBHDF5IO(origin, "r", load_namespaces=True) as io:
+        with warnings.catch_warnings(), pynwb.NWBHDF5IO(origin, "r", load_namespaces=True) as io:
+            # pynwb warns on stderr about what it repairs while reading (units it resets, a rate of
+            # 0 Hz); what matters is refused below in one line, and the rest is not the user's to fix.
+            warnings.simplefilter("ignore")
             nwbfile = io.read()
             found = list(nwbfile.acquisition.values())
             series = [_describe(s, origin) for s in found if type(s).__name__ in SERIES_TYPES]
