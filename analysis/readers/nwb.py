@@ -267,6 +267,16 @@ def _session_metadata(nwbfile: Any) -> dict[str, Any]:
     return meta
 
 
-def _first_line(exc: BaseException) -> str:
+def _first_line(exc: BaseException, limit: int = 160) -> str:
     text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
+    line = text[0] if text else type(exc).__name__
+    # hdmf's construct errors quote the whole object tree, then ("Could not construct X due to:
+    # REASON"); keep the reason, without the closing quote and brackets of that tuple.
+    head, _, reason = line.rpartition(" due to: ")
+    if head and "Could not construct" in head:
+        quote = head[head.rfind("Could not construct") - 1]
+        reason = reason.rstrip(")")
+        reason = reason[:-1] if quote in "'\"" and reason.endswith(quote) else reason
+    else:
+        reason = line
+    return reason if len(reason) <= limit else reason[: limit - 3] + "..."
