@@ -179,6 +179,7 @@ def _collect(origin: str) -> tuple[list[_Series], dict[str, Any]]:
 
 def _describe(s: Any, origin: str) -> _Series:
     data = s.data
+    _check_stored(data, origin, f"series {s.name!r}")
     shape = tuple(getattr(data, "shape", ()))
     if len(shape) == 2 and shape[1] == 1:
         shape = shape[:1]
@@ -192,11 +193,13 @@ def _describe(s: Any, origin: str) -> _Series:
         rate = float(s.rate)
         start = float(s.starting_time or 0.0)
     else:
-        times = np.asarray(s.timestamps[:], dtype=np.float64)
-        if times.size != n:
+        n_times = int(np.shape(s.timestamps)[0]) if np.ndim(s.timestamps) else 0
+        if n_times != n:
             raise RecordingError(
-                origin, f"series {s.name!r} has {times.size} timestamps for {n} samples", _CORRUPT_FIX,
+                origin, f"series {s.name!r} has {n_times} timestamps for {n} samples", _CORRUPT_FIX,
             )
+        _check_stored(s.timestamps, origin, f"the timestamps of series {s.name!r}")
+        times = np.asarray(s.timestamps[:], dtype=np.float64)
         rate = rate_from_times(times, origin, what=f"the timestamps of series {s.name!r}")
         start = float(times[0])
     if not (np.isfinite(rate) and rate > 0):
@@ -222,6 +225,39 @@ def _check_aligned(origin: str, groups: dict[str, list[_Series]]) -> None:
         raise RecordingError(
             origin, f"the electrodes' current-clamp series do not line up as sweeps ({listed})",
             "export each electrode's series to its own file",
+        )
+
+
+#: The most that deflate (gzip, HDF5's usual filter) can compress: about 1032 to 1 (RFC 1951, a
+#: 258-byte match per code of at least 2 bits); any filter claiming more is hiding a missing block.
+_MAX_COMPRESSION = 1100
+
+
+def _check_stored(ds: Any, origin: str, what: str) -> None:
+    """Refuse a dataset that is not numbers, or that declares more samples than the file stores.
+
+    Checked before anything is read: an HDF5 dataset's shape is only a declaration (a dataset
+    of 10^12 samples with no chunk written takes a few bytes), and reading it whole would
+    allocate what the declaration says.
+    """
+    import h5py
+
+    if not isinstance(ds, h5py.Dataset):
+        raise RecordingError(origin, f"{what} stores no samples in the file", _CORRUPT_FIX)
+    if ds.dtype.kind not in "iuf":
+        raise RecordingError(
+            origin, f"{what} holds values of type {ds.dtype}, not numbers",
+            "store the samples as integers or floating-point numbers",
+        )
+    declared = ds.size * ds.dtype.itemsize
+    if declared == 0 or ds.external or ds.is_virtual:
+        return  # samples kept in other files are checked by HDF5 as they are read
+    stored = ds.id.get_storage_size()
+    filtered = ds.id.get_create_plist().get_nfilters() > 0
+    if stored * (_MAX_COMPRESSION if filtered else 1) < declared:
+        raise RecordingError(
+            origin, f"{what} declares {ds.size} samples but the file stores only {stored} bytes of them",
+            "the file is incomplete (its writer stopped early); export it again from the original",
         )
 
 
