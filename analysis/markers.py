@@ -248,14 +248,9 @@ class _Context:
         r["t_dvdt_max_s"] = self.t(up.index)
         r["rise_ms"], r["rise_samples"], r["dvdt_window_ms"] = up.rise_ms, up.rise_samples, up.window_ms
         r["i_upstroke"] = int(round(up.index))
-        # Peak on V smoothed as for dV/dt max.
+        # Peak: a quartic fitted to the samples near the top of V smoothed as for dV/dt max.
         w_pk = window_samples(up.window_ms, fs, polyorder=3, minimum=5) if up.window_ms > 0 else 1
-        a, b = max(g, ip0 - 3 * w_pk), min(end, ip0 + 3 * w_pk + 1)
-        sm, off = self.smooth(a, b, w_pk)
-        seg = sm[a - off:b - off]
-        j = int(np.argmax(seg))
-        po, pv = parabolic_peak(seg, j)
-        i_peak = a + j + po
+        i_peak, pv = self.peak(g, end, ip0, w_pk)
         r["peak_mV"], r["t_peak_s"] = pv, self.t(i_peak)
         # Upstroke time.
         if s.upstroke_time_method == "dvdt_max":
@@ -287,6 +282,33 @@ class _Context:
             flags.insert(0, "no_diastole")
         r["flags"] = flags
         return r
+
+    def peak(self, g: int, end: int, ip0: int, w: int) -> tuple[float, float]:
+        """(fractional index, value) of the maximum of V in [g, end) near ``ip0``.
+
+        The top is where the smoothed V lies within ``max(0.5 mV, 6 x noise)`` of its maximum;
+        a quartic is fitted there to the raw samples, so noise is averaged instead of its largest
+        excursion being taken, and a sharp or asymmetric top is still followed.
+        """
+        a, b = max(g, ip0 - 3 * w), min(end, ip0 + 3 * w + 1)
+        sm, off = self.smooth(a, b, w)
+        seg = sm[a - off:b - off]
+        j = int(np.argmax(seg))
+        po, pv = parabolic_peak(seg, j)
+        delta = min(max(0.5, 6.0 * self.noise), 5.0)
+        top = seg >= seg[j] - delta
+        lo = j - (int(np.argmin(top[:j + 1][::-1])) if not top[:j + 1].all() else j)
+        hi = j + (int(np.argmin(top[j:])) if not top[j:].all() else top.size - j)
+        if hi - lo >= 7:
+            x = np.arange(lo, hi, dtype=np.float64) - j
+            y = self.v[a + lo:a + hi]
+            coef = np.polynomial.polynomial.polyfit(x / max(hi - lo, 1), y, 4)
+            grid = np.linspace(x[0], x[-1], 16 * (hi - lo) + 1)
+            val = np.polynomial.polynomial.polyval(grid / max(hi - lo, 1), coef)
+            k = int(np.argmax(val))
+            if 0 < k < grid.size - 1:
+                return a + j + float(grid[k]), float(val[k])
+        return a + j + po, pv
 
     def mdp(self, prev: int, g: int) -> tuple[float, float]:
         """(fractional index, value) of the minimum of V between ``prev`` and ``g``."""

@@ -257,7 +257,7 @@ def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
         x = recording.sweep(sw, ch, a, b)
         if scale != 1.0:
             x = x * scale
-        return preprocess(x, fs, s.preprocess)
+        return preprocess(x, fs, s.preprocess, offset=a)
 
     return load
 
@@ -349,34 +349,15 @@ def flag_and_reject(
     """The hook where events and quality rules flag and automatically reject measured beats.
 
     Runs :func:`analysis.events.apply_events` when the settings carry a ``quality`` section;
-    otherwise returns the table unchanged. The events module gets each sweep's preprocessed
-    samples on demand (one sweep in memory at a time).
+    otherwise returns the table unchanged. The events module reads each sweep's preprocessed
+    samples in windows of beats (:class:`analysis.events.RecordingSweeps`), never a whole sweep.
     """
     quality = getattr(settings, "quality", None)
     if quality is None or len(beats) == 0:
         return beats, []
     from . import events
 
-    sweeps_v = _LazySweeps(recording, channel, scale, settings, preprocessed=True)
-    sweeps_raw = _LazySweeps(recording, channel, scale, settings, preprocessed=False)
+    # Read in windows (with filter context), so memory stays bounded by a chunk of beats.
+    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=settings.preprocess)
+    sweeps_raw = events.RecordingSweeps(recording, channel, scale=scale)
     return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw)
-
-
-class _LazySweeps:
-    """``sweeps[i]``: one sweep's samples in mV, read (and preprocessed) when asked for."""
-
-    def __init__(self, recording: Recording, channel: int, scale: float, settings: Settings, *, preprocessed: bool):
-        self._rec, self._ch, self._scale, self._s, self._pre = recording, channel, scale, settings, preprocessed
-        self._cache: tuple[int, np.ndarray] | None = None
-
-    def __getitem__(self, sweep: int) -> np.ndarray:
-        if self._cache is not None and self._cache[0] == sweep:
-            return self._cache[1]
-        x = self._rec.sweep(int(sweep), self._ch) * self._scale
-        if self._pre:
-            x = preprocess(x, self._rec.sampling_rate_hz, self._s.preprocess)
-        self._cache = (sweep, x)
-        return x
-
-    def __len__(self) -> int:
-        return self._rec.n_sweeps

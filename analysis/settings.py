@@ -262,6 +262,18 @@ class PreprocessSettings(Section):
         1, min=1, max=10, source=_NO_SOURCE,
         doc="how many harmonics of the mains frequency the notch removes (1: the fundamental only)",
     )
+    hum_removal: str = setting(
+        "auto", choices=("auto", "off"), source="sinusoid fitting of line noise; " + _NO_SOURCE,
+        doc="estimate 50/60 Hz hum (and harmonics) as a slowly varying sinusoid and subtract it where present",
+    )
+    hum_block_s: float = setting(
+        1.0, unit="s", min=0.2, max=60.0, source=_NO_SOURCE,
+        doc="length of the blocks in which the hum's amplitude and phase are fitted",
+    )
+    hum_min_mV: float = setting(
+        0.03, unit="mV", min=0.0, max=10.0, source=_NO_SOURCE,
+        doc="hum components smaller than this are left alone",
+    )
     notch_q: float = setting(
         30.0, min=1.0, max=300.0, source=_NO_SOURCE,
         doc="quality factor of the notch: its width is the mains frequency / Q",
@@ -415,7 +427,7 @@ class MeasurementSettings(Section):
         doc="shortest dV/dt max window (never fewer than 5 samples)",
     )
     dvdt_max_max_window_ms: float = setting(
-        5.0, unit="ms", min=0.05, max=50.0, source=_NO_SOURCE,
+        10.0, unit="ms", min=0.05, max=50.0, source=_NO_SOURCE,
         doc="longest dV/dt max window",
     )
     mdp_method: str = setting(

@@ -44,6 +44,7 @@ __all__ = [
     "slope_noise_V_per_s",
     "noise_matched_window_ms",
     "parabolic_peak",
+    "top_fit_peak",
     "rise_time_10_90",
     "UpstrokeVelocity",
     "upstroke_velocity",
@@ -216,6 +217,10 @@ def correct_ljp(v_mV: np.ndarray, ljp_mV: float) -> np.ndarray:
 def filter_pad_samples(fs_hz: float, settings) -> int:
     """Samples of context a chunk needs on each side so that the filters' edges do not show."""
     pad_s = 0.0
+    if getattr(settings, "hum_removal", "off") != "off":
+        from .hum import hum_pad_samples
+
+        pad_s = hum_pad_samples(fs_hz, settings.hum_block_s) / fs_hz
     if settings.lowpass_hz:
         pad_s = max(pad_s, 10.0 * settings.lowpass_order / settings.lowpass_hz)
     if settings.notch_hz:
@@ -224,9 +229,17 @@ def filter_pad_samples(fs_hz: float, settings) -> int:
     return int(math.ceil(pad_s * fs_hz))
 
 
-def preprocess(v_mV: np.ndarray, fs_hz: float, settings) -> np.ndarray:
-    """LJP correction, then the optional notch and low-pass of a preprocess settings section."""
+def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0) -> np.ndarray:
+    """LJP correction, mains-hum removal, then the optional notch and low-pass.
+
+    ``settings`` is a preprocess settings section; ``offset`` is the index of ``v_mV[0]`` in its
+    sweep (the hum's phase is measured from the sweep's start).
+    """
     x = correct_ljp(v_mV, settings.ljp_mV)
+    if getattr(settings, "hum_removal", "off") != "off":
+        from .hum import remove_hum
+
+        x, _ = remove_hum(x, fs_hz, block_s=settings.hum_block_s, min_mV=settings.hum_min_mV, offset=offset)
     if settings.notch_hz:
         x = notch(x, fs_hz, mains_hz=settings.notch_hz, q=settings.notch_q, harmonics=settings.notch_harmonics)
     if settings.lowpass_hz:
@@ -291,6 +304,37 @@ def parabolic_peak(y: np.ndarray, i: int) -> tuple[float, float]:
     off = 0.5 * (a - c) / den
     off = min(max(off, -0.5), 0.5)
     return off, b - 0.25 * (a - c) * off
+
+
+def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int = 200) -> tuple[float, float]:
+    """Position and height of a peak from a least-squares parabola through its top.
+
+    The parabola is fitted to the contiguous samples around ``i`` that are at least ``fraction``
+    of the peak's height (at least the 3 samples around it), so that on a broad, noisy peak many
+    samples are averaged (no bias from taking the largest of noisy samples) while on a sharp one
+    it reduces to the three-point parabola. Returns ``(offset, value)``, ``offset`` in samples.
+    """
+    n = len(y)
+    peak = float(y[i])
+    if n < 3 or peak <= 0:
+        return parabolic_peak(y, i) if 0 < i < n - 1 else (0.0, peak)
+    level = fraction * peak
+    lo = i
+    while lo > 0 and i - lo < max_half and y[lo - 1] >= level:
+        lo -= 1
+    hi = i
+    while hi < n - 1 and hi - i < max_half and y[hi + 1] >= level:
+        hi += 1
+    if hi - lo < 3:
+        return parabolic_peak(y, i)
+    x = np.arange(lo, hi + 1, dtype=np.float64) - i
+    c2, c1, c0 = np.polyfit(x, np.asarray(y[lo:hi + 1], dtype=np.float64), 2)
+    if c2 >= 0:
+        return parabolic_peak(y, i)
+    off = -c1 / (2 * c2)
+    if not (x[0] <= off <= x[-1]):
+        return parabolic_peak(y, i)
+    return float(off), float(c0 - c1 * c1 / (4 * c2))
 
 
 def _crossing_up(v: np.ndarray, level: float, start: int) -> float:
@@ -396,7 +440,8 @@ def upstroke_velocity(
     about 40 samples instead of 3. On noisy traces the window grows until the noise of the
     derivative (white-noise rms times the norm of the filter's coefficients) is a small fraction
     of the upstroke's own velocity, but never beyond half the rise. The maximum of the sampled
-    derivative is refined by a parabola through its three highest samples.
+    derivative is refined by a least-squares parabola through its top 10 %
+    (:func:`top_fit_peak`), which also keeps the largest-of-noisy-samples bias out.
     """
     light = v_mV if v_light_mV is None else v_light_mV
     rise_ms, i10, i90 = rise_time_10_90(light, fs_hz, i_foot=i_foot, i_peak=i_peak)
@@ -418,7 +463,7 @@ def upstroke_velocity(
         # dV/dt max of phase 0: the largest derivative between the 10 % and 90 % crossings.
         j0, j1 = _search(lo, hi, a, d)
         j = j0 + int(np.argmax(d[j0:j1]))
-        off, value = parabolic_peak(d, j)
+        off, value = top_fit_peak(d, j)
         if noise_mV <= 0 or value <= 0:
             break
         n_max = min(window_samples(max_window_ms, fs_hz, polyorder=3, minimum=5),
