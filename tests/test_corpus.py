@@ -171,8 +171,6 @@ def test_corpus_has_every_kind_of_bad_input():
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
 KNOWN_DEFECTS: dict[str, str] = {
-    "text-random-junk": "a long header cell is quoted three times",
-    "text-header-only": "numpy's empty-input warning reaches stderr",
 }
 
 

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import os
 import re
+import warnings
 from dataclasses import dataclass
 from typing import Callable
 
@@ -215,6 +216,8 @@ def _columns(labels: list[str], origin: str) -> list[_Column]:
     for label in labels:
         name, unit = parse_label(label)
         if unit is None:
+            if len(name) > 40:  # not a column name but a line of something else: quote its start
+                label = name = name[:37] + "..."
             raise RecordingError(
                 origin, f"column {label!r} has no units Upstroke knows",
                 f"name it like '{name}_mV' or '{name} (mV)' (time in s or ms; voltage in mV or V; "
@@ -245,10 +248,12 @@ def _columns(labels: list[str], origin: str) -> list[_Column]:
 def _parse_numbers(body: _Body, delimiter: str | None, n_columns: int, origin: str) -> np.ndarray:
     """All data rows as floats, or the first bad cell with its line number."""
     try:
-        values = np.loadtxt(
-            origin, delimiter=delimiter, comments="#", dtype=np.float64, ndmin=2,
-            usecols=range(n_columns), quotechar='"', skiprows=body.skip, encoding="latin-1",
-        )
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # numpy's "input contained no data": refused below
+            values = np.loadtxt(
+                origin, delimiter=delimiter, comments="#", dtype=np.float64, ndmin=2,
+                usecols=range(n_columns), quotechar='"', skiprows=body.skip, encoding="latin-1",
+            )
     except (ValueError, IndexError) as exc:
         _raise_first_bad_cell(body, delimiter, n_columns, origin)
         # The line-by-line scan found every cell a number; say what numpy's parser refused.
