@@ -404,7 +404,7 @@ class UpstrokeVelocity:
 
 def upstroke_velocity(
     v_mV: np.ndarray, fs_hz: float, *, i_foot: int, i_peak: int, method: str = "adaptive_savgol",
-    window_fraction: float = 0.2, min_window_ms: float = 0.0, max_window_ms: float = 5.0,
+    window_fraction: float = 0.2, min_window_ms: float = 0.0, max_window_ms: float = 10.0,
     noise_mV: float = 0.0, noise_fraction: float = 0.02, v_light_mV: np.ndarray | None = None,
 ) -> UpstrokeVelocity:
     """Maximum upstroke velocity with a derivative window sized to the upstroke's own rise.
