@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Callable, Mapping
+from typing import Any, Callable, Mapping
 
 import numpy as np
 
@@ -57,7 +57,7 @@ class Ensemble:
 def ensemble_average(
     beats: BeatTable,
     rows: np.ndarray,
-    trace: Callable[[int], np.ndarray],
+    trace: Any,
     fs_hz: float,
     *,
     measure: Callable[[np.ndarray], Mapping[str, float] | None] | None = None,
@@ -70,8 +70,10 @@ def ensemble_average(
         With ``sweep``, ``t_upstroke_s``, ``t_mdp_s`` and ``cl_ms``.
     rows : ndarray of int
         The beats to average (eligible ones; see :func:`analysis.summary.eligible_mask`).
-    trace : callable
-        ``trace(sweep)`` gives that sweep's samples in mV (LJP-corrected).
+    trace : sweep source or callable
+        The samples in mV (LJP-corrected): a sweep source with ``n_samples(sweep)`` and
+        ``read(sweep, start, stop)`` (only each beat's window is read), or ``trace(sweep)``
+        giving a whole sweep.
     fs_hz : float
     measure : callable or None
         Measures the averaged cycle repeated three times and returns the middle beat's
@@ -97,17 +99,25 @@ def ensemble_average(
     total = np.zeros(length)
     count = 0
     sweeps = np.asarray(beats["sweep"], dtype=np.int64)[rows]
+    windowed = hasattr(trace, "read") and hasattr(trace, "n_samples")
     for s in np.unique(sweeps[ok]):
-        v = np.asarray(trace(int(s)), dtype=np.float64)
-        t_end = (v.size - 1) / fs_hz
+        if windowed:
+            n = int(trace.n_samples(int(s)))
+        else:
+            whole = np.asarray(trace(int(s)), dtype=np.float64)
+            n = whole.size
+        t_end = (n - 1) / fs_hz
         for tu in t_up[ok & (sweeps == s)]:
             if tu + offsets[0] < 0 or tu + offsets[-1] > t_end:
                 continue
             x = (tu + offsets) * fs_hz
-            i = np.floor(x).astype(np.int64)
-            i = np.clip(i, 0, v.size - 2)
+            i = np.clip(np.floor(x).astype(np.int64), 0, n - 2)
             frac = x - i
-            total += v[i] * (1.0 - frac) + v[i + 1] * frac
+            # Only the beat's own window is read from a sweep source (memory bounded by a cycle).
+            lo, hi = int(i[0]), int(i[-1]) + 2
+            v = np.asarray(trace.read(int(s), lo, hi), dtype=np.float64) if windowed else whole[lo:hi]
+            j = i - lo
+            total += v[j] * (1.0 - frac) + v[j + 1] * frac
             count += 1
     if count == 0:
         return None

@@ -50,16 +50,16 @@ Rejections set ``accepted`` to 0 and write ``auto: FLAG (why)`` to ``reject_reas
 
 from __future__ import annotations
 
-import math
-from typing import Sequence
+from typing import Any
 
 import numpy as np
-from scipy.ndimage import uniform_filter1d
-from scipy.signal import butter, sosfiltfilt
 
+from .events_trace import ArraySweeps, RecordingSweeps, as_sweeps, sweep_trace_events
 from .table import BeatTable
 
 __all__ = [
+    "ArraySweeps",
+    "RecordingSweeps",
     "AUTO_PREFIX",
     "EVENT_FLAGS",
     "REJECTABLE_FLAGS",
@@ -87,159 +87,6 @@ AUTO_PREFIX = "auto: "
 def rejection_flags(quality) -> tuple[str, ...]:
     """The flags the quality settings reject automatically (their ``reject_FLAG`` fields)."""
     return tuple(f for f in REJECTABLE_FLAGS if bool(getattr(quality, f"reject_{f}", False)))
-
-
-# -- traces ------------------------------------------------------------------------------------
-def _index(t_s: np.ndarray, fs_hz: float, n: int) -> np.ndarray:
-    """Sample indices of times (NaN -> -1), clipped into the sweep."""
-    out = np.full(t_s.shape, -1, dtype=np.int64)
-    ok = np.isfinite(t_s)
-    out[ok] = np.clip(np.rint(t_s[ok] * fs_hz).astype(np.int64), 0, n - 1)
-    return out
-
-
-def _flat_runs_at_extremes(raw: np.ndarray, min_len: int) -> list[tuple[int, int, float]]:
-    """Runs ``(start, stop, value)`` of at least ``min_len`` equal samples at the max or min."""
-    runs = []
-    if raw.size < min_len:
-        return runs
-    for value in (float(np.max(raw)), float(np.min(raw))):
-        at = raw == value
-        if np.count_nonzero(at) < min_len:
-            continue
-        edges = np.diff(np.concatenate(([0], at.view(np.int8), [0])))
-        starts = np.flatnonzero(edges == 1)
-        stops = np.flatnonzero(edges == -1)
-        for a, b in zip(starts, stops):
-            if b - a >= min_len:
-                runs.append((int(a), int(b), value))
-    return runs
-
-
-def sweep_trace_events(
-    v_mV: np.ndarray,
-    fs_hz: float,
-    beats: BeatTable,
-    quality,
-    *,
-    raw: np.ndarray | None = None,
-) -> dict[str, np.ndarray]:
-    """The trace-based events of the beats of one sweep: EAD, DAD, clipped, noise.
-
-    Parameters
-    ----------
-    v_mV : ndarray
-        The sweep's membrane potential after LJP correction, in mV.
-    fs_hz : float
-        Sampling rate.
-    beats : BeatTable
-        The beats of this sweep only, in time order, with the marker columns ``t_upstroke_s``,
-        ``t_mdp_s``, ``t_top_s``, ``t_peak_s``, ``t_apd90_s``, ``peak_mV`` and ``apa_mV``.
-    quality
-        The quality settings section.
-    raw : ndarray or None
-        The samples as stored (before any correction) for the clipping test; None uses
-        ``v_mV``.
-
-    Returns
-    -------
-    dict of str to ndarray
-        Boolean arrays ``ead``, ``dad``, ``clipped``, ``noisy`` and float arrays ``ead_mV``,
-        ``ead_takeoff_mV``, ``dad_mV``, ``noise_mV_rms`` (NaN where not found or not assessable),
-        one entry per beat; ``clip_detail`` holds the flat level and duration as text.
-    """
-    v = np.asarray(v_mV, dtype=np.float64)
-    n = v.size
-    k = len(beats)
-    out: dict[str, np.ndarray] = {
-        "ead": np.zeros(k, bool), "dad": np.zeros(k, bool), "clipped": np.zeros(k, bool),
-        "noisy": np.zeros(k, bool), "ead_mV": np.full(k, np.nan), "ead_takeoff_mV": np.full(k, np.nan),
-        "dad_mV": np.full(k, np.nan), "noise_mV_rms": np.full(k, np.nan),
-        "clip_detail": np.full(k, "", dtype=object),
-    }
-    if k == 0 or n == 0:
-        return out
-    width = max(1, int(round(quality.ead_smooth_ms * 1e-3 * fs_hz)))
-    vs = uniform_filter1d(v, size=width, mode="nearest") if width > 1 else v
-    dvdt = np.gradient(vs) * fs_hz * 1e-3  # V/s
-    # DADs are slow (tens of ms), so a wider window can take out noise and hum.
-    dad_width = max(1, int(round(quality.dad_smooth_ms * 1e-3 * fs_hz)))
-    vd = uniform_filter1d(v, size=dad_width, mode="nearest") if dad_width > 1 else v
-    i_up = _index(np.asarray(beats["t_upstroke_s"], float), fs_hz, n)
-    i_peak = _index(np.asarray(beats["t_peak_s"], float), fs_hz, n)
-    i_apd90 = _index(np.asarray(beats["t_apd90_s"], float), fs_hz, n)
-    i_mdp = _index(np.asarray(beats["t_mdp_s"], float), fs_hz, n)
-    i_top = _index(np.asarray(beats["t_top_s"], float), fs_hz, n)
-    peak = np.asarray(beats["peak_mV"], float)
-    apa = np.asarray(beats["apa_mV"], float)
-
-    # Phase 4 lies well below the noise corner; hum (50/60 Hz) and white noise lie above it.
-    corner_hz = min(quality.noise_highpass_hz, 0.4 * fs_hz)
-    sos = butter(2, corner_hz, fs=fs_hz, output="sos")
-    pad = int(round(fs_hz / corner_hz))
-    min_noise_samples = 2 * pad
-    for b in range(k):
-        # EAD: the climb above the running minimum of the repolarising trace.
-        if i_peak[b] >= 0 and i_apd90[b] > i_peak[b] and math.isfinite(apa[b]):
-            level = peak[b] - quality.ead_start_repol_pct / 100.0 * apa[b]
-            # The crossing is taken on the unsmoothed trace, and the search starts only where
-            # the smoothing window no longer reaches back into the upstroke.
-            below = np.flatnonzero(v[i_peak[b]:i_apd90[b] + 1] <= level)
-            a = i_peak[b] + int(below[0]) if below.size else -1
-            a = max(a, i_peak[b] + width // 2 + 1) if a >= 0 else -1
-            if 0 <= a < i_apd90[b]:
-                seg = vs[a:i_apd90[b] + 1]
-                floor = np.minimum.accumulate(seg)
-                rise = seg - floor
-                j = int(np.argmax(rise))
-                if rise[j] >= quality.ead_min_mV:
-                    start = int(np.flatnonzero(seg[: j + 1] == floor[j])[-1])
-                    if np.max(dvdt[a + start:a + j + 1]) >= quality.ead_min_dvdt_V_per_s:
-                        out["ead"][b] = True
-                        out["ead_mV"][b] = float(rise[j])
-                        out["ead_takeoff_mV"][b] = float(seg[start])
-        # DAD: a hump that rises and falls back by dad_min_mV before the next take-off.
-        if i_apd90[b] >= 0:
-            a = i_apd90[b]
-            if b + 1 < k:
-                stop = i_top[b + 1] if i_top[b + 1] > a else i_up[b + 1] - dad_width
-                # Keep the smoothing window from reaching into the next upstroke.
-                stop = min(stop, i_up[b + 1] - dad_width // 2 - 1)
-            else:
-                stop = n - 1
-            if stop - a > 2:
-                seg = vd[a:stop + 1]
-                rise = seg - np.minimum.accumulate(seg)
-                fall = seg - np.minimum.accumulate(seg[::-1])[::-1]
-                hump = np.minimum(rise, fall)
-                j = int(np.argmax(hump))
-                if hump[j] >= quality.dad_min_mV:
-                    out["dad"][b] = True
-                    out["dad_mV"][b] = float(hump[j])
-        # Noise of the diastole before this beat: what a zero-phase low-pass leaves out.
-        if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
-            seg = v[i_mdp[b]:i_top[b] + 1]
-            if seg.size >= min_noise_samples:
-                resid = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=min(seg.size - 1, 3 * pad))
-                out["noise_mV_rms"][b] = float(np.sqrt(np.mean(resid**2)))
-    out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)
-
-    # Clipping: each beat owns the samples from its MDP (the sweep start for the first beat) to
-    # the next beat's MDP, so every flat run belongs to exactly one beat.
-    samples = v if raw is None else np.asarray(raw)
-    min_len = max(3, int(math.ceil(quality.clip_min_flat_ms * 1e-3 * fs_hz)))
-    runs = _flat_runs_at_extremes(samples, min_len)
-    if runs:
-        owner_start = np.where(i_mdp >= 0, i_mdp, np.maximum(i_up - 1, 0))
-        owner_start[0] = 0
-        owner_start = np.maximum.accumulate(owner_start)
-        for a, stop, value in runs:
-            b = int(np.searchsorted(owner_start, a, side="right") - 1)
-            b = min(max(b, 0), k - 1)
-            if not out["clipped"][b]:
-                out["clipped"][b] = True
-                out["clip_detail"][b] = f"flat at {value:.4g} for {1e3 * (stop - a) / fs_hz:.3g} ms"
-    return out
 
 
 def _running_median(x: np.ndarray, size: int) -> np.ndarray:
@@ -358,11 +205,11 @@ def strip_events(beats: BeatTable) -> BeatTable:
 
 def apply_events(
     beats: BeatTable,
-    sweeps_v_mV: Sequence[np.ndarray] | dict[int, np.ndarray] | None,
+    sweeps_v_mV: Any,
     fs_hz: float,
-    quality,
+    quality: Any,
     *,
-    sweeps_raw: Sequence[np.ndarray] | dict[int, np.ndarray] | None = None,
+    sweeps_raw: Any = None,
 ) -> tuple[BeatTable, list[str]]:
     """Add event and quality flags to a measured table and apply the rejection rules.
 
@@ -370,14 +217,15 @@ def apply_events(
     ----------
     beats : BeatTable
         The measured beats (any earlier events are replaced, see :func:`strip_events`).
-    sweeps_v_mV : mapping or sequence of ndarray, or None
-        ``sweeps_v_mV[s]`` is sweep ``s`` after LJP correction, in mV. None skips the
-        trace-based events (EAD, DAD, clipped, noisy).
+    sweeps_v_mV
+        The membrane potential per sweep after LJP correction, in mV: a sweep source
+        (:class:`RecordingSweeps`, read in windows) or arrays (``sweeps_v_mV[s]``). None skips
+        the trace-based events (EAD, DAD, clipped, noisy).
     fs_hz : float
     quality
         The quality settings section.
-    sweeps_raw : mapping or sequence of ndarray, or None
-        The uncorrected samples per sweep for the clipping test (None: use ``sweeps_v_mV``).
+    sweeps_raw
+        The samples as recorded per sweep, for the clipping test (None: ``sweeps_v_mV``).
 
     Returns
     -------
@@ -392,11 +240,11 @@ def apply_events(
     extra = {c: np.full(k, np.nan) for c in EVENT_COLUMNS}
     details = {f: np.full(k, "", dtype=object) for f in ("clipped", "artefact")}
     sweep = np.asarray(base["sweep"]) if k else np.empty(0, int)
-    if sweeps_v_mV is not None:
+    source, raw = as_sweeps(sweeps_v_mV), as_sweeps(sweeps_raw)
+    if source is not None:
         for s in np.unique(sweep):
             rows = np.flatnonzero(sweep == s)
-            raw = None if sweeps_raw is None else sweeps_raw[int(s)]
-            res = sweep_trace_events(sweeps_v_mV[int(s)], fs_hz, base.take(rows), quality, raw=raw)
+            res = sweep_trace_events(source, int(s), fs_hz, base.take(rows), quality, raw=raw)
             for f in ("ead", "dad", "clipped", "noisy"):
                 found[f][rows] = res[f]
             for c in EVENT_COLUMNS:

@@ -39,117 +39,24 @@ Examples
 
 from __future__ import annotations
 
-import math
 import os
-from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
-from .conditions import Condition, assign_conditions, check_conditions
+from .conditions import Condition, check_conditions
 from .decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
 from .errors import RecordingError
 from .recording import Recording
+from .session_commands import Command, ConditionsCommand, DecideCommand, SettingsCommand
+from .session_types import (
+    EVENTS, VIEW_COLUMNS, Change, Entry, RecordingInfo, SettingsChange, SummaryJob, cycle_measurer,
+    info_from, is_event_warning, key_of, mV_scale, reviewed_table,
+)
+from .session_types import scope as change_scope
 from .table import BeatTable
 
-__all__ = ["Change", "EVENTS", "RecordingInfo", "Session", "SettingsChange"]
-
-EVENTS = (
-    "recording_added", "recording_removed", "results_changed", "decisions_changed",
-    "conditions_changed", "settings_changed", "history_changed", "saved", "warning",
-)
-#: Columns the session adds to the automatic table in its view.
-VIEW_COLUMNS = ("reviewed",)
-
-
-@dataclass(frozen=True)
-class Change:
-    """One change notification.
-
-    Attributes
-    ----------
-    event : str
-        One of :data:`EVENTS`.
-    recording : str or None
-        The recording's key, when the change concerns one.
-    rows : tuple of int
-        Rows of :meth:`Session.beats` concerned (decisions), else empty.
-    detail : str
-        Text for ``warning`` and ``saved`` (the path), else empty.
-    """
-
-    event: str
-    recording: str | None = None
-    rows: tuple[int, ...] = ()
-    detail: str = ""
-
-
-@dataclass
-class RecordingInfo:
-    """What the session knows about one recording besides its beats.
-
-    Attributes mirror :class:`analysis.store.StoredRecording`: ``source_path``, ``label``,
-    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
-    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
-    ``provenance``.
-    """
-
-    source_path: str
-    label: str
-    sha256: str = ""
-    reader: str = ""
-    channel: int = 0
-    channel_name: str = ""
-    units: str = "mV"
-    ljp_mV: float = 0.0
-    sweeps: tuple[int, ...] | None = None
-    sampling_rate_hz: float = math.nan
-    sweep_starts_s: tuple[float, ...] = ()
-    sweep_lengths: tuple[int, ...] = ()
-    provenance: dict[str, str] = field(default_factory=dict)
-
-    @property
-    def sweep_durations_s(self) -> tuple[float, ...]:
-        return tuple(n / self.sampling_rate_hz for n in self.sweep_lengths)
-
-
-@dataclass
-class _Entry:
-    info: RecordingInfo
-    settings: Any
-    table: BeatTable
-    warnings: tuple[str, ...]
-    decisions: DecisionLog
-    conditions: tuple[Condition, ...]
-    recording: Recording | None = None
-    requested_channel: int | str | None = None
-    summaries: list | None = None
-
-
-@dataclass(frozen=True)
-class SettingsChange:
-    """New settings and the results they give, computed by :meth:`Session.prepare_settings`.
-
-    Attributes
-    ----------
-    settings : Settings
-    scopes : dict of str to str
-        Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
-        ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
-        (detection and measurement re-run).
-    tables, warnings, provenance : dict
-        The new results of the recordings that were re-analysed.
-    """
-
-    settings: Any
-    scopes: dict[str, str]
-    tables: dict[str, BeatTable]
-    warnings: dict[str, tuple[str, ...]]
-    provenance: dict[str, dict[str, str]]
-
-
-def _key_of(source: str) -> str:
-    return os.path.normcase(os.path.abspath(source))
+__all__ = ["Change", "EVENTS", "RecordingInfo", "Session", "SettingsChange", "SummaryJob", "VIEW_COLUMNS"]
 
 
 class Session:
@@ -170,9 +77,9 @@ class Session:
 
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
-        self._entries: dict[str, _Entry] = {}
-        self._undo: list[_Command] = []
-        self._redo: list[_Command] = []
+        self._entries: dict[str, Entry] = {}
+        self._undo: list[Command] = []
+        self._redo: list[Command] = []
         self._listeners: dict[str, list[Callable[[Change], None]]] = {}
         self._clean_depth: int | None = 0
         self.path: str | None = None
@@ -261,9 +168,9 @@ class Session:
             label = os.fspath(given) if given is not None else (rec.source_path or f"recording-{len(self._entries) + 1}")
         if result is None:
             result = analyze(rec, settings=settings, channel=channel, sweeps=sweeps, label=label)
-        key = _key_of(rec.source_path) if rec.source_path else label
-        info = self._info_from(rec, result, label, sweeps)
-        entry = _Entry(
+        key = key_of(rec.source_path) if rec.source_path else label
+        info = info_from(rec, result, label, sweeps)
+        entry = Entry(
             info=info, settings=settings, table=result.beats, warnings=tuple(result.warnings),
             decisions=DecisionLog(), conditions=(), recording=rec, requested_channel=channel,
         )
@@ -282,25 +189,6 @@ class Session:
             self._emit("warning", key, detail=w)
         return key
 
-    def _info_from(self, rec: Recording, result: Any, label: str, sweeps: Sequence[int] | None) -> RecordingInfo:
-        from .store import provenance_now
-
-        return RecordingInfo(
-            source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
-            label=label,
-            sha256=(rec.sha256 or "") if rec.source_path else "",
-            reader=rec.format,
-            channel=int(result.channel),
-            channel_name=str(result.channel_name),
-            units=rec.units(int(result.channel)),
-            ljp_mV=float(result.ljp_mV),
-            sweeps=None if sweeps is None else tuple(int(s) for s in sweeps),
-            sampling_rate_hz=rec.sampling_rate_hz,
-            sweep_starts_s=tuple(rec.sweep_starts_s),
-            sweep_lengths=tuple(rec.sweep_lengths),
-            provenance=provenance_now(),
-        )
-
     def remove(self, key: str) -> None:
         """Take a recording out of the session (not undoable; its history is dropped)."""
         self._entry(key)
@@ -309,7 +197,7 @@ class Session:
         self._touch()
         self._emit("recording_removed", key)
 
-    def _entry(self, key: str) -> _Entry:
+    def _entry(self, key: str) -> Entry:
         try:
             return self._entries[key]
         except KeyError:
@@ -357,7 +245,7 @@ class Session:
         """One sweep of the analysed channel in mV after the LJP correction (no filters)."""
         e = self._entry(key)
         raw = self.recording(key).sweep(int(sweep), e.info.channel)
-        return raw * _mV_scale(e.info.units) - e.info.ljp_mV
+        return raw * mV_scale(e.info.units) - e.info.ljp_mV
 
     # -- tables ------------------------------------------------------------------------------
     def auto_beats(self, key: str) -> BeatTable:
@@ -375,25 +263,7 @@ class Session:
             ``reviewed`` (1 where a review decision applies, 0 where the automatic verdict
             stands).
         """
-        e = self._entry(key)
-        t = e.table
-        n = len(t)
-        sweep = np.asarray(t["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
-        t_up = np.asarray(t["t_upstroke_s"], dtype=np.float64) if n else np.empty(0)
-        verdict, reason = e.decisions.state(sweep, t_up, tolerance_s=self.match_tolerance_s)
-        accepted = np.asarray(t["accepted"]).copy() if n else np.empty(0, np.int64)
-        reasons = np.array(t["reject_reason"], dtype=object) if "reject_reason" in t else np.full(n, "", dtype=object)
-        decided = verdict != CLEAR
-        accepted[decided] = verdict[decided]
-        reasons[decided & (verdict == ACCEPT)] = ""
-        rejected = decided & (verdict == REJECT)
-        reasons[rejected] = reason[rejected]
-        starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
-        t_rec = starts[sweep] + t_up if n else np.empty(0)
-        condition = assign_conditions(sweep, t_rec, e.conditions)
-        return t.with_columns(
-            accepted=accepted, reject_reason=reasons, condition=condition, reviewed=decided.astype(np.int64),
-        )
+        return reviewed_table(self._entry(key), self.match_tolerance_s)
 
     def all_beats(self, keys: Sequence[str] | None = None) -> BeatTable:
         """The reviewed tables of several recordings (all by default), one after another."""
@@ -450,7 +320,7 @@ class Session:
         ]
         verb = {ACCEPT: "Accept", REJECT: "Reject", CLEAR: "Clear the decision on"}[value]
         text = f"{verb} {len(rows)} beat{'s' if len(rows) != 1 else ''}"
-        self._run(_DecideCommand(self, key, rows, new, before, text))
+        self._run(DecideCommand(self, key, rows, new, before, text))
 
     def accept(self, key: str, rows: Iterable[int]) -> None:
         """Accept beats (one undo step)."""
@@ -481,7 +351,7 @@ class Session:
         new = check_conditions(conditions, e.info.sweep_starts_s, e.info.sweep_durations_s, where=e.info.label)
         if new == e.conditions:
             return
-        self._run(_ConditionsCommand(self, key, e.conditions, new))
+        self._run(ConditionsCommand(self, key, e.conditions, new))
 
     def add_condition(self, key: str, condition: Condition) -> None:
         """Add one condition (one undo step)."""
@@ -509,7 +379,7 @@ class Session:
         scopes, tables, warnings, prov = {}, {}, {}, {}
         for key in keys:
             e = self._entry(key)
-            scope = _scope(e.settings, settings)
+            scope = change_scope(e.settings, settings)
             scopes[key] = scope
             if scope == "analysis":
                 rec = self.recording(key)
@@ -520,9 +390,9 @@ class Session:
                 from .pipeline import flag_and_reject
 
                 tables[key], w = flag_and_reject(
-                    e.table, self.recording(key), e.info.channel, settings, scale=_mV_scale(e.info.units),
+                    e.table, self.recording(key), e.info.channel, settings, scale=mV_scale(e.info.units),
                 )
-                kept = tuple(x for x in e.warnings if not _is_event_warning(x))
+                kept = tuple(x for x in e.warnings if not is_event_warning(x))
                 warnings[key] = kept + tuple(w)
             if scope in ("analysis", "events"):
                 from .store import provenance_now
@@ -535,7 +405,7 @@ class Session:
         keys = [k for k, s in change.scopes.items() if s != "none" and k in self._entries]
         if not keys:
             return
-        self._run(_SettingsCommand(self, change, keys))
+        self._run(SettingsCommand(self, change, keys))
 
     def set_settings(self, settings: Any, keys: Sequence[str] | None = None) -> dict[str, str]:
         """Change the settings of some (default: all) recordings and re-analyse what they affect.
@@ -556,44 +426,50 @@ class Session:
         """The recording's summaries (:class:`analysis.summary.Summary`), cached until a change."""
         e = self._entry(key)
         if e.summaries is None:
-            e.summaries = self._compute_summaries(key)
+            e.summaries = self.summary_job(key)()
         return e.summaries
 
-    def _compute_summaries(self, key: str) -> list:
-        from .ensemble import measure_cycle
+    def summary_job(self, key: str) -> SummaryJob:
+        """A snapshot that computes a recording's summaries, for running in a worker thread.
+
+        The job holds everything it needs (the reviewed table, conditions, settings, geometry and
+        a windowed reader of the samples), so the session may go on changing meanwhile. Hand the
+        result back with :meth:`set_summaries`, which keeps it only if nothing changed since.
+        """
         from .summary import summarize
 
         e = self._entry(key)
-        settings = e.settings
-        source = None
-        measure = None
-        try:
-            if getattr(settings.summary, "ensemble", True):
-                self.recording(key)
-                source = lambda s: self.trace_mV(key, s)  # noqa: E731
-                measure = self._cycle_measurer(key)
-        except RecordingError:
-            source = None
-        return summarize(
-            self.beats(key), label=e.info.label, sweep_starts_s=e.info.sweep_starts_s,
-            sweep_durations_s=e.info.sweep_durations_s, conditions=e.conditions,
-            settings=settings.summary, settings_hash=settings.short_hash(), ensemble_source=source,
-            fs_hz=e.info.sampling_rate_hz, measure_ensemble=measure,
-        )
+        settings, info, conditions = e.settings, e.info, e.conditions
+        source = measure = None
+        if getattr(settings.summary, "ensemble", True):
+            try:
+                rec = self.recording(key)
+            except RecordingError:
+                rec = None
+            if rec is not None:
+                from .events_trace import RecordingSweeps
 
-    def _cycle_measurer(self, key: str) -> Callable[[np.ndarray], dict | None]:
-        from .ensemble import measure_cycle
-        from .pipeline import analyze
+                source = RecordingSweeps(rec, info.channel, scale=mV_scale(info.units), subtract_mV=info.ljp_mV)
+                measure = cycle_measurer(settings, info.ljp_mV, info.sampling_rate_hz)
+        beats = self.beats(key)
 
-        e = self._entry(key)
-        settings, ljp = e.settings, e.info.ljp_mV
+        def compute() -> list:
+            return summarize(
+                beats, label=info.label, sweep_starts_s=info.sweep_starts_s,
+                sweep_durations_s=info.sweep_durations_s, conditions=conditions,
+                settings=settings.summary, settings_hash=settings.short_hash(), ensemble_source=source,
+                fs_hz=info.sampling_rate_hz, measure_ensemble=measure,
+            )
 
-        def analyze_trace(v_mV: np.ndarray, fs_hz: float) -> BeatTable:
-            # The averaged cycle is already corrected; analyze subtracts the LJP once more.
-            rec = Recording.from_array(v_mV + ljp, fs_hz, units="mV")
-            return analyze(rec, settings=settings, channel=0).beats
+        return SummaryJob(key, e.version, compute)
 
-        return lambda v: measure_cycle(v, e.info.sampling_rate_hz, analyze_trace, cycle_samples=v.size // 3)
+    def set_summaries(self, job: SummaryJob, summaries: list) -> bool:
+        """Keep the summaries a :meth:`summary_job` computed; False (and dropped) when stale."""
+        e = self._entries.get(job.key)
+        if e is None or e.version != job.version:
+            return False
+        e.summaries = summaries
+        return True
 
     def summary_table(self, keys: Sequence[str] | None = None) -> dict[str, np.ndarray]:
         """The summaries of several recordings (all by default) as summary-CSV columns."""
@@ -643,7 +519,7 @@ class Session:
         self._undo.append(cmd)
         self._emit("history_changed")
 
-    def _run(self, cmd: "_Command") -> None:
+    def _run(self, cmd: Command) -> None:
         cmd.do()
         if self._clean_depth is not None and self._clean_depth > len(self._undo):
             self._clean_depth = None  # the saved state can no longer be reached by undo
@@ -660,7 +536,9 @@ class Session:
         self._redo = [c for c in self._redo if key not in c.keys]
 
     def _invalidate(self, key: str) -> None:
-        self._entries[key].summaries = None
+        e = self._entries[key]
+        e.summaries = None
+        e.version += 1
 
     # -- files -------------------------------------------------------------------------------
     def save(self, path: str | os.PathLike) -> None:
@@ -688,124 +566,3 @@ class Session:
         from .session_io import open_session
 
         return open_session(cls, path, verify_sources=verify_sources, match_tolerance_s=match_tolerance_s)
-
-
-def _scope(old: Any, new: Any) -> str:
-    if old == new:
-        return "none"
-    changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
-    if changed <= {"summary"}:
-        return "summary"
-    if changed <= {"summary", "quality"}:
-        return "events"
-    return "analysis"
-
-
-def _is_event_warning(text: str) -> bool:
-    from .events import is_event_warning
-
-    return is_event_warning(text)
-
-
-def _mV_scale(units: str) -> float:
-    """Factor from a voltage channel's units to mV (1 for mV and for unknown units)."""
-    return {"v": 1000.0, "uv": 1e-3, "µv": 1e-3}.get(units.strip().lower(), 1.0)
-
-
-# -- commands ----------------------------------------------------------------------------------
-class _Command:
-    text = ""
-    keys: tuple[str, ...] = ()
-
-    def do(self) -> None:
-        raise NotImplementedError
-
-    def undo(self) -> None:
-        raise NotImplementedError
-
-    def redo(self) -> None:
-        self.do()
-
-
-class _DecideCommand(_Command):
-    """Appends review entries; undo appends entries that restore each beat's earlier verdict."""
-
-    def __init__(self, session: Session, key: str, rows: list[int], new: list[Decision], before, text: str) -> None:
-        self.session, self.key, self.rows, self.new, self.before, self.text = session, key, rows, new, before, text
-        self.keys = (key,)
-
-    def _append(self, entries: list[Decision]) -> None:
-        s = self.session
-        s._entries[self.key].decisions.append(entries)
-        s._invalidate(self.key)
-        s._emit("decisions_changed", self.key, self.rows)
-
-    def do(self) -> None:
-        self._append(self.new)
-
-    def undo(self) -> None:
-        stamp = now_utc()
-        restore = [
-            replace(d, accepted=(acc if reviewed else CLEAR), reason=(why if reviewed and acc == REJECT else ""),
-                    time_utc=stamp, action="undo")
-            for d, (reviewed, acc, why) in zip(self.new, self.before)
-        ]
-        self._append(restore)
-
-    def redo(self) -> None:
-        stamp = now_utc()
-        self._append([replace(d, time_utc=stamp, action="redo") for d in self.new])
-
-
-class _ConditionsCommand(_Command):
-    def __init__(self, session: Session, key: str, old, new) -> None:
-        self.session, self.key, self.old, self.new = session, key, old, new
-        self.keys = (key,)
-        self.text = "Change the conditions"
-
-    def _set(self, value) -> None:
-        s = self.session
-        s._entries[self.key].conditions = value
-        s._invalidate(self.key)
-        s._emit("conditions_changed", self.key)
-
-    def do(self) -> None:
-        self._set(self.new)
-
-    def undo(self) -> None:
-        self._set(self.old)
-
-
-class _SettingsCommand(_Command):
-    def __init__(self, session: Session, change: SettingsChange, keys: list[str]) -> None:
-        self.session, self.change = session, change
-        self.keys = tuple(keys)
-        self.text = "Change the settings"
-        self.old = {
-            k: (e.settings, e.table, e.warnings, dict(e.info.provenance))
-            for k, e in ((k, session._entries[k]) for k in keys)
-        }
-
-    def _set(self, key: str, settings, table, warnings, provenance, reanalysed: bool) -> None:
-        s = self.session
-        e = s._entries[key]
-        e.settings, e.table, e.warnings = settings, table, warnings
-        e.info.provenance = provenance
-        s._invalidate(key)
-        s._emit("settings_changed", key)
-        if reanalysed:
-            s._emit("results_changed", key)
-
-    def do(self) -> None:
-        c = self.change
-        for k in self.keys:
-            e = self.session._entries[k]
-            self._set(
-                k, c.settings, c.tables.get(k, e.table), c.warnings.get(k, e.warnings),
-                c.provenance.get(k, dict(e.info.provenance)), k in c.tables,
-            )
-
-    def undo(self) -> None:
-        for k in self.keys:
-            settings, table, warnings, prov = self.old[k]
-            self._set(k, settings, table, warnings, prov, k in self.change.tables)

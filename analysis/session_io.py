@@ -114,7 +114,7 @@ def _stored_summaries(r: StoredRecording) -> list:
 def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
     """Rebuild a session from a results file (recordings are opened lazily)."""
     from .conditions import ConditionError, check_conditions
-    from .session import RecordingInfo, _Entry, _key_of
+    from .session_types import Entry as _Entry, RecordingInfo, key_of as _key_of
 
     text = os.fspath(path)
     content: ResultsFile = load_results(text, verify_sources=verify_sources)

@@ -26,7 +26,6 @@ recording was analysed) and the decisions' own times carry a clock.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 import platform

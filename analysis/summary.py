@@ -27,7 +27,7 @@ import csv
 import io
 import math
 from dataclasses import dataclass, field
-from typing import Callable, Mapping, Sequence
+from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
@@ -233,7 +233,7 @@ def summarize(
     conditions: Sequence[Condition] = (),
     settings,
     settings_hash: str = "",
-    ensemble_source: Callable[[int], np.ndarray] | None = None,
+    ensemble_source: Any = None,
     fs_hz: float | None = None,
     measure_ensemble: Callable[[np.ndarray], Mapping[str, float] | None] | None = None,
 ) -> list[Summary]:
@@ -254,9 +254,10 @@ def summarize(
         ``steady_tolerance_pct_per_min``, ``steady_min_beats`` and the cell-type thresholds).
     settings_hash : str
         The analysis settings' short hash, written to every row.
-    ensemble_source : callable or None
-        ``ensemble_source(sweep)`` returns that sweep's samples in mV after LJP correction; None
-        skips the ensemble-averaged beat.
+    ensemble_source : sweep source, callable or None
+        The samples in mV after LJP correction: a sweep source (``n_samples(sweep)``,
+        ``read(sweep, start, stop)``; only beat windows are read) or ``ensemble_source(sweep)``
+        returning a whole sweep; None skips the ensemble-averaged beat.
     fs_hz : float or None
         Sampling rate, needed with ``ensemble_source``.
     measure_ensemble : callable or None

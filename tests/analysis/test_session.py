@@ -222,3 +222,38 @@ def test_replacing_a_recording_keeps_its_review(tmp_path, syn):
     assert s.beats(key)["reject_reason"][3] == "bump"
     assert s.conditions(key)[0].name == "baseline"
     assert s.info(key).sha256 and s.info(key).reader == "abf"
+
+
+def test_summary_jobs_are_kept_only_while_current(session):
+    key = session.recordings[0]
+    job = session.summary_job(key)
+    fresh = job()
+    assert session.set_summaries(job, fresh)
+    assert session.summaries(key) is fresh
+    stale = session.summary_job(key)
+    session.reject(key, [3], "bump")  # the session changes while the job runs
+    assert not session.set_summaries(stale, stale())
+    now = session.summaries(key)
+    assert now is not fresh
+    assert now[0].values["n_accepted"] == fresh[0].values["n_accepted"] - 1
+
+
+def test_saving_twice_gives_identical_datasets(session, tmp_path):
+    # docs/results-format.md: the same content gives identical datasets and attributes.
+    import h5py
+
+    key = session.recordings[0]
+    session.reject(key, [2], "bump")
+    session.save(tmp_path / "a.h5")
+    session.save(tmp_path / "b.h5")
+
+    def dump(path):
+        out = {}
+        with h5py.File(path, "r") as f:
+            f.visititems(lambda name, obj: out.__setitem__(name, (
+                repr({k: np.asarray(v).tolist() for k, v in obj.attrs.items()}),
+                repr(np.asarray(obj[()]).tolist()) if isinstance(obj, h5py.Dataset) else None,
+            )))
+        return out
+
+    assert dump(tmp_path / "a.h5") == dump(tmp_path / "b.h5")

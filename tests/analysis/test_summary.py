@@ -210,3 +210,25 @@ def test_summary_csv_has_the_documented_columns_and_empty_undefined_cells():
     cells = dict(zip(SUMMARY_COLUMNS, lines[1]))
     assert cells["ensemble_n"] == "0" and cells["ensemble_mdp_mV"] == ""  # no traces given: undefined
     assert cells["file"] == "c1" and cells["n_beats"] == "40"
+
+
+def test_ensemble_beat_matches_the_synthetic_truth():
+    # analysis.synthetic's exact waveform gives each beat's true parameters; on a clean, steady
+    # cell the ensemble-averaged beat measured by the core must match their means.
+    from analysis.session import Session
+    from analysis.synthetic import preset, synthesize
+
+    syn = synthesize(preset("ventricular-like"), duration_s=30.0, fs_hz=20_000.0, seed=2)
+    s = Session()
+    key = s.add(syn.recording, label="v1")
+    (summary,) = s.summaries(key)
+    ens = summary.ensemble
+    truth = syn.truth.beats
+    ok = np.array([f == "" for f in truth["flags"]])
+    assert ens is not None and ens.n_beats == summary.values["n_accepted"] >= 20
+    assert ens.t0_s < 0 and ens.v_mV.size == round(np.median(truth["cl_ms"][ok]) * 20)
+    p = ens.parameters
+    assert p["mdp_mV"] == pytest.approx(np.mean(truth["mdp_mV"][ok]), abs=0.5)
+    assert p["peak_mV"] == pytest.approx(np.mean(truth["peak_mV"][ok]), abs=0.5)
+    assert p["apd90_ms"] == pytest.approx(np.mean(truth["apd90_ms"][ok]), abs=2.0)
+    assert p["dvdt_max_V_per_s"] == pytest.approx(np.mean(truth["dvdt_max_V_per_s"][ok]), rel=0.05)

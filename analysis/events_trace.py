@@ -1,0 +1,284 @@
+"""The trace-based events (EAD, DAD, clipping, diastolic noise), worked in chunks of beats.
+
+The definitions are those of :mod:`analysis.events`. Sweeps are read through a *sweep source*:
+anything with ``n_samples(sweep)`` and ``read(sweep, start, stop)``. :class:`ArraySweeps` wraps
+arrays already in memory; :class:`RecordingSweeps` reads a recording's channel in windows (scaled
+to mV and, when asked, preprocessed with filter context on both sides), so that an hour-long
+gap-free sweep is never held whole: memory is bounded by ``chunk_s`` of samples. Every window is
+read with enough margin that the moving averages equal those of the whole sweep, so the result
+does not depend on the chunking.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+from scipy.ndimage import uniform_filter1d
+from scipy.signal import butter, sosfiltfilt
+
+from .table import BeatTable
+
+__all__ = ["ArraySweeps", "RecordingSweeps", "as_sweeps", "sweep_trace_events"]
+
+
+class ArraySweeps:
+    """A sweep source over arrays in memory: ``arrays[sweep]`` is one sweep's samples."""
+
+    def __init__(self, arrays: Sequence[np.ndarray] | Mapping[int, np.ndarray]) -> None:
+        self._arrays = arrays
+
+    def n_samples(self, sweep: int) -> int:
+        return len(self._arrays[sweep])
+
+    def read(self, sweep: int, start: int, stop: int) -> np.ndarray:
+        return np.asarray(self._arrays[sweep][start:stop], dtype=np.float64)
+
+
+class RecordingSweeps:
+    """A sweep source reading one channel of a recording in windows.
+
+    Parameters
+    ----------
+    recording : Recording
+    channel : int
+    scale : float
+        Factor to mV (1 for a channel in mV).
+    preprocess : PreprocessSettings or None
+        When given, each window gets the LJP correction and filters of
+        :func:`analysis.signal.preprocess`, computed with filter context on both sides.
+    subtract_mV : float
+        A constant taken off every sample (an LJP correction without filters).
+    """
+
+    def __init__(
+        self, recording: Any, channel: int, *, scale: float = 1.0, preprocess: Any = None, subtract_mV: float = 0.0,
+    ) -> None:
+        from .signal import filter_pad_samples
+
+        self._rec, self._ch, self._scale, self._pre = recording, int(channel), float(scale), preprocess
+        self._subtract = float(subtract_mV)
+        self._pad = filter_pad_samples(recording.sampling_rate_hz, preprocess) if preprocess is not None else 0
+
+    def n_samples(self, sweep: int) -> int:
+        return self._rec.n_samples(sweep)
+
+    def read(self, sweep: int, start: int, stop: int) -> np.ndarray:
+        n = self._rec.n_samples(sweep)
+        a, b = max(0, start - self._pad), min(n, stop + self._pad)
+        x = self._rec.sweep(sweep, self._ch, a, b)
+        if self._scale != 1.0:
+            x = x * self._scale
+        if self._pre is not None:
+            from .signal import preprocess
+
+            x = preprocess(x, self._rec.sampling_rate_hz, self._pre, offset=a)
+        if self._subtract:
+            x = x - self._subtract
+        return x[start - a:stop - a]
+
+
+def as_sweeps(source: Any) -> Any:
+    """A sweep source from a source, a sequence or mapping of arrays, or None."""
+    if source is None or (hasattr(source, "n_samples") and hasattr(source, "read")):
+        return source
+    return ArraySweeps(source)
+
+
+def _index(t_s: np.ndarray, fs_hz: float, n: int) -> np.ndarray:
+    """Sample indices of times (NaN -> -1), clipped into the sweep."""
+    out = np.full(t_s.shape, -1, dtype=np.int64)
+    ok = np.isfinite(t_s)
+    out[ok] = np.clip(np.rint(t_s[ok] * fs_hz).astype(np.int64), 0, n - 1)
+    return out
+
+
+def _extreme_runs(raw: Any, sweep: int, n: int, min_len: int, block: int) -> list[tuple[int, int, float]]:
+    """Runs ``(start, stop, value)`` of at least ``min_len`` samples equal to the sweep's max or min."""
+    hi, lo = -math.inf, math.inf
+    for a in range(0, n, block):
+        x = raw.read(sweep, a, min(n, a + block))
+        if x.size:
+            hi, lo = max(hi, float(np.max(x))), min(lo, float(np.min(x)))
+    runs: list[tuple[int, int, float]] = []
+    if not math.isfinite(hi):
+        return runs
+    open_at: dict[float, int | None] = {hi: None, lo: None}
+    for a in range(0, n, block):
+        x = raw.read(sweep, a, min(n, a + block))
+        for value in open_at:
+            at = (x == value).view(np.int8)
+            edges = np.diff(np.concatenate(([0], at, [0])))
+            starts = list(np.flatnonzero(edges == 1) + a)
+            stops = list(np.flatnonzero(edges == -1) + a)
+            if open_at[value] is not None:
+                if starts and starts[0] == a:
+                    starts[0] = open_at[value]  # the run goes on from the previous block
+                else:
+                    starts.insert(0, open_at[value])
+                    stops.insert(0, a)
+            open_at[value] = None
+            if stops and stops[-1] == a + x.size and a + x.size < n:
+                open_at[value] = starts.pop()
+                stops.pop()
+            runs.extend((int(s), int(e), value) for s, e in zip(starts, stops) if e - s >= min_len)
+    for value, s in open_at.items():
+        if s is not None and n - s >= min_len:
+            runs.append((int(s), n, value))
+    return sorted(set(runs))
+
+
+def sweep_trace_events(
+    source: Any,
+    sweep: int,
+    fs_hz: float,
+    beats: BeatTable,
+    quality: Any,
+    *,
+    raw: Any = None,
+    chunk_s: float = 30.0,
+) -> dict[str, np.ndarray]:
+    """EAD, DAD, clipping and diastolic noise for the beats of one sweep.
+
+    Parameters
+    ----------
+    source
+        The sweep source of the membrane potential in mV after LJP correction (and filters).
+    sweep : int
+    fs_hz : float
+    beats : BeatTable
+        The beats of this sweep only, in time order, with ``t_upstroke_s``, ``t_mdp_s``,
+        ``t_top_s``, ``t_peak_s``, ``t_apd90_s``, ``peak_mV`` and ``apa_mV``.
+    quality
+        The quality settings section.
+    raw
+        The sweep source of the samples as recorded, for the clipping test (None: ``source``).
+    chunk_s : float
+        Beats are worked in windows of about this length (bounds memory).
+
+    Returns
+    -------
+    dict of str to ndarray
+        Boolean ``ead``, ``dad``, ``clipped``, ``noisy``; float ``ead_mV``, ``ead_takeoff_mV``,
+        ``dad_mV``, ``noise_mV_rms`` (NaN where none or not assessable); text ``clip_detail``.
+    """
+    k = len(beats)
+    out: dict[str, np.ndarray] = {
+        "ead": np.zeros(k, bool), "dad": np.zeros(k, bool), "clipped": np.zeros(k, bool),
+        "noisy": np.zeros(k, bool), "ead_mV": np.full(k, np.nan), "ead_takeoff_mV": np.full(k, np.nan),
+        "dad_mV": np.full(k, np.nan), "noise_mV_rms": np.full(k, np.nan),
+        "clip_detail": np.full(k, "", dtype=object),
+    }
+    n = source.n_samples(sweep)
+    if k == 0 or n == 0:
+        return out
+    i_up = _index(np.asarray(beats["t_upstroke_s"], float), fs_hz, n)
+    i_peak = _index(np.asarray(beats["t_peak_s"], float), fs_hz, n)
+    i_apd90 = _index(np.asarray(beats["t_apd90_s"], float), fs_hz, n)
+    i_mdp = _index(np.asarray(beats["t_mdp_s"], float), fs_hz, n)
+    i_top = _index(np.asarray(beats["t_top_s"], float), fs_hz, n)
+    peak = np.asarray(beats["peak_mV"], float)
+    apa = np.asarray(beats["apa_mV"], float)
+    w_ead = max(1, int(round(quality.ead_smooth_ms * 1e-3 * fs_hz)))
+    w_dad = max(1, int(round(quality.dad_smooth_ms * 1e-3 * fs_hz)))
+    # Phase 4 lies well below the noise corner; hum (50/60 Hz) and white noise lie above it.
+    corner_hz = min(quality.noise_highpass_hz, 0.4 * fs_hz)
+    sos = butter(2, corner_hz, fs=fs_hz, output="sos")
+    pad = int(round(fs_hz / corner_hz))
+
+    # The samples each beat needs: from its MDP (or upstroke) to the next take-off (or sweep end).
+    first = np.where(i_mdp >= 0, i_mdp, i_up)
+    last = np.empty(k, np.int64)
+    last[:-1] = np.maximum(i_top[1:], i_up[1:])
+    last[-1] = n - 1
+    last = np.maximum(last, np.maximum(i_apd90, i_up))
+    margin = w_ead // 2 + w_dad // 2 + 2
+    chunk = max(int(chunk_s * fs_hz), 1)
+    b0 = 0
+    while b0 < k:
+        b1 = b0 + 1
+        while b1 < k and last[b1] - first[b0] <= chunk:
+            b1 += 1
+        a = max(0, int(first[b0:b1].min()) - margin)
+        z = min(n, int(last[b0:b1].max()) + margin + 1)
+        v = source.read(sweep, a, z)
+        vs = uniform_filter1d(v, size=w_ead, mode="nearest") if w_ead > 1 else v
+        dvdt = np.gradient(vs) * fs_hz * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
+        vd = uniform_filter1d(v, size=w_dad, mode="nearest") if w_dad > 1 else v
+        for b in range(b0, b1):
+            _ead(b, a, v, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
+            _dad(b, a, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
+            if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
+                seg = v[i_mdp[b] - a:i_top[b] - a + 1]
+                if seg.size >= 2 * pad:
+                    resid = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=min(seg.size - 1, 3 * pad))
+                    out["noise_mV_rms"][b] = float(np.sqrt(np.mean(resid**2)))
+        b0 = b1
+    with np.errstate(invalid="ignore"):
+        out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)
+
+    # Clipping: each beat owns the samples from its MDP (the sweep start for the first beat) to
+    # the next beat's MDP, so every flat run belongs to exactly one beat.
+    min_len = max(3, int(math.ceil(quality.clip_min_flat_ms * 1e-3 * fs_hz)))
+    runs = _extreme_runs(raw if raw is not None else source, sweep, n, min_len, chunk)
+    if runs:
+        owner = np.where(i_mdp >= 0, i_mdp, np.maximum(i_up - 1, 0))
+        owner[0] = 0
+        owner = np.maximum.accumulate(owner)
+        for start, stop, value in runs:
+            b = min(max(int(np.searchsorted(owner, start, side="right") - 1), 0), k - 1)
+            if not out["clipped"][b]:
+                out["clipped"][b] = True
+                out["clip_detail"][b] = f"flat at {value:.4g} for {1e3 * (stop - start) / fs_hz:.3g} ms"
+    return out
+
+
+def _ead(b, a, v, vs, dvdt, i_peak, i_apd90, peak, apa, width, quality, out) -> None:
+    """The climb above the running minimum of the repolarising trace, from the set level to APD90."""
+    if not (i_peak[b] >= 0 and i_apd90[b] > i_peak[b] and math.isfinite(apa[b])):
+        return
+    level = peak[b] - quality.ead_start_repol_pct / 100.0 * apa[b]
+    # The crossing is taken on the unsmoothed trace, and the search starts only where the
+    # smoothing window no longer reaches back into the upstroke.
+    below = np.flatnonzero(v[i_peak[b] - a:i_apd90[b] - a + 1] <= level)
+    if not below.size:
+        return
+    s0 = max(i_peak[b] + int(below[0]), i_peak[b] + width // 2 + 1) - a
+    s1 = i_apd90[b] - a
+    if s0 >= s1:
+        return
+    seg = vs[s0:s1 + 1]
+    floor = np.minimum.accumulate(seg)
+    rise = seg - floor
+    j = int(np.argmax(rise))
+    if rise[j] < quality.ead_min_mV:
+        return
+    start = int(np.flatnonzero(seg[: j + 1] == floor[j])[-1])
+    if np.max(dvdt[s0 + start:s0 + j + 1]) >= quality.ead_min_dvdt_V_per_s:
+        out["ead"][b] = True
+        out["ead_mV"][b] = float(rise[j])
+        out["ead_takeoff_mV"][b] = float(seg[start])
+
+
+def _dad(b, a, vd, i_apd90, i_top, i_up, k, n, width, quality, out) -> None:
+    """A hump that rises and falls back by ``dad_min_mV`` between APD90 and the next take-off."""
+    if i_apd90[b] < 0:
+        return
+    s0 = i_apd90[b]
+    if b + 1 < k:
+        stop = i_top[b + 1] if i_top[b + 1] > s0 else i_up[b + 1] - width
+        # Keep the smoothing window from reaching into the next upstroke.
+        stop = min(stop, i_up[b + 1] - width // 2 - 1)
+    else:
+        stop = n - 1
+    if stop - s0 <= 2:
+        return
+    seg = vd[s0 - a:stop - a + 1]
+    rise = seg - np.minimum.accumulate(seg)
+    fall = seg - np.minimum.accumulate(seg[::-1])[::-1]
+    hump = np.minimum(rise, fall)
+    j = int(np.argmax(hump))
+    if hump[j] >= quality.dad_min_mV:
+        out["dad"][b] = True
+        out["dad_mV"][b] = float(hump[j])
