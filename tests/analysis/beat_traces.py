@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.special import expit
 
 
 def gaussian_train(
@@ -65,10 +66,9 @@ def pacemaker_train(
     v = np.full(t.size, mdp_mV, dtype=np.float64)
     for c in beats:
         start = c - cl_s + repol + 10 * tau  # end of the previous repolarisation
-        diastole_end = c
         seg = (t >= start) & (t < c + 10 * tau)
         base = mdp_mV + ddr_mV_per_s * np.clip(t[seg] - start, 0, None)
-        up = amp_mV / (1.0 + np.exp(-(t[seg] - diastole_end) / tau))
+        up = amp_mV * expit((t[seg] - c) / tau)
         v[seg] = base + up
         top = mdp_mV + ddr_mV_per_s * (c - start)
         peak = top + amp_mV

@@ -1,0 +1,120 @@
+"""Beat detection on hand-built traces: slow and fast upstrokes, noise, hum, drift, spikes, DADs.
+
+Truth is the construction of each trace (the beats put in); the disturbances follow
+MEASUREMENTS.md's list (noise 0.1-1 mV rms, 50/60 Hz hum, drift, spikes of a few samples, DADs).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from analysis.detect import detect_beats
+from analysis.settings import DetectionSettings
+from tests.analysis.beat_traces import gaussian_train, pacemaker_train
+
+FS = 10_000.0
+
+
+def _matches(found_idx, true_s, fs, tol_s=0.02):
+    t = np.asarray(found_idx) / fs
+    return len(t) == len(true_s) and np.all(np.abs(t - (np.asarray(true_s))) < tol_s)
+
+
+def test_slow_nodal_upstrokes_2_V_per_s_50_mV_under_1_mV_noise():
+    v, beats = pacemaker_train(FS, 6.0, dvdt_max_V_per_s=2.0, amp_mV=50.0)
+    v = v + 1.0 * np.random.default_rng(0).normal(size=v.size)
+    det = detect_beats(v, FS)
+    assert _matches(det.i_upstroke, beats, FS)  # every beat built in, none extra (construction)
+
+
+def test_fast_upstrokes_500_V_per_s():
+    fs = 50_000.0
+    v, beats = pacemaker_train(fs, 3.0, dvdt_max_V_per_s=500.0, amp_mV=120.0, mdp_mV=-85.0, ddr_mV_per_s=20.0, repol_ms=200.0, cl_s=0.6)
+    det = detect_beats(v + 0.2 * np.random.default_rng(1).normal(size=v.size), fs)
+    assert _matches(det.i_upstroke, beats, fs, tol_s=0.001)  # construction
+
+
+@pytest.mark.parametrize("mains_hz", [50.0, 60.0])
+def test_hum_and_drift_do_not_add_or_lose_beats(mains_hz):
+    v, beats = pacemaker_train(FS, 12.0, cl_s=0.5)
+    t = np.arange(v.size) / FS
+    v = v + 1.0 * np.sin(2 * np.pi * mains_hz * t) + 20.0 * t / t[-1] + 0.5 * np.random.default_rng(2).normal(size=v.size)
+    det = detect_beats(v, FS)
+    assert _matches(det.i_upstroke, beats, FS)  # construction: 20 mV of drift, 1 mV hum
+
+
+def test_electrical_spikes_are_artefacts_not_beats():
+    v, beats = gaussian_train(FS, 4.0, cl_s=0.8)
+    spikes = [int(0.5 * FS), int(1.7 * FS), int(3.3 * FS)]  # in diastole
+    for i in spikes:
+        v[i:i + 3] += 300.0  # three samples: far beyond any action potential
+    det = detect_beats(v, FS)
+    assert _matches(det.i_upstroke, beats - 0.025 / np.sqrt(2), FS, tol_s=0.002)
+    narrow = det.i_artefact[det.artefact_reason == "narrow"]
+    assert len(narrow) == 3 and np.all(np.abs(narrow - np.array(spikes)) < 20)
+
+
+def test_a_spike_just_before_an_upstroke_does_not_hide_the_beat():
+    v, beats = gaussian_train(FS, 2.0, cl_s=0.8, first_s=0.4)
+    i = int((beats[1] - 0.06) * FS)
+    v[i:i + 2] += 400.0
+    det = detect_beats(v, FS)
+    assert len(det) == len(beats)  # construction
+
+
+def test_delayed_afterdepolarisations_are_not_beats():
+    v, beats = gaussian_train(FS, 4.0, cl_s=1.0)
+    t = np.arange(v.size) / FS
+    for c in beats[:-1]:
+        v += 5.0 * np.exp(-(((t - (c + 0.45)) / 0.04) ** 2))  # a 5 mV DAD in every diastole
+    det = detect_beats(v + 0.3 * np.random.default_rng(3).normal(size=v.size), FS)
+    assert len(det) == len(beats)  # DADs never fire (MEASUREMENTS.md: 1-5 mV)
+
+
+def test_a_burst_counts_every_action_potential():
+    fs = FS
+    t = np.arange(int(3.0 * fs)) / fs
+    v = np.full(t.size, -65.0)
+    centres = [0.5, 0.75, 1.0, 1.25, 2.5]  # four close beats, then one after a pause
+    for c in centres:
+        v += 90.0 * np.exp(-(((t - c) / 0.02) ** 2))
+    assert len(detect_beats(v, fs)) == 5  # construction
+
+
+def test_no_beats_in_a_flat_or_noisy_trace():
+    rng = np.random.default_rng(4)
+    assert len(detect_beats(np.full(50_000, -70.0), FS)) == 0
+    assert len(detect_beats(-70 + 1.0 * rng.normal(size=50_000), FS)) == 0  # 1 mV rms noise alone
+    assert len(detect_beats(-70 + 3.0 * np.sin(2 * np.pi * 0.5 * np.arange(50_000) / FS), FS)) == 0  # slow wave
+
+
+def test_minimum_interval_turns_a_close_second_upstroke_into_an_artefact():
+    s = DetectionSettings(min_interval_ms=300.0)
+    v, beats = gaussian_train(FS, 2.0, cl_s=0.2, width_s=0.01)
+    det = detect_beats(v, FS, settings=s)
+    assert np.all(np.diff(det.i_upstroke) >= 0.3 * FS)
+    assert "too_close" in set(det.artefact_reason)
+
+
+def test_read_only_input_is_fine():
+    v, beats = gaussian_train(FS, 2.0)
+    v.setflags(write=False)
+    assert len(detect_beats(v, FS)) == len(beats)
+
+
+def test_chunked_detection_equals_unchunked_with_a_tiny_chunk():
+    v, beats = pacemaker_train(FS, 20.0, cl_s=0.37)
+    v = v + 0.3 * np.random.default_rng(5).normal(size=v.size)
+    whole = detect_beats(v, FS, settings=DetectionSettings(chunk_s=3600.0, level_window_s=0.5, chunk_overlap_s=1.0))
+    tiny = detect_beats(v, FS, settings=DetectionSettings(chunk_s=0.5, level_window_s=0.5, chunk_overlap_s=1.0))
+    assert len(whole) == len(beats)  # construction
+    np.testing.assert_array_equal(tiny.i_upstroke, whole.i_upstroke)  # chunk edges count each beat once
+
+
+def test_a_beat_exactly_on_a_chunk_edge_is_counted_once():
+    s = DetectionSettings(chunk_s=1.0, level_window_s=0.5, chunk_overlap_s=1.0)
+    for first in (0.995, 1.0, 1.005):  # the upstroke straddles the edge at 1 s
+        v, beats = gaussian_train(FS, 5.0, cl_s=1.0, first_s=first)
+        det = detect_beats(v, FS, settings=s)
+        assert len(det) == len(beats), first
