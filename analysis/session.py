@@ -48,7 +48,7 @@ from .conditions import Condition, check_conditions
 from .decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
 from .errors import RecordingError
 from .recording import Recording
-from .session_commands import Command, ConditionsCommand, DecideCommand, SettingsCommand
+from .session_commands import Command, ConditionsCommand, DecideCommand, SettingsCommand, SweepsCommand
 from .session_types import (
     EVENTS, VIEW_COLUMNS, Change, Entry, RecordingInfo, SettingsChange, SummaryJob, cycle_measurer,
     info_from, is_event_warning, key_of, mV_scale, reviewed_table,
@@ -364,6 +364,38 @@ class Session:
     def replace_condition(self, key: str, name: str, condition: Condition) -> None:
         """Replace the condition of that name, e.g. a new range or steady-state window."""
         self.set_conditions(key, [condition if c.name == name else c for c in self.conditions(key)])
+
+    # -- sweeps ------------------------------------------------------------------------------
+    def set_sweeps(self, key: str, sweeps: Sequence[int] | None) -> None:
+        """Analyse another selection of sweeps (None: all); one undo step.
+
+        Only sweeps not analysed yet are detected and measured; the beats of sweeps still
+        selected are kept as they are, those of sweeps left out are dropped from the table (their
+        decisions stay in the log and apply again if the sweeps come back). The events and
+        quality rules then run on the merged table, since MDP drift compares across sweeps.
+        """
+        from .pipeline import analyze, flag_and_reject
+
+        e = self._entry(key)
+        rec = self.recording(key)
+        wanted = list(range(rec.n_sweeps)) if sweeps is None else sorted({int(s) for s in sweeps})
+        had = set(range(rec.n_sweeps)) if e.info.sweeps is None else set(e.info.sweeps)
+        if set(wanted) == had:
+            return
+        sweep_col = np.asarray(e.table["sweep"]) if len(e.table) else np.empty(0, np.int64)
+        parts = [e.table.take(np.isin(sweep_col, wanted))]
+        warnings = [w for w in e.warnings if not is_event_warning(w)]
+        added = [s for s in wanted if s not in had]
+        if added:
+            channel = e.requested_channel if e.requested_channel is not None else e.info.channel
+            res = analyze(rec, settings=e.settings, channel=channel, sweeps=added, label=e.info.label)
+            parts.append(BeatTable({n: res.beats[n] for n in parts[0].names}))
+            warnings += [w for w in res.warnings if w not in warnings and not is_event_warning(w)]
+        merged = BeatTable.concat(parts)
+        order = np.lexsort((np.asarray(merged["t_upstroke_s"], float), np.asarray(merged["sweep"])))
+        merged, more = flag_and_reject(merged.take(order), rec, e.info.channel, e.settings, scale=mV_scale(e.info.units))
+        selection = None if sweeps is None else tuple(wanted)
+        self._run(SweepsCommand(self, key, selection, merged, tuple(warnings + more)))
 
     # -- settings ----------------------------------------------------------------------------
     def prepare_settings(self, settings: Any, keys: Sequence[str] | None = None) -> SettingsChange:

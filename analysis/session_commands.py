@@ -16,7 +16,7 @@ from .session_types import SettingsChange
 if TYPE_CHECKING:  # pragma: no cover
     from .session import Session
 
-__all__ = ["Command", "ConditionsCommand", "DecideCommand", "SettingsCommand"]
+__all__ = ["Command", "ConditionsCommand", "DecideCommand", "SettingsCommand", "SweepsCommand"]
 
 
 class Command:
@@ -117,3 +117,28 @@ class SettingsCommand(Command):
         for k in self.keys:
             settings, table, warnings, prov = self.old[k]
             self._set(k, settings, table, warnings, prov, k in self.change.tables)
+
+
+class SweepsCommand(Command):
+    """Replaces a recording's sweep selection and its table (the merged re-analysis)."""
+
+    def __init__(self, session: Session, key: str, sweeps, table, warnings) -> None:
+        self.session, self.key = session, key
+        self.keys = (key,)
+        self.text = "Change the sweeps analysed"
+        e = session._entries[key]
+        self.new = (sweeps, table, warnings)
+        self.old = (e.info.sweeps, e.table, e.warnings)
+
+    def _set(self, value) -> None:
+        s = self.session
+        e = s._entries[self.key]
+        e.info.sweeps, e.table, e.warnings = value
+        s._invalidate(self.key)
+        s._emit("results_changed", self.key)
+
+    def do(self) -> None:
+        self._set(self.new)
+
+    def undo(self) -> None:
+        self._set(self.old)

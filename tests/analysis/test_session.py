@@ -257,3 +257,25 @@ def test_saving_twice_gives_identical_datasets(session, tmp_path):
         return out
 
     assert dump(tmp_path / "a.h5") == dump(tmp_path / "b.h5")
+
+
+def test_changing_the_sweeps_analyses_only_the_new_ones():
+    syn = synthesize(preset("atrial-like"), duration_s=6.0, fs_hz=5_000.0, seed=5, n_sweeps=4, sweep_gap_s=1.0)
+    whole = Session()
+    ref = whole.auto_beats(whole.add(syn.recording, label="ep"))
+    s = Session()
+    key = s.add(syn.recording, label="ep", sweeps=[0, 1])
+    assert set(s.auto_beats(key)["sweep"]) == {0, 1}
+    s.set_sweeps(key, None)
+    got = s.auto_beats(key)
+    # Sweeps analysed apart give what one analysis of every sweep gives.
+    assert got.names == ref.names
+    for name in ("sweep", "beat", "t_upstroke_s", "flags", "accepted", "apd90_ms", "mdp_mV"):
+        a, b = got[name], ref[name]
+        assert (np.array_equal(a, b, equal_nan=True) if a.dtype.kind == "f" else np.array_equal(a, b)), name
+    row = int(np.flatnonzero(got["sweep"] == 3)[1])
+    s.reject(key, [row], "bump")
+    s.set_sweeps(key, [0, 1, 2])
+    assert 3 not in set(s.beats(key)["sweep"]) and len(s.orphaned_decisions(key)) == 1
+    s.undo()  # back to all sweeps: the decision applies again
+    assert s.beats(key)["reject_reason"][row] == "bump" and s.info(key).sweeps is None
