@@ -122,6 +122,13 @@ def _synthetic_cases(folder: Path) -> list[Case]:
          "the data block moved 512 MB past the end of the file"),
     ]:
         out.append(_info(name, _patched(seed, p(name), edit), expect, why, huge=True))
+    # The units as pyabf reads them ("8s" at sADCUnits): a membrane potential labelled pA. The
+    # analysis must refuse it (and say how to override the units); `info` only describes it.
+    name = "abf1-wrong-units"
+    path = _patched(seed, p(name), (V1_UNITS, "8s", b"pA      "))
+    outputs = (folder / f"{name}.h5", folder / f"{name}.csv")
+    out.append(Case(name, (path,), ("analyze", str(path), "--out", str(outputs[0]), "--csv", str(outputs[1])),
+                    path, r"pA.*--units", "a membrane potential in mV labelled pA", outputs=outputs))
     return out
 
 

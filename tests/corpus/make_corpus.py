@@ -94,12 +94,12 @@ def build_corpus(folder: str | os.PathLike) -> list[Case]:
     list of Case
         In a fixed order; names are unique.
     """
-    from . import abf_cases, nwb_cases, path_cases, settings_cases, text_cases
+    from . import abf_cases, nwb_cases, path_cases, results_cases, settings_cases, text_cases
 
     root = Path(folder)
     root.mkdir(parents=True, exist_ok=True)
     cases: list[Case] = []
-    for group in (abf_cases, nwb_cases, text_cases, settings_cases, path_cases):
+    for group in (abf_cases, nwb_cases, text_cases, settings_cases, results_cases, path_cases):
         sub = root / group.__name__.rsplit(".", 1)[-1]
         sub.mkdir(exist_ok=True)
         cases.extend(group.build(sub))

@@ -103,8 +103,24 @@ def build(folder: Path) -> list[Case]:
     for name, edit, expect, why, huge in edits:
         path = _variant(seed, folder / f"{name}.nwb", edit)
         cases.append(Case(name, (path,), ("info", str(path)), path, expect, why, huge=huge))
-    cases += _damaged_bytes(seed, folder) + _foreign(folder)
+    cases += _damaged_bytes(seed, folder) + _foreign(folder) + _samples(seed, folder)
     return cases
+
+
+def _samples(seed: Path, folder: Path) -> list[Case]:
+    """Damage in the samples themselves, found only when the analysis reads them."""
+    out = []
+    for name, edit, expect, why in [
+        ("nwb-nan-samples", lambda f: f[SERIES + "/data"].__setitem__(slice(4000, 4010), np.nan),
+         r"10 NaN or Inf.*first at sample 4000", "ten NaN samples in the series"),
+        ("nwb-inf-conversion", _set_attr(SERIES + "/data", "conversion", np.inf), r"NaN or Inf",
+         "a conversion factor of Inf"),
+    ]:
+        path = _variant(seed, folder / f"{name}.nwb", edit)
+        outputs = (folder / f"{name}.h5", folder / f"{name}.csv")
+        argv = ("analyze", str(path), "--out", str(outputs[0]), "--csv", str(outputs[1]))
+        out.append(Case(name, (path,), argv, path, expect, why, outputs=outputs))
+    return out
 
 
 def _damaged_bytes(seed: Path, folder: Path) -> list[Case]:

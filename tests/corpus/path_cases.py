@@ -31,4 +31,48 @@ def build(folder: Path) -> list[Case]:
     cases.append(Case("path-unreadable", (locked,), ("info", str(locked)), locked,
                       r"cannot be read|permission", "a file the user has no permission to read",
                       fault="unreadable"))
+    return cases + save_cases(folder)
+
+
+def save_cases(folder: Path) -> list[Case]:
+    """Outputs that cannot be written: a folder, a missing folder, a full disk, a damaged target."""
+    from .results_cases import good_results
+    from .settings_cases import good_recording
+
+    rec = good_recording(folder)
+    good = good_results(folder)
+    kept_h5 = folder / "previous-results.h5"
+    kept_h5.write_bytes(good.read_bytes())
+    kept_csv = folder / "previous-beats.csv"
+    kept_csv.write_text("file,sweep,beat\nprevious,0,0\n", encoding="utf-8")
+    damaged = folder / "damaged-results.h5"
+    damaged.write_bytes(good.read_bytes()[:3000])
+    out_dir = folder / "an-output-folder.h5"
+    out_dir.mkdir(exist_ok=True)
+    new_csv = folder / "new-beats.csv"  # no case may leave it behind
+    nowhere = folder / "no-such-folder" / "results.h5"
+    cases = [
+        Case("save-out-is-a-folder", (rec,), ("analyze", str(rec), "--out", str(out_dir), "--csv", str(new_csv)),
+             out_dir, r"is a folder", "--out names a folder", outputs=(new_csv,)),
+        Case("save-out-folder-missing", (rec,), ("analyze", str(rec), "--out", str(nowhere), "--csv", str(new_csv)),
+             nowhere, r"folder does not exist", "--out in a folder that does not exist", outputs=(new_csv, nowhere)),
+        Case("save-out-is-the-recording", (rec,), ("analyze", str(rec), "--csv", str(rec)), rec,
+             r"is one of the recordings|is the recording|input", "--csv would overwrite the recording", keep=(rec,)),
+        Case("save-out-damaged", (damaged,), ("analyze", str(rec), "--out", str(damaged), "--csv", str(new_csv)),
+             damaged, r"not a readable HDF5|damaged|truncated",
+             "--out names a damaged results file: it must be left as it is, not replaced",
+             outputs=(new_csv,), keep=(damaged,)),
+        Case("save-disk-full-results", (kept_h5,),
+             ("analyze", str(rec), "--out", str(kept_h5), "--csv", str(new_csv)), kept_h5,
+             r"no space|disk is full|full", "the disk fills while the results file is saved",
+             outputs=(new_csv,), keep=(kept_h5,), fault="enospc"),
+        Case("save-disk-full-csv", (kept_csv,), ("analyze", str(rec), "--csv", str(kept_csv)), kept_csv,
+             r"no space|disk is full|full", "the disk fills while the beats CSV is written",
+             keep=(kept_csv,), fault="enospc"),
+        Case("save-disk-full-export", (good, kept_csv), ("export", str(good), "--csv", str(kept_csv)), kept_csv,
+             r"no space|disk is full|full", "the disk fills while export writes the CSV",
+             keep=(kept_csv, good), fault="enospc"),
+        Case("save-export-folder-missing", (good,), ("export", str(good), "--csv", str(folder / "nowhere" / "b.csv")),
+             folder / "nowhere" / "b.csv", r"folder does not exist", "export into a folder that does not exist"),
+    ]
     return cases
