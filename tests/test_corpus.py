@@ -180,7 +180,6 @@ KNOWN_DEFECTS: dict[str, str] = {
     "results-huge-unstored-column": "stored columns are read whole before their size is checked",
     "results-long-settings-text": "stored strings are not length-checked",
     "results-long-warning": "stored strings are not length-checked",
-    "save-out-is-the-recording": "--csv alone may overwrite the recording",
     "save-disk-full-results": "a full disk is an internal fault",
     "save-disk-full-csv": "a full disk is an internal fault",
     "save-disk-full-export": "a full disk is an internal fault",

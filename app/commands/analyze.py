@@ -149,10 +149,13 @@ OUTPUT_WRITERS: list[tuple[str, Callable[[Sequence, str], None]]] = [
 def write_outputs(args: argparse.Namespace, results: Sequence) -> list[str]:
     """Write every output the arguments ask for; returns the paths written."""
     written = []
+    inputs = {os.path.abspath(f) for f in getattr(args, "files", ())}
     for name, writer in OUTPUT_WRITERS:
         path = getattr(args, name, None)
         if not path:
             continue
+        if os.path.abspath(path) in inputs:
+            raise OutputError(path, "is one of the recordings", "give another name for the output")
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise OutputError(path, "the output folder does not exist", "create it or write elsewhere")
