@@ -8,8 +8,8 @@ millivolt. Hum, unlike the cell, is a steady sinusoid, so Upstroke estimates it 
 1. the residual ``r = V - mean of V over 100 ms`` keeps the hum (a 100 ms mean holds exactly 5
    periods of 50 Hz and 6 of 60 Hz, so it removes the hum entirely from the mean) and loses the
    slow parts of the action potential;
-2. samples where the residual is large (upstrokes, peaks: anything beyond 4 robust SDs) are left
-   out;
+2. samples where the residual is large (upstrokes, peaks: anything beyond 4 robust SDs), and
+   all samples within one averaging window of them, are left out;
 3. in blocks of ``hum_block_s`` aligned to the start of the sweep, the cosine and sine amplitudes
    at each mains frequency and harmonic are fitted by least squares to the remaining residual;
    components below ``hum_min_mV`` or within 3 standard errors of zero are taken as absent;
@@ -25,6 +25,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.ndimage import maximum_filter1d
 
 __all__ = ["remove_hum", "hum_pad_samples"]
 
@@ -89,7 +90,10 @@ def remove_hum(
     r = x - _moving_mean(x, m)
     med = np.median(r[:: max(1, n // 200_000)])
     mad = np.median(np.abs(r[:: max(1, n // 200_000)] - med)) / 0.6745
-    keep = np.abs(r - med) <= 4.0 * max(mad, 1e-9)
+    # Leave out the action potentials' fast phases and everything within one mean-window of them
+    # (there the residual holds the cell's own curvature, not hum).
+    bad = np.abs(r - med) > 4.0 * max(mad, 1e-6)
+    keep = ~maximum_filter1d(bad, size=m + 1, mode="nearest")
     block = max(int(round(block_s * fs_hz)), m)
     first = (offset // block) * block
     edges = list(range(first, offset + n, block)) + [offset + n]

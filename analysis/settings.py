@@ -431,7 +431,7 @@ class MeasurementSettings(Section):
         doc="longest dV/dt max window",
     )
     mdp_method: str = setting(
-        "local_fit", choices=("local_fit", "smoothed_min"), source=_NO_SOURCE,
+        "smoothed_min", choices=("local_fit", "smoothed_min"), source=_NO_SOURCE,
         doc="MDP as the minimum of a quartic fitted around it (robust to noise and hum) or of the smoothed samples",
     )
     mdp_fit_band_mV: float = setting(

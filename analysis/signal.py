@@ -307,12 +307,13 @@ def parabolic_peak(y: np.ndarray, i: int) -> tuple[float, float]:
 
 
 def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int = 200) -> tuple[float, float]:
-    """Position and height of a peak from a least-squares parabola through its top.
+    """Position and height of a peak from a least-squares cubic (or parabola) through its top.
 
-    The parabola is fitted to the contiguous samples around ``i`` that are at least ``fraction``
+    The curve is fitted to the contiguous samples around ``i`` that are at least ``fraction``
     of the peak's height (at least the 3 samples around it), so that on a broad, noisy peak many
     samples are averaged (no bias from taking the largest of noisy samples) while on a sharp one
-    it reduces to the three-point parabola. Returns ``(offset, value)``, ``offset`` in samples.
+    it reduces to the three-point parabola; a cubic (from 7 samples on) follows an asymmetric top
+    without shifting its position. Returns ``(offset, value)``, ``offset`` in samples.
     """
     n = len(y)
     peak = float(y[i])
@@ -328,7 +329,18 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
     if hi - lo < 3:
         return parabolic_peak(y, i)
     x = np.arange(lo, hi + 1, dtype=np.float64) - i
-    c2, c1, c0 = np.polyfit(x, np.asarray(y[lo:hi + 1], dtype=np.float64), 2)
+    yy = np.asarray(y[lo:hi + 1], dtype=np.float64)
+    if hi - lo >= 6:
+        # A cubic follows an asymmetric top (an upstroke's dV/dt rises and falls at different rates).
+        scale = max(abs(x[0]), abs(x[-1]), 1.0)
+        c = np.polynomial.polynomial.polyfit(x / scale, yy, 3)
+        roots = np.roots([3 * c[3], 2 * c[2], c[1]]) if c[3] else np.roots([2 * c[2], c[1]])
+        cand = [float(r.real) * scale for r in np.atleast_1d(roots) if abs(r.imag) < 1e-12 and x[0] <= r.real * scale <= x[-1]]
+        if cand:
+            vals = [np.polynomial.polynomial.polyval(u / scale, c) for u in cand]
+            k = int(np.argmax(vals))
+            return cand[k], float(vals[k])
+    c2, c1, c0 = np.polyfit(x, yy, 2)
     if c2 >= 0:
         return parabolic_peak(y, i)
     off = -c1 / (2 * c2)
@@ -440,7 +452,7 @@ def upstroke_velocity(
     about 40 samples instead of 3. On noisy traces the window grows until the noise of the
     derivative (white-noise rms times the norm of the filter's coefficients) is a small fraction
     of the upstroke's own velocity, but never beyond half the rise. The maximum of the sampled
-    derivative is refined by a least-squares parabola through its top 10 %
+    derivative is refined by a least-squares cubic through its top 10 %
     (:func:`top_fit_peak`), which also keeps the largest-of-noisy-samples bias out.
     """
     light = v_mV if v_light_mV is None else v_light_mV
