@@ -67,8 +67,10 @@ class CellParams:
         APD90 from the time of dV/dt max (exact); APD50 and APD20 follow from the shape.
     upstroke_fraction : float
         Where in the rise from TOP to peak dV/dt is largest (0.4: 40 % of the way up).
-    phase4_onset_ms : float
-        Time constant with which the diastolic slope builds up after the MDP.
+    phase4_onset_ms : float or None
+        Time constant with which the diastolic slope builds up after the MDP; None (default)
+        matches the curvature of the repolarisation arriving there, so that the MDP is a
+        smooth minimum (continuous d2V/dt2).
     foot_ms, foot_dvdt_V_per_s : float
         An optional slow foot (width and the slope it adds at the upstroke): late diastole that
         accelerates over tens of ms, as in nodal cells. ``foot_ms=0`` leaves it out.
@@ -93,7 +95,7 @@ class CellParams:
     apd90_ms: float
     repolarisation: tuple[Bump, ...]
     upstroke_fraction: float = 0.4
-    phase4_onset_ms: float = 30.0
+    phase4_onset_ms: float | None = None
     foot_ms: float = 0.0
     foot_dvdt_V_per_s: float = 0.0
 
@@ -109,8 +111,9 @@ PRESETS: dict[str, CellParams] = {
     # et al. 2012 (J Physiol 590:4483); threshold near -40 mV (common practice, no source).
     "nodal-like": CellParams(
         name="nodal-like", cl_ms=828.0, cl_sd_ms=12.0, mdp_mV=-61.7, top_mV=-44.0,
-        dvdt_max_V_per_s=4.6, peak_mV=17.0, apd90_ms=165.0, phase4_onset_ms=40.0,
-        foot_ms=20.0, foot_dvdt_V_per_s=0.25,
+        dvdt_max_V_per_s=4.6, peak_mV=17.0, apd90_ms=165.0, foot_ms=20.0, foot_dvdt_V_per_s=0.25,
+        # dV/dt max near -9 mV, where the dV/dt peak is about as curved after as before
+        upstroke_fraction=0.57,
         repolarisation=(Bump(0.9, 0.0, 0.85), Bump(0.1, 0.45, 1.0, "tail")),
     ),
     # Atrial-like stem-cell-derived cells: triangular action potential, APD90/APD50 >= 1.7 (the
@@ -313,7 +316,7 @@ def _build_train(
     common = dict(
         cl_s=cl_s, mdp_mV=np.full(n + 1, cell.mdp_mV), top_mV=np.full(n, cell.top_mV),
         peak_mV=np.full(n, cell.peak_mV), dvdt_max_mV_per_s=np.full(n, cell.dvdt_max_V_per_s * 1000.0),
-        upstroke_fraction=cell.upstroke_fraction, phase4_onset_s=cell.phase4_onset_ms / 1000.0,
+        upstroke_fraction=cell.upstroke_fraction, phase4_onset_s=None if cell.phase4_onset_ms is None else cell.phase4_onset_ms / 1000.0,
         shape=RepolarisationShape(cell.repolarisation), foot_s=cell.foot_ms / 1000.0,
         foot_dvdt_mV_per_s=cell.foot_dvdt_V_per_s * 1000.0, drift_mV_per_s=drift_mV_per_s, shunts=shunts,
     )

@@ -4,7 +4,7 @@ One beat is three pieces joined with continuous V and dV/dt (and, except at the 
 d2V/dt2), so every marker the analysis looks for exists exactly:
 
 * **phase 4 + foot**, from the MDP to the time of dV/dt max: a ramp whose slope rises from zero at
-  the MDP, ``A (1 - exp(-s / tau1))``, plus a logistic foot ``H sigmoid((t - t_up) / w)``. The
+  the MDP, ``A (1 - exp(-s / tau1))`` (tau1 chosen so that d2V/dt2 is continuous there), plus a logistic foot ``H sigmoid((t - t_up) / w)``. The
   foot's exponential acceleration is what a take-off criterion (0.5 V/s) catches; ``w`` is solved
   so that the criterion is met exactly at the requested TOP.
 * **late upstroke**, from dV/dt max to the peak: ``dV/dt = G (1 - u^2)^2`` on ``u = (t - t_up) / L``,
@@ -110,6 +110,11 @@ class RepolarisationShape:
         # The first time each level is reached is where the running minimum reaches it.
         self._running_min = np.minimum.accumulate(remaining)
 
+    def end_curvature(self) -> float:
+        """``-d2F/dtheta2`` at theta = 1: how sharply the fall arrives at the MDP."""
+        return float(sum(12.0 * b.weight / (b.stop - b.start) ** 2 for b in self.bumps
+                         if b.end == "tail" and b.stop == 1.0))
+
     def fall(self, theta: np.ndarray, derivative: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
         """``F(theta)`` and ``dF/dtheta``: share of the fall done by ``theta``."""
         theta = np.asarray(theta, dtype=float)
@@ -175,7 +180,7 @@ class BeatTrain:
         dvdt_max_mV_per_s: np.ndarray,
         apd90_s: np.ndarray,
         upstroke_fraction: float,
-        phase4_onset_s: float,
+        phase4_onset_s: float | None,
         shape: RepolarisationShape,
         phase4_factor: np.ndarray | float = 1.0,
         foot_s: float = 0.0,
@@ -188,7 +193,11 @@ class BeatTrain:
         n = len(cl_s)
         self.n = n
         self.shape = shape
-        self.tau1_s = float(phase4_onset_s)
+        # The slope of phase 4 builds up from zero at the MDP with time constant tau1. None
+        # matches the curvature on both sides of the MDP (d2V/dt2 continuous, so the MDP is a
+        # smooth, round minimum); it is solved with the foot below.
+        self._matched_onset = phase4_onset_s is None
+        self.tau1_s = np.full(n, 0.01 if phase4_onset_s is None else float(phase4_onset_s))
         # An optional slow foot: a second, wider logistic centred on the upstroke, so that late
         # diastole accelerates over tens of ms as in nodal cells rather than only in the upstroke.
         self.w2_s = float(foot_s) if foot_s > 0 else 1.0
@@ -221,7 +230,7 @@ class BeatTrain:
         # phase-4 factor above 1 steepens it (shorter diastole), below 1 flattens it.
         prev_ap = np.concatenate([[self.l_s[0] + self.d_s[0]], (self.l_s + self.d_s)[:-1]])
         self.t4_s = (cl_s - prev_ap) / np.broadcast_to(np.asarray(phase4_factor, float), (n,))
-        if (self.t4_s < 3 * self.tau1_s).any():
+        if (self.t4_s <= 0).any() or (self.t4_s < 3 * self.tau1_s).any() and not self._matched_onset:
             raise ValueError(
                 "the cycle length leaves too little diastole for the action potential: "
                 "lengthen CL or shorten APD90"
@@ -243,13 +252,21 @@ class BeatTrain:
         self.shunts = tuple(shunts)
 
     # -- the foot ---------------------------------------------------------------------------------
-    def _ramp(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        e = np.exp(-s / self.tau1_s)
-        return s - self.tau1_s * (1.0 - e), 1.0 - e
+    @staticmethod
+    def _ramp(s: np.ndarray, tau: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        e = np.exp(-s / tau)
+        return s - tau * (1.0 - e), 1.0 - e
+
+    def _mdp_curvature(self) -> np.ndarray:
+        """d2V/dt2 (mV/s^2) with which each beat's preceding repolarisation arrives at its MDP."""
+        end = self.shape.end_curvature()
+        drop = np.concatenate([[self.peak_mV[0] - self.mdp_mV[0]], self.peak_mV[:-1] - self.mdp_mV[1:-1]])
+        d = np.concatenate([[self.d_s[0]], self.d_s[:-1]])
+        return end * drop / d**2
 
     def _coefficients(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Ramp slope A and foot height H that meet V and dV/dt at the time of dV/dt max."""
-        r, dr = self._ramp(self.t4_s)
+        r, dr = self._ramp(self.t4_s, self.tau1_s)
         sm = expit(-self.t4_s / w)
         sm2 = expit(-self.t4_s / self.w2_s)
         rise = self.v_up_mV - self.mdp_mV[:-1] - self.h2_mV * (0.5 - sm2)
@@ -264,7 +281,7 @@ class BeatTrain:
         a = self.a_mV_per_s[k] if a is None else a
         h = self.h_mV[k] if h is None else h
         s = t - self.t_mdp_s[k]
-        r, dr = self._ramp(s)
+        r, dr = self._ramp(s, self.tau1_s[k])
         v = self.mdp_mV[k] + a * r
         dv = a * dr if derivative else None
         for height, width in ((h, w), (self.h2_mV, self.w2_s)):
@@ -288,10 +305,14 @@ class BeatTrain:
         sig_c = 0.5 * (1.0 - np.sqrt(1.0 - c / g))
         w = (self.v_up_mV - self.top_mV) / (4.0 * g * (0.5 - sig_c))
         k = np.arange(self.n)
-        for _ in range(8):
+        curvature = self._mdp_curvature() if self._matched_onset else None
+        for _ in range(10):
             a, h = self._coefficients(w)
             if (a <= 0).any() or (h <= 0).any():
                 raise ValueError("TOP is too close to the MDP for this upstroke: lower the MDP or raise TOP")
+            if curvature is not None:
+                self.tau1_s = a / curvature
+                a, h = self._coefficients(w)
             lo, hi = self.t_mdp_s[:-1].copy(), self.t_up_s.copy()
             for _ in range(60):
                 mid = 0.5 * (lo + hi)
@@ -304,6 +325,11 @@ class BeatTrain:
         self.a_mV_per_s, self.h_mV = self._coefficients(w)
         if (self.t4_s / w < 40).any():
             raise ValueError("the diastole is too short for this slow an upstroke")
+        if (self.t4_s < 3 * self.tau1_s).any():
+            raise ValueError(
+                "the cycle length leaves too little diastole for the action potential: "
+                "lengthen CL or shorten APD90"
+            )
 
     # -- evaluation -------------------------------------------------------------------------------
     def _piece(self, piece: int, k, tt: np.ndarray, derivative: bool):

@@ -42,6 +42,31 @@ def test_exact_derivative_matches_the_waveform(name):
 
 
 @pytest.mark.parametrize("name", sorted(PRESETS))
+def test_phases_join_smoothly_and_the_mdp_is_a_round_minimum(name):
+    syn = synthesize(preset(name), duration_s=6.0, fs_hz=2000.0, seed=2)
+    tr = syn.train
+    h = 1e-7
+
+    def d2(t0: float, side: int) -> float:
+        # one-sided second derivative at t0 from the exact dV/dt, extrapolated to the join
+        # (finite differences, common practice, no source)
+        f = tr.evaluate(t0 + side * h * np.arange(1, 4))[1]
+        near, far = (f[1] - f[0]) / h, (f[2] - f[1]) / h
+        return side * (2.5 * near - 1.5 * far)
+
+    for k in (2, 3):
+        for t_join in (tr.t_mdp_s[k], tr.t_up_s[k], tr.t_peak_s[k]):
+            left, right = d2(t_join, -1), d2(t_join, +1)
+            # d2V/dt2 is continuous across every phase join: the two sides agree to 0.1 % of the
+            # typical curvature nearby (the range of dV/dt within 1 ms, per ms)
+            near = tr.evaluate(np.linspace(t_join - 1e-3, t_join + 1e-3, 2001))[1]
+            typical = np.ptp(near) / 1e-3
+            assert abs(left - right) < 1e-3 * max(abs(left), abs(right), typical), (t_join, left, right)
+        # at the MDP dV/dt changes sign with a positive curvature (a minimum, not a flat stretch)
+        assert tr.evaluate(np.array([tr.t_mdp_s[k] - 1e-3]))[1][0] < 0 < tr.evaluate(np.array([tr.t_mdp_s[k] + 1e-3]))[1][0]
+
+
+@pytest.mark.parametrize("name", sorted(PRESETS))
 def test_clean_truth_meets_the_cell_as_set(name):
     cell = preset(name)
     syn = synthesize(cell, duration_s=12.0, fs_hz=10_000.0, seed=4)
