@@ -10,12 +10,15 @@ the new file is complete. A process killed in between leaves only a hidden tempo
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 import re
 import tempfile
 from typing import Iterator
 
-__all__ = ["atomic_output", "write_text_atomic", "temp_prefix"]
+from .errors import InputError
+
+__all__ = ["WriteError", "atomic_output", "write_text_atomic", "temp_prefix"]
 
 
 def temp_prefix(path: str | os.PathLike) -> str:
@@ -90,6 +93,12 @@ def atomic_output(path: str | os.PathLike) -> Iterator[str]:
         The temporary file's path (in the same folder, so the final move is atomic). The caller
         writes and closes it inside the ``with`` block.
 
+    Raises
+    ------
+    WriteError
+        For any OSError while the file is written, flushed or moved (a full disk, no
+        permission): one line naming ``path``. The temporary file is removed first.
+
     Examples
     --------
     >>> import os, tempfile
@@ -103,18 +112,39 @@ def atomic_output(path: str | os.PathLike) -> Iterator[str]:
     target = os.path.abspath(os.fspath(path))
     folder = os.path.dirname(target)
     _remove_stale(target)
-    fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=folder)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=folder)
+    except OSError as exc:
+        raise WriteError.of(path, exc) from None
     os.close(fd)
     try:
         yield tmp
         _fsync_path(tmp)
         os.chmod(tmp, _mode_for(target))
         os.replace(tmp, target)
-    except BaseException:
+    except BaseException as exc:
         with contextlib.suppress(OSError):
             os.remove(tmp)
+        if isinstance(exc, OSError):  # a full disk, a read-only folder: the user's to fix
+            raise WriteError.of(path, exc) from None
         raise
     _fsync_folder(folder)
+
+
+class WriteError(InputError):
+    """An output file cannot be written (a full disk, no permission, a read-only folder)."""
+
+    @classmethod
+    def of(cls, path: str | os.PathLike, exc: OSError) -> "WriteError":
+        code = exc.errno
+        reason = exc.strerror or " ".join(str(exc).split())[:160] or type(exc).__name__
+        if code in (errno.ENOSPC, errno.EDQUOT) or "No space left" in str(exc):
+            fix = "the disk is full: free some space or write elsewhere; the previous file is unchanged"
+        elif code in (errno.EACCES, errno.EPERM, errno.EROFS):
+            fix = "choose a folder you can write to; the previous file is unchanged"
+        else:
+            fix = "check the disk or write elsewhere; the previous file is unchanged"
+        return cls(path, f"cannot be written ({reason})", fix)
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> None:
