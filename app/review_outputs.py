@@ -27,7 +27,7 @@ from typing import Sequence
 
 from analysis.errors import InputError
 
-__all__ = ["Reviewed", "add_arguments", "review", "write_results", "write_summary"]
+__all__ = ["Reviewed", "add_arguments", "prepare", "review", "write_results", "write_summary"]
 
 
 class Reviewed(list):
@@ -71,21 +71,50 @@ def _check_outputs(args: argparse.Namespace) -> None:
             raise InputError(p, "the output folder does not exist", "create it or write elsewhere")
 
 
-def review(args: argparse.Namespace, results: Sequence, settings) -> Sequence:
+def _wanted(args: argparse.Namespace) -> bool:
+    return bool(getattr(args, "out", None) or getattr(args, "summary_csv", None) or getattr(args, "conditions", None))
+
+
+def prepare(args: argparse.Namespace):
+    """Check the outputs and open an existing ``--out`` file, before any analysis runs.
+
+    Returns the saved session (or None), so that a wrong output path or a damaged, foreign or
+    newer results file stops the command at once, with nothing written.
+    """
+    if not _wanted(args):
+        return None
+    _check_outputs(args)
+    out = getattr(args, "out", None)
+    if out and os.path.exists(out):
+        from analysis.session import Session
+
+        return Session.open(out)  # a damaged or foreign file stops here: it is never replaced
+    return None
+
+
+def review(args: argparse.Namespace, results: Sequence, settings, saved=None) -> Sequence:
     """Put the results into a session when ``--out``, ``--summary-csv`` or ``--condition`` asks.
 
-    Returns the results unchanged when none does; otherwise a :class:`Reviewed` list whose
-    results' ``beats`` are the session's reviewed tables.
+    Parameters
+    ----------
+    args, results, settings
+        The command's arguments, its analysis results (in file order) and settings.
+    saved : Session or None
+        The session :func:`prepare` read from an existing ``--out`` file.
+
+    Returns
+    -------
+    sequence
+        The results unchanged when no option asks for a session; otherwise a :class:`Reviewed`
+        list whose results' ``beats`` are the session's reviewed tables.
     """
-    out = getattr(args, "out", None)
-    conditions = list(getattr(args, "conditions", []) or [])
-    if not (out or getattr(args, "summary_csv", None) or conditions):
+    if not _wanted(args):
         return results
     from analysis.session import Session
 
-    _check_outputs(args)
-    if out and os.path.exists(out):
-        session = Session.open(out)  # a damaged or foreign file stops here: it is never replaced
+    conditions = list(getattr(args, "conditions", []) or [])
+    if saved is not None:
+        session = saved
         session.default_settings = settings
     else:
         session = Session(settings)
@@ -117,3 +146,5 @@ def write_summary(results: Sequence, path: str) -> None:
 def write_results(results: Sequence, path: str) -> None:
     """Save the session :func:`review` built to the results file (atomically)."""
     results.session.save(path)
+    for label, n in results.kept.items():
+        print(f"{label}: kept its {n} saved review decision(s) in {path}")

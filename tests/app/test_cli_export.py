@@ -20,9 +20,9 @@ from app.cli import main
 @pytest.fixture(scope="module")
 def recordings(tmp_path_factory):
     folder = tmp_path_factory.mktemp("recs")
-    a = synthesize(preset("nodal-like"), duration_s=30.0, fs_hz=5_000.0, seed=3, noise_mV=0.2,
+    a = synthesize(preset("nodal-like"), duration_s=20.0, fs_hz=5_000.0, seed=3, noise_mV=0.2,
                    eads=[EAD(4, amplitude_mV=8.0)], stretches=[Stretch(12.0, 40.0, phase4_factor=0.75, ramp_s=4.0)])
-    b = synthesize(preset("atrial-like"), duration_s=20.0, fs_hz=5_000.0, seed=4, noise_mV=0.2)
+    b = synthesize(preset("atrial-like"), duration_s=12.0, fs_hz=5_000.0, seed=4, noise_mV=0.2)
     write_abf(a.recording, folder / "cell07.abf")
     write_abf(b.recording, folder / "cell08.abf")
     return folder
@@ -42,8 +42,8 @@ def test_export_reproduces_analyze_byte_for_byte(recordings, tmp_path, capsys, m
     # CONTRACT.md: export of a results file reproduces the CSV that analyze wrote, byte for byte.
     monkeypatch.chdir(recordings)
     code, out, err = _run(
-        ["analyze", "cell07.abf", "cell08.abf", "--condition", "baseline=0-12s",
-         "--condition", "drug=12-end,steady=last8s", "--csv", tmp_path / "beats.csv",
+        ["analyze", "cell07.abf", "cell08.abf", "--condition", "baseline=0-8s",
+         "--condition", "drug=8-end,steady=last5s", "--csv", tmp_path / "beats.csv",
          "--summary-csv", tmp_path / "summary.csv", "--out", tmp_path / "results.h5"], capsys)
     assert code == 0, err
     assert "wrote" in out
@@ -56,11 +56,11 @@ def test_export_reproduces_analyze_byte_for_byte(recordings, tmp_path, capsys, m
     assert {r["file"] for r in rows} == {"cell07.abf", "cell08.abf"}  # as given on the command line
     t = np.array([float(r["t_upstroke_s"]) for r in rows if r["file"] == "cell07.abf"])
     conds = [r["condition"] for r in rows if r["file"] == "cell07.abf"]
-    assert all(c == ("baseline" if x < 12 else "drug") for x, c in zip(t, conds))
+    assert all(c == ("baseline" if x < 8 else "drug") for x, c in zip(t, conds))
     summary = list(csv.DictReader(open(tmp_path / "summary.csv")))
     assert [(r["file"], r["condition"]) for r in summary] == [
         ("cell07.abf", "baseline"), ("cell07.abf", "drug"), ("cell08.abf", "baseline"), ("cell08.abf", "drug")]
-    assert summary[1]["window"] == "last8s"
+    assert summary[1]["window"] == "last5s"
     assert len({r["settings_hash"] for r in summary}) == 1 and summary[0]["settings_hash"]
 
 
@@ -105,12 +105,23 @@ def test_same_source_is_replaced_and_keeps_its_review(recordings, tmp_path, caps
     assert rows[5]["accepted"] == "0" and rows[6]["condition"] == "baseline"
 
 
+@pytest.fixture(scope="module")
+def good_results(recordings, tmp_path_factory):
+    """One results file written by analyze, for the tests that damage a copy of it."""
+    path = tmp_path_factory.mktemp("good") / "good.h5"
+    cwd = os.getcwd()
+    os.chdir(recordings)
+    try:
+        assert main(["analyze", "cell08.abf", "--out", str(path)]) == 0
+    finally:
+        os.chdir(cwd)
+    return path.read_bytes()
+
+
 @pytest.mark.parametrize("kind", ["truncated", "corrupt", "foreign", "text"])
-def test_bad_results_files_exit_2_and_leave_nothing(recordings, tmp_path, capsys, monkeypatch, kind):
+def test_bad_results_files_exit_2_and_leave_nothing(recordings, good_results, tmp_path, capsys, monkeypatch, kind):
     monkeypatch.chdir(recordings)
-    good = tmp_path / "good.h5"
-    assert _run(["analyze", "cell08.abf", "--out", good], capsys)[0] == 0
-    data = good.read_bytes()
+    data = good_results
     bad = tmp_path / "bad.h5"
     if kind == "truncated":
         bad.write_bytes(data[: len(data) // 3])
@@ -121,6 +132,7 @@ def test_bad_results_files_exit_2_and_leave_nothing(recordings, tmp_path, capsys
             f["some/data"] = np.arange(10)
     else:
         bad.write_text("time,Vm\n0,1\n")
+    capsys.readouterr()
     before = _sha(bad)
     outputs = tmp_path / "out"
     outputs.mkdir()
@@ -130,9 +142,9 @@ def test_bad_results_files_exit_2_and_leave_nothing(recordings, tmp_path, capsys
     lines = err.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith(f"upstroke export: {bad}: ") and "Traceback" not in err
     assert os.listdir(outputs) == []
-    # analyze --out never replaces a file it cannot read as results.
+    # analyze --out never replaces a file it cannot read as results, and stops before analysing.
     code, out, err = _run(["analyze", "cell08.abf", "--out", bad, "--csv", outputs / "b.csv"], capsys)
-    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert code == 2 and len(err.strip().splitlines()) == 1 and out == ""
     assert _sha(bad) == before and os.listdir(outputs) == []
 
 
