@@ -217,11 +217,12 @@ def report(results: Sequence, written: Sequence[str], *, out=None, err=None) -> 
 
 def run(args: argparse.Namespace) -> int:
     """Analyse the files and write the outputs; 0 on success (bad input raises InputError)."""
-    settings = settings_from_args(args)
-    results = analyse_files(args, settings)
-    from app.review_outputs import review
+    from app.review_outputs import prepare, review
 
-    results = review(args, results, settings)  # --out, --summary-csv, --condition
+    settings = settings_from_args(args)
+    saved = prepare(args)  # checks the outputs and reads an existing --out file before analysing
+    results = analyse_files(args, settings)
+    results = review(args, results, settings, saved)  # --out, --summary-csv, --condition
     written = write_outputs(args, results)
     report(results, written)
     return 0
