@@ -261,17 +261,44 @@ def save_results(path: str | os.PathLike, results: ResultsFile | Sequence[Stored
 
 
 # -- reading ----------------------------------------------------------------------------------
+#: The longest single text a results file may hold (a label, a path, the settings JSON, a
+#: warning, a reason). Anything longer is damage or a crafted file: refused, never shown.
+MAX_TEXT_CHARS = 1_000_000
+
+
 def _text(value) -> str:
-    return value.decode("utf-8") if isinstance(value, bytes) else str(value)
+    text = value.decode("utf-8") if isinstance(value, bytes) else str(value)
+    if len(text) > MAX_TEXT_CHARS:
+        raise ValueError(f"a stored text of {len(text)} characters is too long (at most {MAX_TEXT_CHARS})")
+    return text
+
+
+def _checked(ds):
+    """``ds``, after refusing what no results file holds, before any of it is read.
+
+    Only datasets of numbers or text are read (never opaque, compound or reference types), and
+    only when the file stores the data they declare: a dataset's shape is just a declaration
+    (10^12 rows with no chunk written take a few bytes), and reading it would allocate it.
+    """
+    import h5py
+
+    if not isinstance(ds, h5py.Dataset):
+        raise TypeError(f"{ds.name} is not a dataset")
+    if not (ds.dtype.kind in "biuf" or h5_is_string(ds)):
+        raise TypeError(f"{ds.name} holds {ds.dtype} values, neither numbers nor text")
+    declared = ds.size * ds.dtype.itemsize
+    if declared and ds.id.get_storage_size() < declared and ds.id.get_create_plist().get_nfilters() == 0:
+        raise ValueError(f"{ds.name} declares {ds.size} values but the file stores fewer")
+    return ds
 
 
 def _read_columns(group) -> dict[str, np.ndarray]:
     names = [_text(n) for n in group.attrs["columns"]]
     out: dict[str, np.ndarray] = {}
     for name in names:
-        ds = group[name]
+        ds = _checked(group[name])
         if ds.dtype.kind == "O" or h5_is_string(ds):
-            out[name] = np.array(ds.asstr()[()], dtype=object).reshape(-1)
+            out[name] = np.array([_text(v) for v in np.ravel(ds.asstr()[()])], dtype=object)
         else:
             out[name] = ds[()]
     return out
@@ -296,10 +323,13 @@ def _read_recording(group, results_folder: str, verify: bool, warnings: list[str
         )
         for i in range(len(cond_cols["name"]))
     )
+    decision_cols = _read_columns(group["decisions"])
+    if list(decision_cols) != list(DECISION_FIELDS):
+        raise KeyError("decisions")
     summary = group["summary"]
     ens = summary["ensemble"]
     ensembles = [
-        (ens[name][()], float(ens[name].attrs["fs_hz"]), float(ens[name].attrs["t0_s"]))
+        (_checked(ens[name])[()], float(ens[name].attrs["fs_hz"]), float(ens[name].attrs["t0_s"]))
         for name in sorted(ens, key=int)
     ]
     rec = StoredRecording(
@@ -313,21 +343,19 @@ def _read_recording(group, results_folder: str, verify: bool, warnings: list[str
         ljp_mV=float(a["ljp_mV"]),
         sweeps=sweeps,
         sampling_rate_hz=float(a["sampling_rate_hz"]),
-        sweep_starts_s=tuple(float(x) for x in group["sweep_starts_s"][()]),
-        sweep_lengths=tuple(int(x) for x in group["sweep_lengths"][()]),
-        settings_json=_text(settings.asstr()[()]),
+        sweep_starts_s=tuple(float(x) for x in _checked(group["sweep_starts_s"])[()]),
+        sweep_lengths=tuple(int(x) for x in _checked(group["sweep_lengths"])[()]),
+        settings_json=_text(_checked(settings).asstr()[()]),
         settings_schema=int(settings.attrs["schema_version"]),
         settings_hash=_text(settings.attrs["hash"]),
         beats=BeatTable(_read_columns(group["beats"])),
-        decisions=DecisionLog.from_columns(_read_columns(group["decisions"])),
+        decisions=DecisionLog.from_columns(decision_cols),
         conditions=conditions,
         summary=_read_columns(summary),
         ensembles=ensembles,
-        warnings=tuple(group["warnings"].asstr()[()].tolist()),
+        warnings=tuple(_text(w) for w in np.ravel(_checked(group["warnings"]).asstr()[()])),
         provenance={k: _text(v) for k, v in group["provenance"].attrs.items()},
     )
-    if list(_read_columns(group["decisions"])) != list(DECISION_FIELDS):
-        raise KeyError("decisions")
     if verify and rec.sha256:
         _check_source(rec, _text(a["source_relpath"]), results_folder, warnings)
     return rec
@@ -409,7 +437,7 @@ def load_results(path: str | os.PathLike, *, verify_sources: bool = True) -> Res
                 )
             if int(version) < 1:
                 raise ResultsFileError(text, f"has an unknown results schema version {int(version)}", _OPEN_FIX)
-            default = _text(f["default_settings"].asstr()[()]) if "default_settings" in f else None
+            default = _text(_checked(f["default_settings"]).asstr()[()]) if "default_settings" in f else None
             recs_group = f["recordings"]
             recordings = [
                 _read_recording(recs_group[name], folder, verify_sources, warnings)

@@ -184,10 +184,6 @@ KNOWN_DEFECTS: dict[str, str] = {
     "settings-fractions-crossed": "detection levels are not checked against each other",
     "settings-windows-crossed": "dV/dt windows are not checked against each other",
     "settings-lowpass-above-nyquist": "the error names no file",
-    "results-opaque-column": "opaque stored columns are accepted",
-    "results-huge-unstored-column": "stored columns are read whole before their size is checked",
-    "results-long-settings-text": "stored strings are not length-checked",
-    "results-long-warning": "stored strings are not length-checked",
 }
 
 
