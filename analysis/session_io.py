@@ -133,6 +133,9 @@ def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, m
             provenance=dict(r.provenance),
         )
         key = _key_of(r.source_path) if r.sha256 else r.label
+        base, n = key, 2
+        while key in session._entries:  # a file written elsewhere may hold a source twice
+            key, n = f"{base}#{n}", n + 1
         session._entries[key] = _Entry(
             info=info, settings=_settings(r.settings_json, text, r.label), table=table,
             warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,

@@ -197,3 +197,25 @@ def test_results_do_not_depend_on_the_chunking():
             else:
                 assert np.array_equal(values, part[name]), (chunk_s, name)
     assert whole["ead"].sum() == 1 and whole["dad"].sum() == 1 and whole["clipped"].sum() >= 10
+
+
+def test_analyze_returns_flagged_and_automatically_rejected_beats():
+    # The pipeline's hook: analyze() itself runs the events and the rejection rules.
+    from analysis import analyze
+    from analysis.recording import Recording
+
+    syn = synthesize(preset("ventricular-like"), duration_s=12.0, fs_hz=10_000.0, seed=9, noise_mV=0.1,
+                     eads=[EAD(3, amplitude_mV=8.0)])
+    v = np.minimum(syn.recording.sweep(0), 20.0)  # the converter saturates at +20 mV
+    beats = analyze(Recording.from_array(v, 10_000.0)).beats
+    clipped = np.array(["clipped" in f for f in beats["flags"]])
+    assert clipped.sum() >= len(beats) - 1  # every complete beat overshoots +20 mV (synthetic truth: peak 35 mV)
+    assert np.all(beats["accepted"][clipped] == 0)
+    assert all(r.startswith("auto: clipped (flat at 20 for") for r in beats["reject_reason"][clipped])
+    # Unclipped, the planted EAD is flagged on its beat and stays a suggestion.
+    beats = analyze(syn.recording).beats
+    ead = np.flatnonzero(["ead" in f for f in beats["flags"]])
+    truth = syn.truth.beats
+    t_truth = truth["t_upstroke_s"][truth["train_beat"] == 3][0]
+    assert ead.size == 1 and abs(beats["t_upstroke_s"][ead[0]] - t_truth) < 0.002
+    assert (beats["accepted"] == 1).all()
