@@ -27,7 +27,7 @@ import math
 import numpy as np
 from scipy.ndimage import maximum_filter1d
 
-__all__ = ["remove_hum", "hum_pad_samples"]
+__all__ = ["remove_hum", "hum_present", "hum_pad_samples"]
 
 _MEAN_S = 0.1
 
@@ -48,9 +48,100 @@ def _moving_mean(x: np.ndarray, m: int) -> np.ndarray:
     return (c[b] - c[a]) / (b - a) + x[0]
 
 
+def _freqs(fs_hz: float, mains_hz, harmonics: int) -> list[tuple[float, int]]:
+    """(fundamental, harmonic) pairs below a quarter of the sampling rate."""
+    return [(f, k) for f in mains_hz for k in range(1, harmonics + 1) if f * k < fs_hz / 4]
+
+
+def _basis(t_s: np.ndarray, pairs) -> np.ndarray:
+    """Columns cos, sin of every (fundamental, harmonic), from one complex exponential each."""
+    out = np.empty((t_s.size, 2 * len(pairs)))
+    col = 0
+    cache: dict[float, np.ndarray] = {}
+    for f, k in pairs:
+        if f not in cache:
+            cache[f] = np.exp(2j * np.pi * f * t_s)
+        z = cache[f] ** k if k > 1 else cache[f]
+        out[:, col] = z.real
+        out[:, col + 1] = z.imag
+        col += 2
+    return out
+
+
+def _fit(x: np.ndarray, fs_hz: float, offset: int, pairs, block: int, m: int, min_mV: float):
+    """Block centres (global sample positions) and the hum coefficients fitted in each block."""
+    n = x.size
+    r = x - _moving_mean(x, m)
+    first = (offset // block) * block
+    edges = list(range(first, offset + n, block)) + [offset + n]
+    edges[0] = offset
+    bad = np.zeros(n, bool)
+    for a, b in zip(edges[:-1], edges[1:]):
+        seg = r[a - offset:b - offset]
+        sub = seg[:: max(1, seg.size // 4000)]
+        med = np.median(sub)
+        mad = np.median(np.abs(sub - med)) / 0.6745
+        bad[a - offset:b - offset] = np.abs(seg - med) > 4.0 * max(mad, 1e-6)
+    # Leave out the action potentials' fast phases and everything within one mean-window of them
+    # (there the residual holds the cell's own curvature, not hum).
+    keep = ~maximum_filter1d(bad, size=m + 1, mode="nearest")
+    centres, coefs = [], []
+    for a, b in zip(edges[:-1], edges[1:]):
+        sl = slice(a - offset, b - offset)
+        mask = keep[sl]
+        row = np.zeros(2 * len(pairs))
+        if np.count_nonzero(mask) > 4 * len(pairs) + 10:
+            y = r[sl][mask]
+            y = y - y.mean()
+            basis = _basis((np.flatnonzero(mask) + a) / fs_hz, pairs)
+            gram = basis.T @ basis
+            try:
+                sol = np.linalg.solve(gram, basis.T @ y)
+            except np.linalg.LinAlgError:
+                sol = np.zeros(2 * len(pairs))
+            resid = y - basis @ sol
+            se = math.sqrt(float(np.dot(resid, resid)) / max(y.size - sol.size, 1) * 2.0 / y.size)
+            for k in range(len(pairs)):
+                amp = math.hypot(sol[2 * k], sol[2 * k + 1])
+                if amp >= min_mV and amp >= 3.0 * se:
+                    row[2 * k:2 * k + 2] = sol[2 * k:2 * k + 2]
+        centres.append(0.5 * (a + b))
+        coefs.append(row)
+    return np.asarray(centres), np.asarray(coefs)
+
+
+def hum_present(
+    v_mV: np.ndarray | None, fs_hz: float, *, n: int | None = None, load=None,
+    mains_hz: tuple[float, ...] = (50.0, 60.0), harmonics: int = 3, block_s: float = 1.0,
+    min_mV: float = 0.03, pieces: int = 8,
+) -> bool:
+    """Whether a sweep carries hum above ``min_mV``, judged on evenly spaced pieces of it.
+
+    Give the sweep's samples, or its length ``n`` and ``load(start, stop)``. The pieces depend
+    only on the sweep's length, so the answer is the same however the sweep is later chunked.
+    """
+    if load is None:
+        x_all = np.asarray(v_mV, dtype=np.float64)
+        n = x_all.size
+        load = lambda a, b: x_all[a:b]  # noqa: E731
+    pairs = _freqs(fs_hz, mains_hz, harmonics)
+    m = int(round(_MEAN_S * fs_hz)) | 1
+    block = max(int(round(block_s * fs_hz)), m)
+    if not pairs or n < 2 * m:
+        return False
+    width = 3 * block
+    starts = [0] if n <= width else np.linspace(0, n - width, min(pieces, max(1, n // width))).astype(int)
+    for a in starts:
+        b = min(n, int(a) + width)
+        _, coefs = _fit(np.asarray(load(int(a), b), dtype=np.float64), fs_hz, int(a), pairs, block, m, min_mV)
+        if coefs.any():
+            return True
+    return False
+
+
 def remove_hum(
     v_mV: np.ndarray, fs_hz: float, *, mains_hz: tuple[float, ...] = (50.0, 60.0), harmonics: int = 3,
-    block_s: float = 1.0, min_mV: float = 0.03, offset: int = 0,
+    block_s: float = 1.0, min_mV: float = 0.03, offset: int = 0, present: bool | None = None,
 ) -> tuple[np.ndarray, float]:
     """``v_mV`` with its mains hum subtracted, and the largest hum amplitude found (mV).
 
@@ -70,6 +161,9 @@ def remove_hum(
         Components smaller than this are left alone.
     offset : int
         Index of ``v_mV[0]`` in its sweep (the hum's phase is measured from the sweep's start).
+    present : bool or None
+        Whether the sweep carries hum (from :func:`hum_present` on the whole sweep); None judges
+        it on ``v_mV`` itself. False returns the samples unchanged at once.
 
     Examples
     --------
@@ -83,55 +177,24 @@ def remove_hum(
     """
     x = np.asarray(v_mV, dtype=np.float64)
     n = x.size
-    freqs = [f * k for f in mains_hz for k in range(1, harmonics + 1) if f * k < fs_hz / 4]
+    pairs = _freqs(fs_hz, mains_hz, harmonics)
     m = int(round(_MEAN_S * fs_hz)) | 1
-    if not freqs or n < 2 * m:
+    if present is None:
+        present = hum_present(x, fs_hz, mains_hz=mains_hz, harmonics=harmonics, block_s=block_s, min_mV=min_mV)
+    if not present or not pairs or n < 2 * m:
         return x.copy(), 0.0
-    r = x - _moving_mean(x, m)
-    med = np.median(r[:: max(1, n // 200_000)])
-    mad = np.median(np.abs(r[:: max(1, n // 200_000)] - med)) / 0.6745
-    # Leave out the action potentials' fast phases and everything within one mean-window of them
-    # (there the residual holds the cell's own curvature, not hum).
-    bad = np.abs(r - med) > 4.0 * max(mad, 1e-6)
-    keep = ~maximum_filter1d(bad, size=m + 1, mode="nearest")
     block = max(int(round(block_s * fs_hz)), m)
-    first = (offset // block) * block
-    edges = list(range(first, offset + n, block)) + [offset + n]
-    edges[0] = offset
-    t = (np.arange(n, dtype=np.float64) + offset) / fs_hz
-    centres, coefs = [], []
-    for a, b in zip(edges[:-1], edges[1:]):
-        sl = slice(a - offset, b - offset)
-        mask = keep[sl]
-        tt = t[sl][mask]
-        y = r[sl][mask] - np.mean(r[sl][mask]) if mask.any() else np.empty(0)
-        row = np.zeros(2 * len(freqs))
-        if tt.size > 4 * len(freqs) + 10:
-            basis = np.empty((tt.size, 2 * len(freqs)))
-            for k, f in enumerate(freqs):
-                w = 2 * np.pi * f * tt
-                basis[:, 2 * k] = np.cos(w)
-                basis[:, 2 * k + 1] = np.sin(w)
-            sol, *_ = np.linalg.lstsq(basis, y, rcond=None)
-            resid = y - basis @ sol
-            se = math.sqrt(float(np.dot(resid, resid)) / max(tt.size - sol.size, 1) * 2.0 / tt.size)
-            for k in range(len(freqs)):
-                amp = math.hypot(sol[2 * k], sol[2 * k + 1])
-                if amp >= min_mV and amp >= 3.0 * se:
-                    row[2 * k:2 * k + 2] = sol[2 * k:2 * k + 2]
-        centres.append(0.5 * (a + b))
-        coefs.append(row)
-    coefs_arr = np.asarray(coefs)
-    if not coefs_arr.any():
+    centres, coefs = _fit(x, fs_hz, offset, pairs, block, m, min_mV)
+    if not coefs.any():
         return x.copy(), 0.0
-    pos = np.arange(n, dtype=np.float64) + offset
-    hum = np.zeros(n)
-    biggest = 0.0
-    for k, f in enumerate(freqs):
-        ca, cb = coefs_arr[:, 2 * k], coefs_arr[:, 2 * k + 1]
-        if not (ca.any() or cb.any()):
-            continue
-        biggest = max(biggest, float(np.max(np.hypot(ca, cb))))
-        w = 2 * np.pi * f * t
-        hum += np.interp(pos, centres, ca) * np.cos(w) + np.interp(pos, centres, cb) * np.sin(w)
-    return x - hum, biggest
+    live = [k for k in range(len(pairs)) if coefs[:, 2 * k:2 * k + 2].any()]
+    biggest = max(float(np.max(np.hypot(coefs[:, 2 * k], coefs[:, 2 * k + 1]))) for k in live)
+    out = x.copy()
+    step = 1 << 16
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        pos = np.arange(a, b, dtype=np.float64) + offset
+        basis = _basis(pos / fs_hz, [pairs[k] for k in live])
+        weights = np.column_stack([np.interp(pos, centres, coefs[:, 2 * k + j]) for k in live for j in (0, 1)])
+        out[a:b] -= np.einsum("ij,ij->i", basis, weights)
+    return out, biggest

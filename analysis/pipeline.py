@@ -251,14 +251,24 @@ def _artefact_note(art) -> str:
 
 
 def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
+    """``load(start, stop)``: preprocessed samples of one sweep (hum judged once per sweep)."""
     fs = recording.sampling_rate_hz
 
-    def load(a: int, b: int) -> np.ndarray:
+    def raw(a: int, b: int) -> np.ndarray:
         x = recording.sweep(sw, ch, a, b)
-        if scale != 1.0:
-            x = x * scale
-        return preprocess(x, fs, s.preprocess, offset=a)
+        return x * scale if scale != 1.0 else x
 
+    hum = False
+    if s.preprocess.hum_removal != "off":
+        from .hum import hum_present
+
+        hum = hum_present(None, fs, n=recording.n_samples(sw), load=raw, block_s=s.preprocess.hum_block_s,
+                          min_mV=s.preprocess.hum_min_mV)
+
+    def load(a: int, b: int) -> np.ndarray:
+        return preprocess(raw(a, b), fs, s.preprocess, offset=a, hum=hum)
+
+    load.hum = hum  # type: ignore[attr-defined]
     return load
 
 

@@ -229,17 +229,21 @@ def filter_pad_samples(fs_hz: float, settings) -> int:
     return int(math.ceil(pad_s * fs_hz))
 
 
-def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0) -> np.ndarray:
+def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0, hum: bool | None = None) -> np.ndarray:
     """LJP correction, mains-hum removal, then the optional notch and low-pass.
 
     ``settings`` is a preprocess settings section; ``offset`` is the index of ``v_mV[0]`` in its
-    sweep (the hum's phase is measured from the sweep's start).
+    sweep (the hum's phase is measured from the sweep's start); ``hum`` says whether the sweep
+    carries hum (:func:`analysis.hum.hum_present` on the whole sweep), None to judge it on
+    ``v_mV`` itself.
     """
     x = correct_ljp(v_mV, settings.ljp_mV)
-    if getattr(settings, "hum_removal", "off") != "off":
+    if getattr(settings, "hum_removal", "off") != "off" and hum is not False:
         from .hum import remove_hum
 
-        x, _ = remove_hum(x, fs_hz, block_s=settings.hum_block_s, min_mV=settings.hum_min_mV, offset=offset)
+        x, _ = remove_hum(
+            x, fs_hz, block_s=settings.hum_block_s, min_mV=settings.hum_min_mV, offset=offset, present=hum,
+        )
     if settings.notch_hz:
         x = notch(x, fs_hz, mains_hz=settings.notch_hz, q=settings.notch_q, harmonics=settings.notch_harmonics)
     if settings.lowpass_hz:
