@@ -148,7 +148,9 @@ def _check_value(path: str, kind: str, value: Any, meta: Mapping[str, Any], orig
     """The value converted to its field's type, or SettingsError naming the key and the range."""
 
     def wrong(what: str, fix: str) -> SettingsError:
-        return SettingsError(origin, f"setting {path} = {value!r} {what}", fix)
+        shown = repr(value)
+        shown = shown if len(shown) <= 60 else shown[:57] + "..."  # a pasted paragraph, not a value
+        return SettingsError(origin, f"setting {path} = {shown} {what}", fix)
 
     def number(x: Any, as_int: bool) -> float | int:
         if isinstance(x, bool) or not isinstance(x, (int, float)):
@@ -205,6 +207,9 @@ class Section:
     """
 
     key: ClassVar[str] = ""
+    #: Fields that must keep an order, as ``(smaller, "<" or "<=", larger)``: each is in its own
+    #: range, but together they would contradict each other.
+    order: ClassVar[tuple[tuple[str, str, str], ...]] = ()
 
     def __post_init__(self) -> None:
         self._validate(None)
@@ -215,6 +220,13 @@ class Section:
             kind = _kind(hints[f.name])
             value = _check_value(f"{self.key}.{f.name}", kind, getattr(self, f.name), f.metadata, origin)
             object.__setattr__(self, f.name, value)
+        for low, op, high in self.order:
+            a, b = getattr(self, low), getattr(self, high)
+            if not (a < b if op == "<" else a <= b):
+                raise SettingsError(
+                    origin, f"setting {self.key}.{low} = {a:g} is not {'below' if op == '<' else 'at most'} "
+                    f"{self.key}.{high} = {b:g}", f"make {low} smaller than {high}",
+                )
 
     @classmethod
     def field_infos(cls) -> list[FieldInfo]:
@@ -285,6 +297,7 @@ class DetectionSettings(Section):
     """How beats are found in a sweep (see analysis.detect)."""
 
     key: ClassVar[str] = "detection"
+    order: ClassVar[tuple[tuple[str, str, str], ...]] = (("low_fraction", "<", "high_fraction"),)
 
     smoothing_ms: float = setting(
         1.0, unit="ms", min=0.0, max=20.0, source="Savitzky-Golay smoothing; " + _NO_SOURCE,
@@ -348,6 +361,9 @@ class MeasurementSettings(Section):
     """Which published definition each per-beat parameter uses (see analysis.measure)."""
 
     key: ClassVar[str] = "measurement"
+    order: ClassVar[tuple[tuple[str, str, str], ...]] = (
+        ("dvdt_max_min_window_ms", "<=", "dvdt_max_max_window_ms"),
+    )
 
     top_method: str = setting(
         "dvdt_criterion", choices=TOP_METHODS,
@@ -656,6 +672,11 @@ class Settings:
         version = data.get("schema_version", SCHEMA_VERSION)
         if isinstance(version, bool) or not isinstance(version, int):
             raise SettingsError(where, f"schema_version = {version!r} is not a whole number", f"write schema_version = {SCHEMA_VERSION}")
+        if version < 1:
+            raise SettingsError(
+                where, f"schema_version = {version} is not a settings version Upstroke ever wrote",
+                f"write schema_version = {SCHEMA_VERSION} or leave it out",
+            )
         if version > SCHEMA_VERSION:
             raise SettingsError(
                 where, f"the settings have schema version {version}, newer than this Upstroke's {SCHEMA_VERSION}",

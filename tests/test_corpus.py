@@ -179,10 +179,6 @@ def test_corpus_has_every_kind_of_bad_input():
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
 KNOWN_DEFECTS: dict[str, str] = {
     "save-disk-full-results": "the beats CSV written before a failed results save is left behind",
-    "settings-negative-schema": "a negative settings schema version is accepted",
-    "settings-huge-text-value": "a wrong settings value is quoted whole",
-    "settings-fractions-crossed": "detection levels are not checked against each other",
-    "settings-windows-crossed": "dV/dt windows are not checked against each other",
     "settings-lowpass-above-nyquist": "the error names no file",
 }
 
