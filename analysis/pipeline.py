@@ -18,7 +18,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from .detect import detect_sweep, estimate_noise_mV
-from .errors import RecordingError
+from .errors import RecordingError, SettingsError
 from .markers import apd_name, measure_beats
 from .measure import features_of_sweep, marker_columns
 from .recording import CURRENT_CLAMP, VOLTAGE_CLAMP, Recording
@@ -222,7 +222,14 @@ def analyze(
 
     parts, artefacts, rise = [], {}, []
     for sw in sweep_ids:
-        cols, art, rise_sw = _analyse_sweep(recording, sw, idx, scale, s, tick)
+        try:
+            cols, art, rise_sw = _analyse_sweep(recording, sw, idx, scale, s, tick)
+        except SettingsError as exc:
+            if exc.path is not None:
+                raise
+            # A setting that does not suit this recording (a low-pass corner above its Nyquist
+            # frequency): name the recording, as every input error names a file.
+            raise SettingsError(recording.source_path or "the data given", exc.problem, exc.fix) from None
         artefacts[sw] = art
         if cols is None:
             warnings.append(f"sweep {sw}: no beats found{_artefact_note(art)}")

@@ -177,10 +177,7 @@ def test_corpus_has_every_kind_of_bad_input():
 
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
-KNOWN_DEFECTS: dict[str, str] = {
-    "save-disk-full-results": "the beats CSV written before a failed results save is left behind",
-    "settings-lowpass-above-nyquist": "the error names no file",
-}
+KNOWN_DEFECTS: dict[str, str] = {}
 
 
 def _params(names):
