@@ -33,7 +33,7 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 import numpy as np
 
 from .batch_find import find_recordings
-from .batch_output import SavedBatch, save_batch
+from .batch_output import SavedBatch, prepare_existing, save_batch
 from .errors import InputError
 
 __all__ = [
@@ -46,6 +46,7 @@ __all__ = [
     "find_recordings",
     "make_tasks",
     "run_batch",
+    "prepare_existing",
     "save_batch",
     "SavedBatch",
 ]
@@ -169,6 +170,7 @@ def make_tasks(
     sweeps: Sequence[int] | None = None,
     units: Mapping[int | str, str] | Sequence[tuple[int | str, str]] | None = None,
     conditions: Sequence[Any] = (),
+    file_conditions: Mapping[str, Sequence[Any]] | None = None,
 ) -> list[FileTask]:
     """One :class:`FileTask` per path, in order.
 
@@ -182,17 +184,26 @@ def make_tasks(
         file.
     conditions : sequence of Condition or str
         Conditions for every file (a Condition or its command-line text).
+    file_conditions : mapping of path to sequence, or None
+        Conditions for particular files instead (for example those an existing results file
+        keeps; see :func:`analysis.batch_output.prepare_existing`).
     """
     settings_dict = _settings_to_dict(settings)
-    condition_texts = tuple(c if isinstance(c, str) else c.text() for c in conditions)
+
+    def texts(items: Sequence[Any]) -> tuple[str, ...]:
+        return tuple(c if isinstance(c, str) else c.text() for c in items)
+
+    condition_texts = texts(conditions)
+    per_file = {os.fspath(k): texts(v) for k, v in (file_conditions or {}).items()}
     unit_pairs = None
     if units:
-        unit_pairs = tuple((units.items() if isinstance(units, Mapping) else units))
+        unit_pairs = tuple(units.items() if isinstance(units, Mapping) else units)
     sweep_tuple = None if sweeps is None else tuple(int(s) for s in sweeps)
     return [
         FileTask(
             index=i, path=os.fspath(p), open_path=os.path.abspath(os.fspath(p)), settings=settings_dict,
-            channel=channel, sweeps=sweep_tuple, units=unit_pairs, conditions=condition_texts,
+            channel=channel, sweeps=sweep_tuple, units=unit_pairs,
+            conditions=per_file.get(os.fspath(p), condition_texts),
         )
         for i, p in enumerate(paths)
     ]
@@ -376,15 +387,18 @@ def _pool_context() -> multiprocessing.context.BaseContext:
 
 def _stop_pool(pool: _cf.ProcessPoolExecutor) -> None:
     """Cancel what has not started and stop the workers that are running now."""
-    pool.shutdown(wait=False, cancel_futures=True)
     stop = getattr(pool, "terminate_workers", None)  # Python 3.14 and later
     if stop is not None:
         stop()
         return
-    for proc in list((getattr(pool, "_processes", None) or {}).values()):
+    # shutdown() forgets the worker processes, so take them first; without terminating them the
+    # interpreter would wait at exit for the files being analysed now.
+    workers = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in workers:
         if proc.is_alive():
             proc.terminate()
-    for proc in list((getattr(pool, "_processes", None) or {}).values()):
+    for proc in workers:
         proc.join(timeout=5)
 
 

@@ -11,7 +11,7 @@ import numpy as np
 if TYPE_CHECKING:  # pragma: no cover
     from .batch import BatchResult
 
-__all__ = ["SavedBatch", "save_batch"]
+__all__ = ["SavedBatch", "prepare_existing", "save_batch"]
 
 
 @dataclass(frozen=True)
@@ -36,7 +36,8 @@ def save_batch(
     """Write the good files' results: the results file and, if asked, the beats and summary CSVs.
 
     The recordings go in input order. An existing results file keeps its other recordings; a
-    recording of the same source is replaced by the new analysis. Every output is written to a
+    recording of the same source is replaced by the new analysis, where it stood (check the file
+    first with :func:`prepare_existing`). Every output is written to a
     temporary file first and all of them replace their targets only once all are complete, so an
     error or Ctrl-C leaves the previous files as they were and no partial file behind.
 
@@ -48,7 +49,8 @@ def save_batch(
     csv, summary_csv : str or path or None
         The beats CSV and the summary CSV (CONTRACT.md); None writes none.
     settings : Settings or None
-        Stored as the file's default settings (for recordings added later).
+        Stored as the file's default settings (for recordings added later), as ``upstroke
+        analyze --out`` does.
 
     Raises
     ------
@@ -77,9 +79,12 @@ def save_batch(
     recordings = stored
     if os.path.exists(out):
         previous = load_results(out, verify_sources=False)
-        new_keys = {_source_key(r.source_path) for r in stored}
-        recordings = [r for r in previous.recordings if _source_key(r.source_path) not in new_keys] + stored
-        default_json = previous.default_settings_json or default_json
+        # As in a session: a recording of the same source is replaced where it stands, new
+        # ones follow those already there.
+        fresh = {_source_key(r.source_path): r for r in stored}
+        old_keys = {_source_key(r.source_path) for r in previous.recordings}
+        recordings = [fresh.get(_source_key(r.source_path), r) for r in previous.recordings]
+        recordings += [r for r in stored if _source_key(r.source_path) not in old_keys]
     beats = BeatTable.concat([r.beats for r in stored])
     with contextlib.ExitStack() as stack:
         extra = []
@@ -102,3 +107,52 @@ def save_batch(
 
 def _source_key(path: str) -> str:
     return os.path.normcase(os.path.abspath(path))
+
+
+def prepare_existing(
+    out: str | os.PathLike, paths: "list[str]", conditions: "tuple[str, ...]" = (),
+) -> "dict[str, tuple[str, ...]]":
+    """Check an existing results file before a batch adds to it; the conditions each file keeps.
+
+    A recording of the same source is replaced by the new analysis and, when no conditions are
+    given, keeps its saved conditions (as ``upstroke analyze --out`` does). A recording with
+    review decisions is not re-analysed by a batch, so that no decision is lost.
+
+    Parameters
+    ----------
+    out : str or path
+        The results file; nothing is checked when it does not exist.
+    paths : list of str
+        The batch's recordings.
+    conditions : tuple of str
+        The conditions given for every file.
+
+    Returns
+    -------
+    dict of str to tuple of str
+        Per path whose source the file already holds, the conditions its task should use.
+
+    Raises
+    ------
+    ResultsFileError
+        When the file is damaged or foreign (it is never replaced then), or holds review
+        decisions for one of the recordings.
+    """
+    from .errors import ResultsFileError
+    from .store import load_results
+
+    if not os.path.exists(out):
+        return {}
+    previous = {_source_key(r.source_path): r for r in load_results(out, verify_sources=False).recordings}
+    keep: dict[str, tuple[str, ...]] = {}
+    for path in paths:
+        old = previous.get(_source_key(path))
+        if old is None:
+            continue
+        if len(old.decisions):
+            raise ResultsFileError(
+                out, f"already holds {len(old.decisions)} review decision(s) for {path}, which a batch would replace",
+                "re-analyse reviewed recordings with `upstroke analyze --out`, or write the batch to a new results file",
+            )
+        keep[path] = tuple(conditions) if conditions else tuple(c.text() for c in old.conditions)
+    return keep

@@ -19,7 +19,7 @@ from typing import Sequence
 from analysis.errors import InputError
 
 #: Subcommand modules under app.commands, in the order ``upstroke --help`` lists them.
-COMMANDS: tuple[str, ...] = ("info", "analyze", "export")
+COMMANDS: tuple[str, ...] = ("info", "analyze", "batch", "export")
 
 EXIT_OK = 0
 EXIT_FAULT = 1
@@ -30,7 +30,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse with one-line errors and exit status 2, as for any other wrong input."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        self.exit(EXIT_INPUT, f"upstroke {self.prog.split(' ', 1)[-1]}: {message}; see --help\n")
+        self.exit(EXIT_INPUT, f"{self.prog}: {message}; see `{self.prog} --help`\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
