@@ -301,6 +301,8 @@ def _read_columns(group) -> dict[str, np.ndarray]:
             out[name] = np.array([_text(v) for v in np.ravel(ds.asstr()[()])], dtype=object)
         else:
             out[name] = ds[()]
+        if np.ndim(out[name]) != 1 or len(out[name]) != len(next(iter(out.values()))):
+            raise ValueError(f"{ds.name} is not a column as long as the others of its table")
     return out
 
 

@@ -50,6 +50,14 @@ def _first_beats_column(f) -> str:
                else f[REC + "/beats"].attrs["columns"][0])
 
 
+def _replace_first(f, table: str, data) -> None:
+    """Replace the first column of a stored table (its ``columns`` attribute names them)."""
+    first = f[table].attrs["columns"][0]
+    name = first.decode() if isinstance(first, bytes) else str(first)
+    del f[f"{table}/{name}"]
+    f[table].create_dataset(name, data=data)
+
+
 def _replace_column(f, data=None, **create) -> None:
     name = _first_beats_column(f)
     del f[f"{REC}/beats/{name}"]
@@ -102,6 +110,10 @@ def build(folder: Path) -> list[Case]:
          "a beats column of opaque bytes", False),
         ("results-column-length", lambda f: _replace_column(f, np.zeros(7)), _DAMAGED + r"|length",
          "a beats column longer than the others", False),
+        ("results-summary-column-length", lambda f: _replace_first(f, REC + "/summary", np.zeros(0)), _DAMAGED,
+         "one summary column emptied (found by the hypothesis fuzzer: it crashed the session)", False),
+        ("results-beats-column-2d", lambda f: _replace_first(f, REC + "/beats", np.zeros((3, 2))), _DAMAGED,
+         "a beats column stored as a 3 x 2 table", False),
         ("results-huge-unstored-column", lambda f: _replace_column(f, None, shape=(10**12,), dtype="f8", chunks=(4096,)),
          r"declares|stores|holds|damaged", "a beats column declaring 10^12 rows, none stored", True),
         ("results-long-settings-text", _set_text(REC + "/settings", "S" * 5_000_000), r"too long|characters",
