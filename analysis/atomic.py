@@ -147,6 +147,59 @@ class WriteError(InputError):
         return cls(path, f"cannot be written ({reason})", fix)
 
 
+@contextlib.contextmanager
+def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
+    """Temporary paths for several outputs, moved over their targets only when all are written.
+
+    A failure while any of them is written (an error, a full disk) removes every temporary file
+    and leaves every target as it was, so a command with several outputs writes all or none.
+    The final moves happen one after another once everything is complete and flushed. An
+    OSError (or a :class:`WriteError` from a writer) becomes a :class:`WriteError` naming the
+    target it concerns.
+
+    Parameters
+    ----------
+    paths : list of str or path
+        The final files, each in an existing folder.
+
+    Yields
+    ------
+    list of str
+        One temporary path per target, in the same order.
+    """
+    targets = [os.path.abspath(os.fspath(p)) for p in paths]
+    temps: list[str] = []
+    try:
+        for target in targets:
+            _remove_stale(target)
+            fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=os.path.dirname(target))
+            os.close(fd)
+            temps.append(tmp)
+        yield list(temps)
+        for tmp, target in zip(temps, targets):
+            _fsync_path(tmp)
+            os.chmod(tmp, _mode_for(target))
+        for tmp, target in zip(temps, targets):
+            os.replace(tmp, target)
+    except BaseException as exc:
+        for tmp in temps:
+            with contextlib.suppress(OSError):
+                os.remove(tmp)
+        if isinstance(exc, (OSError, WriteError)):
+            # Name the output the user asked for, not its temporary file.
+            where = getattr(exc, "path", None) or getattr(exc, "filename", None) or ""
+            target = next(
+                (t for t, tmp in zip(targets, temps) if os.path.basename(tmp) in os.fspath(where)),
+                next((t for t in targets if temp_prefix(t) in os.fspath(where)), targets[0] if targets else where),
+            )
+            if isinstance(exc, WriteError):
+                raise WriteError(target, exc.problem, exc.fix) from None
+            raise WriteError.of(target, exc) from None
+        raise
+    for folder in sorted({os.path.dirname(t) for t in targets}):
+        _fsync_folder(folder)
+
+
 def write_text_atomic(path: str | os.PathLike, text: str) -> None:
     """Write ``text`` (UTF-8, ``\\n`` line ends as given) to ``path`` atomically."""
     with atomic_output(path) as tmp:

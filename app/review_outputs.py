@@ -144,7 +144,9 @@ def write_summary(results: Sequence, path: str) -> None:
 
 
 def write_results(results: Sequence, path: str) -> None:
-    """Save the session :func:`review` built to the results file (atomically)."""
-    results.session.save(path)
+    """Save the session :func:`review` built to ``path`` (a temporary file the command moves into place)."""
+    from analysis.session_io import save_session
+
+    save_session(results.session, path)
     for label, n in results.kept.items():
-        print(f"{label}: kept its {n} saved review decision(s) in {path}")
+        print(f"{label}: kept its {n} saved review decision(s)")

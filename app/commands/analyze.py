@@ -147,8 +147,14 @@ OUTPUT_WRITERS: list[tuple[str, Callable[[Sequence, str], None]]] = [
 
 
 def write_outputs(args: argparse.Namespace, results: Sequence) -> list[str]:
-    """Write every output the arguments ask for; returns the paths written."""
-    written = []
+    """Write every output the arguments ask for, all or none; returns the paths written.
+
+    Each writer writes to a temporary file beside its target; the targets are replaced only
+    once every output is complete, so a failure in any (a full disk) leaves all as they were.
+    """
+    from analysis.atomic import atomic_outputs
+
+    targets = []
     inputs = {os.path.abspath(f) for f in getattr(args, "files", ())}
     for name, writer in OUTPUT_WRITERS:
         path = getattr(args, name, None)
@@ -161,12 +167,16 @@ def write_outputs(args: argparse.Namespace, results: Sequence) -> list[str]:
             raise OutputError(path, "the output folder does not exist", "create it or write elsewhere")
         if os.path.isdir(path):
             raise OutputError(path, "is a folder", "give a file name")
-        try:
-            writer(results, path)
-        except PermissionError:
-            raise OutputError(path, "cannot be written (permission denied)", "choose a folder you can write to") from None
-        written.append(path)
-    return written
+        targets.append((path, writer))
+    current = targets[0][0] if targets else None
+    try:
+        with atomic_outputs([p for p, _ in targets]) as temps:
+            for (path, writer), tmp in zip(targets, temps):
+                current = path
+                writer(results, tmp)
+    except PermissionError:
+        raise OutputError(current, "cannot be written (permission denied)", "choose a folder you can write to") from None
+    return [p for p, _ in targets]
 
 
 def _mean(values: np.ndarray) -> float:

@@ -7,8 +7,9 @@ per file x sweep group x condition, as saved), and with ``--figures`` one SVG pe
 its per-beat time courses (rate, APD90, DDR, MDP; accepted beats filled, rejected ones open,
 conditions shaded). Without an output option it lists what the file holds.
 
-Every output is built in memory first, then written to a temporary file beside its target and
-moved into place, so a failure leaves no partial file and never replaces a good one.
+Every output is built in memory first, then written to a temporary file beside its target; the
+targets are replaced only once all are written, so a failure leaves no partial file, replaces no
+good one, and writes none of the others (a figures folder it created is removed again).
 """
 
 from __future__ import annotations
@@ -16,6 +17,7 @@ from __future__ import annotations
 import argparse
 import os
 import re
+import shutil
 import sys
 from typing import Any
 
@@ -109,7 +111,7 @@ def _describe(session, results: str) -> list[str]:
 
 def run(args: argparse.Namespace) -> int:
     """Export what the options ask for; 0 on success (bad input raises InputError, exit 2)."""
-    from analysis.atomic import write_text_atomic
+    from analysis.atomic import atomic_outputs
     from analysis.session import Session
 
     session = Session.open(args.results)
@@ -135,12 +137,19 @@ def run(args: argparse.Namespace) -> int:
     if not outputs:
         print("\n".join(_describe(session, args.results)))
         return 0
-    if args.figures:
-        os.makedirs(args.figures, exist_ok=True)
-    for path, text in outputs:
-        try:
-            write_text_atomic(path, text)
-        except PermissionError:
-            raise ExportError(path, "cannot be written (permission denied)", "choose a folder you can write to") from None
+    made = bool(args.figures) and not os.path.isdir(args.figures)
+    try:
+        if made:
+            os.makedirs(args.figures)
+        # All or none: the targets are replaced only once every output is written.
+        with atomic_outputs([path for path, _ in outputs]) as temps:
+            for (path, text), tmp in zip(outputs, temps):
+                with open(tmp, "w", encoding="utf-8", newline="") as fh:
+                    fh.write(text)
+    except BaseException:
+        if made:
+            shutil.rmtree(args.figures, ignore_errors=True)
+        raise
+    for path, _ in outputs:
         print(f"wrote {path}")
     return 0
