@@ -22,9 +22,12 @@ class SpanBands(pg.GraphicsObject):
         Overlay a diagonal hatch (used for rejected beats, so they stay distinct in grey print).
     label_colour : str or None
         Colour of the per-band labels, drawn along the top when a band is wide enough.
+    label_row : int
+        Which line from the top the labels go on (so several kinds of band can be labelled).
     """
 
-    def __init__(self, *, hatch: bool = False, label_colour: str | None = None, z: float = -10) -> None:
+    def __init__(self, *, hatch: bool = False, label_colour: str | None = None, z: float = -10,
+                 label_row: int = 0) -> None:
         super().__init__()
         self._t0 = np.empty(0)
         self._t1 = np.empty(0)
@@ -32,6 +35,7 @@ class SpanBands(pg.GraphicsObject):
         self._hatch_brushes: list[QtGui.QBrush] = []
         self._labels: list[str] = []
         self._hatch = hatch
+        self._label_row = int(label_row)
         self._label_pen = QtGui.QPen(QtGui.QColor(label_colour)) if label_colour else None
         self._bounds = QtCore.QRectF()
         self.setZValue(z)
@@ -74,6 +78,14 @@ class SpanBands(pg.GraphicsObject):
         return None  # never widen the view to show bands
 
     def viewRangeChanged(self) -> None:  # noqa: N802
+        # pyqtgraph keeps the view rectangle cached until the transform changes; drop it here
+        # so the bands follow the new range at once.
+        self._cachedView = None
+        self.prepareGeometryChange()
+        self._update_bounds()
+
+    def viewTransformChanged(self) -> None:  # noqa: N802
+        super().viewTransformChanged()
         self.prepareGeometryChange()
         self._update_bounds()
 
@@ -103,24 +115,28 @@ class SpanBands(pg.GraphicsObject):
                 painter.fillRect(rect, self._hatch_brushes[i])
         if self._label_pen is None or not self._labels:
             return
-        # Labels in device pixels so the text is not stretched by the data scale.
+        # Labels in pixels: scale the painter by the inverse of the data-to-pixel scale at each
+        # label, so the text is neither stretched nor flipped (and stays right when the widget is
+        # rendered into another device, as for screenshots).
         tr = painter.deviceTransform()
-        painter.save()
-        painter.resetTransform()
-        painter.setPen(self._label_pen)
+        sx, sy = tr.m11(), tr.m22()
+        if sx == 0 or sy == 0:
+            return
         font = painter.font()
         font.setPointSizeF(8.5)
-        painter.setFont(font)
         metrics = QtGui.QFontMetrics(font)
-        y_top = tr.map(QtCore.QPointF(vr.left(), vr.bottom())).y()
-        y_bottom = tr.map(QtCore.QPointF(vr.left(), vr.top())).y()
-        y = min(y_top, y_bottom) + metrics.ascent() + 2
+        y_screen_top = vr.bottom() if sy < 0 else vr.top()
         for i in visible:
             if i >= len(self._labels) or not self._labels[i]:
                 continue
-            a = tr.map(QtCore.QPointF(self._t0[i], 0)).x()
-            b = tr.map(QtCore.QPointF(self._t1[i], 0)).x()
             width = metrics.horizontalAdvance(self._labels[i])
-            if abs(b - a) >= width + 4:
-                painter.drawText(QtCore.QPointF((a + b - width) / 2, y), self._labels[i])
-        painter.restore()
+            if abs((self._t1[i] - self._t0[i]) * sx) < width + 4:
+                continue
+            painter.save()
+            painter.translate(QtCore.QPointF((self._t0[i] + self._t1[i]) / 2, y_screen_top))
+            painter.scale(1.0 / sx, 1.0 / sy)
+            painter.setFont(font)
+            painter.setPen(self._label_pen)
+            y = metrics.ascent() + 2 + self._label_row * (metrics.height() + 1)
+            painter.drawText(QtCore.QPointF(-width / 2, y), self._labels[i])
+            painter.restore()

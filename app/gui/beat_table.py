@@ -18,19 +18,19 @@ from . import palette
 __all__ = ["BeatTableModel", "BeatTableView", "SHOWN_COLUMNS", "header_label"]
 
 _BY_NAME = {c.name: c for c in COLUMNS}
-#: Columns shown, in order ("reject_reason" after the decision).
+#: Columns shown, in order: where and whether, the measured values, then the words.
 SHOWN_COLUMNS = (
-    "sweep", "beat", "t_upstroke_s", "accepted", "reject_reason", "flags", "condition",
-    "cl_ms", "rate_bpm", "mdp_mV", "top_mV", "ddr_mV_per_s", "ddr100_mV_per_s",
-    "dvdt_max_V_per_s", "peak_mV", "apa_mV", "apd20_ms", "apd50_ms", "apd90_ms",
+    "sweep", "beat", "t_upstroke_s", "accepted", "cl_ms", "rate_bpm", "mdp_mV", "top_mV",
+    "ddr_mV_per_s", "ddr100_mV_per_s", "dvdt_max_V_per_s", "peak_mV", "apa_mV", "apd20_ms",
+    "apd50_ms", "apd90_ms", "condition", "flags", "reject_reason",
 )
 _LABELS = {
-    "sweep": "sweep", "beat": "beat", "t_upstroke_s": "upstroke (s)", "accepted": "kept",
-    "reject_reason": "reason", "flags": "flags", "condition": "condition", "cl_ms": "CL (ms)",
-    "rate_bpm": "rate (bpm)", "mdp_mV": "MDP (mV)", "top_mV": "TOP (mV)",
-    "ddr_mV_per_s": "DDR (mV/s)", "ddr100_mV_per_s": "DDR100 (mV/s)",
-    "dvdt_max_V_per_s": "dV/dt max (V/s)", "peak_mV": "peak (mV)", "apa_mV": "APA (mV)",
-    "apd20_ms": "APD20 (ms)", "apd50_ms": "APD50 (ms)", "apd90_ms": "APD90 (ms)",
+    "sweep": "sweep", "beat": "beat", "t_upstroke_s": "upstroke\n(s)", "accepted": "kept",
+    "reject_reason": "reason", "flags": "flags", "condition": "condition", "cl_ms": "CL\n(ms)",
+    "rate_bpm": "rate\n(bpm)", "mdp_mV": "MDP\n(mV)", "top_mV": "TOP\n(mV)",
+    "ddr_mV_per_s": "DDR\n(mV/s)", "ddr100_mV_per_s": "DDR100\n(mV/s)",
+    "dvdt_max_V_per_s": "dV/dt max\n(V/s)", "peak_mV": "peak\n(mV)", "apa_mV": "APA\n(mV)",
+    "apd20_ms": "APD20\n(ms)", "apd50_ms": "APD50\n(ms)", "apd90_ms": "APD90\n(ms)",
 }
 
 

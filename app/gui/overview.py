@@ -90,13 +90,13 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
         for plot, label, units in ((self.trace_plot, "V", "mV"), (self.rate_plot, "rate", "bpm")):
             plot.setMenuEnabled(False)
             plot.hideButtons()
-            plot.setLabel("left", label, units=units)
+            plot.setLabel("left", f"{label} ({units})", **{"font-size": "8pt"})
             plot.getAxis("left").setWidth(58)
             for axis in ("left", "bottom"):
                 plot.getAxis(axis).setPen(palette.INK)
                 plot.getAxis(axis).setTextPen(palette.INK)
         self.trace_plot.getAxis("bottom").setStyle(showValues=False)
-        self.rate_plot.setLabel("bottom", "time in recording", units="s")
+        self.rate_plot.setLabel("bottom", "time in recording (s)", **{"font-size": "8pt"})
 
         self.envelope = pg.PlotDataItem(pen=pg.mkPen(palette.ENVELOPE, width=1), connect="finite")
         self.trace_plot.addItem(self.envelope)

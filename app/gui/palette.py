@@ -11,18 +11,19 @@ from __future__ import annotations
 PAPER = "#fbfaf6"
 INK = "#26303b"
 GRID_ALPHA = 0.12
+GRID = "#e7e4dc"
 
 #: The membrane potential trace and the overview envelope.
 TRACE = "#1d3557"
-TRACE_WIDTH = 1.2
+TRACE_WIDTH = 1  # a one-pixel cosmetic pen: wider pens cost Qt's raster engine a stroke per segment
 ENVELOPE = "#45617f"
 RATE = "#b5452b"
 
 #: Marker kinds drawn on every beat: (label, colour, pyqtgraph symbol, size in px).
 MARKERS = {
-    "upstroke": ("upstroke (dV/dt max)", "#d1495b", "t1", 11),
+    "upstroke": ("upstroke", "#d1495b", "t1", 11),
     "mdp": ("MDP", "#0b7a75", "t", 10),
-    "top": ("take-off", "#e09f1f", "d", 10),
+    "top": ("TOP", "#e09f1f", "d", 10),
     "peak": ("peak", "#6a4c93", "o", 9),
     "apd90": ("APD90", "#2a9d3f", "s", 8),
 }
@@ -31,6 +32,12 @@ MARKERS = {
 REJECTED_MARKER = "#9aa0a6"
 REJECTED_BAND = (196, 64, 64, 46)
 REJECTED_LABEL = "#9b2c2c"
+
+#: Accepted beats carrying a flag the review should look at (EAD, DAD, pause, noise...);
+#: the flags every first or last beat carries are left quiet.
+FLAG_BAND = (224, 159, 31, 34)
+FLAG_LABEL = "#8a5a00"
+QUIET_FLAGS = ("no_diastole", "truncated")
 
 #: The beat under review.
 CURRENT_BAND = (29, 53, 87, 28)

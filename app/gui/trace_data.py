@@ -78,16 +78,21 @@ class SweepLevels:
     channel : int
     raw_limit : int
         Views spanning at most this many samples are drawn from raw samples; wider views from
-        the envelope once it is built (:meth:`build_envelope`).
+        the envelope once it is built (:meth:`build_envelope`). The envelope's finest bins are
+        :data:`BIN_SAMPLES` wide, so a wider view loses nothing a screen could show.
+    raw_limit_unbuilt : int
+        The same limit while the envelope is still being built (so the first view is exact).
     """
 
-    def __init__(self, recording: Recording, sweep: int, channel: int, *, raw_limit: int = 1_000_000) -> None:
+    def __init__(self, recording: Recording, sweep: int, channel: int, *, raw_limit: int = 200_000,
+                 raw_limit_unbuilt: int = 4_000_000) -> None:
         self.recording = recording
         self.sweep = int(sweep)
         self.channel = int(channel)
         self.fs_hz = recording.sampling_rate_hz
         self.n_samples = recording.n_samples(sweep)
         self.raw_limit = int(raw_limit)
+        self.raw_limit_unbuilt = max(int(raw_limit_unbuilt), self.raw_limit)
         # levels[k] = (lo, hi) with bins of BIN_SAMPLES * LEVEL_FACTOR**k samples
         self._levels: list[tuple[np.ndarray, np.ndarray]] = []
         self._lock = threading.Lock()
@@ -203,7 +208,7 @@ class SweepLevels:
         if span <= self.raw_limit:
             return 1
         if not self.envelope_ready:
-            return -1
+            return 1 if span <= self.raw_limit_unbuilt else -1
         width = best = BIN_SAMPLES
         for _ in self._levels[1:]:
             width *= LEVEL_FACTOR

@@ -33,6 +33,9 @@ MARKER_COLUMNS = {
 }
 #: The trace view's initial width (a dozen beats of a nodal-like cell), in seconds.
 DEFAULT_WINDOW_S = 10.0
+#: With more beats than this in view, markers and phases are left out: at that density they
+#: are a smear, and drawing thousands of symbols would slow panning (rejections stay shown).
+MAX_DETAILED_BEATS = 400
 
 
 def _col(beats: BeatTable, name: str, rows: np.ndarray) -> np.ndarray:
@@ -71,9 +74,16 @@ class TraceView(pg.PlotWidget):
         self._current_row = -1
         self._painted = False
         self._marker_data: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+        self._upstrokes_sorted = np.empty(0)
+        self._detailed = True
+        self._phases_wanted = False
 
         plot = self.getPlotItem()
-        plot.showGrid(x=True, y=True, alpha=palette.GRID_ALPHA)
+        # A grid item rather than the axes' own grid lines: those are replayed from a picture on
+        # every frame and cost more than the trace itself while panning.
+        grid = pg.GridItem(pen=pg.mkPen(palette.GRID), textPen=None)
+        grid.setZValue(-50)
+        plot.addItem(grid, ignoreBounds=True)
         plot.setLabel("bottom", "time in sweep", units="s")
         plot.setMenuEnabled(False)
         for axis in ("left", "bottom"):
@@ -83,16 +93,18 @@ class TraceView(pg.PlotWidget):
         self.vb.setMouseMode(pg.ViewBox.PanMode)
         self.vb.disableAutoRange()
 
-        self.curve = pg.PlotDataItem(
-            pen=pg.mkPen(palette.TRACE, width=palette.TRACE_WIDTH),
-            clipToView=True, autoDownsample=True, downsampleMethod="peak", skipFiniteCheck=True,
-        )
+        self.curve = pg.PlotDataItem(pen=pg.mkPen(palette.TRACE, width=palette.TRACE_WIDTH), skipFiniteCheck=True)
+        # The plot hands its own clip and downsampling modes to every curve it adds, so they are
+        # set on the plot (the item's constructor options would be overwritten).
+        plot.setClipToView(True)
+        plot.setDownsampling(auto=True, mode="peak")
         plot.addItem(self.curve)
 
         self.phase_bands = SpanBands(label_colour=palette.INK, z=-30)
-        self.reject_bands = SpanBands(hatch=True, label_colour=palette.REJECTED_LABEL, z=-20)
+        self.reject_bands = SpanBands(hatch=True, label_colour=palette.REJECTED_LABEL, z=-20, label_row=1)
         self.current_band = SpanBands(z=-25)
-        for item in (self.phase_bands, self.reject_bands, self.current_band):
+        self.flag_bands = SpanBands(label_colour=palette.FLAG_LABEL, z=-22, label_row=1)
+        for item in (self.phase_bands, self.reject_bands, self.current_band, self.flag_bands):
             plot.addItem(item, ignoreBounds=True)
         self.phase_bands.setVisible(False)
 
@@ -114,7 +126,7 @@ class TraceView(pg.PlotWidget):
                                                    brush=None, name="rejected beat")
         self.rejected_markers.setZValue(9)
         plot.addItem(self.rejected_markers)
-        self.legend.addItem(self.rejected_markers, "rejected beat")
+        self.legend.addItem(self.rejected_markers, "rejected")
 
         self.cursor_lines: list[pg.InfiniteLine] = []
         for colour, label in palette.CURSORS:
@@ -200,10 +212,12 @@ class TraceView(pg.PlotWidget):
         self.vb.setYRange(lo - pad, hi + 1.8 * pad, padding=0.0)  # room at the top for labels
 
     def set_phases_visible(self, visible: bool) -> None:
-        self.phase_bands.setVisible(bool(visible))
+        self._phases_wanted = bool(visible)
+        self.phase_bands.setVisible(self._phases_wanted and self._detailed)
 
     def phases_visible(self) -> bool:
-        return self.phase_bands.isVisible()
+        """Whether phases are switched on (they hide while too many beats are in view)."""
+        return self._phases_wanted
 
     def set_current_beat(self, row: int, *, follow: bool = True) -> None:
         """Highlight a beat (row of the full table); with ``follow``, scroll it into view."""
@@ -243,13 +257,36 @@ class TraceView(pg.PlotWidget):
         if emit:
             self._emit_cursors()
 
+    def set_readout_text(self, text: str) -> None:
+        """A one-line cursor readout in the title row, left of the legend ("" clears it), so the
+        numbers sit beside the trace without covering it."""
+        self.getPlotItem().titleLabel.setText(text or " ", justify="left", size="9pt", color=palette.INK)
+
+    def readout_line(self) -> str:
+        return self.getPlotItem().titleLabel.text
+
     def _emit_cursors(self, *_args) -> None:
         self.cursors_finished.emit(*self.cursor_times())
 
     # -- drawing -------------------------------------------------------------------------------
     def _on_x_range(self, *_args) -> None:
         self._refresh_curve()
+        self._update_detail()
         self.view_changed.emit(*self.x_range())
+
+    def beats_in_view(self) -> int:
+        if not len(self._upstrokes_sorted):
+            return 0
+        x0, x1 = self.x_range()
+        return int(np.searchsorted(self._upstrokes_sorted, x1) - np.searchsorted(self._upstrokes_sorted, x0))
+
+    def _update_detail(self) -> None:
+        detailed = self.beats_in_view() <= MAX_DETAILED_BEATS
+        if detailed != self._detailed:
+            self._detailed = detailed
+            for item in self.markers.values():
+                item.setVisible(detailed)
+            self.phase_bands.setVisible(detailed and self._phases_wanted)
 
     def _refresh_curve(self, force: bool = False) -> None:
         if self._levels is None:
@@ -284,15 +321,17 @@ class TraceView(pg.PlotWidget):
         self._marker_data = {}
         if b is None or levels is None or not len(b) or "t_upstroke_s" not in b:
             self._rows = np.empty(0, dtype=np.int64)
+            self._upstrokes_sorted = np.empty(0)
             for item in (*self.markers.values(), self.rejected_markers):
                 item.setData([], [])
-            for bands in (self.phase_bands, self.reject_bands, self.current_band):
+            for bands in (self.phase_bands, self.reject_bands, self.current_band, self.flag_bands):
                 bands.set_bands([], [], [])
             return
         sweeps = np.asarray(b["sweep"]) if "sweep" in b else np.zeros(len(b), dtype=np.int64)
         rows = np.flatnonzero(sweeps == levels.sweep)
         rows = rows[np.argsort(np.asarray(b["t_upstroke_s"])[rows], kind="stable")]
         self._rows = rows
+        self._upstrokes_sorted = np.asarray(b["t_upstroke_s"], dtype=np.float64)[rows]
         accepted = (np.asarray(b["accepted"])[rows] != 0) if "accepted" in b else np.ones(len(rows), bool)
 
         if "i_upstroke" in b:
@@ -313,6 +352,13 @@ class TraceView(pg.PlotWidget):
         reasons = b.get("reject_reason")
         labels = [f"✕ {reasons[r]}" if reasons is not None and reasons[r] else "✕ rejected" for r in rej]
         self.reject_bands.set_bands(a, e, [palette.REJECTED_BAND] * len(rej), labels)
+        # Flags the review should look at (accepted beats; a rejected one shows its reason).
+        flags = np.asarray(b["flags"], dtype=object)[rows] if "flags" in b else np.full(len(rows), "", dtype=object)
+        words = [";".join(w for w in str(f).split(";") if w and w not in palette.QUIET_FLAGS) for f in flags]
+        flagged = np.array([bool(w) for w in words], dtype=bool) & accepted
+        fa, fe = self._beat_extent(rows[flagged])
+        self.flag_bands.set_bands(fa, fe, [palette.FLAG_BAND] * int(flagged.sum()),
+                                  [f"⚑ {w.replace(';', ', ')}" for w, f in zip(words, flagged) if f])
 
         spans = phase_spans(b, rows=rows)
         self.phase_bands.set_bands(
@@ -320,6 +366,7 @@ class TraceView(pg.PlotWidget):
             [str(int(p)) for p in spans.phase],
         )
         self.set_current_beat(self._current_row, follow=False)
+        self._update_detail()
 
     # -- hover and click -----------------------------------------------------------------------
     def beat_at(self, t_s: float) -> int:

@@ -29,12 +29,13 @@ def test_envelope_is_numpy_min_max_per_bin():
 
 def test_short_view_is_raw_samples_with_a_margin_and_long_view_is_an_envelope():
     rec = _rec()
-    lv = SweepLevels(rec, 0, 0, raw_limit=50_000)
+    lv = SweepLevels(rec, 0, 0, raw_limit=50_000, raw_limit_unbuilt=100_000)
     raw = lv.for_view(10.0, 12.0, 800)
     assert raw.bin_samples == 1
     # view = samples 100000..120000 (20001 of them), plus one view width each side, by hand
     assert raw.first_sample == 79_999 and raw.stop_sample == 140_002
     assert np.array_equal(raw.y, rec.sweep(0, start=79_999, stop=140_002))
+    assert lv.for_view(0.0, 8.0, 800).bin_samples == 1  # exact samples while the envelope is built
     preview = lv.for_view(0.0, 30.0, 800)
     assert preview.bin_samples == -1  # envelope not built yet: a preview, not a stall
     lv.build_envelope()
