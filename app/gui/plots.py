@@ -1,0 +1,373 @@
+"""Figures of a recording's accepted beats, by condition, each exportable to PNG or SVG.
+
+* aligned beats with each condition's ensemble average;
+* the phase plane (dV/dt against V) of each condition's average beat and of the selected beat;
+* the time course of rate, APD90 and DDR per beat, with the conditions as bands;
+* the Poincare plot of successive cycle lengths;
+* DDR against CL per beat, coloured by condition, with each condition's fitted line.
+
+Every number drawn comes from :mod:`analysis.plotdata` (and through it the core's variability
+module); this module only draws.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyqtgraph as pg
+import pyqtgraph.exporters  # noqa: F401  (registers the exporters)
+from PySide6 import QtCore, QtWidgets
+
+from analysis import plotdata
+from analysis.recording import Recording
+from analysis.table import BeatTable
+
+from . import palette
+from .bands import SpanBands
+
+__all__ = ["FigureInput", "FiguresPanel", "export_figure", "FIGURES"]
+
+
+@dataclass
+class FigureInput:
+    """What the figures are drawn from.
+
+    ``groups`` are ``(name, colour)`` in display order; a beat's group is its ``condition``
+    column (beats outside every condition form the group ``""``, shown as "outside conditions").
+    ``spans`` are the conditions as ``(name, start_s, end_s, colour)`` in recording time.
+    """
+
+    recording: Recording
+    beats: BeatTable
+    channel: int = 0
+    offset_mV: float = 0.0
+    groups: list[tuple[str, str]] = field(default_factory=list)
+    spans: list[tuple[str, float, float, str]] = field(default_factory=list)
+    current_row: int = -1
+
+
+def _style(plot: pg.PlotItem, bottom: tuple[str, str | None], left: tuple[str, str | None]) -> None:
+    plot.showGrid(x=True, y=True, alpha=palette.GRID_ALPHA)
+    plot.setMenuEnabled(False)
+    plot.setLabel("bottom", bottom[0], units=bottom[1])
+    plot.setLabel("left", left[0], units=left[1])
+    for axis in ("left", "bottom"):
+        plot.getAxis(axis).setPen(palette.INK)
+        plot.getAxis(axis).setTextPen(palette.INK)
+        plot.getAxis(axis).enableAutoSIPrefix(False)
+
+
+def _accepted_rows(beats: BeatTable, group: str | None = None) -> np.ndarray:
+    """Accepted beats (optionally of one condition), in time order."""
+    n = len(beats)
+    ok = np.ones(n, dtype=bool) if "accepted" not in beats else np.asarray(beats["accepted"]) != 0
+    if group is not None and "condition" in beats:
+        ok &= np.asarray(beats["condition"]) == group
+    rows = np.flatnonzero(ok)
+    order = np.lexsort((np.asarray(beats["t_upstroke_s"])[rows], np.asarray(beats["sweep"])[rows]))
+    return rows[order]
+
+
+def _group_label(name: str) -> str:
+    return name or "outside conditions"
+
+
+class _Figure(pg.GraphicsLayoutWidget):
+    """A figure: one or more plots in a layout, redrawn from a :class:`FigureInput`."""
+
+    title = ""
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setBackground(palette.PAPER)
+
+    def draw(self, data: FigureInput) -> None:  # pragma: no cover - overridden
+        raise NotImplementedError
+
+    def export_item(self):
+        return self.ci
+
+
+class AlignedBeatsFigure(_Figure):
+    title = "Aligned beats"
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = self.addPlot()
+        _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
+        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+        self.averages: dict[str, plotdata.AlignedBeats] = {}
+
+    def draw(self, data: FigureInput) -> None:
+        self.plot.clear()
+        self.legend.clear()
+        self.averages = {}
+        # One time base for every condition, set by the shortest typical cycle, so that no
+        # window reaches into the next beat.
+        groups = [(name, colour, _accepted_rows(data.beats, name)) for name, colour in data.groups]
+        cls = [np.nanmedian(np.asarray(data.beats["cl_ms"], float)[rows]) for _n, _c, rows in groups
+               if rows.size and "cl_ms" in data.beats and np.isfinite(np.asarray(data.beats["cl_ms"], float)[rows]).any()]
+        cl = float(min(cls)) if cls else 800.0
+        for name, colour, rows in groups:
+            if not rows.size:
+                continue
+            aligned = plotdata.aligned_beats(
+                data.recording, data.beats, rows, channel=data.channel, offset_mV=data.offset_mV,
+                before_ms=0.3 * cl, after_ms=0.65 * cl, max_beats=30,
+            )
+            self.averages[name] = aligned
+            faint = pg.mkPen(palette.rgba(colour, 30), width=1)
+            for trace in aligned.traces:
+                self.plot.plot(aligned.t_ms, trace, pen=faint)
+            self.plot.plot(aligned.t_ms, aligned.mean, pen=pg.mkPen(colour, width=2.6),
+                           name=f"{_group_label(name)}: mean of {rows.size} beats")
+
+
+class PhasePlaneFigure(_Figure):
+    title = "Phase plane"
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = self.addPlot()
+        _style(self.plot, ("V", "mV"), ("dV/dt", "V/s"))
+        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+
+    def draw(self, data: FigureInput, averages: dict[str, plotdata.AlignedBeats] | None = None) -> None:
+        self.plot.clear()
+        self.legend.clear()
+        fs = data.recording.sampling_rate_hz
+        colours = dict(data.groups)
+        for name, aligned in (averages or {}).items():
+            v, dvdt = plotdata.phase_plane(aligned.mean, fs)
+            self.plot.plot(v, dvdt, pen=pg.mkPen(colours.get(name, palette.TRACE), width=2.2),
+                           name=f"{_group_label(name)}: average beat")
+        r = data.current_row
+        if 0 <= r < len(data.beats):
+            one = plotdata.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
+                                         offset_mV=data.offset_mV, before_ms=250, after_ms=500)
+            v, dvdt = plotdata.phase_plane(one.traces[0], fs)
+            self.plot.plot(v, dvdt, pen=pg.mkPen(palette.INK, width=1, style=QtCore.Qt.DashLine),
+                           name=f"selected beat (sweep {int(data.beats['sweep'][r])}, beat {int(data.beats['beat'][r])})")
+
+
+class TimeCourseFigure(_Figure):
+    title = "Time course"
+    #: (column, label, unit) of the three stacked plots.
+    ROWS = (("rate_bpm", "rate", "bpm"), ("apd90_ms", "APD90", "ms"), ("ddr_mV_per_s", "DDR", "mV/s"))
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plots: list[pg.PlotItem] = []
+        self.bands: list[SpanBands] = []
+        for i, (_col, label, unit) in enumerate(self.ROWS):
+            plot = self.addPlot(row=i, col=0)
+            _style(plot, ("time in recording", "s") if i == len(self.ROWS) - 1 else ("", None), (label, unit))
+            plot.getAxis("left").setWidth(62)
+            if self.plots:
+                plot.setXLink(self.plots[0])
+            bands = SpanBands(label_colour=palette.INK if i == 0 else None, z=-20)
+            plot.addItem(bands, ignoreBounds=True)
+            self.plots.append(plot)
+            self.bands.append(bands)
+        self.points: list[pg.ScatterPlotItem] = []
+
+    def draw(self, data: FigureInput) -> None:
+        rows = _accepted_rows(data.beats)
+        t = plotdata.recording_times_s(data.beats, data.recording.sweep_starts_s)[rows] if rows.size else np.empty(0)
+        names = np.asarray(data.beats["condition"])[rows] if "condition" in data.beats else np.full(rows.size, "")
+        colours = dict(data.groups)
+        brushes = [pg.mkBrush(colours.get(n, palette.TRACE)) for n in names]
+        rec = data.recording
+        rec_end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
+        for plot, bands, (col, _label, _unit) in zip(self.plots, self.bands, self.ROWS):
+            for item in list(plot.listDataItems()):
+                plot.removeItem(item)
+            y = np.asarray(data.beats[col], dtype=float)[rows] if col in data.beats else np.full(rows.size, np.nan)
+            ok = np.isfinite(y)
+            plot.addItem(pg.ScatterPlotItem(t[ok], y[ok], size=4, pen=None, brush=[b for b, k in zip(brushes, ok) if k]))
+            bands.set_bands([s[1] for s in data.spans], [min(s[2], rec_end) for s in data.spans],
+                            [palette.rgba(s[3], 40) for s in data.spans], [s[0] for s in data.spans])
+            plot.enableAutoRange()
+
+
+class PoincareFigure(_Figure):
+    title = "Poincaré"
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = self.addPlot()
+        _style(self.plot, ("CL n", "ms"), ("CL n+1", "ms"))
+        self.plot.setAspectLocked(True)
+        self.legend = self.plot.addLegend(offset=(10, 10), labelTextColor=palette.INK)
+        self.pairs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+
+    def draw(self, data: FigureInput) -> None:
+        self.plot.clear()
+        self.legend.clear()
+        self.pairs = {}
+        lo, hi = math.inf, -math.inf
+        for name, colour in data.groups:
+            x, y = plotdata.poincare_pairs(data.beats, _accepted_rows(data.beats, name))
+            if not x.size:
+                continue
+            self.pairs[name] = (x, y)
+            lo, hi = min(lo, x.min(), y.min()), max(hi, x.max(), y.max())
+            self.plot.plot(x, y, pen=None, symbol="o", symbolSize=5, symbolPen=None,
+                           symbolBrush=palette.rgba(colour, 170), name=f"{_group_label(name)} ({x.size} pairs)")
+        if math.isfinite(lo):
+            pad = 0.05 * (hi - lo) + 1.0
+            self.plot.plot([lo - pad, hi + pad], [lo - pad, hi + pad], pen=pg.mkPen(palette.INK, width=1, style=QtCore.Qt.DotLine))
+
+
+class DdrClFigure(_Figure):
+    title = "DDR vs CL"
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.plot = self.addPlot()
+        _style(self.plot, ("CL", "ms"), ("DDR", "mV/s"))
+        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+        self.fits: dict[str, plotdata.LineFit] = {}
+
+    def draw(self, data: FigureInput) -> None:
+        self.plot.clear()
+        self.legend.clear()
+        self.fits = {}
+        if "ddr_mV_per_s" not in data.beats or "cl_ms" not in data.beats:
+            return
+        for name, colour in data.groups:
+            rows = _accepted_rows(data.beats, name)
+            x = np.asarray(data.beats["cl_ms"], dtype=float)[rows]
+            y = np.asarray(data.beats["ddr_mV_per_s"], dtype=float)[rows]
+            ok = np.isfinite(x) & np.isfinite(y)
+            if not ok.any():
+                continue
+            self.plot.plot(x[ok], y[ok], pen=None, symbol="o", symbolSize=5, symbolPen=None,
+                           symbolBrush=palette.rgba(colour, 160))
+            fit = plotdata.fit_line(x, y)
+            self.fits[name] = fit
+            label = f"{_group_label(name)}: n={fit.n}"
+            if math.isfinite(fit.slope):
+                xs = np.array([x[ok].min(), x[ok].max()])
+                label += f", slope {fit.slope:.3g} mV/s per ms, r={fit.r:.2f}"
+                self.plot.plot(xs, fit.at(xs), pen=pg.mkPen(colour, width=2.2), name=label)
+            else:
+                self.plot.plot([], [], pen=pg.mkPen(colour, width=2.2), name=label + " (too few for a fit)")
+
+
+#: The figures in tab order: (key, class).
+FIGURES = (
+    ("aligned", AlignedBeatsFigure),
+    ("phase_plane", PhasePlaneFigure),
+    ("time_course", TimeCourseFigure),
+    ("poincare", PoincareFigure),
+    ("ddr_cl", DdrClFigure),
+)
+
+
+def export_figure(figure: _Figure, path: str | os.PathLike, *, width_px: int = 1600) -> str:
+    """Write a figure to PNG or SVG (by the path's extension) with pyqtgraph's exporters."""
+    path = os.fspath(path)
+    ext = os.path.splitext(path)[1].lower()
+    if ext == ".svg":
+        try:
+            pg.exporters.SVGExporter(figure.export_item()).export(path)
+        except ValueError:
+            # pyqtgraph's SVG clean-up cannot parse the closed paths ("... Z") that recent Qt
+            # versions write; Qt's own SVG generator draws the same scene.
+            _export_svg_with_qt(figure, path)
+        return path
+    if ext == ".png":
+        exporter = pg.exporters.ImageExporter(figure.export_item())
+        exporter.parameters()["width"] = width_px
+    else:
+        raise ValueError(f"{path}: figures export to .png or .svg")
+    exporter.export(path)
+    return path
+
+
+def _export_svg_with_qt(figure: _Figure, path: str) -> None:
+    from PySide6 import QtGui, QtSvg
+
+    rect = figure.export_item().sceneBoundingRect()
+    generator = QtSvg.QSvgGenerator()
+    generator.setFileName(path)
+    generator.setSize(QtCore.QSize(int(rect.width()), int(rect.height())))
+    generator.setViewBox(QtCore.QRectF(0, 0, rect.width(), rect.height()))
+    generator.setTitle(figure.title)
+    painter = QtGui.QPainter(generator)
+    try:
+        figure.scene().render(painter, QtCore.QRectF(0, 0, rect.width(), rect.height()), rect)
+    finally:
+        painter.end()
+
+
+class FiguresPanel(QtWidgets.QWidget):
+    """The figures as tabs, each with an export button; redrawn only when shown."""
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setObjectName("figures")
+        layout = QtWidgets.QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        self.tabs = QtWidgets.QTabWidget()
+        self.tabs.setDocumentMode(True)
+        self.figures: dict[str, _Figure] = {}
+        for key, cls in FIGURES:
+            fig = cls()
+            fig.setObjectName(f"figure_{key}")
+            self.figures[key] = fig
+            self.tabs.addTab(fig, cls.title)
+        export = QtWidgets.QToolButton()
+        export.setText("Export figure…")
+        export.setToolTip("Save the figure shown as PNG or SVG")
+        export.clicked.connect(self._export_dialog)
+        self.tabs.setCornerWidget(export, QtCore.Qt.TopRightCorner)
+        layout.addWidget(self.tabs)
+        self._input: FigureInput | None = None
+        self._dirty = False
+        self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
+
+    def set_input(self, data: FigureInput | None) -> None:
+        self._input = data
+        self._dirty = True
+        self._redraw_if_needed()
+
+    def redraw(self) -> None:
+        """Draw every figure now (for export and screenshots)."""
+        if self._input is None:
+            return
+        self._dirty = False
+        data = self._input
+        aligned = self.figures["aligned"]
+        aligned.draw(data)
+        self.figures["phase_plane"].draw(data, aligned.averages)
+        for key in ("time_course", "poincare", "ddr_cl"):
+            self.figures[key].draw(data)
+
+    def _redraw_if_needed(self) -> None:
+        if self._dirty and self.isVisible():
+            self.redraw()
+
+    def showEvent(self, event) -> None:  # noqa: N802
+        super().showEvent(event)
+        self._redraw_if_needed()
+
+    def export_all(self, folder: str | os.PathLike, *, fmt: str = "png", stem: str = "") -> list[str]:
+        """Write every figure into a folder; returns the paths."""
+        self.redraw()
+        os.makedirs(folder, exist_ok=True)
+        prefix = f"{stem}_" if stem else ""
+        return [export_figure(fig, os.path.join(folder, f"{prefix}{key}.{fmt}")) for key, fig in self.figures.items()]
+
+    def _export_dialog(self) -> None:
+        key = FIGURES[self.tabs.currentIndex()][0]
+        path, _ = QtWidgets.QFileDialog.getSaveFileName(self, "Export figure", f"{key}.png", "PNG image (*.png);;SVG drawing (*.svg)")
+        if path:
+            if not os.path.splitext(path)[1]:
+                path += ".png"
+            self.redraw()
+            export_figure(self.figures[key], path)
