@@ -19,7 +19,7 @@ from typing import Sequence
 from analysis.errors import InputError
 
 #: Subcommand modules under app.commands, in the order ``upstroke --help`` lists them.
-COMMANDS: tuple[str, ...] = ("info", "analyze", "batch", "export")
+COMMANDS: tuple[str, ...] = ("info", "analyze", "batch", "export", "gui", "demo")
 
 EXIT_OK = 0
 EXIT_FAULT = 1

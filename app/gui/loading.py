@@ -1,0 +1,294 @@
+"""Opening recordings and results files, analysing off the GUI thread, re-analysing.
+
+A recording's first sweep is drawn as soon as its header is read (the samples stay in the file,
+memory-mapped, until drawn); detection and measurement then run in the thread pool with a
+progress bar, and the beats appear when they are done. The envelopes that let the overview strip
+show the whole recording are built the same way.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from typing import Sequence
+
+from analysis import open_recording
+from analysis.conditions import Condition
+from analysis.errors import InputError
+from analysis.recording import Recording
+from analysis.session import Session
+
+from .autosave import Journal
+from .session_bridge import SessionBridge
+from .trace_data import SweepLevels, recording_envelope
+from .workers import Job
+
+__all__ = ["LoadingMixin", "RESULTS_EXTENSIONS"]
+
+RESULTS_EXTENSIONS = (".h5", ".hdf5")
+
+
+def _analyze(recording: Recording, settings, channel, label, report, cancelled, sweeps=None):
+    """The core's analysis, reporting its progress (samples worked) as a fraction."""
+    from analysis.pipeline import analyze
+
+    report(0.0, "detecting and measuring beats")
+    return analyze(recording, settings=settings, channel=channel, label=label, sweeps=sweeps,
+                   progress=lambda done, total: report(done / total if total else 1.0, "detecting and measuring beats"))
+
+
+def _changed_sections(old, new) -> set[str]:
+    return {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
+
+
+def _prepare_settings(session: Session, key: str, settings, report):
+    """New settings' results for one recording, computed off the GUI thread.
+
+    Changes that leave detection and measurement alone (summary or quality rules only) go
+    through :meth:`Session.prepare_settings`, which reruns just those steps. A change that needs
+    a new detection runs :func:`analysis.pipeline.analyze` here with its progress reported, and
+    is handed to the session as the same :class:`~analysis.session.SettingsChange`.
+    """
+    old = session.settings(key)
+    if _changed_sections(old, settings) <= {"summary", "quality"}:
+        report(0.0, "re-running the rules")
+        return session.prepare_settings(settings, [key])
+    from analysis.session import SettingsChange
+    from analysis.store import provenance_now
+
+    info = session.info(key)
+    beats = session.auto_beats(key)
+    label = str(beats["file"][0]) if len(beats) else None  # keep the file column as it was
+    result = _analyze(session.recording(key), settings, info.channel, label, report, lambda: False, info.sweeps)
+    return SettingsChange(settings, {key: "analysis"}, {key: result.beats}, {key: tuple(result.warnings)},
+                          {key: provenance_now()})
+
+
+class LoadingMixin:
+    """Opening, analysing and re-analysing for :class:`~app.gui.main_window.MainWindow`."""
+
+    # -- sessions ------------------------------------------------------------------------------
+    def _set_session(self, session: Session) -> None:
+        if getattr(self, "bridge", None) is not None:
+            self.bridge.detach()
+        self.session = session
+        self.bridge = SessionBridge(session, self)
+        self.bridge.decisions_changed.connect(self._on_decisions_changed)
+        self.bridge.conditions_changed.connect(self._on_conditions_changed)
+        self.bridge.results_changed.connect(self._on_results_changed)
+        self.bridge.history_changed.connect(self._update_history_actions)
+        self.bridge.warning.connect(lambda _k, text: self.status(f"warning: {text}"))
+        self.bridge.changed.connect(self._autosave)
+        self._update_history_actions()
+
+    # -- opening -------------------------------------------------------------------------------
+    def open_path(self, path: str | os.PathLike, *, conditions: Sequence[Condition] = ()) -> bool:
+        """Open a recording (analysed in the background) or a results file. False on bad input."""
+        path = os.fspath(path)
+        if not self._confirm_discard():
+            return False
+        try:
+            if Path(path).suffix.lower() in RESULTS_EXTENSIONS:
+                self.open_results(path)
+            else:
+                self.open_recording_file(open_recording(path), origin=path, conditions=conditions)
+        except InputError as exc:
+            self.show_error(exc.one_line())
+            return False
+        self.recent.add(path)
+        self._fill_recent_menu()
+        return True
+
+    def open_recording_file(self, recording: Recording, *, origin: str | None = None, label: str | None = None,
+                            conditions: Sequence[Condition] = (), result=None) -> None:
+        """Show a recording at once and analyse it in the background.
+
+        ``result`` is an :class:`~analysis.pipeline.AnalysisResult` already computed for this
+        recording with the form's settings (for example by a batch); it is used instead.
+        """
+        self.runner.cancel_all()
+        self._set_session(Session(self.settings_form.settings))
+        self.key = None
+        self.origin = origin or recording.source_path or label or "recording"
+        self.recording = recording
+        self._label = label
+        self._pending_conditions = tuple(conditions)
+        cc = recording.current_clamp_channels()
+        self.channel = cc[0] if cc else 0
+        self._show_recording(recording)
+        if result is not None:
+            self.channel = int(result.channel)
+            self._analysis_done(recording, result.settings, self.channel, result, busy=False)
+        else:
+            self._start_analysis(recording, self.channel)
+
+    def open_results(self, path: str) -> None:
+        """Open a results file: its recordings, decisions, conditions and settings."""
+        self.runner.cancel_all()
+        session = Session.open(path)
+        self._set_session(session)
+        self.origin = path
+        self.results_path = path
+        for w in session.open_warnings:
+            self.status(w)
+        if not session.recordings:
+            self.show_error(f"{path}: the results file holds no recordings; analyse one and save it")
+            return
+        self._fill_recording_combo()
+        self.select_recording(session.recordings[0])
+
+    def select_recording(self, key: str) -> None:
+        """Show one recording of the session."""
+        self.key = key
+        info = self.session.info(key)
+        self.settings_form.show_settings(self.session.settings(key))
+        self.channel = info.channel
+        try:
+            self.recording = self.session.recording(key)
+        except InputError as exc:
+            self.recording = None
+            self.show_error(exc.one_line() + " (the results are shown; traces need the recording)")
+        if self.recording is not None:
+            self._show_recording(self.recording)
+        self._after_results(restore=True)
+
+    # -- showing samples -----------------------------------------------------------------------
+    def _show_recording(self, recording: Recording) -> None:
+        self._levels: dict[int, SweepLevels] = {}
+        self._fill_channel_combo(recording)
+        self.sweep_spin.blockSignals(True)
+        self.sweep_spin.setRange(1, recording.n_sweeps)
+        self.sweep_spin.setValue(1)
+        self.sweep_spin.setSuffix(f" / {recording.n_sweeps}")
+        self.sweep_spin.blockSignals(False)
+        durations = [n / recording.sampling_rate_hz for n in recording.sweep_lengths]
+        self.overview.set_recording_geometry(recording.sweep_starts_s, durations)
+        self.sweep = -1
+        self.set_sweep(0)
+        name = self._label or (os.path.basename(recording.source_path) if recording.source_path else "recording")
+        self.setWindowTitle(f"{name}[*] — Upstroke")
+        self._start_envelopes(recording)
+
+    def levels(self, sweep: int) -> SweepLevels:
+        """Drawable samples of a sweep of the shown channel (made on first use)."""
+        if sweep not in self._levels:
+            self._levels[sweep] = SweepLevels(self.recording, sweep, self.channel)
+        return self._levels[sweep]
+
+    def _start_envelopes(self, recording: Recording) -> None:
+        channel = self.channel
+        levels = [self.levels(i) for i in range(recording.n_sweeps)]
+
+        def build(report, cancelled):
+            for i, lv in enumerate(levels):
+                if not lv.envelope_ready and not lv.build_envelope(cancelled=cancelled):
+                    return None
+                report((i + 1) / len(levels), "reading the whole recording")
+            return recording_envelope(levels, list(recording.sweep_starts_s))
+
+        job = Job(build, "envelope")
+        job.signals.finished.connect(lambda env, r=recording, c=channel: self._envelope_ready(r, c, env))
+        self.runner.start(job)
+
+    def _envelope_ready(self, recording: Recording, channel: int, envelope) -> None:
+        if envelope is None or recording is not self.recording or channel != self.channel:
+            return
+        self.overview.set_envelope(*envelope)
+        self.trace_view.refresh_samples()
+
+    # -- analysis ------------------------------------------------------------------------------
+    def _start_analysis(self, recording: Recording, channel: int) -> None:
+        settings = self.settings_form.settings
+        label = self._label
+        job = Job(lambda report, cancelled: _analyze(recording, settings, channel, label, report, cancelled), "analysis")
+        job.signals.progress.connect(self._on_progress)
+        job.signals.finished.connect(lambda result, r=recording, s=settings, c=channel: self._analysis_done(r, s, c, result))
+        job.signals.failed.connect(self._job_failed)
+        self._busy("analysing", True)
+        self.runner.start(job)
+
+    def _analysis_done(self, recording: Recording, settings, channel: int, result, busy: bool = True) -> None:
+        if busy:
+            self._busy("analysing", False)
+        if recording is not self.recording:
+            return
+        key = self.session.add(recording, settings=settings, channel=channel, result=result, label=self._label,
+                               conditions=self._pending_conditions, keep_review=False)
+        self.key = key
+        self.channel = int(result.channel)
+        self._fill_recording_combo()
+        self.status(f"{len(self.session.beats(key))} beats found; " + (f"{len(result.warnings)} warning(s)" if result.warnings else "no warnings"))
+        self._after_results(restore=True)
+
+    def _after_results(self, *, restore: bool) -> None:
+        """Everything that follows new results: autosave restore, tables, views."""
+        key = self.key
+        self.journal = Journal(self.origin or key, key)
+        if restore and self.journal.exists():
+            try:
+                report = self.journal.restore(self.session)
+            except (InputError, KeyError, ValueError, TypeError) as exc:
+                report = None
+                self.status(f"the autosaved review could not be restored ({exc}); it was kept")
+            if report is not None:
+                self.status(report.text())
+        self._refresh_all()
+
+    def reanalyse(self, settings) -> None:
+        """Re-analyse with new settings off the GUI thread; only what the change affects reruns."""
+        if self.key is None:
+            self.session.default_settings = settings
+            return
+        session, key = self.session, self.key
+        job = Job(lambda report, cancelled: _prepare_settings(session, key, settings, report), "reanalysis")
+        job.signals.progress.connect(self._on_progress)
+        job.signals.finished.connect(lambda change, s=session: self._reanalysis_done(s, change))
+        job.signals.failed.connect(self._job_failed)
+        self._busy("re-analysing", True)
+        self.runner.start(job)
+
+    def _reanalysis_done(self, session: Session, change) -> None:
+        self._busy("re-analysing", False)
+        if session is not self.session:
+            return
+        session.default_settings = change.settings
+        session.apply_settings(change)
+        scope = change.scopes.get(self.key, "none")
+        self.status({"none": "settings unchanged", "summary": "summaries updated",
+                     "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
+        self._refresh_all()
+
+    def change_channel(self, channel: int) -> None:
+        """Analyse and show another channel of the recording."""
+        if self.recording is None or channel == self.channel:
+            return
+        self.channel = channel
+        self._levels = {}
+        self.sweep = -1
+        self.set_sweep(0)
+        self._start_envelopes(self.recording)
+        self._start_analysis(self.recording, channel)
+
+    # -- waiting (tests, screenshots) ---------------------------------------------------------
+    def settle(self, timeout_ms: int = 120_000) -> bool:
+        """Run any pending delayed refresh now, then wait for every background job."""
+        if self._summary_timer.isActive():
+            self._summary_timer.stop()
+            self._refresh_summary()
+        return self.wait_idle(timeout_ms)
+
+    def wait_idle(self, timeout_ms: int = 120_000) -> bool:
+        """Process events until no background job is left (or the timeout)."""
+        from PySide6 import QtCore, QtWidgets
+
+        timer = QtCore.QElapsedTimer()
+        timer.start()
+        app = QtWidgets.QApplication.instance()
+        while timer.elapsed() < timeout_ms:
+            app.processEvents(QtCore.QEventLoop.AllEvents, 50)
+            if not self.runner.busy():
+                app.processEvents()
+                if not self.runner.busy():
+                    return True
+            QtCore.QThread.msleep(5)
+        return False

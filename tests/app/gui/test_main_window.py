@@ -1,0 +1,216 @@
+"""The main window over the core: open, review from the keyboard, undo, cursors, settings, save."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+pytest.importorskip("pytestqt")
+
+from PySide6 import QtCore, QtGui  # noqa: E402
+
+from analysis import open_recording  # noqa: E402
+from analysis.conditions import Condition, SteadyState  # noqa: E402
+from analysis.pipeline import analyze  # noqa: E402
+from analysis.synthetic import preset, synthesize  # noqa: E402
+from analysis.synthetic_io import write_abf  # noqa: E402
+from app.gui.main_window import MainWindow  # noqa: E402
+from app.gui.recent import config_dir  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def cell_abf(tmp_path_factory):
+    """Two 8 s sweeps of a synthetic nodal-like cell (analysis.synthetic), as ABF."""
+    syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=4_000.0, seed=11, noise_mV=0.2,
+                     n_sweeps=2, sweep_gap_s=1.0)
+    path = tmp_path_factory.mktemp("rec") / "cell-q7.abf"
+    write_abf(syn.recording, path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def cell_result(cell_abf):
+    """The core's analysis of the file, made once for the module."""
+    rec = open_recording(cell_abf)
+    return rec, analyze(rec, label=cell_abf.name)
+
+
+def _window(qtbot):
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    w.resize(1400, 900)
+    w.show()
+    return w
+
+
+@pytest.fixture
+def window(qtbot, cell_abf, cell_result):
+    """The window on the file, given the module's analysis (the first test analyses itself)."""
+    w = _window(qtbot)
+    rec, result = cell_result
+    w.open_recording_file(rec, origin=str(cell_abf), result=result)
+    assert w.settle(60_000)
+    assert w.key is not None and not w.last_error
+    return w
+
+
+def test_opening_draws_the_cores_beats(qtbot, cell_abf):
+    window = _window(qtbot)
+    assert window.open_path(cell_abf)  # the real path: header, first paint, analysis in a worker
+    assert window.settle(60_000) and window.key is not None and not window.last_error
+    core = analyze(open_recording(cell_abf)).beats  # the core's own analysis of the same file
+    shown = window.session.beats(window.key)
+    assert len(shown) == len(core) > 10
+    rows = np.flatnonzero((core["sweep"] == 0) & (core["accepted"] == 1))
+    drawn = window.trace_view.drawn_markers()
+    for kind, t_col, v_col in (("mdp", "t_mdp_s", "mdp_mV"), ("peak", "t_peak_s", "peak_mV"), ("top", "t_top_s", "top_mV")):
+        ok = np.isfinite(core[t_col][rows])
+        t, v, r = drawn[kind]
+        assert np.array_equal(r, rows[ok]), kind
+        assert np.allclose(t, core[t_col][rows][ok]) and np.allclose(v, core[v_col][rows][ok]), kind
+    t, _v, _r = drawn["upstroke"]
+    assert np.allclose(t, core["t_upstroke_s"][rows])
+    assert window.table.beat_model.rowCount() == len(core)
+    # the recent-files list remembers it, under the private config folder
+    assert str(cell_abf) in json.loads((config_dir() / "recent.json").read_text())
+
+
+def test_keyboard_reject_updates_table_and_session_and_undo_restores_both(window, qtbot):
+    window.select_beat(3)
+    qtbot.keyClick(window, QtCore.Qt.Key_R)
+    picker = window.reason_picker
+    assert picker.isVisible()
+    reason_action = picker.reason_actions()[1]
+    reason = reason_action.data()
+    reason_action.trigger()
+    beats = window.session.beats(window.key)
+    assert beats["accepted"][3] == 0 and beats["reject_reason"][3] == reason
+    model = window.table.beat_model
+    kept = model.column_names().index("accepted")
+    assert model.data(model.index(model.view_row(3), kept)) == "✕"
+    assert window.current_row == 4  # moved on to the next beat
+    qtbot.keySequence(window, QtGui.QKeySequence.StandardKey.Undo)
+    beats = window.session.beats(window.key)
+    assert beats["accepted"][3] == 1 and beats["reject_reason"][3] == ""
+    assert model.data(model.index(model.view_row(3), kept)) == "✓"
+    qtbot.keySequence(window, QtGui.QKeySequence.StandardKey.Redo)
+    assert window.session.beats(window.key)["accepted"][3] == 0
+
+
+def test_keyboard_navigation_accept_and_region_reject(window, qtbot):
+    window.select_beat(2)
+    qtbot.keyClick(window, QtCore.Qt.Key_N)
+    assert window.current_row == 3
+    qtbot.keyClick(window, QtCore.Qt.Key_P)
+    assert window.current_row == 2
+    qtbot.keyClick(window, QtCore.Qt.Key_A)
+    beats = window.session.beats(window.key)
+    assert beats["accepted"][2] == 1 and beats["reviewed"][2] == 1
+    qtbot.keyClick(window, QtCore.Qt.Key_PageDown)
+    assert window.sweep == 1
+    window.set_cursors_visible(True)
+    ups = beats["t_upstroke_s"][beats["sweep"] == 1]
+    window.trace_view.set_cursor_times(ups[1] - 0.01, ups[3] + 0.01)
+    assert window.reject_region("seal or access trouble") == 3
+    beats = window.session.beats(window.key)
+    rows = np.flatnonzero(beats["sweep"] == 1)[1:4]
+    assert (beats["accepted"][rows] == 0).all()
+    window.undo()  # the region was one step
+    assert (window.session.beats(window.key)["accepted"][rows] == 1).all()
+
+
+def test_cursor_readout_equals_numpy_over_the_same_samples(window, cell_abf):
+    window.set_cursors_visible(True)
+    t0, t1 = 1.2345, 3.3333
+    window.trace_view.set_cursor_times(t1, t0)  # emits as a finished drag does
+    fs = window.recording.sampling_rate_hz
+    v = open_recording(cell_abf).sweep(0)[int(np.ceil(t0 * fs)) : int(np.floor(t1 * fs)) + 1]
+    r = window.last_readout
+    assert r.mean_value == pytest.approx(np.mean(v))  # numpy reference
+    assert (r.min_value, r.max_value) == (np.min(v), np.max(v))  # numpy reference
+    assert r.delta_value == pytest.approx(v[-1] - v[0])  # numpy reference
+    assert window.cursor_panel.value_text("mean_value") == f"{np.mean(v):.2f}"
+    assert "Δt 2098.8 ms" in window.trace_view.readout_line()
+
+
+def test_changing_a_setting_reanalyses(window, qtbot):
+    before = window.session.beats(window.key)
+    form = window.settings_form
+    form.editors["preprocess.ljp_mV"].set(10.0)
+    form.apply()
+    assert window.wait_idle(60_000)
+    after = window.session.beats(window.key)
+    assert window.session.settings(window.key).preprocess.ljp_mV == 10.0
+    assert len(after) == len(before)
+    # V_true = V_measured - LJP (Barry & Lynch 1991, J Membr Biol 121:101)
+    assert np.allclose(after["mdp_mV"], before["mdp_mV"] - 10.0, equal_nan=True, atol=1e-9)
+    drawn = window.trace_view.drawn_markers()["mdp"]
+    assert np.allclose(drawn[1], after["mdp_mV"][drawn[2]])
+    assert window.trace_view.curve.pos().y() == -10.0  # the trace is drawn corrected too
+    qtbot.keySequence(window, QtGui.QKeySequence.StandardKey.Undo)  # a settings change is one step
+    assert window.session.settings(window.key).preprocess.ljp_mV == 0.0
+
+
+def test_save_then_reopen_restores_decisions_conditions_and_settings(window, qtbot, tmp_path):
+    window.select_beat(5)
+    window.reject_current("electrical artefact")
+    cond = Condition("baseline", 0.0, 8.0, "s", SteadyState("last_s", 5.0))
+    assert window.add_condition(cond)
+    window.settings_form.editors["measurement.top_dvdt_V_per_s"].set(1.0)
+    window.settings_form.apply()
+    assert window.wait_idle(60_000)
+    out = tmp_path / "review.h5"
+    assert window.save_results(out)
+    assert not window.session.modified and not window.journal.exists()
+
+    again = MainWindow(interactive=False)
+    qtbot.addWidget(again)
+    assert again.open_path(out)
+    again.wait_idle(60_000)
+    beats = again.session.beats(again.key)
+    assert beats["accepted"][5] == 0 and beats["reject_reason"][5] == "electrical artefact"
+    assert again.session.conditions(again.key) == (cond,)
+    assert again.session.settings(again.key).measurement.top_dvdt_V_per_s == 1.0
+    assert again.settings_form.settings == again.session.settings(again.key)
+    assert again.conditions_panel.list.count() == 1
+    assert again.table.beat_model.table.equals(beats)
+
+
+def test_autosave_brings_back_an_unsaved_review(window, qtbot, cell_abf):
+    window.select_beat(4)
+    window.reject_current("noise")
+    window.add_condition(Condition("drug", 12.0, 20.0))
+    assert window.journal.exists()  # written at once, not at exit
+    # a crash: the window goes without saving; the same file opened again
+    again = MainWindow(interactive=False)
+    qtbot.addWidget(again)
+    again.open_path(cell_abf)
+    assert again.wait_idle(60_000)
+    beats = again.session.beats(again.key)
+    assert beats["accepted"][4] == 0 and beats["reject_reason"][4] == "noise"
+    assert [c.name for c in again.session.conditions(again.key)] == ["drug"]
+    assert "restored" in again.statusBar().currentMessage()
+
+
+def test_drop_opens_the_file_and_channels_are_listed(qtbot, cell_abf):
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    mime = QtCore.QMimeData()
+    mime.setUrls([QtCore.QUrl.fromLocalFile(str(cell_abf))])
+    event = QtGui.QDropEvent(QtCore.QPointF(10, 10), QtCore.Qt.CopyAction, mime, QtCore.Qt.LeftButton, QtCore.Qt.NoModifier)
+    w.dropEvent(event)
+    assert w.wait_idle(60_000)
+    assert w.key is not None and w.channel_combo.count() == 1
+    assert w.sweep_spin.maximum() == 2
+
+
+def test_bad_file_is_one_line_and_nothing_changes(qtbot, tmp_path):
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    bad = tmp_path / "broken.abf"
+    bad.write_bytes(b"ABF2" + b"\0" * 40)
+    assert not w.open_path(bad)
+    assert str(bad) in w.last_error and "\n" not in w.last_error
+    assert w.key is None
