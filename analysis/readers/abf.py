@@ -176,6 +176,14 @@ class _Layout:
                 f"an analysis needs at least {MIN_SAMPLES_PER_SWEEP}; record longer sweeps",
             )
         is_int = dtype.kind == "i"
+        for i, (g, o) in enumerate(zip(abf._dataGain, abf._dataOffset)):
+            if is_int and not (np.isfinite(g) and g != 0 and np.isfinite(o)):
+                # A zero or garbage range or gain in the header: every sample would be NaN or Inf.
+                raise RecordingError(
+                    origin, f"the ABF header is corrupt: channel {i}'s scaling (gain {float(g):g}, "
+                    f"offset {float(o):g}) turns every sample into NaN, Inf or 0",
+                    "the file is damaged; open the original recording",
+                )
         return cls(
             n_channels=n_channels, n_frames=n_frames, dtype=dtype,
             byte_offset=int(abf.dataByteStart), rate_hz=rate_hz, lengths=lengths,

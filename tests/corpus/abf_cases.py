@@ -24,6 +24,9 @@ V1_TAG_COUNT = 48  # lNumTagEntries, int32
 V1_DATA_FORMAT = 100  # nDataFormat, int16: 0 int16, 1 float32
 V1_N_CHANNELS = 120  # nADCNumChannels, int16
 V1_INTERVAL = 122  # fADCSampleInterval, float32, us per sample (all channels)
+V1_ADC_RANGE = 244  # fADCRange, float32, volts
+V1_ADC_RESOLUTION = 252  # lADCResolution, int32, counts
+V1_INSTRUMENT_SCALE = 922  # fInstrumentScaleFactor, 16 x float32
 V1_UNITS = 602  # sADCUnits, 16 x 8 bytes
 V1_HEADER_END = 5806  # the last field pyabf reads ends here
 # ABF 2 header (pyabf/abf2/headerV2.py) and section map entries (pyabf/abf2/section.py).
@@ -109,6 +112,13 @@ def _synthetic_cases(folder: Path) -> list[Case]:
         ("abf1-float-samples", (V1_DATA_FORMAT, "h", 1), r"floating-point", "ABF 1 float32 data, which pyabf cannot scale"),
         ("abf1-unknown-sample-format", (V1_DATA_FORMAT, "h", 7), r"unknown sample format", "nDataFormat = 7"),
         ("abf1-negative-length", (V1_ACQ_LENGTH, "i", -5), _CORRUPT, "lActualAcqLength < 0"),
+        # Found by bench/fuzz_readers.py: four 0xFF bytes over fADCRange opened as all-NaN samples.
+        ("abf1-nan-adc-range", (V1_ADC_RANGE, "I", 0xFFFFFFFF), r"scaling", "fADCRange is a NaN"),
+        ("abf1-zero-adc-range", (V1_ADC_RANGE, "f", 0.0), r"scaling", "fADCRange = 0: every sample 0 mV"),
+        ("abf1-zero-resolution", (V1_ADC_RESOLUTION, "i", 0), r"scaling|could not be parsed",
+         "lADCResolution = 0: a division by zero in the scaling"),
+        ("abf1-zero-instrument-scale", (V1_INSTRUMENT_SCALE, "f", 0.0), r"scaling|could not be parsed",
+         "fInstrumentScaleFactor = 0 for channel 0"),
     ]:
         out.append(_info(name, _patched(seed, p(name), edit), expect, why))
     for name, edit, expect, why in [
