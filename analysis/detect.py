@@ -29,6 +29,7 @@ on a chunk edge is counted once.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import Callable
@@ -36,6 +37,7 @@ from typing import Callable
 import numpy as np
 
 from .settings import DetectionSettings
+from .signal import moving_mean as _moving_mean
 from .signal import noise_rms_mV
 
 __all__ = ["Detection", "detect_beats", "detect_sweep", "estimate_noise_mV", "ARTEFACT_REASONS"]
@@ -142,6 +144,9 @@ def detect_sweep(
     s = settings or DetectionSettings()
     if noise_mV is None:
         noise_mV = estimate_noise_mV(load, n)
+    q = max(1, int(fs_hz // s.working_rate_hz))
+    if q > 1:
+        return _detect_decimated(load, n, fs_hz, q, s, noise_mV, pad)
     block = max(16, int(round(s.level_window_s * fs_hz)))
     chunk = max(1, int(math.ceil(s.chunk_s * fs_hz / block))) * block
     overlap = max(1, int(math.ceil(s.chunk_overlap_s * fs_hz / block))) * block
@@ -185,38 +190,56 @@ def detect_sweep(
     return Detection(up[keep], pk[keep], art_arr[o], why[o], float(threshold), float(noise_mV))
 
 
+def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, noise_mV: float, pad: int) -> Detection:
+    """Detection on means of ``q`` samples (aligned to the sweep's start), indices mapped back.
+
+    Averaging costs one pass and divides all later work by ``q``; it also shrinks electrical
+    spikes a few samples long. The indices returned are the centres of the averaged groups; the
+    measurement refines every upstroke on the full-rate samples.
+    """
+
+    def load_q(a: int, b: int) -> np.ndarray:
+        x = np.asarray(load(a * q, b * q), dtype=np.float64)
+        m = (x.size // q) * q
+        return x[:m].reshape(-1, q).mean(axis=1)
+
+    det = detect_sweep(
+        load_q, n // q, fs_hz / q, settings=dataclasses.replace(s, working_rate_hz=fs_hz / q),
+        noise_mV=noise_mV / math.sqrt(q), pad=-(-pad // q),
+    )
+    half = q // 2
+    return Detection(
+        det.i_upstroke * q + half, det.i_peak * q + half, det.i_artefact * q + half, det.artefact_reason,
+        det.threshold_V_per_s, float(noise_mV),
+    )
+
+
 def _box_slope_noise(noise_mV: float, fs_hz: float, h: int) -> float:
     # Difference of two means of h samples whose centres are h samples apart.
     return noise_mV * math.sqrt(2.0 / h) / (h / fs_hz) / 1000.0
 
 
-def _moving_mean(x: np.ndarray, m: int) -> np.ndarray:
-    """Centred moving mean over m samples (odd), shorter windows at the edges (no wrap)."""
-    if m <= 1:
-        return x
+def _cumsum0(x: np.ndarray) -> np.ndarray:
     c = np.empty(x.size + 1)
     c[0] = 0.0
     np.cumsum(x - x[0], out=c[1:])
-    h = m // 2
-    i = np.arange(x.size)
-    a = np.clip(i - h, 0, x.size)
-    b = np.clip(i + h + 1, 0, x.size)
-    return (c[b] - c[a]) / (b - a) + x[0]
+    return c
 
 
 def _box_slope(x: np.ndarray, h: int, fs_hz: float) -> np.ndarray:
     """Smoothed dV/dt (V/s for mV): mean of the next h samples minus mean of the previous h, / h dt."""
-    c = np.empty(x.size + 1)
-    c[0] = 0.0
-    np.cumsum(x - x[0], out=c[1:])
     n = x.size
-    i = np.arange(n)
-    a0 = np.clip(i - h, 0, n)
-    b1 = np.clip(i + h + 1, 0, n)
-    left = (c[i] - c[a0]) / np.maximum(i - a0, 1)
-    right = (c[b1] - c[np.minimum(i + 1, n)]) / np.maximum(b1 - i - 1, 1)
-    dist = (np.maximum(i - a0, 1) + np.maximum(b1 - i - 1, 1)) / 2.0
-    return (right - left) / dist * fs_hz / 1000.0
+    c = _cumsum0(x)
+    out = np.zeros(n)
+    if n > 2 * h + 1:
+        # i from h to n-h-2: left = mean x[i-h:i], right = mean x[i+1:i+h+1]
+        i0, i1 = h, n - h - 1
+        left = (c[i0:i1] - c[0:i1 - h]) / h
+        right = (c[i0 + h + 1:i1 + h + 1] - c[i0 + 1:i1 + 1]) / h
+        out[i0:i1] = (right - left) / (h + 1) * fs_hz / 1000.0
+        out[:i0] = out[i0]
+        out[i1:] = out[i1 - 1]
+    return out
 
 
 def _levels(vs: np.ndarray, offset: int, lo: int, hi: int, block: int, n_total: int, s: DetectionSettings):

@@ -29,6 +29,7 @@ from .signal import (
     noise_matched_window_ms,
     noise_rms_mV,
     parabolic_peak,
+    poly_lsq,
     savgol_derivative,
     savgol_smooth,
     upstroke_velocity,
@@ -210,7 +211,7 @@ class _Context:
         y = self.v[a:b]
         x = np.arange(b - a, dtype=np.float64)
         x -= x.mean()
-        return float(np.dot(x, y - y.mean()) / np.dot(x, x) * self.fs)
+        return float(np.sum(x * (y - y.mean())) / np.sum(x * x) * self.fs)
 
     # -- one beat ----------------------------------------------------------------------------
     def beat(self, g: int, prev: int, nxt: int, sweep_end: bool, percents: list[float]) -> dict:
@@ -302,7 +303,7 @@ class _Context:
         if hi - lo >= 7:
             x = np.arange(lo, hi, dtype=np.float64) - j
             y = self.v[a + lo:a + hi]
-            coef = np.polynomial.polynomial.polyfit(x / max(hi - lo, 1), y, 4)
+            coef = poly_lsq(x / max(hi - lo, 1), y, 4)
             grid = np.linspace(x[0], x[-1], 16 * (hi - lo) + 1)
             val = np.polynomial.polynomial.polyval(grid / max(hi - lo, 1), coef)
             k = int(np.argmax(val))
@@ -347,7 +348,7 @@ class _Context:
             return None
         y = self.v[prev + lo:prev + hi]
         u = (np.arange(lo, hi, dtype=np.float64) - j0) / max(hi - lo, 1)
-        coef = np.polynomial.polynomial.polyfit(u, y, 4)
+        coef = poly_lsq(u, y, 4)
         grid = np.linspace(u[0], u[-1], 8 * (hi - lo) + 1)
         val = np.polynomial.polynomial.polyval(grid, coef)
         k = int(np.argmin(val))
@@ -391,7 +392,10 @@ class _Context:
             return math.nan
         y = self.v[a:b]
         x = np.arange(a, b, dtype=np.float64)
-        b1, a1 = np.polyfit(x, y, 1)
+        half = 0.5 * (b - a)
+        c0, c1 = poly_lsq((x - a - half) / half, y, 1)
+        b1 = c1 / half
+        a1 = c0 - b1 * (a + half)
         xu = up.index
         vu = self.value_at(xu, window_samples(up.window_ms, self.fs, polyorder=3, minimum=5))
         b2 = up.dvdt_max_V_per_s * 1000.0 / self.fs  # mV per sample
@@ -494,7 +498,9 @@ class _Context:
                 return x0
             y = self.v[a:b]
             u = np.arange(a, b, dtype=np.float64) - xc
-            c2, c1, c0 = np.polyfit(u, y, 2)
+            sc = max(float(w), 1.0)
+            c0, c1, c2 = poly_lsq(u / sc, y, 2)
+            c1, c2 = c1 / sc, c2 / (sc * sc)
             slope = c1  # mV per sample at the centre
             disc = c1 * c1 - 4 * c2 * (c0 - level)
             if slope >= 0 or disc < 0:
@@ -507,14 +513,18 @@ class _Context:
             if abs(c2) < 1e-12:
                 root = (level - c0) / c1
             else:
-                r = np.array([(-c1 - math.sqrt(disc)) / (2 * c2), (-c1 + math.sqrt(disc)) / (2 * c2)])
-                root = float(r[np.argmin(np.abs(r))])
+                r1 = (-c1 - math.sqrt(disc)) / (2 * c2)
+                r2 = (-c1 + math.sqrt(disc)) / (2 * c2)
+                root = r1 if abs(r1) < abs(r2) else r2
             # A root beyond the window: move towards it and fit again.
-            x_new = xc + float(np.clip(root, -w, w))
+            x_new = xc + min(max(root, -w), w)
             w_new = int(round(min(max(0.25 * 0.1 * amp / -slope, w_min), w_max)))
-            if abs(x_new - xc) < 0.25 and w_new == w:
+            settled = abs(w_new - w) <= 0.25 * w
+            if abs(x_new - xc) < 0.25 and settled:
                 return float(x_new)
-            xc, w = x_new, w_new
+            xc = x_new
+            if not settled:
+                w = w_new
         return float(xc) if abs(xc - x0) < w_max else x0
 
     def apd_crossings(self, ip: int, limit: int, levels: list[float]) -> list[float]:

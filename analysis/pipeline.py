@@ -10,6 +10,7 @@ the recording's loader chunk by chunk, once to find the beats and once to measur
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 from dataclasses import dataclass, field
@@ -53,6 +54,8 @@ class AnalysisResult:
         The liquid-junction potential subtracted (V_true = V_measured - LJP).
     artefacts : dict of int to (ndarray, ndarray)
         Per sweep, the sample indices and reasons of detection candidates not taken as beats.
+    hum_sweeps : list of int
+        The sweeps from which mains hum was subtracted (``preprocess.hum_removal``).
     """
 
     beats: BeatTable
@@ -63,6 +66,7 @@ class AnalysisResult:
     recording: Recording
     ljp_mV: float
     artefacts: dict = field(default_factory=dict)
+    hum_sweeps: list = field(default_factory=list)
 
 
 def looks_like_membrane_potential(recording: Recording, channel: int, *, seconds: float = 20.0) -> bool:
@@ -220,10 +224,10 @@ def analyze(
         if progress is not None:
             progress(min(done[0], total), total)
 
-    parts, artefacts, rise = [], {}, []
+    parts, artefacts, rise, hum_sweeps = [], {}, [], []
     for sw in sweep_ids:
         try:
-            cols, art, rise_sw = _analyse_sweep(recording, sw, idx, scale, s, tick)
+            cols, art, rise_sw, hum = _analyse_sweep(recording, sw, idx, scale, s, tick)
         except SettingsError as exc:
             if exc.path is not None:
                 raise
@@ -231,6 +235,8 @@ def analyze(
             # frequency): name the recording, as every input error names a file.
             raise SettingsError(recording.source_path or "the data given", exc.problem, exc.fix) from None
         artefacts[sw] = art
+        if hum:
+            hum_sweeps.append(sw)
         if cols is None:
             warnings.append(f"sweep {sw}: no beats found{_artefact_note(art)}")
             continue
@@ -239,12 +245,28 @@ def analyze(
         rise.extend(rise_sw)
     beats = _table(parts, s)
     _sampling_warning(rise, fs, s, warnings)
-    beats, more = flag_and_reject(beats, recording, idx, s, scale=scale)
+    if hum_sweeps:
+        warnings.append(f"mains hum found and subtracted in sweep(s) {_ranges(hum_sweeps)} (preprocess.hum_removal)")
+    beats, more = flag_and_reject(beats, recording, idx, s, scale=scale, hum=bool(hum_sweeps))
     warnings.extend(more)
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
-        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts,
+        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps,
     )
+
+
+def _ranges(items: list[int]) -> str:
+    """``[0, 1, 2, 5]`` -> ``"0-2, 5"``."""
+    out, start, prev = [], None, None
+    for i in items + [None]:
+        if start is None:
+            start = prev = i
+        elif i is not None and i == prev + 1:
+            prev = i
+        else:
+            out.append(f"{start}" if start == prev else f"{start}-{prev}")
+            start = prev = i
+    return ", ".join(out)
 
 
 def _artefact_note(art) -> str:
@@ -291,7 +313,7 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     ups = det.i_upstroke
     if ups.size == 0:
         tick(n)
-        return None, art, []
+        return None, art, [], load.hum
     chunk = max(int(s.detection.chunk_s * fs), 1)
     margin = pad + int(0.25 * fs) + 64
     markers = []
@@ -314,7 +336,7 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
         k0 = k1
     cols = _sweep_columns(markers, sw, s)
     rise = [float(x) for m in markers for x in m.values["rise_samples"]]
-    return cols, art, rise
+    return cols, art, rise, load.hum
 
 
 def _sweep_columns(markers, sw: int, s: Settings) -> dict[str, np.ndarray]:
@@ -362,6 +384,7 @@ def _sampling_warning(rise_samples: list[float], fs: float, s: Settings, warning
 
 def flag_and_reject(
     beats: BeatTable, recording: Recording, channel: int, settings: Settings, *, scale: float = 1.0,
+    hum: bool = True,
 ) -> tuple[BeatTable, list[str]]:
     """The hook where events and quality rules flag and automatically reject measured beats.
 
@@ -374,7 +397,9 @@ def flag_and_reject(
         return beats, []
     from . import events
 
-    # Read in windows (with filter context), so memory stays bounded by a chunk of beats.
-    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=settings.preprocess)
+    # Read in windows (with filter context), so memory stays bounded by a chunk of beats. Without
+    # hum in any sweep, the windows need not look for it again.
+    pre = settings.preprocess if hum else dataclasses.replace(settings.preprocess, hum_removal="off")
+    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=pre)
     sweeps_raw = events.RecordingSweeps(recording, channel, scale=scale)
     return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw)

@@ -283,7 +283,7 @@ class PreprocessSettings(Section):
         doc="length of the blocks in which the hum's amplitude and phase are fitted",
     )
     hum_min_mV: float = setting(
-        0.03, unit="mV", min=0.0, max=10.0, source=_NO_SOURCE,
+        0.05, unit="mV", min=0.0, max=10.0, source=_NO_SOURCE,
         doc="hum components smaller than this are left alone",
     )
     notch_q: float = setting(
@@ -338,6 +338,10 @@ class DetectionSettings(Section):
     min_width_ms: float = setting(
         3.0, unit="ms", min=0.0, max=1000.0, source=_NO_SOURCE,
         doc="events narrower than this at half amplitude are electrical artefacts, not beats",
+    )
+    working_rate_hz: float = setting(
+        4000.0, unit="Hz", min=500.0, max=10_000_000.0, source=_NO_SOURCE,
+        doc="beats are found on the trace averaged down to about this rate (measurement uses every sample)",
     )
     chunk_s: float = setting(
         60.0, unit="s", min=0.5, max=36_000.0, source=_NO_SOURCE,

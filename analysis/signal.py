@@ -33,6 +33,7 @@ from .errors import SettingsError
 __all__ = [
     "window_samples",
     "savgol_smooth",
+    "moving_mean",
     "savgol_derivative",
     "central_difference",
     "lowpass",
@@ -45,6 +46,7 @@ __all__ = [
     "noise_matched_window_ms",
     "parabolic_peak",
     "top_fit_peak",
+    "poly_lsq",
     "rise_time_10_90",
     "UpstrokeVelocity",
     "upstroke_velocity",
@@ -67,15 +69,16 @@ def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float) -> 
             # Too short for the fit: fall back on a plain gradient (or nothing to smooth).
             return np.gradient(x, delta) if deriv == 1 and x.size > 1 else (x.copy() if deriv == 0 else np.zeros_like(x))
     coeffs = _conv_coeffs(n, polyorder, deriv, delta)
-    out = np.convolve(x, coeffs, mode="same") if n <= 64 or x.size < 4 * n else _fft_convolve(x, coeffs)
+    # Direct convolution unless the work is large enough for FFT overlap-add to pay off.
+    out = np.convolve(x, coeffs, mode="same") if n <= 64 or x.size * n < 4_000_000 else _fft_convolve(x, coeffs)
     h = n // 2
     if h and x.size >= n:
         # The first and last h outputs come from the polynomial fitted to the first and last
         # full window, as scipy's interp mode does (coefficients cached per window).
         head, tail = _edge_coeffs(n, polyorder, deriv)
         scale = 1.0 / delta**deriv
-        out[:h] = (head @ x[:n]) * scale
-        out[x.size - h:] = (tail @ x[-n:]) * scale
+        out[:h] = np.einsum("ij,j->i", head, x[:n]) * scale
+        out[x.size - h:] = np.einsum("ij,j->i", tail, x[-n:]) * scale
     return out
 
 
@@ -86,16 +89,47 @@ def _conv_coeffs(n: int, polyorder: int, deriv: int, delta: float) -> np.ndarray
 
 @functools.lru_cache(maxsize=256)
 def _edge_coeffs(n: int, polyorder: int, deriv: int) -> tuple[np.ndarray, np.ndarray]:
+    """Rows evaluating (the ``deriv``-th derivative of) the polynomial fitted to a full window
+    at each of its first and last ``n // 2`` positions (per sample^deriv)."""
     h = n // 2
-    head = np.array([savgol_coeffs(n, polyorder, deriv=deriv, pos=p, use="dot") for p in range(h)])
-    tail = np.array([savgol_coeffs(n, polyorder, deriv=deriv, pos=p, use="dot") for p in range(n - h, n)])
-    return head, tail
+    u = (np.arange(n, dtype=np.float64) - h) / h  # positions scaled to [-1, 1]
+    fit = np.linalg.pinv(np.vander(u, polyorder + 1, increasing=True))  # coefficients from samples
+    powers = np.arange(polyorder + 1)
+
+    def rows(pos: np.ndarray) -> np.ndarray:
+        x = (pos - h) / h
+        ev = np.zeros((pos.size, polyorder + 1))
+        for k in powers[deriv:]:
+            fac = math.perm(int(k), deriv)
+            ev[:, k] = fac * x ** (k - deriv)
+        return ev @ fit / float(h) ** deriv
+
+    return rows(np.arange(h, dtype=np.float64)), rows(np.arange(n - h, n, dtype=np.float64))
 
 
 def _fft_convolve(x: np.ndarray, coeffs: np.ndarray) -> np.ndarray:
     from scipy.signal import oaconvolve
 
     return oaconvolve(x, coeffs, mode="same")
+
+
+def moving_mean(x: np.ndarray, m: int) -> np.ndarray:
+    """Centred moving mean over m samples (odd), shorter windows at the edges (no wrap)."""
+    if m <= 1 or x.size == 0:
+        return x
+    n = x.size
+    h = m // 2
+    c = np.empty(x.size + 1)
+    c[0] = 0.0
+    np.cumsum(x - x[0], out=c[1:])
+    out = np.empty(n)
+    if n > 2 * h:
+        out[h:n - h] = (c[m:] - c[:n + 1 - m]) / m
+    edge = np.r_[0:min(h, n), max(h, n - h):n]
+    a = np.clip(edge - h, 0, n)
+    b = np.clip(edge + h + 1, 0, n)
+    out[edge] = (c[b] - c[a]) / (b - a)
+    return out + x[0]
 
 
 def savgol_smooth(v: np.ndarray, fs_hz: float, *, window_ms: float, polyorder: int = 3) -> np.ndarray:
@@ -310,6 +344,24 @@ def parabolic_peak(y: np.ndarray, i: int) -> tuple[float, float]:
     return off, b - 0.25 * (a - c) * off
 
 
+def poly_lsq(x: np.ndarray, y: np.ndarray, deg: int) -> np.ndarray:
+    """Least-squares polynomial coefficients, lowest order first (as numpy.polynomial).
+
+    Solved from the normal equations built with plain sums: for the few-hundred-sample fits
+    done per beat this avoids multithreaded BLAS calls, whose start-up costs more than the fit
+    on a busy machine. ``x`` should be scaled to about [-1, 1] by the caller.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    vander = np.vander(x, deg + 1, increasing=True)
+    gram = np.einsum("ij,ik->jk", vander, vander)
+    rhs = np.einsum("ij,i->j", vander, y)
+    try:
+        return np.linalg.solve(gram, rhs)
+    except np.linalg.LinAlgError:
+        return np.polynomial.polynomial.polyfit(x, y, deg)
+
+
 def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int = 200) -> tuple[float, float]:
     """Position and height of a peak from a least-squares cubic (or parabola) through its top.
 
@@ -337,14 +389,14 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
     if hi - lo >= 6:
         # A cubic follows an asymmetric top (an upstroke's dV/dt rises and falls at different rates).
         scale = max(abs(x[0]), abs(x[-1]), 1.0)
-        c = np.polynomial.polynomial.polyfit(x / scale, yy, 3)
+        c = poly_lsq(x / scale, yy, 3)
         roots = np.roots([3 * c[3], 2 * c[2], c[1]]) if c[3] else np.roots([2 * c[2], c[1]])
         cand = [float(r.real) * scale for r in np.atleast_1d(roots) if abs(r.imag) < 1e-12 and x[0] <= r.real * scale <= x[-1]]
         if cand:
             vals = [np.polynomial.polynomial.polyval(u / scale, c) for u in cand]
             k = int(np.argmax(vals))
             return cand[k], float(vals[k])
-    c2, c1, c0 = np.polyfit(x, yy, 2)
+    c0, c1, c2 = poly_lsq(x, yy, 2)
     if c2 >= 0:
         return parabolic_peak(y, i)
     off = -c1 / (2 * c2)
@@ -512,4 +564,4 @@ def _search(lo: int, hi: int, a: int, d: np.ndarray) -> tuple[int, int]:
 def _sg_noise(n: int, fs_hz: float) -> float:
     """V/s of derivative noise per mV of white noise, for the order-3 derivative over n samples."""
     c = savgol_coeffs(n, 3, deriv=1, delta=1.0 / fs_hz)
-    return float(np.sqrt(np.dot(c, c))) / 1000.0
+    return float(np.sqrt(np.sum(c * c))) / 1000.0

@@ -1,0 +1,176 @@
+"""Benchmark of ``upstroke analyze`` on a 30-minute gap-free 20 kHz recording.
+
+Generates an invented nodal-like recording (ABF 1, written by pyabf's writer), then runs three
+things, each in its own process, and prints whole-process wall time and peak memory (the child's
+own high-water mark, ``VmHWM``) with ratios measured in the same run:
+
+* ``upstroke analyze FILE --csv OUT``;
+* a floor: a process that reads the samples and makes one numpy pass over them;
+* a straightforward script: pyabf load, ``scipy.signal.find_peaks``, then per-beat Python loops
+  for the same parameters (MDP, TOP, DDR, dV/dt max, peak, APA, APD20/50/90, CL).
+
+Targets: analyze <= 8x the floor, >= 10x faster than the straightforward script, <= 600 MB peak,
+and the right beat count. Usage: ``python bench/analyze_bench.py [--minutes 30] [--keep DIR]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+
+import numpy as np
+
+FS_HZ = 20_000.0
+
+
+def make_trace(minutes: float, seed: int = 11) -> tuple[np.ndarray, int]:
+    """An invented nodal-like cell (analysis.synthetic's preset) with noise and drift; and its beat count."""
+    from analysis.synthetic import preset, synthesize
+
+    syn = synthesize(
+        preset("nodal-like"), duration_s=minutes * 60.0, fs_hz=FS_HZ, seed=seed, noise_mV=0.2,
+        drift_mV_per_min=0.5,
+    )
+    v = syn.recording.sweep(0, 0)
+    return v, len(syn.truth.beats)
+
+
+_RSS_WRAP = textwrap.dedent(
+    """
+    import resource, runpy, sys
+    sys.argv = sys.argv[1:]
+    try:
+        if sys.argv[0] == "-c":
+            code = sys.argv[1]; sys.argv = ["-c"] + sys.argv[2:]; exec(compile(code, "<bench>", "exec"), {"__name__": "__main__"})
+        else:
+            runpy.run_module(sys.argv[0], run_name="__main__", alter_sys=True)
+    except SystemExit as e:
+        code = e.code
+    else:
+        code = 0
+    # VmHWM: this process's own peak resident memory (ru_maxrss would include the parent's
+    # memory at fork on Linux).
+    hwm = [l for l in open("/proc/self/status") if l.startswith("VmHWM:")]
+    kb = int(hwm[0].split()[1]) if hwm else resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    print(f"@@maxrss_kb={kb}", file=sys.stderr)
+    sys.exit(code or 0)
+    """
+)
+
+
+def measure(args: list[str], label: str) -> tuple[float, float, str]:
+    """Run ``python <args>`` in a fresh process; (wall s, peak MB of that process, output)."""
+    start = time.perf_counter()
+    proc = subprocess.run([sys.executable, "-c", _RSS_WRAP, *args], capture_output=True, text=True)
+    wall = time.perf_counter() - start
+    if proc.returncode != 0:
+        print(f"{label} failed ({proc.returncode}):\n{proc.stdout}\n{proc.stderr}", file=sys.stderr)
+        sys.exit(1)
+    rss_kb = [int(line.split("=")[1]) for line in proc.stderr.splitlines() if line.startswith("@@maxrss_kb=")]
+    return wall, rss_kb[-1] / 1024.0, proc.stdout + proc.stderr
+
+
+FLOOR = textwrap.dedent(
+    """
+    import sys, numpy as np, pyabf
+    abf = pyabf.ABF(sys.argv[1], loadData=False)
+    raw = np.memmap(sys.argv[1], dtype=np.int16, mode="r", offset=abf.dataByteStart,
+                    shape=(abf.dataPointCount,))
+    scale = float(abf._dataGain[0]) if hasattr(abf, "_dataGain") else 1.0
+    total = 0.0
+    for a in range(0, raw.size, 1 << 22):
+        total += float((raw[a:a + (1 << 22)].astype(np.float64) * scale).sum())
+    print("mean", total / raw.size)
+    """
+)
+
+STRAIGHTFORWARD = textwrap.dedent(
+    """
+    import sys, numpy as np, pyabf
+    from scipy.signal import find_peaks
+    abf = pyabf.ABF(sys.argv[1])
+    fs = abf.dataRate
+    v = np.asarray(abf.sweepY, dtype=float)
+    dv = np.gradient(v) * fs / 1000.0
+    peaks, _ = find_peaks(v, height=-20, distance=int(0.3 * fs), prominence=30)
+    rows = []
+    for k in range(1, len(peaks)):
+        p0, p1 = peaks[k - 1], peaks[k]
+        seg = v[p0:p1]
+        i_mdp = p0 + int(np.argmin(seg))
+        mdp = v[i_mdp]
+        i_up = i_mdp + int(np.argmax(dv[i_mdp:p1]))
+        dvdt = dv[i_up]
+        i_top = i_up
+        while i_top > i_mdp and dv[i_top] >= 0.5:
+            i_top -= 1
+        top = v[i_top]
+        ts = np.arange(i_mdp, i_top + 1) / fs
+        ddr = np.polyfit(ts, v[i_mdp:i_top + 1], 1)[0] if i_top - i_mdp > 2 else float("nan")
+        peak = v[p1]
+        apa = peak - mdp
+        apd = {}
+        for x in (20, 50, 90):
+            level = peak - x / 100 * apa
+            j = p1
+            while j < len(v) - 1 and v[j] > level:
+                j += 1
+            apd[x] = (j - i_up) / fs * 1000.0
+        rows.append((i_up / fs, mdp, top, ddr, dvdt, peak, apa, apd[20], apd[50], apd[90]))
+    cl = np.diff([r[0] for r in rows]) * 1000.0
+    print("beats", len(peaks), "mean CL", float(np.mean(cl)))
+    """
+)
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--minutes", type=float, default=30.0)
+    parser.add_argument("--keep", metavar="DIR", help="keep the generated recording and outputs here")
+    args = parser.parse_args()
+    folder = args.keep or tempfile.mkdtemp(prefix="upstroke-bench-")
+    os.makedirs(folder, exist_ok=True)
+    abf_path = os.path.join(folder, "bench_gapfree_20k.abf")
+    csv_path = os.path.join(folder, "bench_beats.csv")
+    try:
+        print(f"generating {args.minutes:g} min at {FS_HZ / 1e3:g} kHz ...", flush=True)
+        v, n_beats = make_trace(args.minutes)
+        from pyabf.abfWriter import writeABF1
+
+        writeABF1(v[np.newaxis, :], abf_path, FS_HZ, units="mV")
+        del v
+        size_mb = os.path.getsize(abf_path) / 1e6
+        print(f"{abf_path}: {size_mb:.0f} MB, {n_beats} beats built in")
+
+        floor_s, floor_mb, _ = measure(["-c", FLOOR, abf_path], "floor")
+        up_s, up_mb, up_out = measure(["app", "analyze", abf_path, "--csv", csv_path], "upstroke analyze")
+        with open(csv_path, newline="") as fh:
+            found = sum(1 for _ in csv.DictReader(fh))
+        naive_s, naive_mb, naive_out = measure(["-c", STRAIGHTFORWARD, abf_path], "straightforward script")
+
+        print()
+        print(f"{'':28s}{'wall s':>9s}{'peak MB':>10s}")
+        print(f"{'floor (read + one pass)':28s}{floor_s:9.2f}{floor_mb:10.0f}")
+        print(f"{'upstroke analyze':28s}{up_s:9.2f}{up_mb:10.0f}")
+        print(f"{'straightforward script':28s}{naive_s:9.2f}{naive_mb:10.0f}")
+        print()
+        print(f"analyze / floor           = {up_s / floor_s:6.2f}x   (target <= 8x)")
+        print(f"straightforward / analyze = {naive_s / up_s:6.2f}x   (target >= 10x)")
+        print(f"analyze peak memory       = {up_mb:6.0f} MB (target <= 600 MB)")
+        print(f"beats found / built in    = {found} / {n_beats}   ({'right' if found == n_beats else 'WRONG'})")
+        print(f"straightforward script    : {naive_out.strip().splitlines()[0]}")
+    finally:
+        if not args.keep:
+            shutil.rmtree(folder, ignore_errors=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
