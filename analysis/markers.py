@@ -141,6 +141,42 @@ def measure_beats(
     return BeatMarkers(vals, out_up, prev >= 0, flags)
 
 
+def _quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
+    """Least-squares ``c0 + c1 u + c2 u^2`` through ``y`` at ``u = u0, u0 + 1, ...``.
+
+    The moments of the (integer-spaced) abscissae are closed forms, so only three sums over the
+    samples are taken: this fit runs several times per beat.
+    """
+    n = y.size
+    j = np.arange(n, dtype=np.float64)
+    sy = float(y.sum())
+    sjy = float(np.dot(j, y)) if n < 64 else float((j * y).sum())
+    sj2y = float((j * j * y).sum())
+    # moments of j = 0..n-1
+    m1 = n * (n - 1) / 2.0
+    m2 = (n - 1) * n * (2 * n - 1) / 6.0
+    m3 = m1 * m1
+    m4 = (n - 1) * n * (2 * n - 1) * (3 * (n - 1) ** 2 + 3 * (n - 1) - 1) / 30.0
+    g = ((n, m1, m2), (m1, m2, m3), (m2, m3, m4))
+    r = (sy, sjy, sj2y)
+
+    def det3(m):
+        return (m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1]) - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+                + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]))
+
+    d = det3(g)
+    if d == 0:
+        return float(y.mean()), 0.0, 0.0
+    sol = []
+    for k in range(3):
+        mk = [list(row) for row in g]
+        for i in range(3):
+            mk[i][k] = r[i]
+        sol.append(det3(mk) / d)
+    b0, b1, b2 = sol  # in j; u = j + u0  ->  j = u - u0
+    return b0 - b1 * u0 + b2 * u0 * u0, b1 - 2 * b2 * u0, b2
+
+
 class _Context:
     """Per-call constants (windows in samples) and the per-beat marker steps."""
 
@@ -168,13 +204,15 @@ class _Context:
         seg = self.v[lo:hi]
         if w <= 1:
             return seg, lo
-        return savgol_smooth(seg, self.fs, window_ms=w / self.fs * 1e3, polyorder=3), lo
+        edges = lo == 0 or hi == self.n  # elsewhere the context covers the filter's edges
+        return savgol_smooth(seg, self.fs, window_ms=w / self.fs * 1e3, polyorder=3, edges=edges), lo
 
     def slope(self, a: int, b: int) -> tuple[np.ndarray, int]:
         """Least-squares-slope dV/dt (V/s) over the take-off window, on [a, b) with context."""
         h = self.w_top // 2
         lo, hi = max(0, a - 2 * h), min(self.n, b + 2 * h)
-        return savgol_derivative(self.v[lo:hi], self.fs, window=self.w_top, polyorder=2) / 1000.0, lo
+        edges = lo == 0 or hi == self.n
+        return savgol_derivative(self.v[lo:hi], self.fs, window=self.w_top, polyorder=2, edges=edges) / 1000.0, lo
 
     def last_below(self, level: float, lo: int, g: int) -> float:
         """Fractional index where the take-off dV/dt last rises through ``level`` in [lo, g]."""
@@ -496,11 +534,7 @@ class _Context:
             a, b = max(lo, int(xc) - w), min(hi, int(xc) + w + 1)
             if b - a < 5:
                 return x0
-            y = self.v[a:b]
-            u = np.arange(a, b, dtype=np.float64) - xc
-            sc = max(float(w), 1.0)
-            c0, c1, c2 = poly_lsq(u / sc, y, 2)
-            c1, c2 = c1 / sc, c2 / (sc * sc)
+            c0, c1, c2 = _quadratic_fit(self.v[a:b], a - xc)
             slope = c1  # mV per sample at the centre
             disc = c1 * c1 - 4 * c2 * (c0 - level)
             if slope >= 0 or disc < 0:

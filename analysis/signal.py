@@ -60,7 +60,7 @@ def window_samples(window_ms: float, fs_hz: float, *, polyorder: int = 2, minimu
     return n if n % 2 else n + 1
 
 
-def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float) -> np.ndarray:
+def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float, edges: bool = True) -> np.ndarray:
     """Savitzky-Golay filter with polynomial fits at the edges (scipy's ``mode="interp"``)."""
     x = np.asarray(v, dtype=np.float64)
     if x.size < n:
@@ -72,7 +72,7 @@ def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float) -> 
     # Direct convolution unless the work is large enough for FFT overlap-add to pay off.
     out = np.convolve(x, coeffs, mode="same") if n <= 64 or x.size * n < 4_000_000 else _fft_convolve(x, coeffs)
     h = n // 2
-    if h and x.size >= n:
+    if edges and h and x.size >= n:
         # The first and last h outputs come from the polynomial fitted to the first and last
         # full window, as scipy's interp mode does (coefficients cached per window).
         head, tail = _edge_coeffs(n, polyorder, deriv)
@@ -132,7 +132,7 @@ def moving_mean(x: np.ndarray, m: int) -> np.ndarray:
     return out + x[0]
 
 
-def savgol_smooth(v: np.ndarray, fs_hz: float, *, window_ms: float, polyorder: int = 3) -> np.ndarray:
+def savgol_smooth(v: np.ndarray, fs_hz: float, *, window_ms: float, polyorder: int = 3, edges: bool = True) -> np.ndarray:
     """Savitzky-Golay smoothing over ``window_ms`` (a copy of ``v`` when the window is 0).
 
     Parameters
@@ -156,12 +156,12 @@ def savgol_smooth(v: np.ndarray, fs_hz: float, *, window_ms: float, polyorder: i
     if window_ms <= 0:
         return np.array(v, dtype=np.float64, copy=True)
     n = window_samples(window_ms, fs_hz, polyorder=polyorder)
-    return _savgol(v, n, polyorder, 0, 1.0 / fs_hz)
+    return _savgol(v, n, polyorder, 0, 1.0 / fs_hz, edges)
 
 
 def savgol_derivative(
     v: np.ndarray, fs_hz: float, *, window_ms: float | None = None, window: int | None = None,
-    polyorder: int = 2, deriv: int = 1,
+    polyorder: int = 2, deriv: int = 1, edges: bool = True,
 ) -> np.ndarray:
     """Savitzky-Golay derivative, in units of ``v`` per second (per s² for ``deriv=2``).
 
@@ -178,6 +178,10 @@ def savgol_derivative(
         more closely (exact for polynomials of degree 4).
     deriv : int
         1 or 2.
+    edges : bool
+        Fit polynomials at the ends (scipy's ``mode="interp"``); False leaves the first and last
+        ``window // 2`` values as the zero-padded convolution gives them, for callers that
+        passed enough context to discard them.
 
     Examples
     --------
@@ -191,7 +195,7 @@ def savgol_derivative(
         if window_ms is None:
             raise TypeError("give window_ms or window")
         window = window_samples(window_ms, fs_hz, polyorder=polyorder)
-    return _savgol(v, int(window), polyorder, deriv, 1.0 / fs_hz)
+    return _savgol(v, int(window), polyorder, deriv, 1.0 / fs_hz, edges)
 
 
 def central_difference(v: np.ndarray, fs_hz: float) -> np.ndarray:
