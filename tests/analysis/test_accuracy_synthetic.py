@@ -103,11 +103,28 @@ APD20_ON_A_NOISY_PLATEAU = pytest.mark.xfail(
     reason="APD20 on a slowly falling plateau (0.1 mV/ms) with 0.3 mV noise comes 2-3 ms early: "
     "the first crossing of the level is taken on noisy samples before the fit refines it",
 )
+SLOW_UPSTROKE_TIME_JITTERS = pytest.mark.xfail(
+    strict=True,
+    reason="the time of dV/dt max of a 4.6 V/s upstroke at 10 kHz with 0.3 mV noise jitters by "
+    "0.4-0.5 ms rms, so 9 of 92 cycle lengths (seeds 23-26) miss 1 ms, by up to 0.13 ms",
+)
 SPIKE_TAKEN_AS_PEAK = pytest.mark.xfail(
     strict=True,
     reason="a 3-sample spike above the peak is taken as the peak; dV/dt max, APA and the APDs are "
     "then measured from it (ventricular-like: dV/dt max 30 instead of 260 V/s)",
 )
+
+
+@pytest.mark.parametrize("name", [pytest.param("nodal-like", marks=SLOW_UPSTROKE_TIME_JITTERS), "ventricular-like"])
+def test_cycle_length_with_noise_holds_for_other_seeds(name):
+    # The same disturbed recordings as above with four more seeds: the CL tolerance is not a
+    # property of one noise sequence.
+    problems = []
+    for seed in (23, 24, 25, 26):
+        syn = _disturbed(name, seed)
+        problems += [f"seed {seed}: {p}" for p in compare(_analyze(syn.recording), syn.truth.beats, NOISY[:1])]
+    # analysis.synthetic's exact truth; noisy CL tolerance 1 ms (acceptance list).
+    assert problems == []
 
 
 @pytest.mark.parametrize("name", sorted(CELLS))
