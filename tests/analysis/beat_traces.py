@@ -51,13 +51,15 @@ def gaussian_dvdt_V_per_s(t_s: np.ndarray, centre_s: float, *, amp_mV: float = 8
 def pacemaker_train(
     fs_hz: float, duration_s: float, *, cl_s: float = 0.4, mdp_mV: float = -62.0, ddr_mV_per_s: float = 60.0,
     amp_mV: float = 50.0, dvdt_max_V_per_s: float = 2.0, repol_ms: float = 120.0, first_s: float = 0.3,
+    phase4_tau_ms: float | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """A nodal-like train: linear phase 4, logistic upstroke, smooth repolarisation to the MDP.
 
     Each cycle: from the MDP V rises linearly at ``ddr_mV_per_s``; the upstroke (logistic,
     amplitude ``amp_mV`` above the take-off, dV/dt max as given) is centred on each beat time;
-    repolarisation back to the MDP is a raised cosine of ``repol_ms``. Returns samples and beat
-    times (upstroke centres).
+    repolarisation back to the MDP is a raised cosine of ``repol_ms``. With ``phase4_tau_ms`` the
+    phase 4 is ``MDP + DDR tau (1 - exp(-t / tau))`` instead (initial slope DDR). Returns samples
+    and beat times (upstroke centres).
     """
     t = np.arange(int(round(duration_s * fs_hz))) / fs_hz
     beats = np.arange(first_s, duration_s, cl_s)
@@ -67,12 +69,18 @@ def pacemaker_train(
     for c in beats:
         start = c - cl_s + repol + 10 * tau  # end of the previous repolarisation
         seg = (t >= start) & (t < c + 10 * tau)
-        base = mdp_mV + ddr_mV_per_s * np.clip(t[seg] - start, 0, None)
         up = amp_mV * expit((t[seg] - c) / tau)
-        v[seg] = base + up
-        top = mdp_mV + ddr_mV_per_s * (c - start)
-        peak = top + amp_mV
+        v[seg] = _phase4(t[seg] - start, mdp_mV, ddr_mV_per_s, phase4_tau_ms) + up
+        peak = float(_phase4(np.array([c + 10 * tau - start]), mdp_mV, ddr_mV_per_s, phase4_tau_ms)[0]) + amp_mV
         rs = (t >= c + 10 * tau) & (t < c + 10 * tau + repol)
         ph = (t[rs] - (c + 10 * tau)) / repol
-        v[rs] = mdp_mV + (peak + ddr_mV_per_s * 10 * tau - mdp_mV) * 0.5 * (1 + np.cos(np.pi * ph))
+        v[rs] = mdp_mV + (peak - mdp_mV) * 0.5 * (1 + np.cos(np.pi * ph))
     return v, beats
+
+
+def _phase4(dt_s: np.ndarray, mdp_mV: float, ddr: float, tau_ms: float | None) -> np.ndarray:
+    dt = np.clip(dt_s, 0, None)
+    if tau_ms is None:
+        return mdp_mV + ddr * dt
+    tau = tau_ms * 1e-3
+    return mdp_mV + ddr * tau * (1.0 - np.exp(-dt / tau))
