@@ -100,8 +100,8 @@ def test_noise_hum_drift_artefacts_and_a_dad_stay_within_twice_the_tolerances(na
 #: start passing when the defect is fixed (strict), and then the mark goes.
 APD20_ON_A_NOISY_PLATEAU = pytest.mark.xfail(
     strict=True,
-    reason="APD20 on a slowly falling plateau (0.1 mV/ms) with 0.3 mV noise comes 2-3 ms early: "
-    "the first crossing of the level is taken on noisy samples before the fit refines it",
+    reason="APD20 on a slowly falling plateau (0.1 mV/ms) with 0.3 mV noise at 50 kHz comes "
+    "2-4 ms early (the crossing of its level is found before the true one and not moved back)",
 )
 SLOW_UPSTROKE_TIME_JITTERS = pytest.mark.xfail(
     strict=True,
