@@ -91,11 +91,14 @@ def _stored_summaries(r: StoredRecording) -> list:
     import math
 
     from .ensemble import Ensemble
-    from .summary import PARAMETERS, SUMMARY_COLUMNS, Summary
+    from .summary import _DECIMALS, PARAMETERS, SUMMARY_COLUMNS, Summary
 
     cols = r.summary
     if list(cols) != list(SUMMARY_COLUMNS):
         return None  # written by another version of the summaries: recompute when asked
+    for c in SUMMARY_COLUMNS:  # numbers where the summary CSV writes numbers (a damaged file)
+        if _DECIMALS[c] is not None and np.asarray(cols[c]).dtype.kind not in "biuf":
+            raise TypeError(f"summary column {c} holds text, not numbers")
     n = len(cols[SUMMARY_COLUMNS[0]])
     out = []
     for i in range(n):
@@ -124,8 +127,9 @@ def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, m
         try:
             table = _auto_table(r.beats)
             conditions = check_conditions(r.conditions)
-        except (KeyError, ConditionError) as exc:
-            raise ResultsFileError(text, f"the beats or conditions of {r.label} are damaged ({exc})", "analyse the recording again") from None
+            summaries = _stored_summaries(r)
+        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
+            raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
         info = RecordingInfo(
             source_path=r.source_path, label=r.label, sha256=r.sha256, reader=r.reader, channel=r.channel,
             channel_name=r.channel_name, units=r.units, ljp_mV=r.ljp_mV, sweeps=r.sweeps,
@@ -139,7 +143,7 @@ def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, m
         session._entries[key] = _Entry(
             info=info, settings=_settings(r.settings_json, text, r.label), table=table,
             warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,
-            requested_channel=r.channel, summaries=_stored_summaries(r),
+            requested_channel=r.channel, summaries=summaries,
         )
     session.path = os.path.abspath(text)
     session.open_warnings = list(content.open_warnings)

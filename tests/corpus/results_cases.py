@@ -58,6 +58,20 @@ def _replace_first(f, table: str, data) -> None:
     f[table].create_dataset(name, data=data)
 
 
+def _replace_first_numeric(f, table: str, data) -> None:
+    """Replace a stored table's first numeric column with ``data`` (text here)."""
+    import h5py
+
+    for first in f[table].attrs["columns"]:
+        name = first.decode() if isinstance(first, bytes) else str(first)
+        if f[f"{table}/{name}"].dtype.kind in "iuf":
+            rows = f[f"{table}/{name}"].shape[0]
+            del f[f"{table}/{name}"]
+            f[table].create_dataset(name, data=np.resize(data, rows), dtype=h5py.string_dtype())
+            return
+    raise AssertionError(f"{table} has no numeric column")
+
+
 def _replace_column(f, data=None, **create) -> None:
     name = _first_beats_column(f)
     del f[f"{REC}/beats/{name}"]
@@ -112,6 +126,9 @@ def build(folder: Path) -> list[Case]:
          "a beats column longer than the others", False),
         ("results-summary-column-length", lambda f: _replace_first(f, REC + "/summary", np.zeros(0)), _DAMAGED,
          "one summary column emptied (found by the hypothesis fuzzer: it crashed the session)", False),
+        # Found by the hypothesis fuzzer: text in a numeric summary column escaped as ValueError.
+        ("results-summary-text", lambda f: _replace_first_numeric(f, REC + "/summary", np.array(["é" * 50], dtype=object)),
+         _DAMAGED, "a numeric summary column holding text", False),
         ("results-beats-column-2d", lambda f: _replace_first(f, REC + "/beats", np.zeros((3, 2))), _DAMAGED,
          "a beats column stored as a 3 x 2 table", False),
         ("results-huge-unstored-column", lambda f: _replace_column(f, None, shape=(10**12,), dtype="f8", chunks=(4096,)),
