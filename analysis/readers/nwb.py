@@ -134,7 +134,7 @@ def _check_hdf5(origin: str) -> str:
     try:
         with h5py.File(origin, "r") as fh:
             version = fh.attrs.get("nwb_version")
-    except OSError as exc:
+    except (OSError, KeyError, RuntimeError, ValueError) as exc:  # h5py's kinds of "corrupt"
         raise RecordingError(
             origin, f"the HDF5 file is truncated or corrupt (h5py: {_first_line(exc)})", _CORRUPT_FIX,
         ) from None

@@ -131,6 +131,9 @@ def _damaged_bytes(seed: Path, folder: Path) -> list[Case]:
         ("nwb-cut-after-superblock", data[:96], "only the HDF5 superblock left"),
         ("nwb-superblock-flipped", data[:8] + bytes(b ^ 0xFF for b in data[8:40]) + data[40:],
          "the HDF5 superblock's sizes and addresses inverted"),
+        # Found by bench/fuzz_readers.py: h5py raised a bare KeyError ("ring type mismatch").
+        ("nwb-bytes-inserted-after-superblock", data[:64] + bytes(44) + data[64:],
+         "44 zero bytes inserted after the superblock, shifting every address"),
     ]:
         path = folder / f"{name}.nwb"
         path.write_bytes(content)
