@@ -23,6 +23,10 @@ Nothing else changes: validation, ``to_dict``/``from_dict``, TOML, the hash and 
 walk the sections of :class:`Settings`. Adding a section with defaults changes the short hash of
 every settings object; raise :data:`SCHEMA_VERSION` when a field changes meaning or is removed.
 
+The declaration machinery (:func:`setting`, :class:`Section`, :class:`FieldInfo`) is in
+:mod:`analysis.settings_fields` and the TOML files in :mod:`analysis.settings_io`; both are
+re-exported here, so ``from analysis.settings import ...`` is all a caller needs.
+
 Supported field types: ``float``, ``int``, ``bool``, ``str``, ``float | None`` (an optional
 value; such fields must default to None, because TOML has no null: a missing key means None) and
 ``tuple[float, ...]``.
@@ -31,15 +35,13 @@ value; such fields must default to None, because TOML has no null: a missing key
 import dataclasses
 import hashlib
 import json
-import math
 import os
-import tomllib
-import types
 import typing
 from dataclasses import dataclass, field, fields
 from typing import Any, ClassVar, Mapping
 
 from .errors import SettingsError
+from .settings_fields import FieldInfo, Section, _check_value, _kind, _range_text, section, setting  # noqa: F401
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -61,186 +63,6 @@ __all__ = [
 #: Version of the settings layout; stored with every result. Raise it when a field is renamed,
 #: removed or changes meaning.
 SCHEMA_VERSION = 1
-
-
-def setting(
-    default: Any,
-    *,
-    doc: str,
-    unit: str = "",
-    min: float | None = None,  # noqa: A002 - the metadata's own vocabulary
-    max: float | None = None,  # noqa: A002
-    choices: tuple | None = None,
-    source: str = "",
-) -> Any:
-    """Declare one settings field with its metadata.
-
-    Parameters
-    ----------
-    default
-        The default value (MEASUREMENTS.md's default where it names one).
-    doc : str
-        One line for the settings form's tooltip and the docs.
-    unit : str
-        The value's unit ("" when it has none); also part of the field's name.
-    min, max : float or None
-        Inclusive bounds of a number (of each element of a tuple).
-    choices : tuple or None
-        The allowed values of a text (or optional number) field.
-    source : str
-        The published source of the definition, or "common practice, no source".
-    """
-    return field(default=default, metadata={
-        "unit": unit, "min": min, "max": max, "choices": choices, "doc": doc, "source": source,
-    })
-
-
-def section(cls: type) -> Any:
-    """Declare a section of :class:`Settings` (its defaults come from the section class)."""
-    return field(default_factory=cls)
-
-
-@dataclass(frozen=True)
-class FieldInfo:
-    """Everything a form, a tooltip or a reference table needs about one field."""
-
-    path: str
-    section: str
-    name: str
-    kind: str
-    default: Any
-    unit: str
-    min: float | None
-    max: float | None
-    choices: tuple | None
-    doc: str
-    source: str
-
-
-def _kind(annotation: Any) -> str:
-    """``float``, ``int``, ``bool``, ``str``, ``optional float`` or ``float list``."""
-    if annotation in (float, int, bool, str):
-        return annotation.__name__
-    origin = typing.get_origin(annotation)
-    args = typing.get_args(annotation)
-    if origin in (typing.Union, types.UnionType) and type(None) in args:
-        inner = [a for a in args if a is not type(None)]
-        if inner == [float]:
-            return "optional float"
-    if origin is tuple and args and args[0] is float:
-        return "float list"
-    raise TypeError(f"unsupported settings field type {annotation!r}")
-
-
-def _range_text(meta: Mapping[str, Any]) -> str:
-    lo, hi, unit = meta["min"], meta["max"], meta["unit"]
-    unit = f" {unit}" if unit else ""
-    if lo is not None and hi is not None:
-        return f"from {lo:g} to {hi:g}{unit}"
-    if lo is not None:
-        return f"at least {lo:g}{unit}"
-    if hi is not None:
-        return f"at most {hi:g}{unit}"
-    return "any number"
-
-
-def _check_value(path: str, kind: str, value: Any, meta: Mapping[str, Any], origin: str | None) -> Any:
-    """The value converted to its field's type, or SettingsError naming the key and the range."""
-
-    def wrong(what: str, fix: str) -> SettingsError:
-        shown = repr(value)
-        shown = shown if len(shown) <= 60 else shown[:57] + "..."  # a pasted paragraph, not a value
-        return SettingsError(origin, f"setting {path} = {shown} {what}", fix)
-
-    def number(x: Any, as_int: bool) -> float | int:
-        if isinstance(x, bool) or not isinstance(x, (int, float)):
-            raise wrong("is not a number", f"give {'a whole' if as_int else 'a'} number {_range_text(meta)}")
-        if as_int:
-            if isinstance(x, float) and not x.is_integer():
-                raise wrong("is not a whole number", f"give a whole number {_range_text(meta)}")
-            x = int(x)
-        else:
-            x = float(x)
-            if not math.isfinite(x):
-                raise wrong("is not a finite number", f"give a number {_range_text(meta)}")
-        if (meta["min"] is not None and x < meta["min"]) or (meta["max"] is not None and x > meta["max"]):
-            raise wrong("is out of range", f"allowed: {_range_text(meta)}")
-        return x
-
-    choices = meta["choices"]
-    if kind == "bool":
-        if not isinstance(value, bool):
-            raise wrong("is not true or false", "write true or false")
-        return value
-    if kind == "str":
-        if not isinstance(value, str):
-            raise wrong("is not text", f"choose one of: {', '.join(map(str, choices or ()))}")
-        if choices is not None and value not in choices:
-            raise wrong("is not one of the choices", f"choose one of: {', '.join(choices)}")
-        return value
-    if kind in ("float", "int"):
-        return number(value, kind == "int")
-    if kind == "optional float":
-        if value is None:
-            return None
-        x = number(value, False)
-        if choices is not None and x not in choices:
-            raise wrong("is not one of the choices", f"choose one of: {', '.join(f'{c:g}' for c in choices)} (or leave it out)")
-        return x
-    if kind == "float list":
-        if isinstance(value, (str, bytes)) or not isinstance(value, (list, tuple)):
-            raise wrong("is not a list of numbers", f"give a list such as [20, 50, 90], each {_range_text(meta)}")
-        if not value:
-            raise wrong("is empty", "give at least one number")
-        out = tuple(number(x, False) for x in value)
-        if len(set(out)) != len(out):
-            raise wrong("repeats a value", "give each value once")
-        return out
-    raise TypeError(kind)
-
-
-class Section:
-    """Base of every settings section: validation of each field on construction.
-
-    Subclasses are frozen dataclasses with a class attribute ``key`` (the section's name in
-    files and paths such as ``"measurement.top_method"``).
-    """
-
-    key: ClassVar[str] = ""
-    #: Fields that must keep an order, as ``(smaller, "<" or "<=", larger)``: each is in its own
-    #: range, but together they would contradict each other.
-    order: ClassVar[tuple[tuple[str, str, str], ...]] = ()
-
-    def __post_init__(self) -> None:
-        self._validate(None)
-
-    def _validate(self, origin: str | None) -> None:
-        hints = typing.get_type_hints(type(self))
-        for f in fields(self):  # type: ignore[arg-type]
-            kind = _kind(hints[f.name])
-            value = _check_value(f"{self.key}.{f.name}", kind, getattr(self, f.name), f.metadata, origin)
-            object.__setattr__(self, f.name, value)
-        for low, op, high in self.order:
-            a, b = getattr(self, low), getattr(self, high)
-            if not (a < b if op == "<" else a <= b):
-                raise SettingsError(
-                    origin, f"setting {self.key}.{low} = {a:g} is not {'below' if op == '<' else 'at most'} "
-                    f"{self.key}.{high} = {b:g}", f"make {low} smaller than {high}",
-                )
-
-    @classmethod
-    def field_infos(cls) -> list[FieldInfo]:
-        hints = typing.get_type_hints(cls)
-        out = []
-        for f in fields(cls):  # type: ignore[arg-type]
-            m = f.metadata
-            default = f.default if f.default is not dataclasses.MISSING else f.default_factory()  # type: ignore[misc]
-            out.append(FieldInfo(
-                path=f"{cls.key}.{f.name}", section=cls.key, name=f.name, kind=_kind(hints[f.name]),
-                default=default, unit=m["unit"], min=m["min"], max=m["max"], choices=m["choices"],
-                doc=m["doc"], source=m["source"],
-            ))
-        return out
 
 
 # -- the sections --------------------------------------------------------------------------------
@@ -764,55 +586,5 @@ def _check_declarations() -> None:
 _check_declarations()
 
 
-# -- files ---------------------------------------------------------------------------------------
-def load_settings(path: str | os.PathLike) -> Settings:
-    """Read settings from a TOML file (missing keys take their defaults).
-
-    Raises
-    ------
-    SettingsError
-        When the file is missing, unreadable, not TOML, or holds a wrong key or value.
-    """
-    p = os.fspath(path)
-    try:
-        with open(p, "rb") as fh:
-            data = tomllib.load(fh)
-    except FileNotFoundError:
-        raise SettingsError(p, "the settings file does not exist", "check the path") from None
-    except IsADirectoryError:
-        raise SettingsError(p, "is a folder, not a settings file", "give a .toml file") from None
-    except OSError as exc:
-        raise SettingsError(p, f"cannot read the settings file ({exc.strerror})", "check its permissions") from None
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise SettingsError(p, f"is not valid TOML ({exc})", "fix the line named or save the settings again") from None
-    return Settings.from_dict(data, origin=p)
-
-
-def save_settings(settings: Settings, path: str | os.PathLike) -> None:
-    """Write settings as TOML, atomically (a temporary file, then a rename).
-
-    Unset optional values are left out (TOML has no null); :func:`load_settings` reads them
-    back as unset.
-    """
-    import tomli_w
-
-    p = os.fspath(path)
-    data = settings.to_dict()
-    for key in Settings.sections():
-        data[key] = {k: v for k, v in data[key].items() if v is not None}
-    text = (
-        f"# Upstroke analysis settings (schema {SCHEMA_VERSION}, hash {settings.short_hash()}).\n"
-        "# Leave a key out to use its default.\n" + tomli_w.dumps(data)
-    )
-    folder = os.path.dirname(os.path.abspath(p))
-    tmp = os.path.join(folder, f".{os.path.basename(p)}.tmp-{os.getpid()}")
-    try:
-        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except OSError as exc:
-        if os.path.exists(tmp):
-            os.remove(tmp)
-        raise SettingsError(p, f"cannot write the settings file ({exc.strerror})", "choose a folder you can write to") from None
+# The TOML files: defined in their own module, part of this module's interface.
+from .settings_io import load_settings, save_settings  # noqa: E402
