@@ -24,6 +24,7 @@ __all__ = [
     "phase_plane",
     "poincare_pairs",
     "recording_times_s",
+    "take_off_window_ms",
 ]
 
 
@@ -137,15 +138,52 @@ def aligned_beats(
     return AlignedBeats(t_ms, traces, rows, mean)
 
 
-def phase_plane(v: np.ndarray, fs_hz: float) -> tuple[np.ndarray, np.ndarray]:
-    """V and dV/dt (V/s) of a trace in mV, with a central-difference derivative.
+def phase_plane(v: np.ndarray, fs_hz: float, *, window_ms: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """V and dV/dt (V/s) of a trace in mV.
 
-    Returns ``(v_mV, dvdt_V_per_s)``; NaN samples stay NaN. mV per ms equals V per s.
+    Parameters
+    ----------
+    v : ndarray
+        The trace, in mV.
+    fs_hz : float
+    window_ms : float or None
+        None: a central difference. Otherwise a cubic Savitzky-Golay derivative over this window
+        (:func:`analysis.signal.savgol_derivative`; Savitzky & Golay 1964, Anal Chem 36:1627),
+        which keeps a single noisy beat's loop readable.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        ``(v_mV, dvdt_V_per_s)``; NaN samples stay NaN (mV per ms equals V per s).
     """
     v = np.asarray(v, dtype=np.float64)
     if v.size < 2:
         return v, np.full(v.size, np.nan)
-    return v, np.gradient(v) * fs_hz / 1e3
+    if window_ms is None:
+        return v, np.gradient(v) * fs_hz / 1e3
+    from .signal import savgol_derivative, window_samples
+
+    n = window_samples(window_ms, fs_hz, polyorder=3)
+    if n < 5 or n > v.size:
+        return v, np.gradient(v) * fs_hz / 1e3
+    return v, savgol_derivative(v, fs_hz, window=n, polyorder=3) / 1e3
+
+
+def take_off_window_ms(v: np.ndarray, fs_hz: float, measurement) -> float:
+    """The derivative window the take-off definition would use on this trace.
+
+    The measurement settings' shortest window, widened on a noisy trace until the slope's noise
+    is below their fraction of the take-off criterion (:func:`analysis.signal.noise_matched_window_ms`).
+    """
+    from .signal import noise_matched_window_ms, noise_rms_mV
+
+    finite = np.asarray(v, dtype=np.float64)
+    finite = finite[np.isfinite(finite)]
+    return noise_matched_window_ms(
+        noise_rms_mV(finite), fs_hz, criterion_V_per_s=measurement.top_dvdt_V_per_s,
+        fraction=measurement.top_noise_fraction, min_ms=measurement.top_derivative_window_ms,
+        max_ms=measurement.top_derivative_max_window_ms,
+    )
 
 
 def poincare_pairs(beats: BeatTable, rows: np.ndarray, column: str = "cl_ms") -> tuple[np.ndarray, np.ndarray]:

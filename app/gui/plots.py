@@ -1,7 +1,8 @@
 """Figures of a recording's accepted beats, by condition, each exportable to PNG or SVG.
 
 * aligned beats with each condition's ensemble average;
-* the phase plane (dV/dt against V) of each condition's average beat and of the selected beat;
+* the phase plane (dV/dt against V) of each condition's average beat and of the selected beat,
+  with the smoothed derivative the take-off definition uses;
 * the time course of rate, APD90 and DDR per beat, with the conditions as bands;
 * the Poincare plot of successive cycle lengths;
 * DDR against CL per beat, coloured by condition, with each condition's fitted line.
@@ -47,6 +48,7 @@ class FigureInput:
     groups: list[tuple[str, str]] = field(default_factory=list)
     spans: list[tuple[str, float, float, str]] = field(default_factory=list)
     current_row: int = -1
+    measurement: object = None  # the measurement settings (their take-off derivative window)
 
 
 def _style(plot: pg.PlotItem, bottom: tuple[str, str | None], left: tuple[str, str | None]) -> None:
@@ -126,6 +128,10 @@ class AlignedBeatsFigure(_Figure):
                            name=f"{_group_label(name)}: mean of {rows.size} beats")
 
 
+def _window(v: np.ndarray, fs: float, data: FigureInput) -> float | None:
+    return None if data.measurement is None else plotdata.take_off_window_ms(v, fs, data.measurement)
+
+
 class PhasePlaneFigure(_Figure):
     title = "Phase plane"
 
@@ -141,15 +147,15 @@ class PhasePlaneFigure(_Figure):
         fs = data.recording.sampling_rate_hz
         colours = dict(data.groups)
         for name, aligned in (averages or {}).items():
-            v, dvdt = plotdata.phase_plane(aligned.mean, fs)
+            v, dvdt = plotdata.phase_plane(aligned.mean, fs, window_ms=_window(aligned.mean, fs, data))
             self.plot.plot(v, dvdt, pen=pg.mkPen(colours.get(name, palette.TRACE), width=2.2),
                            name=f"{_group_label(name)}: average beat")
         r = data.current_row
         if 0 <= r < len(data.beats):
             one = plotdata.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
                                          offset_mV=data.offset_mV, before_ms=250, after_ms=500)
-            v, dvdt = plotdata.phase_plane(one.traces[0], fs)
-            self.plot.plot(v, dvdt, pen=pg.mkPen(palette.INK, width=1, style=QtCore.Qt.DashLine),
+            v, dvdt = plotdata.phase_plane(one.traces[0], fs, window_ms=_window(one.traces[0], fs, data))
+            self.plot.plot(v, dvdt, pen=pg.mkPen(palette.rgba(palette.INK, 150), width=1),
                            name=f"selected beat (sweep {int(data.beats['sweep'][r])}, beat {int(data.beats['beat'][r])})")
 
 

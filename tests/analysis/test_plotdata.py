@@ -6,7 +6,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from analysis.plotdata import aligned_beats, consecutive_mask, fit_line, phase_plane, poincare_pairs, recording_times_s
+from analysis.plotdata import (
+    aligned_beats, consecutive_mask, fit_line, phase_plane, poincare_pairs, recording_times_s, take_off_window_ms,
+)
 from analysis.recording import Recording
 from analysis.table import BeatTable
 
@@ -54,3 +56,19 @@ def test_phase_plane_units():
     t = np.arange(1000) / fs
     v, dvdt = phase_plane(-60 + 5000.0 * t, fs)  # 5000 mV/s = 5 V/s
     assert np.allclose(dvdt, 5.0)  # by hand: mV/ms = V/s
+    cubic = 1e6 * (t - 0.05) ** 3  # mV; dV/dt = 3e6 (t - 0.05)^2 mV/s
+    _, smooth = phase_plane(cubic, fs, window_ms=1.0)
+    exact = 3e6 * (t - 0.05) ** 2 / 1e3
+    assert np.allclose(smooth[10:-10], exact[10:-10], atol=1e-6)  # a cubic fit is exact on a cubic (Savitzky-Golay 1964)
+
+
+def test_take_off_window_widens_on_noise_only():
+    from analysis.settings import Settings
+
+    m = Settings().measurement
+    fs = 10_000.0
+    clean = np.linspace(-60, -40, 5000)
+    noisy = clean + np.random.default_rng(1).normal(0, 1.0, clean.size)
+    assert take_off_window_ms(clean, fs, m) == m.top_derivative_window_ms
+    wide = take_off_window_ms(noisy, fs, m)
+    assert m.top_derivative_window_ms < wide <= m.top_derivative_max_window_ms
