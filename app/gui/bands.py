@@ -84,11 +84,6 @@ class SpanBands(pg.GraphicsObject):
         self.prepareGeometryChange()
         self._update_bounds()
 
-    def viewTransformChanged(self) -> None:  # noqa: N802
-        super().viewTransformChanged()
-        self.prepareGeometryChange()
-        self._update_bounds()
-
     def _update_bounds(self) -> None:
         vr = self.viewRect()
         if vr is None or not len(self._t0):

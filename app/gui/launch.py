@@ -51,8 +51,7 @@ def prepare_screenshot_view(window) -> None:
     cl = np.nanmedian(np.asarray(beats["cl_ms"], float)) / 1e3 if np.isfinite(beats["cl_ms"]).any() else 1.0
     window.trace_view.show_span(t - 3.4 * cl, t + 4.6 * cl)
     window.trace_view.fit_y()
-    window.act_phases.setChecked(True)
-    window.trace_view.set_phases_visible(True)
+    window.set_phases_visible(True)
     window.set_cursors_visible(True)
     window.trace_view.set_cursor_times(t + 1.2 * cl, t + 3.2 * cl)
     window.figures.tabs.setCurrentIndex(0)

@@ -275,7 +275,11 @@ class LoadingMixin:
         if self._summary_timer.isActive():
             self._summary_timer.stop()
             self._refresh_summary()
-        return self.wait_idle(timeout_ms)
+        ok = self.wait_idle(timeout_ms)
+        if self._overview_timer.isActive():
+            self._overview_timer.stop()
+            self._sync_overview_window()
+        return ok
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""

@@ -145,8 +145,13 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.statusBar().addPermanentWidget(caution)
 
         self.trace_view.beat_clicked.connect(self.select_beat)
+        self.trace_view.phases_toggled.connect(self.set_phases_visible)
+        self.trace_view.cursors_toggled.connect(lambda on: self.set_cursors_visible(on))
         self.trace_view.cursors_finished.connect(self._on_cursors_finished)
-        self.trace_view.view_changed.connect(self._sync_overview_window)
+        # The overview follows the trace view a few times a second, not on every frame of a pan:
+        # redrawing both widgets each frame would halve the frame rate.
+        self._overview_timer = QtCore.QTimer(self, singleShot=True, interval=60, timeout=self._sync_overview_window)
+        self.trace_view.view_changed.connect(lambda *_a: self._overview_timer.isActive() or self._overview_timer.start())
         self.table.row_selected.connect(self.select_beat)
         self.overview.navigated.connect(self._on_overview_navigated)
         self.overview.clicked_at.connect(self._on_overview_clicked)
@@ -239,7 +244,7 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._action(review, "Mark a &condition on the overview", lambda: self.conditions_panel.mark_button.setChecked(True), "M")
 
         view = self.menuBar().addMenu("&View")
-        self.act_phases = self._action(view, "&Phases", self.trace_view.set_phases_visible, "H", checkable=True,
+        self.act_phases = self._action(view, "&Phases", self.set_phases_visible, "H", checkable=True,
                                        tip="Wash the action-potential phases (4, 0, 1, 2, 3) behind the trace")
         self.act_cursors = self._action(view, "&Cursors", self.set_cursors_visible, "C", checkable=True,
                                         tip="Two cursors; their readout is in the Cursors tab")
@@ -354,7 +359,8 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         info = self.session.info(self.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, (_n, col) in zip(conds, groups)]
         return FigureInput(self.recording, self._beats, channel=self.channel, offset_mV=self.ljp_mV(),
-                           groups=groups, spans=spans, current_row=self.current_row)
+                           groups=groups, spans=spans, current_row=self.current_row,
+                           measurement=self.session.settings(self.key).measurement)
 
     def _on_decisions_changed(self, key: str, rows: list) -> None:
         if key == self.key:
@@ -404,6 +410,10 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.recent_menu.setEnabled(bool(self.recent_menu.actions()))
 
     # -- view helpers ---------------------------------------------------------------------------
+    def set_phases_visible(self, on: bool) -> None:
+        self.trace_view.set_phases_visible(on)
+        self.act_phases.setChecked(on)
+
     def show_whole_sweep(self) -> None:
         if self.recording is not None:
             self.trace_view.show_span(0.0, self.levels(self.sweep).duration_s)

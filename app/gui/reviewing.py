@@ -264,7 +264,12 @@ class ReviewMixin:
         self.conditions_panel.set_marking(False)
         taken = [c.name for c in self.session.conditions(self.key)]
         dialog = ConditionDialog(t0_s, t1_s, duration_s=self._recording_end_s(), taken=taken, parent=self)
-        if self.interactive and dialog.exec() == QtWidgets.QDialog.Accepted and dialog.result_condition:
+        if self.interactive:
+            if dialog.exec() != QtWidgets.QDialog.Accepted:
+                return
+        else:
+            dialog.accept()  # no one to ask: the dialog's suggestions, as if OK were pressed
+        if dialog.result_condition is not None:
             self.add_condition(dialog.result_condition)
 
     def add_condition(self, condition: Condition) -> bool:

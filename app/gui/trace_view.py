@@ -38,6 +38,52 @@ DEFAULT_WINDOW_S = 10.0
 MAX_DETAILED_BEATS = 400
 
 
+class _CursorTags(pg.GraphicsObject):
+    """The cursors' names at the top of their lines, drawn in pixels.
+
+    Cheaper than pyqtgraph's line labels, which lay out rich text again on every frame of a pan.
+    """
+
+    def __init__(self, lines: list[pg.InfiniteLine]) -> None:
+        super().__init__()
+        self._lines = lines
+        self.setZValue(21)
+        for line in lines:
+            line.sigPositionChanged.connect(lambda *_a: self.update())
+
+    def dataBounds(self, axis, frac=1.0, orthoRange=None):  # noqa: N802 (pyqtgraph API)
+        return None
+
+    def viewRangeChanged(self) -> None:  # noqa: N802
+        self._cachedView = None
+        self.prepareGeometryChange()
+
+    def boundingRect(self) -> QtCore.QRectF:  # noqa: N802
+        vr = self.viewRect()
+        return QtCore.QRectF() if vr is None else vr
+
+    def paint(self, painter: QtGui.QPainter, *args) -> None:
+        vr = self.viewRect()
+        tr = painter.deviceTransform()
+        sx, sy = tr.m11(), tr.m22()
+        if vr is None or sx == 0 or sy == 0:
+            return
+        top = vr.bottom() if sy < 0 else vr.top()
+        font = painter.font()
+        font.setPointSizeF(8.5)
+        font.setBold(True)
+        for line, (colour, label) in zip(self._lines, palette.CURSORS):
+            if not line.isVisible():
+                continue
+            painter.save()
+            painter.translate(QtCore.QPointF(float(line.value()), top))
+            painter.scale(1.0 / sx, 1.0 / sy)
+            painter.setFont(font)
+            painter.setPen(QtGui.QColor(colour))
+            painter.drawText(QtCore.QPointF(3, 4 + 2 * QtGui.QFontMetrics(font).height()), label)
+            painter.restore()
+
+
 def _col(beats: BeatTable, name: str, rows: np.ndarray) -> np.ndarray:
     values = beats.get(name)
     if values is None:
@@ -59,6 +105,9 @@ class TraceView(pg.PlotWidget):
     """
 
     beat_clicked = QtCore.Signal(int)
+    #: The view's own right-click menu asks the window for these (so menu, toolbar and keys agree).
+    phases_toggled = QtCore.Signal(bool)
+    cursors_toggled = QtCore.Signal(bool)
     cursors_finished = QtCore.Signal(float, float)
     view_changed = QtCore.Signal(float, float)
     first_paint = QtCore.Signal()
@@ -132,14 +181,15 @@ class TraceView(pg.PlotWidget):
         for colour, label in palette.CURSORS:
             line = pg.InfiniteLine(
                 angle=90, movable=True, pen=pg.mkPen(colour, width=1.5, style=QtCore.Qt.DashLine),
-                hoverPen=pg.mkPen(colour, width=3), label=label,
-                labelOpts={"position": 0.86, "color": colour, "fill": (251, 250, 246, 200)},
+                hoverPen=pg.mkPen(colour, width=3),
             )
             line.setZValue(20)
             line.setVisible(False)
             line.sigPositionChangeFinished.connect(self._emit_cursors)
             plot.addItem(line, ignoreBounds=True)
             self.cursor_lines.append(line)
+        self.cursor_tags = _CursorTags(self.cursor_lines)
+        plot.addItem(self.cursor_tags, ignoreBounds=True)
 
         self.vb.sigXRangeChanged.connect(self._on_x_range)
         self.scene().sigMouseMoved.connect(self._on_mouse_moved)
@@ -241,6 +291,7 @@ class TraceView(pg.PlotWidget):
             self.set_cursor_times(x0 + (x1 - x0) / 3, x0 + 2 * (x1 - x0) / 3, emit=False)
         for line in self.cursor_lines:
             line.setVisible(bool(visible))
+        self.cursor_tags.update()
         if visible:
             self._emit_cursors()
 
@@ -411,7 +462,28 @@ class TraceView(pg.PlotWidget):
                 return
         QtWidgets.QToolTip.hideText()
 
+    def view_menu(self) -> QtWidgets.QMenu:
+        """The right-click menu of the view: phases, cursors, fit and whole sweep."""
+        menu = QtWidgets.QMenu(self)
+        phases = menu.addAction("Phases (4, 0, 1, 2, 3)")
+        phases.setCheckable(True)
+        phases.setChecked(self.phases_visible())
+        phases.toggled.connect(self.phases_toggled)
+        cursors = menu.addAction("Two cursors")
+        cursors.setCheckable(True)
+        cursors.setChecked(self.cursors_visible())
+        cursors.toggled.connect(self.cursors_toggled)
+        menu.addSeparator()
+        menu.addAction("Fit voltage", self.fit_y)
+        if self._levels is not None:
+            menu.addAction("Whole sweep", lambda: self.show_span(0.0, self._levels.duration_s))
+        return menu
+
     def _on_mouse_clicked(self, event) -> None:
+        if event.button() == QtCore.Qt.RightButton and self.vb.sceneBoundingRect().contains(event.scenePos()):
+            event.accept()
+            self.view_menu().popup(QtGui.QCursor.pos())
+            return
         if event.button() != QtCore.Qt.LeftButton or not self.vb.sceneBoundingRect().contains(event.scenePos()):
             return
         row = self.beat_at(self.vb.mapSceneToView(event.scenePos()).x())

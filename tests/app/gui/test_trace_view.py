@@ -80,3 +80,31 @@ def test_cursor_drag_end_emits_both_times(view, qtbot):
     with qtbot.waitSignal(view.cursors_finished) as sig:
         view.set_cursor_times(2.5, 1.25)
     assert sig.args == [1.25, 2.5]
+
+
+def test_view_menu_toggles_phases_and_cursors(view, qtbot):
+    rec, beats = handmade(n_sweeps=1)
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    menu = view.view_menu()
+    phases, cursors = menu.actions()[0], menu.actions()[1]
+    with qtbot.waitSignal(view.phases_toggled) as sig:
+        phases.trigger()
+    assert sig.args == [True]
+    with qtbot.waitSignal(view.cursors_toggled) as sig:
+        cursors.trigger()
+    assert sig.args == [True]
+
+
+def test_markers_hide_when_too_many_beats_are_in_view(view, monkeypatch):
+    import app.gui.trace_view as tv
+
+    monkeypatch.setattr(tv, "MAX_DETAILED_BEATS", 4)
+    rec, beats = handmade(n_sweeps=1, seconds=8.0)
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    view.set_beats(beats)
+    view.set_phases_visible(True)
+    view.show_span(0.0, 8.0)
+    assert view.beats_in_view() == 9 and not view.markers["peak"].isVisible()  # upstrokes 0.5 s + k 0.8 s < 8 s
+    assert not view.phase_bands.isVisible() and view.phases_visible()  # still switched on
+    view.show_span(1.0, 3.0)
+    assert view.markers["peak"].isVisible() and view.phase_bands.isVisible()
