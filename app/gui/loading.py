@@ -210,8 +210,8 @@ class LoadingMixin:
     def _analysis_done(self, recording: Recording, settings, channel: int, result, busy: bool = True) -> None:
         if busy:
             self._busy("analysing", False)
-        if recording is not self.recording:
-            return
+        if recording is not self.recording or int(result.channel) != self.channel:
+            return  # the user has moved on to another file or channel
         key = self.session.add(recording, settings=settings, channel=channel, result=result, label=self._label,
                                conditions=self._pending_conditions, keep_review=False)
         self.key = key
@@ -259,27 +259,50 @@ class LoadingMixin:
         self._refresh_all()
 
     def change_channel(self, channel: int) -> None:
-        """Analyse and show another channel of the recording."""
-        if self.recording is None or channel == self.channel:
+        """Show another channel of the recording, analysed when it holds a membrane potential.
+
+        The channel the session analysed shows its beats again at once; another current-clamp
+        channel is analysed (replacing the recording's results); any other channel (a command
+        current, a temperature) is shown as a trace without beats.
+        """
+        rec = self.recording
+        if rec is None or channel == self.channel:
             return
-        self.channel = channel
+        self.channel = int(channel)
         self._levels = {}
         self.sweep = -1
         self.set_sweep(0)
-        self._start_envelopes(self.recording)
-        self._start_analysis(self.recording, channel)
+        self._start_envelopes(rec)
+        analysed = self.key is not None and self.session.info(self.key).channel == self.channel
+        if analysed:
+            self._refresh_all()
+        elif self.channel in rec.current_clamp_channels():
+            self._start_analysis(rec, self.channel)
+        else:
+            self._beats_hidden()
+            ch = rec.channels[self.channel]
+            self.status(f"channel {ch.name} [{ch.units}] is not a membrane potential: shown without beats")
+        self.channel_combo.setCurrentIndex(self.channel)
 
     # -- waiting (tests, screenshots) ---------------------------------------------------------
     def settle(self, timeout_ms: int = 120_000) -> bool:
-        """Run any pending delayed refresh now, then wait for every background job."""
-        if self._summary_timer.isActive():
-            self._summary_timer.stop()
-            self._refresh_summary()
-        ok = self.wait_idle(timeout_ms)
-        if self._overview_timer.isActive():
-            self._overview_timer.stop()
-            self._sync_overview_window()
-        return ok
+        """Run pending delayed refreshes now and wait for every background job, until neither
+        is left (a finished analysis schedules a summary, which is a job of its own)."""
+        from PySide6 import QtCore
+
+        timer = QtCore.QElapsedTimer()
+        timer.start()
+        while True:
+            if self._summary_timer.isActive():
+                self._summary_timer.stop()
+                self._refresh_summary()
+            if not self.wait_idle(max(1, timeout_ms - timer.elapsed())):
+                return False
+            if self._overview_timer.isActive():
+                self._overview_timer.stop()
+                self._sync_overview_window()
+            if not self._summary_timer.isActive() and not self.runner.busy():
+                return True
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""

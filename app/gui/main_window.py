@@ -287,12 +287,17 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.show_error(message.splitlines()[0] if user_error else f"internal error, please report it: {message}")
 
     # -- refreshing views -------------------------------------------------------------------------
+    def _beats_hidden(self) -> None:
+        """The trace without beats (a channel that is not the analysed one)."""
+        self.trace_view.set_beats(None)
+        self.beat_card.show_beat(None, -1)
+
     def _refresh_all(self) -> None:
         self._refresh_beats()
         self._refresh_conditions()
 
     def _refresh_beats(self) -> None:
-        if self.key is None:
+        if self.key is None or self.session.info(self.key).channel != self.channel:
             return
         self._beats = self.session.beats(self.key)
         self.trace_view.set_offset(self.ljp_mV())

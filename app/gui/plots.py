@@ -183,9 +183,7 @@ class TimeCourseFigure(_Figure):
     def draw(self, data: FigureInput) -> None:
         rows = _accepted_rows(data.beats)
         t = plotdata.recording_times_s(data.beats, data.recording.sweep_starts_s)[rows] if rows.size else np.empty(0)
-        names = np.asarray(data.beats["condition"])[rows] if "condition" in data.beats else np.full(rows.size, "")
-        colours = dict(data.groups)
-        brushes = [pg.mkBrush(colours.get(n, palette.TRACE)) for n in names]
+        names = np.asarray(data.beats["condition"])[rows] if "condition" in data.beats else np.full(rows.size, "", dtype=object)
         rec = data.recording
         rec_end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
         for plot, bands, (col, _label, _unit) in zip(self.plots, self.bands, self.ROWS):
@@ -193,7 +191,11 @@ class TimeCourseFigure(_Figure):
                 plot.removeItem(item)
             y = np.asarray(data.beats[col], dtype=float)[rows] if col in data.beats else np.full(rows.size, np.nan)
             ok = np.isfinite(y)
-            plot.addItem(pg.ScatterPlotItem(t[ok], y[ok], size=4, pen=None, brush=[b for b, k in zip(brushes, ok) if k]))
+            # One item per condition with one brush: per-point brushes cost pyqtgraph a lot.
+            for name, colour in data.groups:
+                sel = ok & (names == name)
+                if sel.any():
+                    plot.addItem(pg.ScatterPlotItem(t[sel], y[sel], size=4, pen=None, brush=pg.mkBrush(colour)))
             bands.set_bands([s[1] for s in data.spans], [min(s[2], rec_end) for s in data.spans],
                             [palette.rgba(s[3], 40) for s in data.spans], [s[0] for s in data.spans])
             plot.enableAutoRange()
@@ -334,29 +336,38 @@ class FiguresPanel(QtWidgets.QWidget):
         self.tabs.setCornerWidget(export, QtCore.Qt.TopRightCorner)
         layout.addWidget(self.tabs)
         self._input: FigureInput | None = None
-        self._dirty = False
+        self._dirty: set[str] = set()
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
     def set_input(self, data: FigureInput | None) -> None:
+        """New data: the figure shown is redrawn now, the others when their tab is opened."""
         self._input = data
-        self._dirty = True
+        self._dirty = {key for key, _cls in FIGURES}
         self._redraw_if_needed()
 
-    def redraw(self) -> None:
-        """Draw every figure now (for export and screenshots)."""
+    def current_key(self) -> str:
+        return FIGURES[self.tabs.currentIndex()][0]
+
+    def redraw(self, keys=None) -> None:
+        """Draw figures now: the given keys, or all of them (for export and screenshots)."""
         if self._input is None:
             return
-        self._dirty = False
+        keys = set(self.figures) if keys is None else set(keys)
+        if "phase_plane" in keys and "aligned" in self._dirty:
+            keys.add("aligned")  # the phase plane draws the aligned beats' averages
         data = self._input
         aligned = self.figures["aligned"]
-        aligned.draw(data)
-        self.figures["phase_plane"].draw(data, aligned.averages)
-        for key in ("time_course", "poincare", "ddr_cl"):
-            self.figures[key].draw(data)
+        for key in sorted(keys, key=lambda k: k != "aligned"):
+            if key == "phase_plane":
+                self.figures[key].draw(data, aligned.averages)
+            else:
+                self.figures[key].draw(data)
+            self._dirty.discard(key)
 
     def _redraw_if_needed(self) -> None:
-        if self._dirty and self.isVisible():
-            self.redraw()
+        key = self.current_key()
+        if key in self._dirty and self.isVisible():
+            self.redraw({key})
 
     def showEvent(self, event) -> None:  # noqa: N802
         super().showEvent(event)
@@ -375,5 +386,5 @@ class FiguresPanel(QtWidgets.QWidget):
         if path:
             if not os.path.splitext(path)[1]:
                 path += ".png"
-            self.redraw()
+            self.redraw({key})
             export_figure(self.figures[key], path)

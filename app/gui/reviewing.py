@@ -24,11 +24,14 @@ class ReviewMixin:
     # -- the reviewed table ---------------------------------------------------------------------
     @property
     def beats(self):
-        """The current recording's reviewed beat table (None before analysis)."""
+        """The reviewed beat table of the channel shown (None before analysis, or when the
+        channel shown is not the analysed one)."""
+        if self.key is None or self.session.info(self.key).channel != self.channel:
+            return None
         return self._beats
 
     def _sweep_rows(self, sweep: int | None = None) -> np.ndarray:
-        b = self._beats
+        b = self.beats
         if b is None or not len(b):
             return np.empty(0, dtype=np.int64)
         sweep = self.sweep if sweep is None else sweep
@@ -36,7 +39,7 @@ class ReviewMixin:
         return rows[np.argsort(np.asarray(b["t_upstroke_s"])[rows], kind="stable")]
 
     def _time_order(self) -> np.ndarray:
-        b = self._beats
+        b = self.beats
         if b is None or not len(b):
             return np.empty(0, dtype=np.int64)
         return np.lexsort((np.asarray(b["t_upstroke_s"]), np.asarray(b["sweep"])))
@@ -61,9 +64,9 @@ class ReviewMixin:
             return
         self.sweep = sweep
         ch = self.recording.channels[self.channel]
-        offset = self.ljp_mV()
+        offset = self.ljp_mV() if self.beats is not None else 0.0
         self.trace_view.set_sweep(self.levels(sweep), label=ch.name, units=ch.units, offset_mV=offset)
-        self.trace_view.set_beats(self._beats)
+        self.trace_view.set_beats(self.beats)
         self.sweep_spin.blockSignals(True)
         self.sweep_spin.setValue(sweep + 1)
         self.sweep_spin.blockSignals(False)
@@ -107,7 +110,7 @@ class ReviewMixin:
     # -- beats ---------------------------------------------------------------------------------
     def select_beat(self, row: int, *, follow: bool = True) -> None:
         """Make a beat (row of the reviewed table) the one under review, in every view."""
-        b = self._beats
+        b = self.beats
         if b is None or not (0 <= row < len(b)):
             return
         self.current_row = int(row)
@@ -218,7 +221,7 @@ class ReviewMixin:
             self._refresh_all()
 
     def _can_edit(self) -> bool:
-        if self.key is None:
+        if self.key is None or self.beats is None:
             return False
         if self._busy_reasons:
             self.status("wait until the analysis has finished")
@@ -237,16 +240,16 @@ class ReviewMixin:
         if self.recording is None:
             return
         rows = self._sweep_rows()
-        ups = np.asarray(self._beats["t_upstroke_s"])[rows] if rows.size else None
+        ups = np.asarray(self.beats["t_upstroke_s"])[rows] if rows.size else None
         r = readout(self.recording, t0, t1, sweep=self.sweep, channel=self.channel, upstrokes_s=ups)
-        offset = self.ljp_mV()
+        offset = self.ljp_mV() if self.beats is not None else 0.0
         if offset:
             # The trace shown is corrected for the LJP; so are the readout's potentials.
             from dataclasses import replace
 
             r = replace(r, value0=r.value0 - offset, value1=r.value1 - offset, mean_value=r.mean_value - offset,
                         min_value=r.min_value - offset, max_value=r.max_value - offset)
-        numbers = [int(self._beats["beat"][rows[i]]) for i in r.beats] if rows.size else []
+        numbers = [int(self.beats["beat"][rows[i]]) for i in r.beats] if rows.size else []
         self.cursor_panel.show_readout(r, numbers)
         self.last_readout = r
         u = r.units

@@ -214,3 +214,25 @@ def test_bad_file_is_one_line_and_nothing_changes(qtbot, tmp_path):
     assert not w.open_path(bad)
     assert str(bad) in w.last_error and "\n" not in w.last_error
     assert w.key is None
+
+
+def test_channel_selector_shows_a_command_channel_without_beats(qtbot):
+    from analysis.recording import Recording
+
+    syn = synthesize(preset("nodal-like"), duration_s=6.0, fs_hz=2_000.0, seed=4)
+    v = syn.recording.sweep(0)
+    rec = Recording.from_array(np.stack([v[np.newaxis], np.zeros_like(v)[np.newaxis]]), 2_000.0,
+                               units=["mV", "pA"], channel_names=["Vm", "Icmd"])
+    w = _window(qtbot)
+    w.open_recording_file(rec, label="cell-c2")
+    assert w.settle(60_000) and w.key is not None
+    assert [w.channel_combo.itemText(i) for i in range(2)] == ["Vm [mV]", "Icmd [pA]"]
+    n_peaks = len(w.trace_view.drawn_markers()["peak"][0])
+    assert n_peaks > 3
+    w.change_channel(1)
+    assert w.beats is None and len(w.trace_view.drawn_markers().get("peak", ((),))[0]) == 0
+    assert "not a membrane potential" in w.statusBar().currentMessage()
+    w.accept_current()  # nothing to review on this channel: no decision is made
+    assert not w.session.can_undo
+    w.change_channel(0)  # the analysed channel: its beats come back without a new analysis
+    assert len(w.trace_view.drawn_markers()["peak"][0]) == n_peaks

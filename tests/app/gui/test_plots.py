@@ -36,6 +36,7 @@ def panel(qtbot):
 
 def test_fits_and_pairs_are_the_cores(panel):
     w, data = panel
+    w.redraw()
     ddr = w.figures["ddr_cl"]
     rows = np.flatnonzero(data.beats["condition"] == "drug")
     ref = plotdata.fit_line(data.beats["cl_ms"][rows], data.beats["ddr_mV_per_s"][rows])
@@ -55,3 +56,11 @@ def test_export_png_and_svg(panel, tmp_path):
     assert "<svg" in open(svg, encoding="utf-8").read(2000)
     paths = w.export_all(tmp_path / "all", fmt="png")
     assert len(paths) == 5 and all(QtGui.QImage(p).width() == 1600 for p in paths)
+
+
+def test_only_the_figure_shown_is_drawn_until_another_tab_opens(panel):
+    w, data = panel
+    w.set_input(data)
+    assert w._dirty == {"phase_plane", "time_course", "poincare", "ddr_cl"}  # "aligned" is the tab shown
+    w.tabs.setCurrentIndex(4)
+    assert "ddr_cl" not in w._dirty and w.figures["ddr_cl"].fits
