@@ -8,13 +8,11 @@ the conditions and their summary, the cursor readout and the definitions (settin
 from __future__ import annotations
 
 import os
-from pathlib import Path
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.errors import InputError
 from analysis.plotdata import recording_times_s
 from analysis.session import Session
 
@@ -23,7 +21,8 @@ from .about import CAUTION, AboutDialog
 from .beat_table import BeatTableView
 from .conditions import ConditionsPanel
 from .cursors import CursorPanel
-from .loading import LoadingMixin, RESULTS_EXTENSIONS
+from .files import FilesMixin
+from .loading import LoadingMixin
 from .overview import OverviewStrip
 from .plots import FigureInput, FiguresPanel
 from .recent import RecentFiles
@@ -31,18 +30,16 @@ from .review import BeatCard, ReasonPicker
 from .reviewing import ReviewMixin
 from .settings_form import SettingsForm
 from .summary_panel import SummaryPanel
-from .trace_view import TraceView
 from .summary_job import summary_work
+from .trace_view import TraceView
 from .workers import Job, JobRunner
 
-__all__ = ["MainWindow", "OPEN_FILTER"]
-
-OPEN_FILTER = "Recordings and results (*.abf *.nwb *.csv *.tsv *.txt *.atf *.h5 *.hdf5);;All files (*)"
+__all__ = ["MainWindow"]
 
 pg.setConfigOptions(antialias=False, foreground=palette.INK, background=palette.PAPER)
 
 
-class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
+class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
     """Upstroke's main window.
 
     Parameters
@@ -219,6 +216,10 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._action(file_menu, "Export &beats CSV…", lambda: self._export_dialog("beats"))
         self._action(file_menu, "Export s&ummary CSV…", lambda: self._export_dialog("summary"))
         self._action(file_menu, "Export &figures…", lambda: self._export_dialog("figures"))
+        file_menu.addSeparator()
+        from .batch_dialog import add_batch_action
+
+        add_batch_action(file_menu, self, settings_getter=lambda: self.settings_form.settings, on_saved=self.open_path)
         file_menu.addSeparator()
         self._action(file_menu, "&Quit", self.close, K.StandardKey.Quit)
 
@@ -434,109 +435,7 @@ class MainWindow(LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         rows = "".join(f"<tr><td><b>{k}</b></td><td>{w}</td></tr>" for k, w in self.shortcut_table())
         QtWidgets.QMessageBox.information(self, "Keyboard", f"<table cellspacing=6>{rows}</table>")
 
-    # -- files ----------------------------------------------------------------------------------
-    def _open_dialog(self) -> None:
-        path, _ = QtWidgets.QFileDialog.getOpenFileName(self, "Open a recording or results", "", OPEN_FILTER)
-        if path:
-            self.open_path(path)
-
-    def dragEnterEvent(self, event: QtGui.QDragEnterEvent) -> None:  # noqa: N802
-        if event.mimeData().hasUrls() and any(u.isLocalFile() for u in event.mimeData().urls()):
-            event.acceptProposedAction()
-
-    def dropEvent(self, event: QtGui.QDropEvent) -> None:  # noqa: N802
-        files = [u.toLocalFile() for u in event.mimeData().urls() if u.isLocalFile()]
-        if files:
-            event.acceptProposedAction()
-            self.open_path(files[0])
-
-    def save(self) -> bool:
-        if self.results_path:
-            return self.save_results(self.results_path)
-        return self.save_as()
-
-    def save_as(self) -> bool:
-        if not self.interactive:
-            return False
-        start = str(Path(self.origin).with_suffix(".h5")) if self.origin and os.path.exists(os.path.dirname(self.origin) or ".") else "results.h5"
-        path, _ = QtWidgets.QFileDialog.getSaveFileName(self, "Save results", start, "Upstroke results (*.h5)")
-        return bool(path) and self.save_results(path if Path(path).suffix.lower() in RESULTS_EXTENSIONS else path + ".h5")
-
-    def save_results(self, path: str | os.PathLike) -> bool:
-        """Save the session (atomically) and forget the autosave journal."""
-        if self.key is None:
-            self.show_error("nothing to save yet: open a recording and let the analysis finish")
-            return False
-        try:
-            self.session.save(path)
-        except InputError as exc:
-            self.show_error(exc.one_line())
-            return False
-        self.results_path = os.fspath(path)
-        if self.journal is not None:
-            self.journal.discard()
-        self.recent.add(path)
-        self._fill_recent_menu()
-        self.status(f"saved {path}")
-        return True
-
-    def export_beats_csv(self, path: str | os.PathLike) -> None:
-        """The reviewed beats of the recording, in the beats CSV's columns."""
-        from analysis.atomic import atomic_output
-
-        with atomic_output(path) as tmp:
-            with open(tmp, "w", encoding="utf-8", newline="") as fh:
-                self.session.beats(self.key).to_csv(fh)
-
-    def export_summary_csv(self, path: str | os.PathLike) -> None:
-        from analysis.atomic import atomic_output
-        from analysis.summary import summary_csv
-
-        text = summary_csv(self.session.summary_table([self.key]))
-        with atomic_output(path) as tmp:
-            with open(tmp, "w", encoding="utf-8", newline="") as fh:
-                fh.write(text)
-
-    def export_figures(self, folder: str | os.PathLike, fmt: str = "png") -> list[str]:
-        self.figures.set_input(self._figure_input())
-        stem = Path(self.session.label(self.key)).stem if self.key else ""
-        return self.figures.export_all(folder, fmt=fmt, stem=stem)
-
-    def _export_dialog(self, what: str) -> None:
-        if self.key is None:
-            self.show_error("nothing to export yet: open a recording and let the analysis finish")
-            return
-        base = Path(self.session.label(self.key)).stem
-        try:
-            if what == "figures":
-                folder = QtWidgets.QFileDialog.getExistingDirectory(self, "Export figures into")
-                if folder:
-                    paths = self.export_figures(folder, "png")
-                    self.export_figures(folder, "svg")
-                    self.status(f"{len(paths)} figures written to {folder} (PNG and SVG)")
-                return
-            path, _ = QtWidgets.QFileDialog.getSaveFileName(self, f"Export {what} CSV", f"{base}_{what}.csv", "CSV (*.csv)")
-            if path:
-                (self.export_beats_csv if what == "beats" else self.export_summary_csv)(path)
-                self.status(f"wrote {path}")
-        except (OSError, InputError) as exc:
-            self.show_error(f"{exc}")
-
     # -- closing --------------------------------------------------------------------------------
-    def _confirm_discard(self) -> bool:
-        """Ask before an unsaved review is dropped; True to go on."""
-        if not self.interactive or self.key is None or not self.session.modified:
-            return True
-        answer = QtWidgets.QMessageBox.question(
-            self, "Upstroke", "The review has unsaved changes. Save them first?",
-            QtWidgets.QMessageBox.Save | QtWidgets.QMessageBox.Discard | QtWidgets.QMessageBox.Cancel,
-        )
-        if answer == QtWidgets.QMessageBox.Save:
-            return self.save()
-        if answer == QtWidgets.QMessageBox.Discard and self.journal is not None:
-            self.journal.discard()
-        return answer == QtWidgets.QMessageBox.Discard
-
     def closeEvent(self, event: QtGui.QCloseEvent) -> None:  # noqa: N802
         if not self._confirm_discard():
             event.ignore()

@@ -236,3 +236,15 @@ def test_channel_selector_shows_a_command_channel_without_beats(qtbot):
     assert not w.session.can_undo
     w.change_channel(0)  # the analysed channel: its beats come back without a new analysis
     assert len(w.trace_view.drawn_markers()["peak"][0]) == n_peaks
+
+
+def test_file_menu_offers_recent_files_exports_and_batch(window, cell_abf, tmp_path):
+    from app.gui.files import open_filter
+
+    assert "*.abf" in open_filter() and "*.h5" in open_filter()
+    titles = [a.text().replace("&", "") for a in window.menuBar().actions()[0].menu().actions()]
+    assert any(t.startswith("Batch-analyse") for t in titles)
+    assert any(t.startswith("Export beats CSV") for t in titles)
+    window.export_summary_csv(tmp_path / "summary.csv")
+    head = (tmp_path / "summary.csv").read_text().splitlines()[0].split(",")
+    assert head[:3] == ["file", "sweep_group", "condition"]  # the core's summary CSV columns
