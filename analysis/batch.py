@@ -20,6 +20,7 @@ so the results equal those of a sequential analysis of the same files in the sam
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 import signal
@@ -402,11 +403,30 @@ def _stop_pool(pool: _cf.ProcessPoolExecutor) -> None:
         proc.join(timeout=5)
 
 
+#: Thread counts for the numerical libraries in each worker, unless the user set them: N
+#: processes each running a multi-threaded linear algebra library would fight over the cores.
+_WORKER_ENV = {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+
+
+@contextlib.contextmanager
+def _worker_environment() -> Iterator[None]:
+    # Worker processes (and the fork server they start from) are started while the pool takes
+    # its first tasks, and inherit the environment of that moment.
+    added = {k: v for k, v in _WORKER_ENV.items() if k not in os.environ}
+    os.environ.update(added)
+    try:
+        yield
+    finally:
+        for key in added:
+            os.environ.pop(key, None)
+
+
 def _run_pool(tasks: Sequence[FileTask], n_workers: int, cancel: Any) -> Iterator[FileOutcome]:
     pool = _cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=_pool_context(), initializer=_worker_init)
     finished = False
     try:
-        pending = {pool.submit(analyze_file, t): t for t in tasks}
+        with _worker_environment():
+            pending = {pool.submit(analyze_file, t): t for t in tasks}
         done_count = 0
         while pending:
             if _cancelled(cancel):

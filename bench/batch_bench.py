@@ -36,7 +36,8 @@ sys.path.insert(0, str(REPO))
 from tests.batch_recordings import write_long_abf1  # noqa: E402
 
 
-def _tree_rss_bytes(pid: int) -> int:
+def _tree_sample(pid: int, cpu_s: dict[int, float]) -> int:
+    """The tree's resident memory now (bytes); records each process's CPU seconds in ``cpu_s``."""
     import psutil
 
     try:
@@ -48,23 +49,30 @@ def _tree_rss_bytes(pid: int) -> int:
     for p in procs:
         try:
             total += p.memory_info().rss
+            t = p.cpu_times()
+            cpu_s[p.pid] = max(cpu_s.get(p.pid, 0.0), t.user + t.system)
         except psutil.NoSuchProcess:
             pass
     return total
 
 
-def run_measured(args: list[str]) -> tuple[float, int, float]:
-    """Run ``python -m app ARGS``; wall time (s), exit status, peak tree RSS (MB, sampled)."""
+def run_measured(args: list[str]) -> tuple[float, int, float, float]:
+    """Run ``python -m app ARGS``.
+
+    Returns wall time (s), exit status, peak tree RSS (MB) and the tree's CPU time (s), both
+    sampled every 50 ms (so the CPU time misses at most the last 50 ms of each process).
+    """
     env = dict(os.environ, PYTHONPATH=str(REPO))
     start = time.perf_counter()
     proc = subprocess.Popen([sys.executable, "-m", "app", *args], env=env,
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     peak = [0]
+    cpu_s: dict[int, float] = {}
     stop = threading.Event()
 
     def sample() -> None:
         while not stop.is_set():
-            peak[0] = max(peak[0], _tree_rss_bytes(proc.pid))
+            peak[0] = max(peak[0], _tree_sample(proc.pid, cpu_s))
             stop.wait(0.05)
 
     sampler = threading.Thread(target=sample, daemon=True)
@@ -75,7 +83,7 @@ def run_measured(args: list[str]) -> tuple[float, int, float]:
     sampler.join()
     if proc.returncode != 0:
         sys.stderr.write(err.decode(errors="replace")[-2000:])
-    return wall, proc.returncode, peak[0] / 2**20
+    return wall, proc.returncode, peak[0] / 2**20, sum(cpu_s.values())
 
 
 def children_maxrss_mb() -> float:
@@ -88,14 +96,17 @@ def speedup(folder: Path, n_files: int, duration_s: float, fs_hz: float) -> None
     rec_dir.mkdir()
     for i in range(n_files):
         write_long_abf1(rec_dir / f"cell{i:02d}.abf", duration_s, fs_hz, seed=i)
-    print(f"speed-up: {n_files} recordings of {duration_s:g} s at {fs_hz / 1e3:g} kHz, cpu_count={os.cpu_count()}")
+    print(f"speed-up: {n_files} recordings of {duration_s:g} s at {fs_hz / 1e3:g} kHz, cpu_count={os.cpu_count()}, "
+          f"load average before {os.getloadavg()[0]:.1f}")
     times = {}
     for workers in (1, 2):
         out = folder / f"w{workers}.h5"
-        wall, code, tree_mb = run_measured(["batch", str(rec_dir), "--workers", str(workers), "--out", str(out), "--quiet"])
+        wall, code, tree_mb, cpu = run_measured(["batch", str(rec_dir), "--workers", str(workers), "--out", str(out), "--quiet"])
         times[workers] = wall
-        print(f"  --workers {workers}: {wall:7.1f} s wall, exit {code}, peak tree RSS {tree_mb:6.0f} MB")
-    print(f"  speed-up 2 workers vs 1: {times[1] / times[2]:.2f}x")
+        print(f"  --workers {workers}: {wall:7.1f} s wall, {cpu:7.1f} s CPU ({cpu / wall:.2f} cores busy), exit {code}, "
+              f"peak tree RSS {tree_mb:6.0f} MB")
+    print(f"  speed-up 2 workers vs 1: {times[1] / times[2]:.2f}x (load average after {os.getloadavg()[0]:.1f}; "
+          "other programs on the machine take cores from the workers)")
     shutil.rmtree(rec_dir)
 
 
@@ -108,10 +119,10 @@ def long_file(folder: Path, duration_min: float, fs_hz: float, bound_mb: float) 
           f"({duration_min * 60 * fs_hz / 1e6:.0f} M samples, {size_mb:.0f} MB on disk, written in "
           f"{time.perf_counter() - t0:.0f} s)")
     before = children_maxrss_mb()
-    wall, code, tree_mb = run_measured(["batch", str(path), "--workers", "1", "--out", str(folder / "long.h5"), "--quiet"])
+    wall, code, tree_mb, cpu = run_measured(["batch", str(path), "--workers", "1", "--out", str(folder / "long.h5"), "--quiet"])
     single = children_maxrss_mb()
     note = "" if single > before else " (no larger than an earlier child's)"
-    print(f"  analysed in {wall:.0f} s, exit {code}")
+    print(f"  analysed in {wall:.0f} s wall ({cpu:.0f} s CPU), exit {code}")
     print(f"  peak RSS, largest process: {single:6.0f} MB{note}; whole tree (sampled): {tree_mb:6.0f} MB; "
           f"bound {bound_mb:.0f} MB: {'within' if max(single, tree_mb) <= bound_mb else 'OVER'}")
     path.unlink()

@@ -57,9 +57,10 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
                         help="liquid-junction potential to subtract, in mV (V_true = V_measured - LJP)")
     parser.add_argument("--units", type=parse_units, action="append", default=[], metavar="CHANNEL=UNITS",
                         help="declare a channel's units when the files mislabel them, e.g. 0=mV (repeatable)")
-    parser.add_argument("--workers", type=_positive_int, metavar="N",
+    where = parser.add_mutually_exclusive_group()  # local processes or a cluster's workers, not both
+    where.add_argument("--workers", type=_positive_int, metavar="N",
                         help=f"local worker processes (default: every core, here {os.cpu_count()})")
-    parser.add_argument("--scheduler", metavar="ADDRESS",
+    where.add_argument("--scheduler", metavar="ADDRESS",
                         help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
                         '(needs pip install "upstroke[cluster]")')
     parser.add_argument("--quiet", action="store_true", help="no progress bar")

@@ -245,3 +245,28 @@ def test_a_local_dask_cluster_gives_the_sequential_results(study):
         assert outcome.ok == (ref is not None)
         if ref is not None:
             _same_columns(outcome.beats(), ref)
+
+
+def _blas_threads(_):
+    return os.environ.get("OPENBLAS_NUM_THREADS"), os.environ.get("OMP_NUM_THREADS")
+
+
+def test_pool_workers_run_single_threaded_linear_algebra(monkeypatch):
+    import concurrent.futures as cf
+
+    import analysis.batch as batch
+
+    monkeypatch.delenv("OPENBLAS_NUM_THREADS", raising=False)
+    monkeypatch.setenv("OMP_NUM_THREADS", "3")  # a user's own choice is kept
+    with batch._worker_environment():
+        assert (os.environ["OPENBLAS_NUM_THREADS"], os.environ["OMP_NUM_THREADS"]) == ("1", "3")
+    assert "OPENBLAS_NUM_THREADS" not in os.environ  # the caller's environment is restored
+    pool = cf.ProcessPoolExecutor(1, mp_context=batch._pool_context())
+    try:
+        with batch._worker_environment():
+            fut = pool.submit(_blas_threads, None)
+        # The fork server may have started in an earlier test (and keeps its environment), so
+        # only the value set for every worker is certain here.
+        assert fut.result(timeout=120)[0] == "1"
+    finally:
+        pool.shutdown()

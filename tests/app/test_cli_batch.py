@@ -103,7 +103,7 @@ def test_a_reviewed_recording_is_not_replaced_by_a_batch(folder, tmp_path, capsy
 
 @pytest.mark.slow
 def test_ctrl_c_mid_batch_leaves_no_results_file(tmp_path):
-    for i in range(8):
+    for i in range(12):
         write_long_abf1(tmp_path / f"cell{i:02d}.abf", 20.0, 10_000.0, seed=i)
     out = tmp_path / "r.h5"
     env = dict(os.environ, PYTHONPATH=str(REPO))
@@ -114,9 +114,9 @@ def test_ctrl_c_mid_batch_leaves_no_results_file(tmp_path):
     )
     seen = b""
     deadline = time.monotonic() + 240
-    while b"1/8" not in seen and proc.poll() is None and time.monotonic() < deadline:
+    while b"1/12" not in seen and proc.poll() is None and time.monotonic() < deadline:
         seen += os.read(proc.stderr.fileno(), 4096)  # the progress bar: at least one file done
-    assert b"1/8" in seen and b"8/8" not in seen, seen.decode(errors="replace")
+    assert b"1/12" in seen and b"12/12" not in seen, seen.decode(errors="replace")
     proc.send_signal(signal.SIGINT)
     _, rest = proc.communicate(timeout=120)
     assert proc.returncode == 130, (seen + rest).decode(errors="replace")
@@ -137,3 +137,14 @@ def test_batch_on_a_local_dask_cluster_writes_what_analyze_writes(folder, tmp_pa
                      "--csv", str(tmp_path / "b.csv"), "--quiet"])
     assert code == 0, capsys.readouterr().err
     assert (tmp_path / "b.csv").read_bytes() == (tmp_path / "a.csv").read_bytes()
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--workers", "0"], "give at least 1 worker"),
+    (["--workers", "2", "--scheduler", "tcp://127.0.0.1:8786"], "not allowed with argument"),
+])
+def test_wrong_worker_options_are_command_line_errors(folder, tmp_path, capsys, extra, words):
+    with pytest.raises(SystemExit) as info:
+        main(["batch", str(folder), "--out", str(tmp_path / "r.h5"), *extra])
+    assert info.value.code == 2 and words in capsys.readouterr().err
+    assert not (tmp_path / "r.h5").exists()
