@@ -36,8 +36,10 @@ FUZZ = settings(
 
 
 def _one_line(exc, path) -> None:
+    from tests.corpus.checks import MAX_LINE_CHARS
+
     text = exc.one_line()
-    assert "\n" not in text and os.fspath(path) in text and len(text) < 400, text
+    assert "\n" not in text and os.fspath(path) in text and len(text) < MAX_LINE_CHARS, text
 
 
 @pytest.fixture(scope="module")

@@ -138,7 +138,7 @@ def test_a_100_MB_string_attribute_is_refused_clearly(good_results, tmp_path):
     """The label, an attribute of a recording's group, holds 100 MB of text."""
     import h5py
 
-    from tests.test_corpus import check_refusal, run_in_process
+    from tests.corpus.checks import check_refusal, run_in_process
     from tests.corpus.make_corpus import Case
 
     path = tmp_path / "huge-label.h5"
