@@ -450,7 +450,8 @@ def _pool_outcome(fut: _cf.Future, task: FileTask) -> FileOutcome:
     except _cf.process.BrokenProcessPool:
         return FileOutcome(
             task.index, task.path,
-            fault=f"the worker process analysing {task.path} died (out of memory, or killed)\n",
+            fault=f"a worker process died while {task.path} was running or waiting (out of memory, or "
+            "killed); the pool stopped with it: analyse this file again on its own to see whether it is the cause\n",
         )
     except Exception:
         return FileOutcome(task.index, task.path, fault=traceback.format_exc())

@@ -270,3 +270,23 @@ def test_pool_workers_run_single_threaded_linear_algebra(monkeypatch):
         assert fut.result(timeout=120)[0] == "1"
     finally:
         pool.shutdown()
+
+
+def test_a_worker_killed_mid_batch_is_reported_not_hung(study):
+    psutil = pytest.importorskip("psutil")
+    paths, _ = study
+
+    def kill_workers(outcome, done, total):
+        if done != 1:
+            return
+        for proc in psutil.Process().children(recursive=True):
+            parent = proc.parent()
+            if parent is not None and parent.pid != os.getpid() and "forkserver" in " ".join(parent.cmdline()):
+                proc.kill()  # as the kernel's out-of-memory killer would
+
+    many = paths * 3  # enough files that some are still waiting when the workers die
+    result = run_batch(make_tasks(many), workers=2, on_done=kill_workers)
+    assert [o.path for o in result.outcomes] == many
+    died = [o for o in result.outcomes if o.fault]
+    assert died and all("a worker process died while" in o.fault for o in died)
+    assert all(o.ok or o.fault or o.error for o in result.outcomes)
