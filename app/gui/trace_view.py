@@ -126,6 +126,7 @@ class TraceView(pg.PlotWidget):
         self._upstrokes_sorted = np.empty(0)
         self._detailed = True
         self._phases_wanted = False
+        self._phases_stale = True
 
         plot = self.getPlotItem()
         # A grid item rather than the axes' own grid lines: those are replayed from a picture on
@@ -263,6 +264,8 @@ class TraceView(pg.PlotWidget):
 
     def set_phases_visible(self, visible: bool) -> None:
         self._phases_wanted = bool(visible)
+        if self._phases_wanted and self._phases_stale:
+            self._update_phases()
         self.phase_bands.setVisible(self._phases_wanted and self._detailed)
 
     def phases_visible(self) -> bool:
@@ -411,13 +414,26 @@ class TraceView(pg.PlotWidget):
         self.flag_bands.set_bands(fa, fe, [palette.FLAG_BAND] * int(flagged.sum()),
                                   [f"⚑ {w.replace(';', ', ')}" for w, f in zip(words, flagged) if f])
 
-        spans = phase_spans(b, rows=rows)
+        self._phases_stale = True
+        if self._phases_wanted:
+            self._update_phases()
+        self.set_current_beat(self._current_row, follow=False)
+        self._update_detail()
+
+    def _update_phases(self) -> None:
+        """Phase spans of the sweep's beats (phase 1 found in the samples), when shown."""
+        self._phases_stale = False
+        b, levels = self._beats, self._levels
+        if b is None or levels is None or not len(self._rows):
+            self.phase_bands.set_bands([], [], [])
+            return
+        rec, ch, offset = levels.recording, levels.channel, self._offset_mV
+        spans = phase_spans(b, rows=self._rows, fs_hz=levels.fs_hz,
+                            samples=lambda sweep, a, z: rec.sweep(sweep, ch, start=a, stop=z) - offset)
         self.phase_bands.set_bands(
             spans.t0_s, spans.t1_s, [palette.PHASES[int(p)] for p in spans.phase],
             [str(int(p)) for p in spans.phase],
         )
-        self.set_current_beat(self._current_row, follow=False)
-        self._update_detail()
 
     # -- hover and click -----------------------------------------------------------------------
     def beat_at(self, t_s: float) -> int:
