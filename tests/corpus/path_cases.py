@@ -34,6 +34,12 @@ def build(folder: Path) -> list[Case]:
     return cases + save_cases(folder)
 
 
+def _bad_settings(folder: Path) -> Path:
+    path = folder / "nan-settings.toml"
+    path.write_text("[detection]\nsmoothing_ms = nan\n", encoding="utf-8")
+    return path
+
+
 def save_cases(folder: Path) -> list[Case]:
     """Outputs that cannot be written: a folder, a missing folder, a full disk, a damaged target."""
     from .results_cases import good_results
@@ -72,6 +78,16 @@ def save_cases(folder: Path) -> list[Case]:
         Case("save-disk-full-export", (good, kept_csv), ("export", str(good), "--csv", str(kept_csv)), kept_csv,
              r"no space|disk is full|full", "the disk fills while export writes the CSV",
              keep=(kept_csv, good), fault="enospc"),
+        Case("batch-folder-missing", (), ("batch", str(folder / "no-such-study"), "--out", str(folder / "batch.h5"), "--quiet"),
+             folder / "no-such-study", r"no such file or folder", "batch over a folder that is not there",
+             outputs=(folder / "batch.h5",)),
+        Case("batch-out-damaged", (damaged,), ("batch", str(rec), "--out", str(damaged), "--quiet"), damaged,
+             r"not a readable HDF5|damaged|truncated", "batch adding to a damaged results file: left as it is",
+             keep=(damaged,)),
+        Case("batch-bad-settings", (rec,), ("batch", str(rec), "--out", str(folder / "batch.h5"), "--quiet",
+                                            "--settings", str(_bad_settings(folder))),
+             _bad_settings(folder), r"not a finite number", "batch with a settings file holding nan",
+             outputs=(folder / "batch.h5",)),
         Case("save-export-folder-missing", (good,), ("export", str(good), "--csv", str(folder / "nowhere" / "b.csv")),
              folder / "nowhere" / "b.csv", r"folder does not exist", "export into a folder that does not exist"),
     ]
