@@ -171,7 +171,7 @@ def test_kill_during_autosave_loses_no_confirmed_decision(cell, tmp_path):
     """8 kills during a review: opening the recording again finds the journal (the app restores
     it and says so) and replaying it brings back every confirmed decision."""
     from analysis.session import Session
-    from app.gui.autosave import Journal
+    from app.gui.autosave import Journal, pending_reviews
 
     folder = tmp_path / "autosave"
     rng = random.Random(SEED + 2)
@@ -189,6 +189,10 @@ def test_kill_during_autosave_loses_no_confirmed_decision(cell, tmp_path):
         if not confirmed and not journal.exists():
             continue  # killed before the first decision was written: nothing was confirmed
         assert journal.exists()  # what the app looks for when the recording is opened again
+        # What the app offers at its next start: this recording's unsaved review.
+        offered = pending_reviews(folder)
+        assert [(p.origin, p.key) for p in offered] == [(os.path.abspath(cell), key)]
+        assert offered[0].decisions >= len(confirmed)
         session = Session()
         assert session.add(str(cell)) == key
         report = journal.restore(session)

@@ -25,7 +25,7 @@ from analysis.session import Session
 
 from .recent import config_dir, write_text_replacing
 
-__all__ = ["Journal", "RestoreReport", "JOURNAL_VERSION"]
+__all__ = ["Journal", "PendingReview", "RestoreReport", "JOURNAL_VERSION", "pending_reviews"]
 
 JOURNAL_VERSION = 1
 
@@ -44,6 +44,41 @@ class RestoreReport:
         if self.settings_changed:
             parts.append("settings")
         return f"restored the unsaved review of {self.written_utc}: " + ", ".join(parts)
+
+
+@dataclass(frozen=True)
+class PendingReview:
+    """An autosave journal left by a session that ended without saving (a crash, a kill)."""
+
+    origin: str
+    key: str
+    written_utc: str
+    decisions: int
+    path: Path
+
+    def text(self) -> str:
+        return f"{self.origin}: an unsaved review of {self.written_utc} ({self.decisions} decision(s))"
+
+
+def pending_reviews(folder: Path | None = None) -> list[PendingReview]:
+    """Every journal in the autosave folder, newest first: what the app offers to recover at start.
+
+    Opening a journal's ``origin`` again replays it (:meth:`Journal.restore`); unreadable
+    journals are skipped, never deleted.
+    """
+    where = folder or config_dir() / "autosave"
+    found = []
+    for path in sorted(where.glob("*.json")) if where.is_dir() else ():
+        try:
+            data = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if not isinstance(data, dict) or data.get("journal_version") != JOURNAL_VERSION:
+            continue
+        sweeps = (data.get("decisions") or {}).get("sweep") or []
+        found.append(PendingReview(str(data.get("origin", "")), str(data.get("key", "")),
+                                   str(data.get("written_utc", "")), len(sweeps), path))
+    return sorted(found, key=lambda p: p.written_utc, reverse=True)
 
 
 def _finite(x: float) -> float | str:
