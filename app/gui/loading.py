@@ -219,6 +219,9 @@ class LoadingMixin:
         self._fill_recording_combo()
         self.status(f"{len(self.session.beats(key))} beats found; " + (f"{len(result.warnings)} warning(s)" if result.warnings else "no warnings"))
         self._after_results(restore=True)
+        pending, self._pending_settings = self._pending_settings, None
+        if pending is not None and pending != self.session.settings(key):
+            self.reanalyse(pending)
 
     def _after_results(self, *, restore: bool) -> None:
         """Everything that follows new results: autosave restore, tables, views."""
@@ -236,6 +239,11 @@ class LoadingMixin:
 
     def reanalyse(self, settings) -> None:
         """Re-analyse with new settings off the GUI thread; only what the change affects reruns."""
+        if self._busy_reasons & {"analysing", "re-analysing"}:
+            # One analysis at a time: the newest settings run when the current one is done.
+            self._pending_settings = settings
+            self.status("settings noted: they apply when the analysis running now has finished")
+            return
         if self.key is None:
             self.session.default_settings = settings
             return
@@ -251,12 +259,15 @@ class LoadingMixin:
         self._busy("re-analysing", False)
         if session is not self.session:
             return
+        pending, self._pending_settings = self._pending_settings, None
         session.default_settings = change.settings
         session.apply_settings(change)
         scope = change.scopes.get(self.key, "none")
         self.status({"none": "settings unchanged", "summary": "summaries updated",
                      "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
         self._refresh_all()
+        if pending is not None and pending != change.settings:
+            self.reanalyse(pending)
 
     def change_channel(self, channel: int) -> None:
         """Show another channel of the recording, analysed when it holds a membrane potential.

@@ -73,6 +73,7 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._levels = {}
         self._busy_reasons: set[str] = set()
         self._summary_generation = 0
+        self._pending_settings = None
         self.summaries: list = []
         self.bridge = None
         self._build_widgets()

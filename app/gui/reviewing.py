@@ -213,12 +213,17 @@ class ReviewMixin:
     def undo(self) -> None:
         if self._can_edit():
             self.session.undo()
-            self._refresh_all()
+            self._after_history_step()
 
     def redo(self) -> None:
         if self._can_edit():
             self.session.redo()
-            self._refresh_all()
+            self._after_history_step()
+
+    def _after_history_step(self) -> None:
+        # An undone settings change puts the old definitions back: show them in the form too.
+        self.settings_form.show_settings(self.session.settings(self.key))
+        self._refresh_all()
 
     def _can_edit(self) -> bool:
         if self.key is None or self.beats is None:

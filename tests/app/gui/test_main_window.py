@@ -151,6 +151,7 @@ def test_changing_a_setting_reanalyses(window, qtbot):
     assert window.trace_view.curve.pos().y() == -10.0  # the trace is drawn corrected too
     qtbot.keySequence(window, QtGui.QKeySequence.StandardKey.Undo)  # a settings change is one step
     assert window.session.settings(window.key).preprocess.ljp_mV == 0.0
+    assert form.values()["preprocess.ljp_mV"] == 0.0 and window.trace_view.curve.pos().y() == 0.0
 
 
 def test_save_then_reopen_restores_decisions_conditions_and_settings(window, qtbot, tmp_path):
@@ -248,3 +249,12 @@ def test_file_menu_offers_recent_files_exports_and_batch(window, cell_abf, tmp_p
     window.export_summary_csv(tmp_path / "summary.csv")
     head = (tmp_path / "summary.csv").read_text().splitlines()[0].split(",")
     assert head[:3] == ["file", "sweep_group", "condition"]  # the core's summary CSV columns
+
+
+def test_settings_applied_during_an_analysis_run_after_it(qtbot, cell_abf):
+    w = _window(qtbot)
+    assert w.open_path(cell_abf)  # the analysis starts in the background
+    w.settings_form.editors["preprocess.ljp_mV"].set(5.0)
+    w.settings_form.apply()  # while it runs: noted, not run twice at once
+    assert w.settle(60_000)
+    assert w.session.settings(w.key).preprocess.ljp_mV == 5.0
