@@ -522,9 +522,7 @@ class Settings:
             names = [f.name for f in fields(sec_cls)]
             unknown = sorted(set(given) - set(names))
             if unknown:
-                raise SettingsError(
-                    where, f"unknown setting {key}.{unknown[0]}", f"the {key} settings are: {', '.join(names)}",
-                )
+                raise SettingsError(where, f"unknown setting {key}.{unknown[0]}", _name_hint(unknown[0], names, key))
             obj = object.__new__(sec_cls)
             defaults = sec_cls()
             for name in names:
@@ -546,7 +544,7 @@ class Settings:
             if key not in data or key == "schema_version" or not name:
                 raise SettingsError(None, f"unknown setting {path!r}", f"use section.field, sections: {', '.join(self.sections())}")
             if name not in data[key]:
-                raise SettingsError(None, f"unknown setting {path!r}", f"the {key} settings are: {', '.join(data[key])}")
+                raise SettingsError(None, f"unknown setting {path!r}", _name_hint(name, list(data[key]), key))
             data[key][name] = list(value) if isinstance(value, tuple) else value
         return Settings.from_dict(data)
 
@@ -587,4 +585,14 @@ _check_declarations()
 
 
 # The TOML files: defined in their own module, part of this module's interface.
+def _name_hint(name: str, names: list[str], section_name: str) -> str:
+    """A short fix for a mistyped setting: the closest names, not all of them (keeps one line)."""
+    import difflib
+
+    close = difflib.get_close_matches(str(name), names, n=3, cutoff=0.5)
+    if close:
+        return f"did you mean {' or '.join(close)}? (docs/measurements.md lists every {section_name} setting)"
+    return f"the {section_name} section has {len(names)} settings, listed in docs/measurements.md"
+
+
 from .settings_io import load_settings, save_settings  # noqa: E402
