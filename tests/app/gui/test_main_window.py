@@ -258,3 +258,15 @@ def test_settings_applied_during_an_analysis_run_after_it(qtbot, cell_abf):
     w.settings_form.apply()  # while it runs: noted, not run twice at once
     assert w.settle(60_000)
     assert w.session.settings(w.key).preprocess.ljp_mV == 5.0
+
+
+def test_table_and_trace_follow_each_other(window):
+    rows = np.flatnonzero(window.session.beats(window.key)["sweep"] == 1)
+    window.trace_view.beat_clicked.emit(int(rows[2]))  # a click on a beat of the other sweep
+    assert window.sweep == 1 and window.table.current_table_row() == rows[2]
+    model = window.table.beat_model
+    window.table.setCurrentIndex(model.index(model.view_row(int(rows[0])), 3))  # a row picked in the table
+    assert window.current_row == rows[0]
+    t = window.session.beats(window.key)["t_upstroke_s"][rows[0]]
+    x0, x1 = window.trace_view.x_range()
+    assert x0 < t < x1
