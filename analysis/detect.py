@@ -21,6 +21,11 @@ smoothed membrane potential with adaptive levels, followed by checks of each can
    events are electrical artefacts. Upstrokes closer than ``min_interval_ms`` to the previous
    accepted one are artefacts too.
 
+Electrical spikes a few samples long that ride on a beat (on its plateau, its upstroke's foot or
+its diastole) never reach the detector's levels as candidates of their own; :func:`find_spikes`
+finds them on the full-rate samples so that the measurement can bridge them
+(:func:`bridge_spans`) before it looks for any extreme or crossing.
+
 Long sweeps are worked in chunks of ``chunk_s`` with ``chunk_overlap_s`` of context on each side;
 chunk and block boundaries are aligned so that every sample sees the same levels whatever the
 chunk size, and a candidate belongs to the chunk in whose core its rising crossing lies, so a beat
@@ -40,7 +45,10 @@ from .settings import DetectionSettings
 from .signal import moving_mean as _moving_mean
 from .signal import noise_rms_mV
 
-__all__ = ["Detection", "detect_beats", "detect_sweep", "estimate_noise_mV", "ARTEFACT_REASONS"]
+__all__ = [
+    "Detection", "detect_beats", "detect_sweep", "estimate_noise_mV", "find_spikes", "bridge_spans",
+    "ARTEFACT_REASONS",
+]
 
 #: Why a candidate was not taken as a beat.
 ARTEFACT_REASONS = {
@@ -87,6 +95,108 @@ def estimate_noise_mV(load: Callable[[int, int], np.ndarray], n: int, *, pieces:
         return noise_rms_mV(load(0, n))
     starts = np.linspace(0, n - piece, pieces).astype(np.int64)
     return float(np.median([noise_rms_mV(load(int(a), int(a) + piece)) for a in starts]))
+
+
+def find_spikes(
+    v_mV: np.ndarray, fs_hz: float, *, noise_mV: float, settings: DetectionSettings | None = None,
+) -> np.ndarray:
+    """Spans of short electrical spikes, guard samples included, as ``(start, stop)`` rows.
+
+    A spike is a run of at most ``spike_max_ms`` of samples that the trace enters by a step of at
+    least half the spike threshold in one sample, and leaves to come back within half the
+    threshold of where it was, having stood out by at least the threshold (``spike_min_mV`` or 10
+    x the noise, whichever is larger) from both sides; upward and downward alike. No action
+    potential does that: its upstroke does not come back within a millisecond, and its peak,
+    however sharp at a low sampling rate, is not followed by a return to the diastolic level.
+    Each span is widened by ``spike_guard_ms`` (at least one sample) on each side and overlapping
+    spans are merged. Vectorised over the candidate steps (a few per fast upstroke, none in a
+    slow or clean trace).
+
+    Parameters
+    ----------
+    v_mV : ndarray
+        Full-rate samples (mV).
+    fs_hz : float
+    noise_mV : float
+        White-noise rms of the trace.
+    settings : DetectionSettings or None
+
+    Returns
+    -------
+    ndarray of int64, shape (k, 2)
+        Half-open spans ``[start, stop)`` of indices into ``v_mV``, sorted, not overlapping.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> v = np.full(1000, -60.0)
+    >>> v[500:503] += 40.0
+    >>> find_spikes(v, 10_000.0, noise_mV=0.0).tolist()
+    [[498, 505]]
+    """
+    s = settings or DetectionSettings()
+    v = np.asarray(v_mV, dtype=np.float64)
+    w = int(round(s.spike_max_ms * 1e-3 * fs_hz))
+    empty = np.empty((0, 2), np.int64)
+    if w < 1 or v.size < 3:
+        return empty
+    thr = max(s.spike_min_mV, 10.0 * float(noise_mV))
+    d = np.diff(v)
+    spans = []
+    for sign in (1.0, -1.0):
+        e = np.flatnonzero(sign * d >= 0.5 * thr)  # v[e] is the level before, v[e + 1] the first spike sample
+        if e.size == 0:
+            continue
+        offs = np.arange(1, w + 2)
+        idx = np.minimum(e[:, None] + offs, v.size - 1)
+        rel = sign * (v[idx] - v[e][:, None])
+        back = np.abs(rel) < 0.5 * thr
+        back[:, 0] = False
+        back &= (e[:, None] + offs) < v.size  # a return must lie in the trace
+        ok = back.any(axis=1)
+        r = np.argmax(back, axis=1)  # first sample back: the spike is rel[:, :r]
+        inside = offs[None, :] - 1 < r[:, None]
+        top = np.where(inside, rel, -np.inf).max(axis=1)
+        after = rel[np.arange(e.size), r]
+        ok &= top - np.maximum(after, 0.0) >= thr
+        ok &= top >= thr
+        if ok.any():
+            spans.append(np.column_stack((e[ok] + 1, e[ok] + 1 + r[ok])))
+    if not spans:
+        return empty
+    g = max(1, int(round(s.spike_guard_ms * 1e-3 * fs_hz)))
+    sp = np.concatenate(spans)
+    sp = sp[np.argsort(sp[:, 0], kind="stable")]
+    sp[:, 0] = np.maximum(sp[:, 0] - g, 1)
+    sp[:, 1] = np.minimum(sp[:, 1] + g, v.size - 1)
+    # Merge overlapping spans.
+    starts, stops = [int(sp[0, 0])], [int(sp[0, 1])]
+    for a, b in sp[1:]:
+        if a <= stops[-1]:
+            stops[-1] = max(stops[-1], int(b))
+        else:
+            starts.append(int(a))
+            stops.append(int(b))
+    out = np.column_stack((starts, stops)).astype(np.int64)
+    return out[out[:, 1] > out[:, 0]]
+
+
+def bridge_spans(v_mV: np.ndarray, spans: np.ndarray) -> np.ndarray:
+    """A copy of ``v_mV`` with each span replaced by the straight line between its neighbours.
+
+    ``spans`` are ``[start, stop)`` rows with ``start >= 1`` and ``stop <= len - 1`` (as
+    :func:`find_spikes` gives them): the line runs from ``v[start - 1]`` to ``v[stop]``. Bridging
+    keeps every later step honest: no maximum, minimum, derivative or level crossing can land
+    on a spike, and no smoothing window spreads it into its neighbours.
+    """
+    x = np.array(v_mV, dtype=np.float64, copy=True)
+    for a, b in np.asarray(spans, dtype=np.int64).reshape(-1, 2):
+        a, b = int(a), int(b)
+        if b <= a:
+            continue
+        frac = np.arange(1, b - a + 1, dtype=np.float64) / (b - a + 1)
+        x[a:b] = x[a - 1] + (x[b] - x[a - 1]) * frac
+    return x
 
 
 def detect_beats(

@@ -18,7 +18,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from .detect import detect_sweep, estimate_noise_mV
+from .detect import bridge_spans, detect_sweep, estimate_noise_mV, find_spikes
 from .errors import RecordingError, SettingsError
 from .markers import apd_name, measure_beats
 from .measure import features_of_sweep, marker_columns
@@ -56,6 +56,9 @@ class AnalysisResult:
         Per sweep, the sample indices and reasons of detection candidates not taken as beats.
     hum_sweeps : list of int
         The sweeps from which mains hum was subtracted (``preprocess.hum_removal``).
+    spikes : dict of int to ndarray
+        Per sweep, the ``(start, stop)`` sample spans of short electrical spikes (guards
+        included) that were bridged before measuring (:func:`analysis.detect.find_spikes`).
     """
 
     beats: BeatTable
@@ -67,6 +70,7 @@ class AnalysisResult:
     ljp_mV: float
     artefacts: dict = field(default_factory=dict)
     hum_sweeps: list = field(default_factory=list)
+    spikes: dict = field(default_factory=dict)
 
 
 def looks_like_membrane_potential(recording: Recording, channel: int, *, seconds: float = 20.0) -> bool:
@@ -224,10 +228,10 @@ def analyze(
         if progress is not None:
             progress(min(done[0], total), total)
 
-    parts, artefacts, rise, hum_sweeps = [], {}, [], []
+    parts, artefacts, rise, hum_sweeps, spikes = [], {}, [], [], {}
     for sw in sweep_ids:
         try:
-            cols, art, rise_sw, hum = _analyse_sweep(recording, sw, idx, scale, s, tick)
+            cols, art, rise_sw, hum, spikes[sw] = _analyse_sweep(recording, sw, idx, scale, s, tick)
         except SettingsError as exc:
             if exc.path is not None:
                 raise
@@ -251,7 +255,7 @@ def analyze(
     warnings.extend(more)
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
-        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps,
+        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes,
     )
 
 
@@ -313,10 +317,10 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     ups = det.i_upstroke
     if ups.size == 0:
         tick(n)
-        return None, art, [], load.hum
+        return None, art, [], load.hum, np.empty((0, 2), np.int64)
     chunk = max(int(s.detection.chunk_s * fs), 1)
     margin = pad + int(0.25 * fs) + 64
-    markers = []
+    markers, spans = [], []
     k0 = 0
     while k0 < ups.size:
         start_at = ups[k0 - 1] if k0 > 0 else 0
@@ -326,6 +330,12 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
         stop_at = ups[k1] if k1 < ups.size else n
         ra, rb = max(0, int(start_at) - margin), min(n, int(stop_at) + margin)
         v = load(ra, rb)
+        # Short electrical spikes are bridged before anything is measured (MEASUREMENTS.md, Beats:
+        # a spike of a few samples is neither a beat nor part of one).
+        sp = find_spikes(v, fs, noise_mV=noise, settings=s.detection)
+        if sp.size:
+            v = bridge_spans(v, sp)
+            spans.append(sp + ra)
         prev = np.concatenate(([ups[k0 - 1] - ra if k0 > 0 else -1], ups[k0:k1 - 1] - ra))
         nxt = np.concatenate((ups[k0 + 1:k1] - ra, [ups[k1] - ra if k1 < ups.size else rb - ra]))
         markers.append(measure_beats(
@@ -336,7 +346,8 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
         k0 = k1
     cols = _sweep_columns(markers, sw, s)
     rise = [float(x) for m in markers for x in m.values["rise_samples"]]
-    return cols, art, rise, load.hum
+    spikes = np.unique(np.concatenate(spans), axis=0) if spans else np.empty((0, 2), np.int64)
+    return cols, art, rise, load.hum, spikes
 
 
 def _sweep_columns(markers, sw: int, s: Settings) -> dict[str, np.ndarray]:

@@ -165,6 +165,19 @@ class DetectionSettings(Section):
         4000.0, unit="Hz", min=500.0, max=10_000_000.0, source=_NO_SOURCE,
         doc="beats are found on the trace averaged down to about this rate (measurement uses every sample)",
     )
+    spike_max_ms: float = setting(
+        1.0, unit="ms", min=0.0, max=5.0, source=_NO_SOURCE,
+        doc="an excursion that leaves the trace and comes back within this time is an electrical spike "
+        "(bridged before measuring; 0: never)",
+    )
+    spike_min_mV: float = setting(
+        10.0, unit="mV", min=1.0, max=200.0, source=_NO_SOURCE,
+        doc="a spike stands out at least this far (and 10 x the noise) from the trace on both sides",
+    )
+    spike_guard_ms: float = setting(
+        0.2, unit="ms", min=0.0, max=5.0, source=_NO_SOURCE,
+        doc="samples this close to a spike are bridged with it (its edges and ringing)",
+    )
     chunk_s: float = setting(
         60.0, unit="s", min=0.5, max=36_000.0, source=_NO_SOURCE,
         doc="long sweeps are worked in chunks of this length (bounds memory)",

@@ -108,11 +108,6 @@ SLOW_UPSTROKE_TIME_JITTERS = pytest.mark.xfail(
     reason="the time of dV/dt max of a 4.6 V/s upstroke at 10 kHz with 0.3 mV noise jitters by "
     "0.4-0.5 ms rms, so 9 of 92 cycle lengths (seeds 23-26) miss 1 ms, by up to 0.13 ms",
 )
-SPIKE_TAKEN_AS_PEAK = pytest.mark.xfail(
-    strict=True,
-    reason="a 3-sample spike above the peak is taken as the peak; dV/dt max, APA and the APDs are "
-    "then measured from it (ventricular-like: dV/dt max 30 instead of 260 V/s)",
-)
 
 
 @pytest.mark.parametrize("name", [pytest.param("nodal-like", marks=SLOW_UPSTROKE_TIME_JITTERS), "ventricular-like"])
@@ -144,7 +139,7 @@ def test_early_ddr_and_apd20_meet_twice_the_ddr_and_apd_tolerances_with_noise(na
     assert compare(_analyze(syn.recording), syn.truth.beats, EXTRA_NOISY) == []
 
 
-@pytest.mark.parametrize("name", ["nodal-like", pytest.param("ventricular-like", marks=SPIKE_TAKEN_AS_PEAK)])
+@pytest.mark.parametrize("name", sorted(CELLS))
 def test_a_spike_on_the_plateau_is_not_the_peak(name):
     b = synthesize(preset(name), duration_s=8.0, fs_hz=2000.0, seed=23).truth.beats
     # +40 mV for 3 samples halfway between the peak and APD50 of beat 3: above the real peak

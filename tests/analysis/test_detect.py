@@ -118,3 +118,48 @@ def test_a_beat_exactly_on_a_chunk_edge_is_counted_once():
         v, beats = gaussian_train(FS, 5.0, cl_s=1.0, first_s=first)
         det = detect_beats(v, FS, settings=s)
         assert len(det) == len(beats), first
+
+
+# -- short electrical spikes riding on beats (find_spikes, bridge_spans) ----------------------------
+def test_spikes_of_a_few_samples_are_found_up_and_down_with_their_guards():
+    from analysis.detect import bridge_spans, find_spikes
+
+    fs = 50_000.0
+    v, _ = pacemaker_train(fs, 2.0, dvdt_max_V_per_s=300.0, amp_mV=120.0, mdp_mV=-85.0, ddr_mV_per_s=20.0,
+                           repol_ms=200.0, cl_s=0.6)
+    clean = v.copy()
+    plateau, diastole = int(0.35 * fs), int(0.75 * fs)  # on the plateau, in the diastole (construction)
+    v[plateau:plateau + 3] += 40.0
+    v[diastole:diastole + 5] -= 25.0
+    spans = find_spikes(v, fs, noise_mV=0.0)
+    guard = round(DetectionSettings().spike_guard_ms * 1e-3 * fs)
+    # the spikes put in, widened by the guard on each side (construction)
+    assert spans.tolist() == [[plateau - guard, plateau + 3 + guard], [diastole - guard, diastole + 5 + guard]]
+    bridged = bridge_spans(v, spans)
+    # the straight line across each span stays within the trace's own change over it (construction)
+    for a, b in spans:
+        assert np.max(np.abs(bridged[a:b] - clean[a:b])) < np.ptp(clean[a - 1:b + 1]) + 1e-9
+    assert np.array_equal(bridged[: spans[0, 0]], v[: spans[0, 0]])
+
+
+@pytest.mark.parametrize("fs", [1000.0, 5000.0, 10_000.0, 50_000.0])
+def test_action_potentials_are_never_spikes_at_any_sampling_rate(fs):
+    from analysis.detect import find_spikes
+
+    # Fast (400 V/s) and slow upstrokes, sharp peaks at 1 kHz: none comes back to its diastolic
+    # level within a millisecond (common practice, no source: APs last tens of ms or more).
+    fast, _ = pacemaker_train(fs, 3.0, dvdt_max_V_per_s=400.0, amp_mV=125.0, mdp_mV=-85.0, ddr_mV_per_s=20.0,
+                              repol_ms=150.0, cl_s=0.6)
+    slow, _ = pacemaker_train(fs, 3.0)
+    for v in (fast, slow):
+        assert find_spikes(v + 0.3 * np.random.default_rng(3).normal(size=v.size), fs, noise_mV=0.3).size == 0
+
+
+def test_an_excursion_longer_than_the_spike_limit_is_left_alone():
+    from analysis.detect import find_spikes
+
+    v = np.full(5000, -60.0)
+    v[2000:2030] += 40.0  # 3 ms at 10 kHz: longer than spike_max_ms (1 ms); construction
+    v[3000:3008] += 40.0  # 0.8 ms: a spike
+    assert find_spikes(v, FS, noise_mV=0.0)[:, 0].tolist() == [3000 - 2]
+    assert find_spikes(v, FS, noise_mV=0.0, settings=DetectionSettings(spike_max_ms=0.0)).size == 0
