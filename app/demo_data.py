@@ -171,10 +171,14 @@ class DemoPaths:
 
 
 def _candidate_folders() -> list[Path]:
+    import site
+
     here = Path(__file__).resolve().parent
+    share = Path("share") / "upstroke" / "sample_data"
     # A source checkout or editable install; a copy inside the package; a non-editable install's
-    # data files (pyproject.toml puts them in share/upstroke/sample_data under the prefix).
-    return [here.parent / "sample_data", here / "sample_data", Path(sys.prefix) / "share" / "upstroke" / "sample_data"]
+    # data files (pyproject.toml puts them in share/upstroke/sample_data under the prefix, or
+    # under the user base for ``pip install --user``).
+    return [here.parent / "sample_data", here / "sample_data", Path(sys.prefix) / share, Path(site.getuserbase()) / share]
 
 
 def demo_conditions(folder: Path | None = None) -> tuple[Condition, ...]:

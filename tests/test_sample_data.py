@@ -64,6 +64,16 @@ def test_every_file_is_committed_and_listed():
         assert hashlib.sha256(data).hexdigest() == entry["sha256"], name
 
 
+def test_a_non_editable_install_ships_every_sample_file():
+    import tomllib
+
+    with open(ROOT / "pyproject.toml", "rb") as fh:
+        data_files = tomllib.load(fh)["tool"]["setuptools"]["data-files"]
+    shipped = {Path(p).name for p in data_files["share/upstroke/sample_data"]}
+    assert shipped == set(_manifest()["files"]) | {"MANIFEST.json"}
+    assert Path("share/upstroke/sample_data") in [Path(*p.parts[-3:]) for p in demo_data._candidate_folders()]
+
+
 def test_the_samples_stay_under_ten_megabytes():
     total = sum(p.stat().st_size for p in SAMPLES.iterdir() if p.is_file())
     assert total < 10_000_000  # the project's size limit for bundled data (common practice, no source)
