@@ -89,10 +89,11 @@ def _check_abf1(head: bytes, size: int, origin: str) -> None:
         )
     if data_format != 0:
         raise RecordingError(origin, f"declares an unknown sample format ({data_format})", _CORRUPT_FIX)
-    if acq_length < 0 or episodes < 0 or data_block < 0:
+    if acq_length < 0 or episodes < 0 or data_block < 0 or points_ignored < 0:
+        # (a negative count of points ignored would start the data before the file's first byte)
         raise RecordingError(
             origin, f"the ABF 1 header is corrupt (samples {acq_length}, sweeps {episodes}, "
-            f"data block {data_block})", _CORRUPT_FIX,
+            f"data block {data_block}, points ignored {points_ignored})", _CORRUPT_FIX,
         )
     _check_data(data_block * BLOCK_BYTES + points_ignored, acq_length, 2, size, origin)
     _check_sweeps(episodes, acq_length // n_channels, origin)

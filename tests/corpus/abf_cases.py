@@ -18,6 +18,7 @@ from .make_corpus import Case
 
 # ABF 1 header fields (pyabf/abf1/headerV1.py).
 V1_ACQ_LENGTH = 10  # lActualAcqLength, int32: samples in the data block (all channels)
+V1_POINTS_IGNORED = 14  # nNumPointsIgnored, int16: samples skipped before the data
 V1_EPISODES = 16  # lActualEpisodes, int32
 V1_DATA_BLOCK = 40  # lDataSectionPtr, int32, in 512-byte blocks
 V1_TAG_COUNT = 48  # lNumTagEntries, int32
@@ -112,6 +113,8 @@ def _synthetic_cases(folder: Path) -> list[Case]:
         ("abf1-float-samples", (V1_DATA_FORMAT, "h", 1), r"floating-point", "ABF 1 float32 data, which pyabf cannot scale"),
         ("abf1-unknown-sample-format", (V1_DATA_FORMAT, "h", 7), r"unknown sample format", "nDataFormat = 7"),
         ("abf1-negative-length", (V1_ACQ_LENGTH, "i", -5), _CORRUPT, "lActualAcqLength < 0"),
+        # Found by bench/fuzz_readers.py: the data started before the file (a memory-map fault).
+        ("abf1-negative-points-ignored", (V1_POINTS_IGNORED, "h", -32768), _CORRUPT, "nNumPointsIgnored = -32768"),
         # Found by bench/fuzz_readers.py: four 0xFF bytes over fADCRange opened as all-NaN samples.
         ("abf1-nan-adc-range", (V1_ADC_RANGE, "I", 0xFFFFFFFF), r"scaling", "fADCRange is a NaN"),
         ("abf1-zero-adc-range", (V1_ADC_RANGE, "f", 0.0), r"scaling", "fADCRange = 0: every sample 0 mV"),
