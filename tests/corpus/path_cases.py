@@ -34,6 +34,14 @@ def build(folder: Path) -> list[Case]:
     return cases + save_cases(folder)
 
 
+def _cut_abf(folder: Path) -> Path:
+    from .settings_cases import good_recording
+
+    path = folder / "cut.abf"
+    path.write_bytes(good_recording(folder).read_bytes()[:3000])
+    return path
+
+
 def _bad_settings(folder: Path) -> Path:
     path = folder / "nan-settings.toml"
     path.write_text("[detection]\nsmoothing_ms = nan\n", encoding="utf-8")
@@ -88,6 +96,12 @@ def save_cases(folder: Path) -> list[Case]:
                                             "--settings", str(_bad_settings(folder))),
              _bad_settings(folder), r"not a finite number", "batch with a settings file holding nan",
              outputs=(folder / "batch.h5",)),
+        Case("gui-damaged-recording", (damaged,), ("gui", str(folder / "cut.abf"), "--screenshot", str(folder / "shot.png")),
+             _cut_abf(folder), r"corrupt|past the end|cut short", "the desktop app given a damaged recording",
+             outputs=(folder / "shot.png",), tags=("subprocess",)),
+        Case("gui-damaged-results", (damaged,), ("gui", str(damaged), "--screenshot", str(folder / "shot.png")),
+             damaged, r"not a readable HDF5|damaged|truncated", "the desktop app given a damaged results file",
+             outputs=(folder / "shot.png",), keep=(damaged,), tags=("subprocess",)),
         Case("save-export-folder-missing", (good,), ("export", str(good), "--csv", str(folder / "nowhere" / "b.csv")),
              folder / "nowhere" / "b.csv", r"folder does not exist", "export into a folder that does not exist"),
     ]
