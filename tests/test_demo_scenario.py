@@ -28,9 +28,14 @@ def planted():
 
 
 @pytest.fixture(scope="module")
-def session():
+def result():
+    return analyze(open_recording(SAMPLES / demo_data.GAP_FREE_ABF))
+
+
+@pytest.fixture(scope="module")
+def session(result):
     s = Session()
-    key = s.add(SAMPLES / demo_data.GAP_FREE_ABF, conditions=demo_data.demo_conditions(None))
+    key = s.add(SAMPLES / demo_data.GAP_FREE_ABF, result=result, conditions=demo_data.demo_conditions(None))
     return s, key
 
 
@@ -67,6 +72,13 @@ def test_every_beat_is_found_and_no_artefact_is_taken_for_one(beats, planted):
     assert np.median(np.abs(t - truth_t)) < 1e-3 and np.max(np.abs(t - truth_t)) < 5e-3
     for t_art in _times(planted, "artefact"):
         assert np.min(np.abs(t - t_art)) > 0.05, f"the artefact at {t_art} s was taken for a beat"
+
+
+def test_each_artefact_is_found_as_an_electrical_spike(result, planted):
+    spans_s = np.asarray(result.spikes[0], float) / demo_data.FS_HZ
+    for t_art in _times(planted, "artefact"):
+        assert np.any((spans_s[:, 0] <= t_art + 1e-4) & (t_art <= spans_s[:, 1])), f"no spike found at {t_art} s"
+    assert len(spans_s) == len(_times(planted, "artefact"))  # and nothing else taken for one
 
 
 def test_each_artefact_flags_the_beat_whose_diastole_holds_it(beats, planted):
