@@ -35,6 +35,8 @@ def application():
 
 def prepare_screenshot_view(window) -> None:
     """A view worth a screenshot: a few beats around a rejected one, phases and cursors on."""
+    import math
+
     import numpy as np
 
     beats = window.beats
@@ -53,7 +55,10 @@ def prepare_screenshot_view(window) -> None:
     window.trace_view.fit_y()
     window.set_phases_visible(True)
     window.set_cursors_visible(True)
-    window.trace_view.set_cursor_times(t + 1.2 * cl, t + 3.2 * cl)
+    # Both cursors on the sweep, even a short one (a cursor past its end reads nothing).
+    end = window.levels(window.sweep).duration_s if window.recording is not None else math.inf
+    c1 = min(t + 3.2 * cl, end - 0.02 * cl)
+    window.trace_view.set_cursor_times(min(t + 1.2 * cl, c1 - 0.5 * cl), c1)
     window.figures.tabs.setCurrentIndex(0)
 
 
