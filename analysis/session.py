@@ -9,9 +9,15 @@ table as the user sees it: decisions applied to ``accepted`` and ``reject_reason
 
 Every edit is a command on an undo stack. Change notifications are plain Python callbacks
 (:meth:`Session.subscribe`), so the app can forward them as Qt signals and the core stays
-Qt-free. A session is not thread-safe: call it from one thread. Heavy work can still run
-elsewhere: :meth:`Session.prepare_settings` only reads, and its result is applied later with
-:meth:`Session.apply_settings`.
+Qt-free. A session is not thread-safe: call it from one thread. Heavy work still runs elsewhere,
+as pure jobs over snapshots (:mod:`analysis.session_jobs`): :meth:`Session.settings_job` and
+:meth:`Session.summary_job` are made on the session's thread, called in a worker, and their
+results applied back with :meth:`Session.apply_settings` and :meth:`Session.set_summaries`,
+which drop a result the session has moved on from.
+
+The liquid-junction potential has one home, the recording's settings
+(``settings(key).preprocess.ljp_mV``): :meth:`Session.info`, :meth:`Session.trace_mV`, the
+summaries' ensemble beat and the results file all read it from there.
 
 Events
 ------
@@ -48,18 +54,19 @@ from .conditions import Condition, check_conditions
 from .decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
 from .errors import RecordingError
 from .recording import Recording
-from .session_commands import Command, ConditionsCommand, DecideCommand, SettingsCommand, SweepsCommand
+from .session_commands import Command, ConditionsCommand, DecideCommand, SweepsCommand
+from .session_jobs import SettingsJob, SummaryJob
 from .session_types import (
-    EVENTS, VIEW_COLUMNS, Change, Entry, RecordingInfo, SettingsChange, SummaryJob, cycle_measurer,
-    info_from, is_event_warning, key_of, mV_scale, reviewed_table,
+    EVENTS, VIEW_COLUMNS, Change, Entry, RecordingInfo, SettingsChange, info_from, is_event_warning, key_of,
+    mV_scale, reviewed_table,
 )
-from .session_types import scope as change_scope
+from .session_work import SessionWork
 from .table import BeatTable
 
-__all__ = ["Change", "EVENTS", "RecordingInfo", "Session", "SettingsChange", "SummaryJob", "VIEW_COLUMNS"]
+__all__ = ["Change", "EVENTS", "RecordingInfo", "Session", "SettingsChange", "SettingsJob", "SummaryJob", "VIEW_COLUMNS"]
 
 
-class Session:
+class Session(SessionWork):
     """Recordings with their results, review decisions and conditions, with undo and redo.
 
     Parameters
@@ -204,8 +211,12 @@ class Session:
             raise KeyError(f"no recording {key!r} in the session; it holds {list(self._entries)}") from None
 
     def info(self, key: str) -> RecordingInfo:
-        """Source, reader, channel, LJP, geometry and provenance of a recording."""
-        return self._entry(key).info
+        """Source, reader, channel, LJP, geometry and provenance of a recording (a snapshot).
+
+        ``ljp_mV`` is the recording's settings' ``preprocess.ljp_mV``, read now.
+        """
+        e = self._entry(key)
+        return RecordingInfo.of(e.info, e.ljp_mV)
 
     def label(self, key: str) -> str:
         return self._entry(key).info.label
@@ -245,7 +256,7 @@ class Session:
         """One sweep of the analysed channel in mV after the LJP correction (no filters)."""
         e = self._entry(key)
         raw = self.recording(key).sweep(int(sweep), e.info.channel)
-        return raw * mV_scale(e.info.units) - e.info.ljp_mV
+        return raw * mV_scale(e.info.units) - e.ljp_mV
 
     # -- tables ------------------------------------------------------------------------------
     def auto_beats(self, key: str) -> BeatTable:
@@ -396,119 +407,6 @@ class Session:
         merged, more = flag_and_reject(merged.take(order), rec, e.info.channel, e.settings, scale=mV_scale(e.info.units))
         selection = None if sweeps is None else tuple(wanted)
         self._run(SweepsCommand(self, key, selection, merged, tuple(warnings + more)))
-
-    # -- settings ----------------------------------------------------------------------------
-    def prepare_settings(self, settings: Any, keys: Sequence[str] | None = None) -> SettingsChange:
-        """Compute the results new settings give, without changing the session.
-
-        Only what the change affects is recomputed: nothing for the summary section, the events
-        and quality rules for the quality section, the whole analysis otherwise. Safe to run in
-        a worker thread while the session is not being edited.
-        """
-        from .pipeline import analyze
-
-        keys = list(self._entries) if keys is None else list(keys)
-        scopes, tables, warnings, prov = {}, {}, {}, {}
-        for key in keys:
-            e = self._entry(key)
-            scope = change_scope(e.settings, settings)
-            scopes[key] = scope
-            if scope == "analysis":
-                rec = self.recording(key)
-                channel = e.requested_channel if e.requested_channel is not None else e.info.channel
-                res = analyze(rec, settings=settings, channel=channel, sweeps=e.info.sweeps, label=e.info.label)
-                tables[key], warnings[key] = res.beats, tuple(res.warnings)
-            elif scope == "events":
-                from .pipeline import flag_and_reject
-
-                tables[key], w = flag_and_reject(
-                    e.table, self.recording(key), e.info.channel, settings, scale=mV_scale(e.info.units),
-                )
-                kept = tuple(x for x in e.warnings if not is_event_warning(x))
-                warnings[key] = kept + tuple(w)
-            if scope in ("analysis", "events"):
-                from .store import provenance_now
-
-                prov[key] = provenance_now()
-        return SettingsChange(settings, scopes, tables, warnings, prov)
-
-    def apply_settings(self, change: SettingsChange) -> None:
-        """Apply prepared settings and results (one undo step)."""
-        keys = [k for k, s in change.scopes.items() if s != "none" and k in self._entries]
-        if not keys:
-            return
-        self._run(SettingsCommand(self, change, keys))
-
-    def set_settings(self, settings: Any, keys: Sequence[str] | None = None) -> dict[str, str]:
-        """Change the settings of some (default: all) recordings and re-analyse what they affect.
-
-        Decisions stay on the beats that still exist (matched by upstroke time). One undo step.
-
-        Returns
-        -------
-        dict of str to str
-            Per recording, what was recomputed (see :class:`SettingsChange`).
-        """
-        change = self.prepare_settings(settings, keys)
-        self.apply_settings(change)
-        return change.scopes
-
-    # -- summaries ---------------------------------------------------------------------------
-    def summaries(self, key: str) -> list:
-        """The recording's summaries (:class:`analysis.summary.Summary`), cached until a change."""
-        e = self._entry(key)
-        if e.summaries is None:
-            e.summaries = self.summary_job(key)()
-        return e.summaries
-
-    def summary_job(self, key: str) -> SummaryJob:
-        """A snapshot that computes a recording's summaries, for running in a worker thread.
-
-        The job holds everything it needs (the reviewed table, conditions, settings, geometry and
-        a windowed reader of the samples), so the session may go on changing meanwhile. Hand the
-        result back with :meth:`set_summaries`, which keeps it only if nothing changed since.
-        """
-        from .summary import summarize
-
-        e = self._entry(key)
-        settings, info, conditions = e.settings, e.info, e.conditions
-        source = measure = None
-        if getattr(settings.summary, "ensemble", True):
-            try:
-                rec = self.recording(key)
-            except RecordingError:
-                rec = None
-            if rec is not None:
-                from .events_trace import RecordingSweeps
-
-                source = RecordingSweeps(rec, info.channel, scale=mV_scale(info.units), subtract_mV=info.ljp_mV)
-                measure = cycle_measurer(settings, info.ljp_mV, info.sampling_rate_hz)
-        beats = self.beats(key)
-
-        def compute() -> list:
-            return summarize(
-                beats, label=info.label, sweep_starts_s=info.sweep_starts_s,
-                sweep_durations_s=info.sweep_durations_s, conditions=conditions,
-                settings=settings.summary, settings_hash=settings.short_hash(), ensemble_source=source,
-                fs_hz=info.sampling_rate_hz, measure_ensemble=measure,
-            )
-
-        return SummaryJob(key, e.version, compute)
-
-    def set_summaries(self, job: SummaryJob, summaries: list) -> bool:
-        """Keep the summaries a :meth:`summary_job` computed; False (and dropped) when stale."""
-        e = self._entries.get(job.key)
-        if e is None or e.version != job.version:
-            return False
-        e.summaries = summaries
-        return True
-
-    def summary_table(self, keys: Sequence[str] | None = None) -> dict[str, np.ndarray]:
-        """The summaries of several recordings (all by default) as summary-CSV columns."""
-        from .summary import summary_columns
-
-        keys = list(self._entries) if keys is None else list(keys)
-        return summary_columns([s for k in keys for s in self.summaries(k)])
 
     # -- undo / redo -------------------------------------------------------------------------
     @property

@@ -108,10 +108,14 @@ class SettingsCommand(Command):
         c = self.change
         for k in self.keys:
             e = self.session._entries[k]
+            prepared_from = e.version
             self._set(
                 k, c.settings, c.tables.get(k, e.table), c.warnings.get(k, e.warnings),
                 c.provenance.get(k, dict(e.info.provenance)), k in c.tables,
             )
+            if k in c.summaries and c.versions.get(k) == prepared_from:
+                # Computed with these very decisions and conditions: no need to summarise again.
+                e.summaries = c.summaries[k]
 
     def undo(self) -> None:
         for k in self.keys:

@@ -47,7 +47,7 @@ def stored_recordings(session: "Session") -> list[StoredRecording]:
         i = e.info
         out.append(StoredRecording(
             source_path=i.source_path, label=i.label, sha256=i.sha256, reader=i.reader, channel=i.channel,
-            channel_name=i.channel_name, units=i.units, ljp_mV=i.ljp_mV, sweeps=i.sweeps,
+            channel_name=i.channel_name, units=i.units, ljp_mV=e.ljp_mV, sweeps=i.sweeps,
             sampling_rate_hz=i.sampling_rate_hz, sweep_starts_s=i.sweep_starts_s, sweep_lengths=i.sweep_lengths,
             settings_json=json.dumps(e.settings.to_dict(), sort_keys=True, indent=1, allow_nan=False),
             settings_schema=int(e.settings.to_dict()["schema_version"]), settings_hash=e.settings.short_hash(),
@@ -117,7 +117,7 @@ def _stored_summaries(r: StoredRecording) -> list:
 def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
     """Rebuild a session from a results file (recordings are opened lazily)."""
     from .conditions import ConditionError, check_conditions
-    from .session_types import Entry as _Entry, RecordingInfo, key_of as _key_of
+    from .session_types import Entry as _Entry, RecordingFacts, key_of as _key_of
 
     text = os.fspath(path)
     content: ResultsFile = load_results(text, verify_sources=verify_sources)
@@ -130,9 +130,10 @@ def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, m
             summaries = _stored_summaries(r)
         except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
             raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
-        info = RecordingInfo(
+        # The stored ljp_mV attribute is not read back: the settings hold the LJP (one home).
+        info = RecordingFacts(
             source_path=r.source_path, label=r.label, sha256=r.sha256, reader=r.reader, channel=r.channel,
-            channel_name=r.channel_name, units=r.units, ljp_mV=r.ljp_mV, sweeps=r.sweeps,
+            channel_name=r.channel_name, units=r.units, sweeps=r.sweeps,
             sampling_rate_hz=r.sampling_rate_hz, sweep_starts_s=r.sweep_starts_s, sweep_lengths=r.sweep_lengths,
             provenance=dict(r.provenance),
         )

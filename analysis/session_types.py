@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 from typing import Any, Callable
 
 import numpy as np
@@ -19,7 +19,7 @@ from .recording import Recording
 from .table import BeatTable
 
 __all__ = [
-    "EVENTS", "Change", "Entry", "RecordingInfo", "SettingsChange", "SummaryJob", "VIEW_COLUMNS",
+    "EVENTS", "Change", "Entry", "RecordingFacts", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS",
     "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope",
 ]
 
@@ -54,13 +54,12 @@ class Change:
 
 
 @dataclass
-class RecordingInfo:
-    """What the session knows about one recording besides its beats.
+class RecordingFacts:
+    """What the session keeps about one recording besides its beats and settings (internal).
 
-    Attributes mirror :class:`analysis.store.StoredRecording`: ``source_path``, ``label``,
-    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
-    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
-    ``provenance``.
+    Everything here is a fact of the source or of the analysis run; the liquid-junction potential
+    is not, because it is a setting (``preprocess.ljp_mV``) and has one home: the recording's
+    settings. :meth:`Session.info` adds it to a :class:`RecordingInfo` snapshot.
     """
 
     source_path: str
@@ -70,7 +69,6 @@ class RecordingInfo:
     channel: int = 0
     channel_name: str = ""
     units: str = "mV"
-    ljp_mV: float = 0.0
     sweeps: tuple[int, ...] | None = None
     sampling_rate_hz: float = math.nan
     sweep_starts_s: tuple[float, ...] = ()
@@ -83,10 +81,31 @@ class RecordingInfo:
 
 
 @dataclass
+class RecordingInfo(RecordingFacts):
+    """Source, reader, channel, LJP, geometry and provenance of a recording: a snapshot.
+
+    Attributes mirror :class:`analysis.store.StoredRecording`: ``source_path``, ``label``,
+    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
+    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
+    ``provenance``. ``ljp_mV`` is read from the recording's settings when the snapshot is made
+    (:meth:`Session.info`), so it always equals ``session.settings(key).preprocess.ljp_mV``;
+    changing the snapshot changes nothing in the session.
+    """
+
+    ljp_mV: float = 0.0
+
+    @classmethod
+    def of(cls, facts: RecordingFacts, ljp_mV: float) -> "RecordingInfo":
+        values = {f.name: getattr(facts, f.name) for f in fields(RecordingFacts)}
+        values["provenance"] = dict(facts.provenance)
+        return cls(**values, ljp_mV=float(ljp_mV))
+
+
+@dataclass
 class Entry:
     """A recording's state inside a session (internal to the session modules)."""
 
-    info: RecordingInfo
+    info: RecordingFacts
     settings: Any
     table: BeatTable
     warnings: tuple[str, ...]
@@ -96,6 +115,11 @@ class Entry:
     requested_channel: int | str | None = None
     summaries: list | None = None
     version: int = 0
+
+    @property
+    def ljp_mV(self) -> float:
+        """The liquid-junction potential the results subtract: the settings' own value."""
+        return float(self.settings.preprocess.ljp_mV)
 
 
 @dataclass(frozen=True)
@@ -108,9 +132,19 @@ class SettingsChange:
     scopes : dict of str to str
         Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
         ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
-        (detection and measurement re-run).
+        (detection and measurement re-run on the analysed sweeps).
     tables, warnings, provenance : dict
-        The new results of the recordings that were re-analysed.
+        The new results of the recordings that were re-analysed (scopes ``events`` and
+        ``analysis``).
+    summaries : dict of str to list
+        Per recording changed, its summaries under the new settings, computed with the
+        decisions and conditions of ``versions``.
+    versions : dict of str to int
+        Per recording, its version when the change was prepared: the summaries are kept only if
+        nothing was edited since.
+    bases : dict of str to (Settings, BeatTable)
+        Per recording, the settings and automatic table the change was prepared from: the change
+        applies only while they are still the recording's (see :meth:`Session.apply_settings`).
     """
 
     settings: Any
@@ -118,13 +152,16 @@ class SettingsChange:
     tables: dict[str, BeatTable]
     warnings: dict[str, tuple[str, ...]]
     provenance: dict[str, dict[str, str]]
+    summaries: dict[str, list] = field(default_factory=dict)
+    versions: dict[str, int] = field(default_factory=dict)
+    bases: dict[str, tuple[Any, BeatTable]] = field(default_factory=dict)
 
 
-def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingInfo:
+def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingFacts:
     """The facts a session keeps about a recording just analysed."""
     from .store import provenance_now
 
-    return RecordingInfo(
+    return RecordingFacts(
         source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
         label=label,
         sha256=(rec.sha256 or "") if rec.source_path else "",
@@ -132,7 +169,6 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         channel=int(result.channel),
         channel_name=str(result.channel_name),
         units=rec.units(int(result.channel)),
-        ljp_mV=float(result.ljp_mV),
         sweeps=None if sweeps is None else tuple(int(s) for s in sweeps),
         sampling_rate_hz=rec.sampling_rate_hz,
         sweep_starts_s=tuple(rec.sweep_starts_s),
@@ -168,22 +204,8 @@ def key_of(source: str) -> str:
     return os.path.normcase(os.path.abspath(source))
 
 
-@dataclass(frozen=True)
-class SummaryJob:
-    """Computes one recording's summaries from a snapshot (see :meth:`Session.summary_job`).
-
-    Call it (``job()``) to get the list of :class:`analysis.summary.Summary`.
-    """
-
-    key: str
-    version: int
-    compute: Callable[[], list]
-
-    def __call__(self) -> list:
-        return self.compute()
-
-
 def scope(old: Any, new: Any) -> str:
+    """What a change of settings from ``old`` to ``new`` recomputes (see :class:`SettingsChange`)."""
     if old == new:
         return "none"
     changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}

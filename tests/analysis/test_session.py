@@ -279,3 +279,112 @@ def test_changing_the_sweeps_analyses_only_the_new_ones():
     assert 3 not in set(s.beats(key)["sweep"]) and len(s.orphaned_decisions(key)) == 1
     s.undo()  # back to all sweeps: the decision applies again
     assert s.beats(key)["reject_reason"][row] == "bump" and s.info(key).sweeps is None
+
+
+def test_the_ljp_is_the_settings_own_and_every_trace_follows_it(syn, tmp_path):
+    s = Session()
+    key = s.add(syn.recording, label="cell-07")
+    raw = syn.recording.sweep(0)
+    ens0 = s.summaries(key)[0].ensemble
+    assert s.info(key).ljp_mV == 0.0 and np.array_equal(s.trace_mV(key, 0), raw)
+    s.set_settings(s.settings(key).replace("preprocess.ljp_mV", 10.0))
+    assert s.info(key).ljp_mV == 10.0 == s.settings(key).preprocess.ljp_mV
+    # V_true = V_measured - LJP (Barry & Lynch 1991, J Membr Biol 121:101)
+    assert np.allclose(s.trace_mV(key, 0), raw - 10.0, atol=1e-12)
+    ens = s.summaries(key)[0].ensemble
+    assert ens.v_mV.size == ens0.v_mV.size and np.allclose(ens.v_mV, ens0.v_mV - 10.0, atol=1e-9)  # same correction
+    s.save(tmp_path / "ljp.h5")
+    import h5py
+
+    with h5py.File(tmp_path / "ljp.h5", "r") as f:  # the results file's ljp_mV is the settings' (CONTRACT.md)
+        stored = [float(g.attrs["ljp_mV"]) for g in f["recordings"].values()]
+    assert stored == [10.0]
+    assert Session.open(tmp_path / "ljp.h5").info(key).ljp_mV == 10.0
+    s.undo()
+    assert s.info(key).ljp_mV == 0.0 and np.array_equal(s.trace_mV(key, 0), raw)
+    assert np.allclose(s.summaries(key)[0].ensemble.v_mV, ens0.v_mV, atol=1e-9)
+
+
+@pytest.fixture
+def episodic():
+    """Four sweeps of which two are analysed, with spies on the core's analysis and rules."""
+    syn = synthesize(preset("atrial-like"), duration_s=5.0, fs_hz=5_000.0, seed=5, n_sweeps=4, sweep_gap_s=1.0)
+    s = Session()
+    key = s.add(syn.recording, label="ep", sweeps=[0, 2])
+    return s, key, syn.recording
+
+
+def _spy(monkeypatch, recording):
+    import analysis.pipeline as pipeline
+
+    calls = {"analyze": [], "rules": 0}
+    analyze, rules = pipeline.analyze, pipeline.flag_and_reject
+
+    def spy_analyze(rec, *args, **kwargs):
+        if rec is recording:  # not the ensemble beat's own measurement
+            calls["analyze"].append(tuple(kwargs.get("sweeps") or ()))
+        return analyze(rec, *args, **kwargs)
+
+    def spy_rules(beats, rec, *args, **kwargs):
+        calls["rules"] += rec is recording
+        return rules(beats, rec, *args, **kwargs)
+
+    monkeypatch.setattr(pipeline, "analyze", spy_analyze)
+    monkeypatch.setattr(pipeline, "flag_and_reject", spy_rules)
+    return calls
+
+
+def _progress():
+    seen = []
+    return seen, lambda fraction, message: seen.append((fraction, message))
+
+
+def _check_progress(seen):
+    fractions = [f for f, _ in seen]
+    assert fractions == sorted(fractions) and fractions[0] == 0.0 and fractions[-1] == 1.0
+    assert all(isinstance(m, str) and m for _, m in seen)
+
+
+@pytest.mark.parametrize("name, value, scope, analysed, rules", [
+    ("summary.steady_window_s", 20.0, "summary", [], 0),
+    ("quality.noise_max_mV_rms", 0.4, "events", [], 1),
+    ("detection.min_amplitude_mV", 25.0, "analysis", [(0, 2)], 1),
+    ("preprocess.ljp_mV", 4.0, "analysis", [(0, 2)], 1),
+])
+def test_prepare_settings_computes_only_what_the_change_needs_with_progress(
+        episodic, monkeypatch, name, value, scope, analysed, rules):
+    s, key, rec = episodic
+    new = s.settings(key).replace(name, value)
+    calls = _spy(monkeypatch, rec)
+    seen, progress = _progress()
+    change = s.prepare_settings(new, progress=progress)
+    assert change.scopes == {key: scope}
+    assert calls["analyze"] == analysed  # only the analysed sweeps, and only for detection-level changes
+    assert calls["rules"] == rules
+    _check_progress(seen)
+    if scope == "analysis":
+        assert len({f for f, _ in seen}) > 4 and any("detecting" in m for _, m in seen)
+    assert s.settings(key) != new  # preparing changes nothing
+    assert s.apply_settings(change) and s.settings(key) == new
+    # The summaries came with the change: the session does not summarise again.
+    assert s.cached_summaries(key) is change.summaries[key]
+    assert set(s.beats(key)["sweep"]) == {0, 2}
+
+
+def test_a_settings_change_prepared_from_an_older_state_is_dropped(episodic):
+    s, key, _rec = episodic
+    job = s.settings_job(s.settings(key).replace("quality.noise_max_mV_rms", 0.4))
+    s.set_settings(s.settings(key).replace("measurement.upstroke_time_method", "voltage_level"))
+    now = s.settings(key)
+    assert not s.apply_settings(job())  # its beats were measured with the old definitions
+    assert s.settings(key) == now
+
+
+def test_summaries_prepared_before_a_decision_are_not_kept(episodic):
+    s, key, _rec = episodic
+    job = s.settings_job(s.settings(key).replace("summary.steady_window_s", 20.0))
+    s.reject(key, [1], "bump")  # the user goes on reviewing while the job runs
+    change = job()
+    assert s.apply_settings(change) and s.cached_summaries(key) is None
+    n = change.summaries[key][0].values["n_accepted"]
+    assert s.summaries(key)[0].values["n_accepted"] == n - 1
