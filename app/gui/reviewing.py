@@ -47,12 +47,12 @@ class ReviewMixin:
     def ljp_mV(self) -> float:
         """The liquid-junction potential the current results subtract (0 before analysis).
 
-        Read from the recording's settings: the session's recording info keeps the value of the
-        first analysis even after a settings change.
+        The session's own value (its recording's settings), so the trace, the markers, the
+        readout and the summaries always agree.
         """
         if self.key is None:
             return 0.0
-        return float(self.session.settings(self.key).preprocess.ljp_mV)
+        return float(self.session.info(self.key).ljp_mV)
 
     # -- sweeps --------------------------------------------------------------------------------
     def set_sweep(self, sweep: int) -> None:
