@@ -20,6 +20,7 @@ is being done, in words a user reads in a status bar.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
@@ -103,9 +104,10 @@ class SummaryJob:
     recording: Recording | None
 
     def __call__(self, progress: Progress | None = None) -> list:
-        (progress or _quiet)(0.0, f"{self.facts.label}: summarising")
+        name = os.path.basename(self.facts.label)
+        (progress or _quiet)(0.0, f"{name}: summarising")
         out = summaries_of(self.beats, self.facts, self.conditions, self.settings, self.recording)
-        (progress or _quiet)(1.0, f"{self.facts.label}: summarised")
+        (progress or _quiet)(1.0, f"{name}: summarised")
         return out
 
 
@@ -169,7 +171,7 @@ class SettingsJob:
             lo, width = i / len(busy), 1.0 / len(busy)
             share = _WORK_SHARE[it.scope]
 
-            def step(fraction: float, message: str, lo=lo, width=width, label=it.facts.label) -> None:
+            def step(fraction: float, message: str, lo=lo, width=width, label=os.path.basename(it.facts.label)) -> None:
                 report(lo + width * min(max(fraction, 0.0), 1.0), f"{label}: {message}")
 
             table, warn = self._results(it, step, share)

@@ -3,7 +3,9 @@
 A recording's first sweep is drawn as soon as its header is read (the samples stay in the file,
 memory-mapped, until drawn); detection and measurement then run in the thread pool with a
 progress bar, and the beats appear when they are done. The envelopes that let the overview strip
-show the whole recording are built the same way.
+show the whole recording are built the same way. A settings change is the session's own work
+(:meth:`~analysis.session.Session.settings_job`): made here, computed in a worker with its
+progress shown, applied back here.
 """
 
 from __future__ import annotations
@@ -28,40 +30,13 @@ __all__ = ["LoadingMixin", "RESULTS_EXTENSIONS"]
 RESULTS_EXTENSIONS = (".h5", ".hdf5")
 
 
-def _analyze(recording: Recording, settings, channel, label, report, cancelled, sweeps=None):
+def _analyze(recording: Recording, settings, channel, label, report, cancelled):
     """The core's analysis, reporting its progress (samples worked) as a fraction."""
     from analysis.pipeline import analyze
 
     report(0.0, "detecting and measuring beats")
-    return analyze(recording, settings=settings, channel=channel, label=label, sweeps=sweeps,
+    return analyze(recording, settings=settings, channel=channel, label=label,
                    progress=lambda done, total: report(done / total if total else 1.0, "detecting and measuring beats"))
-
-
-def _changed_sections(old, new) -> set[str]:
-    return {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
-
-
-def _prepare_settings(session: Session, key: str, settings, report):
-    """New settings' results for one recording, computed off the GUI thread.
-
-    Changes that leave detection and measurement alone (summary or quality rules only) go
-    through :meth:`Session.prepare_settings`, which reruns just those steps. A change that needs
-    a new detection runs :func:`analysis.pipeline.analyze` here with its progress reported, and
-    is handed to the session as the same :class:`~analysis.session.SettingsChange`.
-    """
-    old = session.settings(key)
-    if _changed_sections(old, settings) <= {"summary", "quality"}:
-        report(0.0, "re-running the rules")
-        return session.prepare_settings(settings, [key])
-    from analysis.session import SettingsChange
-    from analysis.store import provenance_now
-
-    info = session.info(key)
-    beats = session.auto_beats(key)
-    label = str(beats["file"][0]) if len(beats) else None  # keep the file column as it was
-    result = _analyze(session.recording(key), settings, info.channel, label, report, lambda: False, info.sweeps)
-    return SettingsChange(settings, {key: "analysis"}, {key: result.beats}, {key: tuple(result.warnings)},
-                          {key: provenance_now()})
 
 
 class LoadingMixin:
@@ -238,7 +213,14 @@ class LoadingMixin:
         self._refresh_all()
 
     def reanalyse(self, settings) -> None:
-        """Re-analyse with new settings off the GUI thread; only what the change affects reruns."""
+        """Re-analyse with new settings off the GUI thread; only what the change affects reruns.
+
+        The session does all of it (:meth:`~analysis.session.Session.settings_job`): the job, a
+        snapshot, is made here; a worker computes it (a summary-only change summarises again, a
+        quality change re-runs the events and quality rules, a preprocess, detection or
+        measurement change re-analyses the recording's analysed sweeps), with its progress in the
+        status bar; the session applies the result back here, as one undo step.
+        """
         if self._busy_reasons & {"analysing", "re-analysing"}:
             # One analysis at a time: the newest settings run when the current one is done.
             self._pending_settings = settings
@@ -247,21 +229,35 @@ class LoadingMixin:
         if self.key is None:
             self.session.default_settings = settings
             return
+        self._run_settings_job(settings, self._reanalysis_done)
+
+    def _run_settings_job(self, settings, done, what: str = "re-analysing") -> bool:
+        """Start the session's settings job for the recording shown; ``done(session, change)``
+        runs on the GUI thread with its result. False when the job cannot be made."""
         session, key = self.session, self.key
-        job = Job(lambda report, cancelled: _prepare_settings(session, key, settings, report), "reanalysis")
-        job.signals.progress.connect(self._on_progress)
-        job.signals.finished.connect(lambda change, s=session: self._reanalysis_done(s, change))
-        job.signals.failed.connect(self._job_failed)
-        self._busy("re-analysing", True)
-        self.runner.start(job)
+        try:
+            job = session.settings_job(settings, [key])
+        except InputError as exc:  # the source has gone: the results stay as they are
+            self.show_error(exc.one_line() + " (re-analysis needs the recording)")
+            self.settings_form.show_settings(session.settings(key))
+            return False
+        worker = Job(lambda report, cancelled: job(report), "reanalysis")
+        worker.signals.progress.connect(self._on_progress)
+        worker.signals.finished.connect(lambda change, s=session, w=what: (self._busy(w, False), done(s, change)))
+        worker.signals.failed.connect(self._job_failed)
+        self._busy(what, True)
+        self.runner.start(worker)
+        return True
 
     def _reanalysis_done(self, session: Session, change) -> None:
-        self._busy("re-analysing", False)
         if session is not self.session:
             return
         pending, self._pending_settings = self._pending_settings, None
+        if not session.apply_settings(change):
+            # Prepared from a state the session has since left: prepare it again.
+            self.reanalyse(pending if pending is not None else change.settings)
+            return
         session.default_settings = change.settings
-        session.apply_settings(change)
         scope = change.scopes.get(self.key, "none")
         self.status({"none": "settings unchanged", "summary": "summaries updated",
                      "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))

@@ -1,0 +1,89 @@
+"""Re-analysis from the window: the session's own settings job, in a worker, with progress."""
+
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pytest
+
+pytest.importorskip("pytestqt")
+
+from analysis import open_recording  # noqa: E402
+from analysis.pipeline import analyze  # noqa: E402
+from analysis.session import Session  # noqa: E402
+from analysis.synthetic import preset, synthesize  # noqa: E402
+from analysis.synthetic_io import write_abf  # noqa: E402
+from app.gui.main_window import MainWindow  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def cell_abf(tmp_path_factory):
+    """Two 8 s sweeps of a synthetic nodal-like cell (analysis.synthetic), as ABF."""
+    syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=4_000.0, seed=11, noise_mV=0.2,
+                     n_sweeps=2, sweep_gap_s=1.0)
+    path = tmp_path_factory.mktemp("rec") / "cell-q7.abf"
+    write_abf(syn.recording, path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def cell_result(cell_abf):
+    rec = open_recording(cell_abf)
+    return rec, analyze(rec, label=cell_abf.name)
+
+
+@pytest.fixture
+def window(qtbot, cell_abf, cell_result):
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    rec, result = cell_result
+    w.open_recording_file(rec, origin=str(cell_abf), result=result)
+    assert w.settle(60_000) and w.key is not None and not w.last_error
+    return w
+
+
+@pytest.fixture
+def watch(monkeypatch, window):
+    """Spies: the session's settings jobs made, the core's analyses of the recording (and on which
+    thread), and the progress the window shows."""
+    import analysis.pipeline as pipeline
+
+    seen = {"jobs": [], "analyses": [], "progress": []}
+    make, core = Session.settings_job, pipeline.analyze
+
+    def settings_job(session, settings, keys=None):
+        seen["jobs"].append(list(keys or ()))
+        return make(session, settings, keys)
+
+    def spy_analyze(rec, *args, **kwargs):
+        if rec is window.recording:
+            seen["analyses"].append((tuple(kwargs.get("sweeps") or ()), threading.current_thread() is threading.main_thread()))
+        return core(rec, *args, **kwargs)
+
+    monkeypatch.setattr(Session, "settings_job", settings_job)
+    monkeypatch.setattr(pipeline, "analyze", spy_analyze)
+    shown = window._on_progress
+    window._on_progress = lambda fraction, text: (seen["progress"].append((fraction, text)), shown(fraction, text))
+    return seen
+
+
+def test_a_detection_change_is_the_sessions_job_run_off_the_gui_thread_with_progress(window, watch):
+    before = window.session.beats(window.key)
+    form = window.settings_form
+    form.editors["measurement.upstroke_time_method"].set("voltage_level")
+    form.apply()
+    assert "re-analysing" in window._busy_reasons and not window.progress.isHidden()  # shown while it runs
+    assert window.settle(60_000)
+    assert watch["jobs"] == [[window.key]]  # the app asks the session, and only the session
+    assert watch["analyses"] == [((), False)]  # every sweep analysed (all were), in a worker
+    fractions = [f for f, _ in watch["progress"]]
+    assert len(fractions) > 3 and fractions == sorted(fractions) and fractions[-1] == 1.0
+    assert any("detecting" in text for _, text in watch["progress"])
+    after = window.session.beats(window.key)
+    assert window.session.settings(window.key).measurement.upstroke_time_method == "voltage_level"
+    moved = np.abs(after["t_upstroke_s"] - before["t_upstroke_s"])
+    assert len(after) == len(before) and moved.max() > 0  # re-measured
+    assert "measured again" in window.statusBar().currentMessage()
+    assert window.progress.isHidden()
+
