@@ -30,9 +30,9 @@ from .review import BeatCard, ReasonPicker
 from .reviewing import ReviewMixin
 from .settings_form import SettingsForm
 from .summary_panel import SummaryPanel
-from .summary_job import summary_work
+from .summary_job import start_summary
 from .trace_view import TraceView
-from .workers import Job, JobRunner
+from .workers import JobRunner
 
 __all__ = ["MainWindow"]
 
@@ -72,7 +72,6 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._beats = None
         self._levels = {}
         self._busy_reasons: set[str] = set()
-        self._summary_generation = 0
         self._pending_settings = None
         self.summaries: list = []
         self.bridge = None
@@ -330,20 +329,18 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._summary_timer.start()
 
     def _refresh_summary(self) -> None:
-        """Summarise the conditions in the background; the newest request wins."""
+        """Summarise the conditions with the session's own job in the background; the session
+        keeps only a current result, so the newest change wins."""
         if self.key is None:
             return
-        self._summary_generation += 1
-        generation, key = self._summary_generation, self.key
-        job = Job(summary_work(self.session, key), "summary")
-        job.signals.finished.connect(lambda summaries, g=generation, k=key: self._show_summaries(g, k, summaries))
-        job.signals.failed.connect(lambda message, user, g=generation: g == self._summary_generation and self.status(
-            f"summaries failed: {message.splitlines()[0]}"))
-        self.runner.start(job)
+        session = self.session
+        start_summary(self.runner, session, self.key,
+                      lambda key, summaries, s=session: s is self.session and self._show_summaries(key, summaries),
+                      lambda line, s=session: s is self.session and self.status(f"summaries failed: {line}"))
 
-    def _show_summaries(self, generation: int, key: str, summaries: list) -> None:
-        if generation != self._summary_generation or key != self.key:
-            return  # a newer change is being summarised
+    def _show_summaries(self, key: str, summaries: list) -> None:
+        if key != self.key:
+            return  # another recording is shown now
         self.summaries = summaries
         conds = self.session.conditions(self.key)
         colours = {c.name: palette.condition_colour(i) for i, c in enumerate(conds)}

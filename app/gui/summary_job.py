@@ -1,57 +1,66 @@
-"""Condition summaries computed off the GUI thread from a snapshot of the session.
+"""Condition summaries computed off the GUI thread by the session's own summary jobs.
 
 A summary includes an ensemble-averaged beat measured by the core, which takes long enough to
-make the window stutter after every verdict if done on the GUI thread. The session itself is not
-thread-safe, so :func:`summary_work` takes what a summary needs from it on the GUI thread (the
-reviewed table, conditions, settings, geometry; all immutable) and returns a function that a
-worker runs with the core's :func:`analysis.summary.summarize`, exactly as the session does.
+make the window stutter after every verdict if done on the GUI thread. The session is not
+thread-safe, so the work goes in three steps (:mod:`analysis.session_jobs`):
+
+1. on the GUI thread, :meth:`Session.summary_job` takes a snapshot of immutable inputs;
+2. a worker of the thread pool computes it;
+3. back on the GUI thread, :meth:`Session.set_summaries` keeps the result only if nothing has
+   changed since the snapshot. A stale result is dropped without being shown: the change that
+   made it stale has scheduled a summary of its own.
+
+Summaries the session already holds (computed with a settings change, or by an earlier job with
+nothing edited since) are shown at once, without a job.
 """
 
 from __future__ import annotations
 
 from typing import Callable
 
-from analysis.errors import RecordingError
-from analysis.recording import Recording
 from analysis.session import Session
 
-__all__ = ["summary_work"]
+from .workers import Job, JobRunner
+
+__all__ = ["start_summary"]
 
 
-def summary_work(session: Session, key: str) -> Callable[..., list]:
-    """A function ``fn(report, cancelled) -> list of Summary`` for the recording ``key``."""
-    from analysis.ensemble import measure_cycle
-    from analysis.pipeline import analyze
-    from analysis.summary import summarize
+def start_summary(
+    runner: JobRunner, session: Session, key: str, shown: Callable[[str, list], None],
+    failed: Callable[[str], None] | None = None,
+) -> Job | None:
+    """Summarise a recording in the background and call ``shown(key, summaries)`` with the result.
 
-    beats = session.beats(key)
-    info = session.info(key)
-    settings = session.settings(key)
-    conditions = session.conditions(key)
-    ljp = float(settings.preprocess.ljp_mV)
-    try:
-        recording = session.recording(key) if getattr(settings.summary, "ensemble", True) else None
-    except RecordingError:
-        recording = None
-    fs = info.sampling_rate_hz
+    Parameters
+    ----------
+    runner : JobRunner
+    session : Session
+    key : str
+        The recording.
+    shown : callable
+        Called on the GUI thread with the session's summaries, once they are current (never with
+        a stale result).
+    failed : callable or None
+        Called with the first line of the error when the summary fails.
 
-    def source(sweep: int):
-        return recording.sweep(int(sweep), info.channel) - ljp
+    Returns
+    -------
+    Job or None
+        The job started, or None when the session's summaries were current and shown at once.
+    """
+    cached = session.cached_summaries(key)
+    if cached is not None:
+        shown(key, cached)
+        return None
+    job = session.summary_job(key)
+    worker = Job(lambda report, cancelled: job(report), "summary")
 
-    def analyze_trace(v_mV, fs_hz):
-        # The averaged cycle is already corrected; the analysis subtracts the LJP once more.
-        return analyze(Recording.from_array(v_mV + ljp, fs_hz, units="mV"), settings=settings, channel=0).beats
+    def finished(summaries: list) -> None:
+        if session.set_summaries(job, summaries):
+            shown(key, summaries)
 
-    def measure(v):
-        return measure_cycle(v, fs, analyze_trace, cycle_samples=v.size // 3)
-
-    def work(report, cancelled):
-        report(0.0, "summarising")
-        return summarize(
-            beats, label=info.label, sweep_starts_s=info.sweep_starts_s, sweep_durations_s=info.sweep_durations_s,
-            conditions=conditions, settings=settings.summary, settings_hash=settings.short_hash(),
-            ensemble_source=source if recording is not None else None, fs_hz=fs,
-            measure_ensemble=measure if recording is not None else None,
-        )
-
-    return work
+    worker.signals.finished.connect(finished)
+    if failed is not None:
+        worker.signals.failed.connect(lambda message, _user: failed(message.splitlines()[0]))
+    runner.start(worker)
+    return worker

@@ -87,3 +87,35 @@ def test_a_detection_change_is_the_sessions_job_run_off_the_gui_thread_with_prog
     assert "measured again" in window.statusBar().currentMessage()
     assert window.progress.isHidden()
 
+
+
+def test_a_summary_change_analyses_nothing_and_brings_its_summaries(window, watch):
+    auto = window.session.auto_beats(window.key)
+    window.settings_form.editors["summary.steady_window_s"].set(20.0)
+    window.settings_form.apply()
+    assert window.settle(60_000)
+    assert watch["jobs"] == [[window.key]] and watch["analyses"] == []
+    assert window.session.auto_beats(window.key) is auto
+    assert window.session.settings(window.key).summary.steady_window_s == 20.0
+    assert window.summaries is window.session.cached_summaries(window.key)  # the job's own, not recomputed
+    assert "summaries updated" in window.statusBar().currentMessage()
+
+
+def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window, monkeypatch):
+    applied = []
+    keep = Session.set_summaries
+    monkeypatch.setattr(Session, "set_summaries", lambda s, job, result: applied.append(keep(s, job, result)) or applied[-1])
+    key = window.key
+    n0, rows0 = window.summaries[0].values["n_accepted"], window.summaries[0].beat_rows
+    window.select_beat(3)
+    window.reject_current("noise")
+    window._refresh_summary()  # a job for this state...
+    window.select_beat(6)
+    window.reject_current("noise")  # ...made stale before it is back
+    assert window.settle(60_000)
+    assert False in applied and applied[-1] is True  # the stale result was dropped, the newest kept
+    assert window.summaries is window.session.cached_summaries(key)
+    # A rejected beat leaves the pooled summary if it was in it (common practice, no source).
+    assert window.summaries[0].values["n_accepted"] == n0 - int(3 in rows0) - int(6 in rows0)
+    values = window.summary_panel.summaries[0]
+    assert values["n_accepted"] == window.summaries[0].values["n_accepted"]
