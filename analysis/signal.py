@@ -512,8 +512,12 @@ def upstroke_velocity(
     about 40 samples instead of 3. On noisy traces the window grows until the noise of the
     derivative (white-noise rms times the norm of the filter's coefficients) is a small fraction
     of the upstroke's own velocity, but never beyond half the rise. The maximum of the sampled
-    derivative is refined by a least-squares cubic through its top 10 %
-    (:func:`top_fit_peak`), which also keeps the largest-of-noisy-samples bias out.
+    derivative is refined by a least-squares cubic through its top (:func:`top_fit_peak`), which
+    also keeps the largest-of-noisy-samples bias out: the top 10 % on a clean trace, widened to
+    :data:`TOP_FIT_NOISE` times the derivative's noise (at most the top half; the white noise of
+    the 50 ms before the foot) on a noisy one,
+    where the top 10 % of a slow upstroke's dV/dt is flat within the noise and its maximum would
+    jitter by half a millisecond (so cycle lengths would jitter by more).
     """
     light = v_mV if v_light_mV is None else v_light_mV
     rise_ms, i10, i90 = rise_time_10_90(light, fs_hz, i_foot=i_foot, i_peak=i_peak)
@@ -530,12 +534,16 @@ def upstroke_velocity(
         return UpstrokeVelocity(float(value), a + j + off, 0.0, float(rise_ms), float(rise_samples))
     window_ms = min(max(window_fraction * rise_ms, min_window_ms), max_window_ms)
     n = window_samples(window_ms, fs_hz, polyorder=3, minimum=5)
+    # The noise just before the foot sizes the top fit: local, so that it does not depend on
+    # how much else the sweep holds.
+    m = max(64, int(0.05 * fs_hz))
+    local_noise = noise_rms_mV(v_mV[max(0, i_foot - m):i_foot + 1]) if i_foot >= 32 else noise_mV
     for _ in range(3):
         d, a = _window_derivative(v_mV, fs_hz, lo, hi, n)
         # dV/dt max of phase 0: the largest derivative between the 10 % and 90 % crossings.
         j0, j1 = _search(lo, hi, a, d)
         j = j0 + int(np.argmax(d[j0:j1]))
-        off, value = top_fit_peak(d, j)
+        off, value = top_fit_peak(d, j, fraction=_top_fraction(d[j], _sg_noise(n, fs_hz) * local_noise))
         if noise_mV <= 0 or value <= 0:
             break
         n_max = min(window_samples(max_window_ms, fs_hz, polyorder=3, minimum=5),
@@ -547,6 +555,18 @@ def upstroke_velocity(
             break
         n = n_new
     return UpstrokeVelocity(float(value), a + j + off, n / fs_hz * 1e3, float(rise_ms), float(rise_samples))
+
+
+#: The cubic through the top of the dV/dt peak spans this many noise rms of the derivative
+#: (at least the top 10 %, at most the top half): on a slow, noisy upstroke the top 10 % holds
+#: only noise and its maximum jitters by a fraction of the rise time.
+TOP_FIT_NOISE = 20.0
+
+
+def _top_fraction(peak: float, noise: float) -> float:
+    if peak <= 0 or noise <= 0:
+        return 0.9
+    return 1.0 - min(max(0.1, TOP_FIT_NOISE * noise / peak), 0.5)
 
 
 def _window_derivative(v: np.ndarray, fs: float, lo: int, hi: int, n: int, central: bool = False):

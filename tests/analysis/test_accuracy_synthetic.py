@@ -96,16 +96,7 @@ def test_noise_hum_drift_artefacts_and_a_dad_stay_within_twice_the_tolerances(na
     assert compare(beats, syn.truth.beats, NOISY) == []
 
 
-#: Known defects of the measurement core, each pinned by the test that shows it: the test must
-#: start passing when the defect is fixed (strict), and then the mark goes.
-SLOW_UPSTROKE_TIME_JITTERS = pytest.mark.xfail(
-    strict=True,
-    reason="the time of dV/dt max of a 4.6 V/s upstroke at 10 kHz with 0.3 mV noise jitters by "
-    "0.4-0.5 ms rms, so 9 of 92 cycle lengths (seeds 23-26) miss 1 ms, by up to 0.13 ms",
-)
-
-
-@pytest.mark.parametrize("name", [pytest.param("nodal-like", marks=SLOW_UPSTROKE_TIME_JITTERS), "ventricular-like"])
+@pytest.mark.parametrize("name", sorted(CELLS))
 def test_cycle_length_with_noise_holds_for_other_seeds(name):
     # The same disturbed recordings as above with four more seeds: the CL tolerance is not a
     # property of one noise sequence.
