@@ -203,13 +203,54 @@ class LoadingMixin:
         key = self.key
         self.journal = Journal(self.origin or key, key)
         if restore and self.journal.exists():
-            try:
-                report = self.journal.restore(self.session)
-            except (InputError, KeyError, ValueError, TypeError) as exc:
-                report = None
-                self.status(f"the autosaved review could not be restored ({exc}); it was kept")
-            if report is not None:
-                self.status(report.text())
+            self._restore_review(self.journal)
+        self._refresh_all()
+
+    # -- autosave restore ----------------------------------------------------------------------
+    def _restore_review(self, journal: Journal) -> None:
+        """Replay an unsaved review onto the recording shown.
+
+        Settings differing from the session's are re-analysed first by the session's settings
+        job in a worker (the window stays responsive, with the progress shown, and edits wait),
+        then the conditions and verdicts are replayed here. The journal is not rewritten until
+        the whole review is back.
+        """
+        try:
+            review = journal.review()
+        except InputError as exc:
+            self.status(exc.one_line())
+            return
+        if review is None:
+            return
+        if review.settings == self.session.settings(journal.key):
+            self._replay_review(self.session, journal, review, settings_changed=False)
+            return
+        self.status("restoring the unsaved review: re-analysing with its settings")
+        self._run_settings_job(review.settings, lambda session, change: self._restore_done(session, journal, review, change),
+                               what="restoring")
+
+    def _restore_done(self, session: Session, journal: Journal, review, change) -> None:
+        if session is not self.session or journal is not self.journal:
+            return  # another file was opened meanwhile: the journal stays for next time
+        with journal.replaying(session):
+            if not session.apply_settings(change):
+                self._restore_review(journal)  # prepared from a state since left: again
+                return
+            session.default_settings = change.settings
+            self.settings_form.show_settings(session.settings(journal.key))
+            self._replay_review(session, journal, review, settings_changed=True)
+        pending, self._pending_settings = self._pending_settings, None
+        if pending is not None and pending != session.settings(journal.key):
+            self.reanalyse(pending)
+
+    def _replay_review(self, session: Session, journal: Journal, review, *, settings_changed: bool) -> None:
+        try:
+            report = journal.replay(session, review, settings_changed=settings_changed)
+        except InputError as exc:
+            self.status(f"the autosaved review could not be restored ({exc.one_line()}); it was kept")
+            return
+        if report is not None:
+            self.status(report.text())
         self._refresh_all()
 
     def reanalyse(self, settings) -> None:
@@ -221,7 +262,7 @@ class LoadingMixin:
         measurement change re-analyses the recording's analysed sweeps), with its progress in the
         status bar; the session applies the result back here, as one undo step.
         """
-        if self._busy_reasons & {"analysing", "re-analysing"}:
+        if self._busy_reasons & {"analysing", "re-analysing", "restoring"}:
             # One analysis at a time: the newest settings run when the current one is done.
             self._pending_settings = settings
             self.status("settings noted: they apply when the analysis running now has finished")

@@ -19,7 +19,9 @@ class SessionBridge(QtCore.QObject):
     Signals
     -------
     changed(str, str, list)
-        Every change: event name, recording key ("" for none), rows concerned.
+        Every change: event name, recording key ("" for none), rows concerned. Emitted before
+        the specific signal of the same change, so that what listens to it (the autosave
+        journal) has run before any view redraws and reports the change done.
     decisions_changed(str, list), conditions_changed(str), results_changed(str),
     settings_changed(str), history_changed(), warning(str, str), saved(str)
     """
@@ -45,7 +47,7 @@ class SessionBridge(QtCore.QObject):
     def _forward(self, change: Change) -> None:
         key = change.recording or ""
         rows = list(change.rows)
-        self.changed.emit(change.event, key, rows)
+        self.changed.emit(change.event, key, rows)  # first: the autosave runs before the views
         if change.event == "decisions_changed":
             self.decisions_changed.emit(key, rows)
         elif change.event == "conditions_changed":

@@ -1,0 +1,105 @@
+"""Autosave in the window: on disk before the views redraw, restored off the GUI thread, offered at start."""
+
+from __future__ import annotations
+
+import json
+import threading
+
+import pytest
+
+pytest.importorskip("pytestqt")
+
+from analysis import open_recording  # noqa: E402
+from analysis.pipeline import analyze  # noqa: E402
+from analysis.synthetic import preset, synthesize  # noqa: E402
+from analysis.synthetic_io import write_abf  # noqa: E402
+from app.gui.autosave import Journal, pending_reviews  # noqa: E402
+from app.gui.main_window import MainWindow  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def cell_abf(tmp_path_factory):
+    """Two 8 s sweeps of a synthetic nodal-like cell (analysis.synthetic), as ABF."""
+    syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=4_000.0, seed=11, noise_mV=0.2,
+                     n_sweeps=2, sweep_gap_s=1.0)
+    path = tmp_path_factory.mktemp("rec") / "cell-q7.abf"
+    write_abf(syn.recording, path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def cell_result(cell_abf):
+    rec = open_recording(cell_abf)
+    return rec, analyze(rec, label=cell_abf.name)
+
+
+def _window(qtbot):
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    return w
+
+
+@pytest.fixture
+def window(qtbot, cell_abf, cell_result):
+    w = _window(qtbot)
+    rec, result = cell_result
+    w.open_recording_file(rec, origin=str(cell_abf), result=result)
+    assert w.settle(60_000) and w.key is not None and not w.last_error
+    return w
+
+
+def _journal_reasons(window) -> list[str]:
+    return json.loads(window.journal.path.read_text())["decisions"]["reason"]
+
+
+def test_every_decision_is_on_disk_before_the_views_hear_of_it(window):
+    on_disk = []
+    window.bridge.decisions_changed.connect(lambda key, rows: on_disk.append(_journal_reasons(window)))
+    window.select_beat(2)
+    window.reject_current("noise")
+    window.select_beat(4)
+    window.reject_current("electrode bump")
+    window.undo()
+    assert on_disk[0] == ["noise"] and on_disk[1] == ["noise", "electrode bump"]
+    assert on_disk[2][-1] == ""  # the undo is an entry of its own, journalled as well
+
+
+def _crashed_review(window):
+    """A review with its own settings, left unsaved (the window is dropped, as by a crash)."""
+    window.select_beat(5)
+    window.reject_current("seal or access trouble")
+    window.settings_form.editors["preprocess.ljp_mV"].set(7.0)
+    window.settings_form.apply()
+    assert window.settle(60_000)
+    assert window.journal.exists() and window.session.settings(window.key).preprocess.ljp_mV == 7.0
+    return window.key
+
+
+def test_a_restore_with_other_settings_reanalyses_in_a_worker(window, qtbot, cell_abf, monkeypatch):
+    import analysis.pipeline as pipeline
+
+    key = _crashed_review(window)
+    threads, progress = [], []
+    core = pipeline.analyze
+
+    def spy(rec, *args, **kwargs):
+        if rec.source_path and str(rec.source_path).endswith(cell_abf.name):
+            threads.append(threading.current_thread() is threading.main_thread())
+        return core(rec, *args, **kwargs)
+
+    monkeypatch.setattr(pipeline, "analyze", spy)
+    again = _window(qtbot)
+    shown = again._on_progress
+    again._on_progress = lambda f, text: (progress.append((f, text, set(again._busy_reasons))), shown(f, text))
+    assert again.open_path(cell_abf)
+    assert again.settle(60_000) and again.key == key
+    assert threads == [False, False]  # the opening analysis, then the restore's: neither on the GUI thread
+    assert any("restoring" in busy and f > 0 for f, _t, busy in progress)  # the restore showed progress
+    assert again.session.settings(key).preprocess.ljp_mV == 7.0
+    assert again.settings_form.settings == again.session.settings(key)
+    beats = again.session.beats(key)
+    assert beats["accepted"][5] == 0 and beats["reject_reason"][5] == "seal or access trouble"
+    assert "restored" in again.statusBar().currentMessage()
+    # The journal was written once the whole review was back, not in between.
+    assert json.loads(again.journal.path.read_text())["decisions"]["reason"][-1] == "seal or access trouble"
+
