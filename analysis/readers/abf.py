@@ -247,7 +247,7 @@ def _metadata(abf: Any, layout: _Layout) -> dict[str, Any]:
     if creator:
         meta["creator"] = creator
     comment = " ".join(str(getattr(abf, "abfFileComment", "") or "").split())
-    if comment:
+    if comment and _comment_is_in_header(abf):
         meta["comment"] = comment
     tags = [
         {"time_s": round(float(t), 6), "comment": " ".join(str(c).split())}
@@ -287,3 +287,19 @@ def _unique(names: list[str]) -> list[str]:
         seen[key] = seen.get(key, 0) + 1
         out.append(name if seen[key] == 1 else f"{name} ({seen[key]})")
     return out
+
+
+#: Where ABF 1 keeps its file comment (byte offset and length, from the ABF 1 header layout).
+_ABF1_COMMENT_END = 5154 + 56
+
+
+def _comment_is_in_header(abf) -> bool:
+    """False when pyabf read an ABF 1 comment from beyond a short header, i.e. from the samples.
+
+    Writers of short ABF 1 headers (2048 bytes) have no comment field; pyabf still reads the
+    comment's offset, which then lies in the data block and decodes as noise.
+    """
+    if int(abf.abfVersion["major"]) != 1:
+        return True
+    return int(getattr(abf, "dataByteStart", 0)) >= _ABF1_COMMENT_END
+

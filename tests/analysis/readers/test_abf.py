@@ -96,6 +96,15 @@ def test_pyabf_writer_round_trip_within_one_step(tmp_path):
         assert np.all(np.abs(rec.sweep(k) - sweeps[k]) < allowed)
 
 
+def test_short_abf1_header_has_no_comment_read_from_the_samples(tmp_path):
+    # pyabf's ABF 1 writer makes a 2048-byte header; the ABF 1 layout keeps the file comment at
+    # bytes 5154-5210 (pyabf headerV1), which then lie in the samples and are not a comment.
+    t = np.arange(20_000) / 10_000.0
+    path = files.write_abf1(tmp_path / "short_header.abf", [-60 + 30 * np.sin(7 * t)], 10_000.0)
+    rec = open_recording(path)
+    assert "comment" not in rec.metadata
+
+
 def test_gap_free_file_is_one_sweep(tmp_path):
     t = np.arange(50_000) / 10_000.0
     path = files.write_abf1(tmp_path / "long.abf", [-60 + 5 * np.sin(t)], 10_000.0)
