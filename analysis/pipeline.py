@@ -293,10 +293,10 @@ def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
 
     hum = False
     if s.preprocess.hum_removal != "off":
-        from .hum import hum_present
+        from .hum import hum_survey
 
-        hum = hum_present(None, fs, n=recording.n_samples(sw), load=raw, block_s=s.preprocess.hum_block_s,
-                          min_mV=s.preprocess.hum_min_mV)
+        hum = hum_survey(None, fs, n=recording.n_samples(sw), load=raw, block_s=s.preprocess.hum_block_s,
+                         min_mV=s.preprocess.hum_min_mV) or False
 
     def load(a: int, b: int) -> np.ndarray:
         return preprocess(raw(a, b), fs, s.preprocess, offset=a, hum=hum)

@@ -102,7 +102,7 @@ class PreprocessSettings(Section):
     )
     hum_block_s: float = setting(
         1.0, unit="s", min=0.2, max=60.0, source=_NO_SOURCE,
-        doc="length of the blocks in which the hum's amplitude and phase are fitted",
+        doc="length of the sliding window over which the hum's amplitude and phase are estimated",
     )
     hum_min_mV: float = setting(
         0.05, unit="mV", min=0.0, max=10.0, source=_NO_SOURCE,

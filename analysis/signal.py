@@ -267,13 +267,13 @@ def filter_pad_samples(fs_hz: float, settings) -> int:
     return int(math.ceil(pad_s * fs_hz))
 
 
-def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0, hum: bool | None = None) -> np.ndarray:
+def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0, hum=None) -> np.ndarray:
     """LJP correction, mains-hum removal, then the optional notch and low-pass.
 
     ``settings`` is a preprocess settings section; ``offset`` is the index of ``v_mV[0]`` in its
-    sweep (the hum's phase is measured from the sweep's start); ``hum`` says whether the sweep
-    carries hum (:func:`analysis.hum.hum_present` on the whole sweep), None to judge it on
-    ``v_mV`` itself.
+    sweep (the hum's phase is measured from the sweep's start); ``hum`` is the sweep's
+    :class:`analysis.hum.HumSurvey` (:func:`analysis.hum.hum_survey` on the whole sweep), False
+    for none, or None to judge it on ``v_mV`` itself.
     """
     x = correct_ljp(v_mV, settings.ljp_mV)
     if getattr(settings, "hum_removal", "off") != "off" and hum is not False:

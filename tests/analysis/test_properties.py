@@ -13,21 +13,12 @@
 from __future__ import annotations
 
 import numpy as np
-import pytest
 from hypothesis import HealthCheck, Phase, given, settings, strategies as st
 
 from analysis.recording import Recording
 from analysis.synthetic import DAD, preset, synthesize
 
 from .test_accuracy_synthetic import CLEAN, EXTRA_CLEAN
-
-#: A known defect of the measurement core, pinned by the tests that show it (strict: the mark
-#: goes when the defect is fixed).
-HUM_BLOCKS_FOLLOW_THE_SWEEP_START = pytest.mark.xfail(
-    strict=True,
-    reason="mains hum is fitted in blocks aligned to the sweep's start, so recording from earlier "
-    "moves TOP by up to 0.09 mV and t_upstroke by up to 0.04 ms on a slow upstroke with 0.3 mV hum",
-)
 
 VOLTAGES = ("mdp_mV", "top_mV", "peak_mV")
 #: Columns that do not move with a DC offset; DDR100 is left undefined, without a flag, when TOP
@@ -148,14 +139,12 @@ def _check_shift(train: dict, fraction: float) -> None:
         np.testing.assert_allclose(b[col], a[col], rtol=tol if rel else 0.0, atol=0.0 if rel else tol, err_msg=col)
 
 
-@HUM_BLOCKS_FOLLOW_THE_SWEEP_START
 @SETTINGS
 @given(beat_trains(), st.floats(0.01, 0.9))
 def test_prepended_diastole_shifts_times_only(train, fraction):
     _check_shift(train, fraction)
 
 
-@HUM_BLOCKS_FOLLOW_THE_SWEEP_START
 def test_hum_removal_does_not_depend_on_where_the_sweep_starts():
     # A clean nodal-like cell with 0.3 mV of 50 Hz hum, recorded from half-way into its first
     # diastole or from its MDP onwards (hypothesis's smallest failing case).
