@@ -119,4 +119,8 @@ def launch(
         print(f"wrote {screenshot}")
         return 0
     window.show()
+    if source is None:  # a plain start: offer the reviews a crash or a kill left unsaved
+        from PySide6.QtCore import QTimer
+
+        QTimer.singleShot(0, window.offer_recovery)
     return int(app.exec())

@@ -20,7 +20,7 @@ from analysis.errors import InputError
 from analysis.recording import Recording
 from analysis.session import Session
 
-from .autosave import Journal
+from .autosave import Journal, PendingReview, pending_reviews
 from .session_bridge import SessionBridge
 from .trace_data import SweepLevels, recording_envelope
 from .workers import Job
@@ -111,6 +111,47 @@ class LoadingMixin:
             return
         self._fill_recording_combo()
         self.select_recording(session.recordings[0])
+
+    def offer_recovery(self, *, choose=None, skip: Sequence[str | os.PathLike] = ()) -> PendingReview | None:
+        """At start: offer the reviews a crash or a kill left unsaved, and reopen the one chosen.
+
+        Parameters
+        ----------
+        choose : callable or None
+            ``choose(pending) -> PendingReview or None`` picks one; None asks the user in an
+            interactive window (:func:`~app.gui.recovery.ask_recovery`, where journals can also
+            be discarded) and keeps them all otherwise.
+        skip : sequence of paths
+            Origins not to offer (the file the app was started on: its review comes back anyway).
+
+        Returns
+        -------
+        PendingReview or None
+            The review reopened. Its recording (or results file) is opened as usual and the
+            journal replayed once the analysis is done; journals whose origin is gone are kept.
+        """
+        skipped = {os.path.abspath(os.fspath(p)) for p in skip}
+        pending = [p for p in pending_reviews() if p.origin not in skipped and os.path.exists(p.origin)]
+        if not pending:
+            return None
+        if choose is not None:
+            choice = choose(pending)
+        elif self.interactive:
+            from .recovery import ask_recovery
+
+            choice = ask_recovery(self, pending)
+        else:
+            choice = None
+        if choice is None:
+            left = [p for p in pending if p.path.exists()]
+            if left:
+                self.status(f"{len(left)} unsaved review(s) kept; opening the file again recovers its review")
+            return None
+        if not self.open_path(choice.origin):
+            return None
+        if choice.key in self.session.recordings and choice.key != self.key:
+            self.select_recording(choice.key)  # a results file: the recording the review was of
+        return choice
 
     def select_recording(self, key: str) -> None:
         """Show one recording of the session."""

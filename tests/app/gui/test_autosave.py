@@ -103,3 +103,65 @@ def test_a_restore_with_other_settings_reanalyses_in_a_worker(window, qtbot, cel
     # The journal was written once the whole review was back, not in between.
     assert json.loads(again.journal.path.read_text())["decisions"]["reason"][-1] == "seal or access trouble"
 
+
+
+def test_at_start_the_app_offers_the_unsaved_reviews(window, qtbot, cell_abf):
+    key = _crashed_review(window)
+    (pending,) = pending_reviews()
+    assert pending.key == key and pending.decisions == 1
+    later = _window(qtbot)
+    assert later.offer_recovery() is None  # not interactive and no choice given: kept for later
+    assert Journal(str(cell_abf), key).exists() and "unsaved review" in later.statusBar().currentMessage()
+    again = _window(qtbot)
+    offered = []
+    chosen = again.offer_recovery(choose=lambda items: offered.extend(items) or items[0])
+    assert offered == [pending] and chosen == pending
+    assert again.settle(60_000) and again.key == key
+    assert again.session.beats(key)["reject_reason"][5] == "seal or access trouble"
+    assert again.session.settings(key).preprocess.ljp_mV == 7.0
+
+
+def test_the_recovery_dialog_discards_one_and_recovers_another(qtbot, tmp_path):
+    from PySide6 import QtCore, QtWidgets
+
+    from app.gui.autosave import PendingReview
+    from app.gui.recovery import RecoveryDialog, ask_recovery
+
+    paths = [tmp_path / f"{n}.json" for n in ("a", "b")]
+    for p in paths:
+        p.write_text("{}")
+    pending = [PendingReview(str(tmp_path / f"cell-{n}.abf"), f"k{n}", f"2026-01-0{i + 1}T00:00:00.000Z", 2, p)
+               for i, (n, p) in enumerate(zip("ab", paths))]
+    clicks = ["Discard", "Recover"]
+
+    def click():
+        dialog = QtWidgets.QApplication.activeModalWidget()
+        if not isinstance(dialog, RecoveryDialog):
+            QtCore.QTimer.singleShot(20, click)
+            return
+        button = next(b for b in dialog.findChildren(QtWidgets.QPushButton) if b.text() == clicks[0])
+        clicks.pop(0)
+        if clicks:
+            QtCore.QTimer.singleShot(20, click)
+        button.click()
+
+    QtCore.QTimer.singleShot(20, click)
+    parent = QtWidgets.QWidget()
+    qtbot.addWidget(parent)
+    chosen = ask_recovery(parent, pending)
+    assert chosen == pending[1] and not clicks
+    assert not paths[0].exists() and paths[1].exists()  # the discarded journal is gone, the other kept
+
+
+def test_a_plain_start_offers_the_unsaved_reviews(monkeypatch, qtbot):
+    from PySide6 import QtWidgets
+
+    from app.gui import launch as launching
+
+    asked = []
+    monkeypatch.setattr(MainWindow, "offer_recovery", lambda self, **kw: asked.append(self))
+    # The event loop runs what is queued, then returns as if the user had quit.
+    monkeypatch.setattr(QtWidgets.QApplication, "exec", lambda self: QtWidgets.QApplication.processEvents() or 0)
+    assert launching.launch() == 0
+    assert len(asked) == 1 and isinstance(asked[0], MainWindow)
+    qtbot.addWidget(asked[0])
