@@ -104,51 +104,61 @@ def test_kill_during_analyze_keeps_the_previous_results(cell, tmp_path):
 
 # -- a results-file save -----------------------------------------------------------------------------
 def _child_save(results: str) -> None:
-    """Reject one more beat and save, over and over; print each save once it has returned."""
+    """Decision k rejects beat k mod n with the reason "kill test k"; save after each one and
+    print it once the save has returned. Runs until killed, from where the last child stopped."""
     from analysis.session import Session
 
     session = Session.open(results)
     key = session.recordings[0]
-    done = len(_rejected(Path(results)))  # what the previous (killed) child saved
-    print("ready", flush=True)
     n = len(session.beats(key))
-    for i in range(done, n):
-        session.reject(key, [i], f"kill test {i}")
+    k = _last_saved(Path(results)) + 1
+    print("ready", flush=True)
+    while True:
+        session.reject(key, [k % n], f"kill test {k}")
         session.save(results)
-        print(f"saved {i}", flush=True)
+        print(f"saved {k}", flush=True)
+        k += 1
 
 
-def _rejected(results: Path) -> set[int]:
+def _saved_state(results: Path) -> list[int | None]:
+    """Per beat, the k of the decision on it in the saved file (None: never decided)."""
     from analysis.session import Session
 
     session = Session.open(results, verify_sources=False)
-    beats = session.beats(session.recordings[0])
-    reasons = [str(r) for r in beats["reject_reason"]]
-    return {i for i, r in enumerate(reasons) if r == f"kill test {i}"}
+    reasons = [str(r) for r in session.beats(session.recordings[0])["reject_reason"]]
+    return [int(r.rsplit(" ", 1)[1]) if r.startswith("kill test ") else None for r in reasons]
+
+
+def _last_saved(results: Path) -> int:
+    return max((k for k in _saved_state(results) if k is not None), default=-1)
 
 
 def test_kill_during_save_keeps_every_confirmed_decision(cell, tmp_path):
-    """8 kills while a session saves after every decision: the file always opens, with every
-    decision whose save returned (and at most the one being saved)."""
+    """8 kills while a session saves after every decision: the file always opens and holds
+    exactly the decisions up to one k: every one whose save returned, perhaps the one being saved
+    when the kill came (finished but not yet reported), never a part of a save."""
     results = tmp_path / "review.h5"
     ok = subprocess.run([sys.executable, "-m", "app", "analyze", str(cell), "--out", str(results)],
                         cwd=tmp_path, env=_env(tmp_path), capture_output=True, text=True, timeout=300)
     assert ok.returncode == 0, ok.stderr
     rng = random.Random(SEED + 1)
-    before: set[int] = set()
+    previous = -1
     for run in range(8):
         proc = _start([__file__, "save", str(results)], tmp_path)
         _wait_for_line(proc, "ready")
         _kill_after(proc, rng.uniform(0.05, 1.5))
+        assert proc.returncode == -signal.SIGKILL  # killed mid-review, not finished
         confirmed = [int(line.split()[1]) for line in proc.stdout.read().splitlines() if line.startswith("saved")]
-        on_disk = _rejected(results)  # opens: the kill never leaves a broken results file
-        # Every decision whose save returned is there; beyond them at most the one being saved
-        # (its save may have finished just before the kill, unreported); and nothing is lost.
-        last = max(confirmed) if confirmed else len(before) - 1
-        assert before <= on_disk and set(range(last + 1)) <= on_disk, (run, confirmed, sorted(on_disk))
-        assert on_disk == set(range(len(on_disk))) and len(on_disk) <= last + 2, (run, confirmed, sorted(on_disk))
-        before = on_disk
-    assert len(before) >= 3  # the kills landed while saves were going on, not all before the first
+        state = _saved_state(results)  # opens: the kill never leaves a broken results file
+        last = max((k for k in state if k is not None), default=-1)
+        reported = max(confirmed, default=previous)
+        assert reported <= last <= reported + 1, (run, confirmed, last)
+        n = len(state)
+        for beat, k in enumerate(state):  # every beat holds its latest decision up to `last`
+            latest = last - ((last - beat) % n)
+            assert k == (latest if latest >= 0 else None), (run, beat, k, last)
+        previous = last
+    assert previous >= 8  # the kills landed while saves were going on
 
 
 # -- the review's autosave ---------------------------------------------------------------------------
