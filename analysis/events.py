@@ -64,6 +64,7 @@ __all__ = [
     "EVENT_FLAGS",
     "REJECTABLE_FLAGS",
     "apply_events",
+    "artefact_like",
     "is_event_warning",
     "rejection_flags",
     "strip_events",
@@ -99,6 +100,20 @@ def _running_median(x: np.ndarray, size: int) -> np.ndarray:
     if ok.any():
         med[ok] = np.nanmedian(windows[ok], axis=1)
     return med
+
+
+def artefact_like(dvdt_max_V_per_s: np.ndarray, apd90_ms: np.ndarray, quality) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Detections no action potential can produce: (either, too fast, too short), per beat.
+
+    Too fast: dV/dt max above ``artefact_max_dvdt_V_per_s``; too short: APD90 below
+    ``artefact_min_apd90_ms`` (undefined values never count).
+    """
+    dvdt = np.asarray(dvdt_max_V_per_s, float)
+    apd90 = np.asarray(apd90_ms, float)
+    with np.errstate(invalid="ignore"):
+        too_fast = np.isfinite(dvdt) & (dvdt > quality.artefact_max_dvdt_V_per_s)
+        too_short = np.isfinite(apd90) & (apd90 < quality.artefact_min_apd90_ms)
+    return too_fast | too_short, too_fast, too_short
 
 
 def table_events(beats: BeatTable, quality) -> tuple[dict[str, np.ndarray], list[str]]:
@@ -146,8 +161,7 @@ def table_events(beats: BeatTable, quality) -> tuple[dict[str, np.ndarray], list
     with np.errstate(invalid="ignore"):
         low_apa = np.isfinite(apa) & (apa < quality.apa_min_mV)
         no_overshoot = np.isfinite(peak) & (peak < quality.overshoot_min_mV)
-        too_fast = np.isfinite(dvdt) & (dvdt > quality.artefact_max_dvdt_V_per_s)
-        too_short = np.isfinite(apd90) & (apd90 < quality.artefact_min_apd90_ms)
+    _, too_fast, too_short = artefact_like(dvdt, apd90, quality)
     detail = np.full(k, "", dtype=object)
     for i in np.flatnonzero(too_fast | too_short):
         parts = []

@@ -73,7 +73,12 @@ def _col(name: str) -> Callable[[Mapping[str, np.ndarray], MeasurementSettings],
 def _cl(m: Mapping[str, np.ndarray], s: MeasurementSettings) -> np.ndarray:
     t = np.asarray(m["t_upstroke_s"], dtype=np.float64)
     out = np.full(t.shape, np.nan)
-    if t.size > 1:
+    if "previous_row" in m:
+        # The previous beat of the chain (artefact-like detections are not beats).
+        prev = np.asarray(m["previous_row"], np.int64)
+        has = prev >= 0
+        out[has] = (t[has] - t[prev[has]]) * 1e3
+    elif t.size > 1:
         out[1:] = np.diff(t) * 1e3
     # A beat without a measured predecessor in the same continuous sweep has no cycle length.
     out[~np.asarray(m["has_previous"], bool)] = np.nan
@@ -145,6 +150,9 @@ def marker_columns(percents) -> tuple[str, ...]:
 
 def features_of_sweep(markers: BeatMarkers | Mapping[str, np.ndarray], settings: MeasurementSettings) -> dict[str, np.ndarray]:
     """The measured columns of one sweep's beats, from their markers, through the registry.
+
+    ``markers`` may hold ``previous_row``, each beat's previous beat in the chain (-1: none);
+    by default it is the row before.
 
     The CSV's APD columns (20, 50 and 90 %) are always present (NaN when the settings leave them
     out); other percentages add their own columns.

@@ -318,48 +318,125 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     if ups.size == 0:
         tick(n)
         return None, art, [], load.hum, np.empty((0, 2), np.int64)
-    chunk = max(int(s.detection.chunk_s * fs), 1)
-    margin = pad + int(0.25 * fs) + 64
-    markers, spans = [], []
-    k0 = 0
-    while k0 < ups.size:
-        start_at = ups[k0 - 1] if k0 > 0 else 0
-        k1 = k0 + 1
-        while k1 < ups.size and ups[k1] - start_at < chunk:
-            k1 += 1
-        stop_at = ups[k1] if k1 < ups.size else n
-        ra, rb = max(0, int(start_at) - margin), min(n, int(stop_at) + margin)
-        v = load(ra, rb)
-        # Short electrical spikes are bridged before anything is measured (MEASUREMENTS.md, Beats:
-        # a spike of a few samples is neither a beat nor part of one).
-        sp = find_spikes(v, fs, noise_mV=noise, settings=s.detection)
-        if sp.size:
-            v = bridge_spans(v, sp)
-            spans.append(sp + ra)
-        prev = np.concatenate(([ups[k0 - 1] - ra if k0 > 0 else -1], ups[k0:k1 - 1] - ra))
-        nxt = np.concatenate((ups[k0 + 1:k1] - ra, [ups[k1] - ra if k1 < ups.size else rb - ra]))
-        markers.append(measure_beats(
-            v, fs, ups[k0:k1] - ra, i_previous=prev, i_next=nxt, settings=s.measurement, noise_mV=noise,
-            sweep_end=(rb == n), offset=ra,
-        ))
-        tick(int(stop_at - start_at))
-        k0 = k1
-    cols = _sweep_columns(markers, sw, s)
-    rise = [float(x) for m in markers for x in m.values["rise_samples"]]
+    spans: list[np.ndarray] = []
+    measure = _Measurer(load, n, fs, s, noise, pad, spans)
+    prev = np.concatenate(([-1], ups[:-1]))
+    nxt = np.concatenate((ups[1:], [n]))
+    merged = measure(ups, prev, nxt, tick)
+    previous_row = np.arange(ups.size) - 1
+    chained = _chain_without_artefacts(merged, s)
+    if chained is not None:
+        # Artefact-like detections are not beats: their neighbours are measured again with the
+        # real beats around them as previous and next (CL, MDP, take-off, APD search limits).
+        previous_row, next_row, redo, bridges = chained
+        prev2 = np.where(previous_row[redo] >= 0, ups[np.maximum(previous_row[redo], 0)], -1)
+        nxt2 = np.where(next_row[redo] < ups.size, ups[np.minimum(next_row[redo], ups.size - 1)], n)
+        measure.bridges = bridges
+        again = measure(ups[redo], prev2, nxt2, None)
+        for name, values in again.items():
+            merged[name][redo] = values
+    merged["previous_row"] = previous_row
+    cols = _sweep_columns(merged, sw, s)
+    rise = [float(x) for x in merged["rise_samples"]]
     spikes = np.unique(np.concatenate(spans), axis=0) if spans else np.empty((0, 2), np.int64)
     return cols, art, rise, load.hum, spikes
 
 
-def _sweep_columns(markers, sw: int, s: Settings) -> dict[str, np.ndarray]:
-    merged = {name: np.concatenate([m.columns()[name] for m in markers]) for name in markers[0].columns()}
+class _Measurer:
+    """Measures beats of one sweep in chunks read through its loader (spikes bridged first)."""
+
+    def __init__(self, load, n: int, fs: float, s: Settings, noise: float, pad: int, spans: list) -> None:
+        self.load, self.n, self.fs, self.s, self.noise, self.spans = load, n, fs, s, noise, spans
+        self.chunk = max(int(s.detection.chunk_s * fs), 1)
+        self.margin = pad + int(0.25 * fs) + 64
+        #: Extra ``(start, stop)`` sweep spans bridged like spikes (short artefact detections).
+        self.bridges = np.empty((0, 2), np.int64)
+
+    def __call__(self, ups: np.ndarray, prev: np.ndarray, nxt: np.ndarray, tick) -> dict[str, np.ndarray]:
+        """Marker columns of beats ``ups`` (sweep indices, in order) with the given previous
+        (-1: none) and next (``n``: none) upstrokes."""
+        n, fs, s = self.n, self.fs, self.s
+        parts, flags = [], []
+        k0, done_to = 0, 0
+        while k0 < ups.size:
+            start_at = int(prev[k0]) if prev[k0] >= 0 else int(ups[k0])
+            k1 = k0 + 1
+            while k1 < ups.size and max(nxt[k1], ups[k1]) - start_at < self.chunk and prev[k1] >= start_at:
+                k1 += 1
+            stop_at = int(nxt[k1 - 1])
+            ra, rb = max(0, int(start_at) - self.margin), min(n, stop_at + self.margin)
+            v = self.load(ra, rb)
+            # Short electrical spikes are bridged before anything is measured (MEASUREMENTS.md,
+            # Beats: a spike of a few samples is neither a beat nor part of one).
+            sp = find_spikes(v, fs, noise_mV=self.noise, settings=s.detection)
+            if sp.size:
+                self.spans.append(sp + ra)
+            extra = self.bridges[(self.bridges[:, 0] > ra) & (self.bridges[:, 1] < rb - 1)] - ra
+            if extra.size:
+                sp = np.concatenate((sp, extra))
+                sp = sp[np.argsort(sp[:, 0], kind="stable")]
+            if sp.size:
+                v = bridge_spans(v, sp)
+            p = np.where(prev[k0:k1] >= 0, prev[k0:k1] - ra, -1)
+            q = np.where(nxt[k0:k1] < n, nxt[k0:k1] - ra, rb - ra)
+            m = measure_beats(
+                v, fs, ups[k0:k1] - ra, i_previous=p, i_next=q, settings=s.measurement, noise_mV=self.noise,
+                sweep_end=(rb == n), offset=ra,
+            )
+            parts.append(m.columns())
+            flags.extend(";".join(f) for f in m.flags)
+            if tick is not None:
+                tick(max(0, stop_at - done_to))
+                done_to = max(done_to, stop_at)
+            k0 = k1
+        out = {name: np.concatenate([c[name] for c in parts]) for name in parts[0]}
+        out["flags"] = np.array(flags, dtype=object)
+        return out
+
+
+def _chain_without_artefacts(merged: dict[str, np.ndarray], s: Settings):
+    """Rows of the previous and next real beat, and the beats to measure again, or None.
+
+    Only when the quality rules reject artefact-like detections (``quality.reject_artefact``):
+    such a detection is not a beat, so the beat after it takes its cycle length and MDP from the
+    real beat before it, and the beat before it repolarises up to the next real beat.
+    """
+    quality = getattr(s, "quality", None)
+    if quality is None or not getattr(quality, "reject_artefact", False):
+        return None
+    from .events import artefact_like
+
+    feats = features_of_sweep(merged, s.measurement)
+    bad = artefact_like(feats["dvdt_max_V_per_s"], feats["apd90_ms"], quality)[0]
+    if not bad.any():
+        return None
+    k = bad.size
+    rows = np.arange(k)
+    real = np.where(~bad, rows, -1)
+    previous_row = np.concatenate(([-1], np.maximum.accumulate(real)[:-1]))
+    real_next = np.where(~bad, rows, k)
+    next_row = np.concatenate((np.minimum.accumulate(real_next[::-1])[::-1][1:], [k]))
+    redo = np.flatnonzero(~bad & ((previous_row != rows - 1) | (next_row != rows + 1)))
+    # A short artefact's own samples (from its take-off to as far again after its APD90) are
+    # bridged when its neighbours are measured again, so that it is not in their phase 4 either.
+    fs = 1.0 / np.nanmedian(np.diff(merged["t_upstroke_s"]) / np.diff(merged["i_upstroke"])) if k > 1 else 1.0
+    bridges = []
+    for i in np.flatnonzero(bad & (feats["apd90_ms"] < s.quality.artefact_min_apd90_ms)):
+        t_up, t_end = merged["t_upstroke_s"][i], merged["t_apd90_s"][i]
+        t_start = merged["t_top_s"][i] if np.isfinite(merged["t_top_s"][i]) else t_up - 0.005
+        if np.isfinite(t_end) and np.isfinite(t_start):
+            bridges.append((int(np.floor(t_start * fs)), int(np.ceil((2 * t_end - t_up) * fs)) + 1))
+    return previous_row, next_row, redo, np.asarray(bridges, np.int64).reshape(-1, 2)
+
+
+def _sweep_columns(merged: dict[str, np.ndarray], sw: int, s: Settings) -> dict[str, np.ndarray]:
     feats = features_of_sweep(merged, s.measurement)
     k = len(merged["i_upstroke"])
-    flags = [";".join(f) for m in markers for f in m.flags]
     cols: dict[str, np.ndarray] = {
         "sweep": np.full(k, sw, np.int64),
         "beat": np.arange(k, dtype=np.int64),
         "accepted": np.ones(k, np.int64),
-        "flags": np.array(flags, dtype=object),
+        "flags": merged["flags"],
         "condition": np.array([""] * k, dtype=object),
     }
     cols.update(feats)

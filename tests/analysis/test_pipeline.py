@@ -110,6 +110,30 @@ def test_chunked_pipeline_equals_unchunked():
         np.testing.assert_allclose(small.beats[name], big.beats[name], rtol=1e-9, atol=1e-9, equal_nan=True)
 
 
+def test_an_artefact_detection_is_not_a_beat_of_the_cycle_length_chain():
+    from analysis.synthetic import preset, synthesize
+
+    # A 60 mV, 3 ms wide bump in the diastole of beat 4 of a nodal-like cell: wide enough to be
+    # detected, far too short to be an action potential (APD90 ~7 ms < artefact_min_apd90_ms).
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=FS, seed=4)
+    truth = syn.truth.beats
+    t_bump = truth["t_mdp_s"][4] + 0.3 * (truth["t_top_s"][4] - truth["t_mdp_s"][4])
+    t = np.arange(syn.recording.n_samples(0)) / FS
+    v = syn.recording.sweep(0) + 60.0 * np.exp(-(((t - t_bump) / 0.003) ** 2))
+    b = analyze(Recording.from_array(v, FS)).beats
+    assert len(b) == len(truth) + 1
+    row = int(np.argmin(np.abs(b["t_upstroke_s"] - t_bump)))
+    assert b["accepted"][row] == 0 and b["reject_reason"][row].startswith("auto: artefact")
+    real = np.delete(np.arange(len(b)), row)
+    # Artefacts are not beats (MEASUREMENTS.md, Beats): the real beats' cycle lengths, MDPs and
+    # DDRs are those of the cell (analysis.synthetic's exact truth; clean tolerances CL 0.25 ms,
+    # MDP 0.5 mV, DDR 10 %), the one after the artefact included.
+    np.testing.assert_allclose(b["cl_ms"][real][1:], truth["cl_ms"][1:], atol=0.25)
+    np.testing.assert_allclose(b["mdp_mV"][real][1:], truth["mdp_mV"][1:], atol=0.5)
+    np.testing.assert_allclose(b["ddr_mV_per_s"][real][1:], truth["ddr_mV_per_s"][1:], rtol=0.10)
+    np.testing.assert_allclose(b["apd90_ms"][real][1:], truth["apd90_ms"][1:], atol=1.0)
+
+
 def test_progress_reaches_the_total():
     v, _ = _beats()
     seen = []
