@@ -63,10 +63,12 @@ def _warm_imports() -> None:
 def test_corpus_has_every_kind_of_bad_input():
     names = _case_names()
     assert len(names) >= 50  # the hardening brief: at least 50 cases
-    for prefix in ("abf1-cut-", "abf2-cut-", "abf1-", "abf2-", "nwb-", "hdf5-", "text-", "path-"):
+    for prefix in ("abf1-cut-", "abf2-cut-", "abf1-", "abf2-", "nwb-", "hdf5-", "text-", "settings-",
+                   "results-", "path-", "save-", "batch-", "gui-"):
         assert any(n.startswith(prefix) for n in names), prefix
     assert sum(c.huge for c in _corpus()) >= 8
-    assert {c.fault for c in _corpus()} >= {"unreadable"}
+    assert {c.fault for c in _corpus()} >= {"unreadable", "enospc"}
+    assert {c.argv[0] for c in _corpus()} >= {"info", "analyze", "export", "batch", "gui"}
 
 
 #: Cases that still fail, each with the defect it shows; strict, so a fix must remove its entry.
