@@ -68,6 +68,7 @@ class FilesMixin:
         self.results_path = os.fspath(path)
         if self.journal is not None:
             self.journal.discard()
+        self._journal_follows(self.results_path)
         self.recent.add(path)
         self._fill_recent_menu()
         self.status(f"saved {path}")

@@ -248,6 +248,13 @@ class LoadingMixin:
         self._refresh_all()
 
     # -- autosave restore ----------------------------------------------------------------------
+    def _journal_follows(self, results_path: str) -> None:
+        """After a save, journal later changes under the results file: reopening that file (or
+        recovering at start) then finds them."""
+        self.origin = results_path
+        if self.key is not None:
+            self.journal = Journal(results_path, self.key)
+
     def _restore_review(self, journal: Journal) -> None:
         """Replay an unsaved review onto the recording shown.
 

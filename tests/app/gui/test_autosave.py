@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import threading
 
 import pytest
@@ -165,3 +166,20 @@ def test_a_plain_start_offers_the_unsaved_reviews(monkeypatch, qtbot):
     assert launching.launch() == 0
     assert len(asked) == 1 and isinstance(asked[0], MainWindow)
     qtbot.addWidget(asked[0])
+
+
+def test_changes_after_a_save_come_back_with_the_results_file(window, qtbot, tmp_path):
+    key = window.key
+    window.select_beat(2)
+    window.reject_current("noise")
+    out = tmp_path / "review.h5"
+    assert window.save_results(out)
+    window.select_beat(7)
+    window.reject_current("electrode bump")  # unsaved; then a crash
+    (pending,) = pending_reviews()
+    assert pending.origin == os.path.abspath(out)  # offered at start as the results file
+    again = _window(qtbot)
+    assert again.open_path(out) and again.settle(60_000)
+    beats = again.session.beats(key)
+    assert beats["reject_reason"][2] == "noise" and beats["reject_reason"][7] == "electrode bump"
+    assert "restored" in again.statusBar().currentMessage()
