@@ -121,7 +121,6 @@ def _cap_child() -> None:
 SUBPROCESS_CASES = ("abf2-cut-in-ADC", "nwb-rate-zero", "text-nan", "path-is-a-folder", "abf1-huge-sweep-count")
 
 
-@pytest.mark.parametrize("name", _params(SUBPROCESS_CASES))
 def _run_child(case: Case) -> subprocess.CompletedProcess:
     env = dict(os.environ, PYTHONPATH=str(REPO), QT_QPA_PLATFORM="offscreen")
     return subprocess.run(
@@ -130,6 +129,7 @@ def _run_child(case: Case) -> subprocess.CompletedProcess:
     )
 
 
+@pytest.mark.parametrize("name", _params(SUBPROCESS_CASES))
 def test_case_in_a_real_process(name):
     case = _case(name)
     proc = _run_child(case)
