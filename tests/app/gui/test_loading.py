@@ -113,7 +113,8 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     window.select_beat(6)
     window.reject_current("noise")  # ...made stale before it is back
     assert window.settle(60_000)
-    assert False in applied and applied[-1] is True  # the stale result was dropped, the newest kept
+    # Two jobs ran side by side, in either order: the stale result was dropped, the newest kept.
+    assert sorted(applied) == [False, True]
     assert window.summaries is window.session.cached_summaries(key)
     # A rejected beat leaves the pooled summary if it was in it (common practice, no source).
     assert window.summaries[0].values["n_accepted"] == n0 - int(3 in rows0) - int(6 in rows0)
