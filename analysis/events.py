@@ -26,8 +26,11 @@ pause
     The beat's cycle length exceeds ``pause_factor`` times the running median of the cycle
     lengths around it (``pause_median_beats`` beats, same sweep; from memory, a setting).
 clipped
-    The beat's samples hold a run of at least ``clip_min_flat_ms`` (and 3 samples) exactly at
-    the sweep's highest or lowest value: the signal sat at the amplifier's or converter's limit.
+    The beat's samples hold a run of at least ``clip_min_flat_ms`` (and ``clip_min_samples``)
+    flat at the converter's limit: exactly at its highest or lowest code when the reader knows
+    the range (ABF), otherwise equal samples at the sweep's highest or lowest value that cut the
+    signal off, the trace falling away steeply on both sides (a smooth top that happens to be
+    the sweep's maximum, even quantised into a run of equal samples, is not clipped).
 noisy
     The rms noise of the beat's diastole (``noise_mV_rms`` column) exceeds ``noise_max_mV_rms``:
     the rms of the samples from MDP to take-off minus their zero-phase low-pass (second-order

@@ -60,6 +60,13 @@ class RecordingSweeps:
         self._rec, self._ch, self._scale, self._pre = recording, int(channel), float(scale), preprocess
         self._subtract = float(subtract_mV)
         self._pad = filter_pad_samples(recording.sampling_rate_hz, preprocess) if preprocess is not None else 0
+        #: The converter's lowest and highest value in the units read, when the reader knows it
+        #: and the samples are read as recorded (the clipping test's limits); else None.
+        self.adc_range = None
+        ranges = recording.metadata.get("adc_range")
+        if ranges and preprocess is None and not subtract_mV and self._ch < len(ranges):
+            lo, hi = ranges[self._ch]
+            self.adc_range = (float(lo) * self._scale, float(hi) * self._scale) if self._scale != 1.0 else (float(lo), float(hi))
 
     def n_samples(self, sweep: int) -> int:
         return self._rec.n_samples(sweep)
@@ -94,17 +101,61 @@ def _index(t_s: np.ndarray, fs_hz: float, n: int) -> np.ndarray:
     return out
 
 
-def _extreme_runs(raw: Any, sweep: int, n: int, min_len: int, block: int) -> list[tuple[int, int, float]]:
-    """Runs ``(start, stop, value)`` of at least ``min_len`` samples equal to the sweep's max or min."""
+#: How far beside a flat run its flanks are looked at (a longer run is judged on this much).
+_CUT_REACH_S = 0.005
+
+
+def _is_cut(x: np.ndarray, s: int, e: int, value: float, top: bool, h: int) -> bool:
+    """Whether a flat run ``x[s:e]`` at the sweep's extreme cuts the signal off (not a smooth top).
+
+    A smooth top read through a converter of step q holds a run of equal samples too, but
+    within as many samples again on either side (``h``, at most 5 ms) it falls only about 8 q (a
+    parabola's top), and a smooth, noise-free diastole settling onto its level hardly moves
+    there; a signal cut off at a height H above the flat falls about 8 H there. The run is a
+    cut when both sides fall by more than 40 steps (a cut of more than 5 steps) and 6 x the
+    noise.
+    """
+    left, right = x[max(0, s - h):s], x[e:e + h]
+    if left.size == 0 or right.size == 0:
+        return False  # at the sweep's edge: no flank to judge by
+    sign = 1.0 if top else -1.0
+    depth = min(sign * (value - float(np.min(left) if top else np.max(left))),
+                sign * (value - float(np.min(right) if top else np.max(right))))
+    around = x[max(0, s - 4 * h):min(x.size, e + 4 * h)]
+    steps = np.abs(np.diff(around))
+    steps = steps[steps > 0]
+    q = float(np.min(steps)) if steps.size else 0.0
+    from .signal import noise_rms_mV
+
+    flanks = np.concatenate((x[max(0, s - 4 * h):s], x[e:e + 4 * h]))
+    return depth > max(40.0 * q, 6.0 * noise_rms_mV(flanks))
+
+
+def _clipped_runs(
+    raw: Any, sweep: int, n: int, min_len: int, block: int, fs_hz: float, adc_range: Sequence[float] | None = None,
+) -> list[tuple[int, int, float]]:
+    """Runs ``(start, stop, value)`` of at least ``min_len`` equal samples flat at a limit.
+
+    When the reader knows the converter's range (``adc_range``, the lowest and highest value it
+    can give), only runs at those limits are clipping. Otherwise a run of equal samples at the
+    sweep's highest or lowest value counts where it cuts the signal off (:func:`_is_cut`), so
+    that a smooth quantised top, or a noise-free flat diastole, is not taken for clipping.
+    """
     hi, lo = -math.inf, math.inf
     for a in range(0, n, block):
         x = raw.read(sweep, a, min(n, a + block))
         if x.size:
             hi, lo = max(hi, float(np.max(x))), min(lo, float(np.min(x)))
     runs: list[tuple[int, int, float]] = []
-    if not math.isfinite(hi):
+    if not (math.isfinite(hi) and math.isfinite(lo)):
         return runs
-    open_at: dict[float, int | None] = {hi: None, lo: None}
+    known = adc_range is not None and len(adc_range) == 2 and all(map(math.isfinite, adc_range))
+    if known:
+        tol = 1e-9 * max(abs(float(adc_range[1]) - float(adc_range[0])), 1.0)
+        # Only the converter's own limits count; the sweep reaches one when its extreme is it.
+        hi = hi if abs(hi - float(adc_range[1])) <= tol else math.nan
+        lo = lo if abs(lo - float(adc_range[0])) <= tol else math.nan
+    open_at: dict[float, int | None] = {v: None for v in (hi, lo) if not math.isnan(v)}
     for a in range(0, n, block):
         x = raw.read(sweep, a, min(n, a + block))
         for value in open_at:
@@ -126,7 +177,18 @@ def _extreme_runs(raw: Any, sweep: int, n: int, min_len: int, block: int) -> lis
     for value, s in open_at.items():
         if s is not None and n - s >= min_len:
             runs.append((int(s), n, value))
-    return sorted(set(runs))
+    runs = sorted(set(runs))
+    if known:
+        return runs
+    out = []
+    reach = max(3, int(round(_CUT_REACH_S * fs_hz)))
+    for s, e, value in runs:
+        h = min(max(e - s, 3), reach)
+        a = max(0, s - 4 * h)
+        x = raw.read(sweep, a, min(n, e + 4 * h))
+        if _is_cut(x, s - a, e - a, value, value == hi, h):
+            out.append((s, e, value))
+    return out
 
 
 def sweep_trace_events(
@@ -220,8 +282,9 @@ def sweep_trace_events(
 
     # Clipping: each beat owns the samples from its MDP (the sweep start for the first beat) to
     # the next beat's MDP, so every flat run belongs to exactly one beat.
-    min_len = max(3, int(math.ceil(quality.clip_min_flat_ms * 1e-3 * fs_hz)))
-    runs = _extreme_runs(raw if raw is not None else source, sweep, n, min_len, chunk)
+    min_len = max(int(getattr(quality, "clip_min_samples", 3)), int(math.ceil(quality.clip_min_flat_ms * 1e-3 * fs_hz)))
+    clip_source = raw if raw is not None else source
+    runs = _clipped_runs(clip_source, sweep, n, min_len, chunk, fs_hz, getattr(clip_source, "adc_range", None))
     if runs:
         owner = np.where(i_mdp >= 0, i_mdp, np.maximum(i_up - 1, 0))
         owner[0] = 0

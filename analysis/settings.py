@@ -355,7 +355,11 @@ class QualitySettings(Section):
     )
     clip_min_flat_ms: float = setting(
         0.5, unit="ms", min=0.0, max=100.0, source=_NO_SOURCE,
-        doc="a run this long exactly at the sweep's highest or lowest value is clipping (at least 3 samples)",
+        doc="a run this long flat at the converter's limit (or cutting the signal off at the sweep's extreme) is clipping",
+    )
+    clip_min_samples: int = setting(
+        3, min=2, max=1000, source=_NO_SOURCE,
+        doc="a clipped run also holds at least this many samples (at low sampling rates)",
     )
     noise_max_mV_rms: float = setting(
         1.0, unit="mV", min=0.0, max=100.0, source="MEASUREMENTS.md: detection is built for 0.1-1 mV rms",

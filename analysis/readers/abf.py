@@ -240,6 +240,9 @@ def _metadata(abf: Any, layout: _Layout) -> dict[str, Any]:
     }
     if layout.variable:
         meta["variable_length_sweeps"] = True
+    adc = _adc_range(abf, layout)
+    if adc is not None:
+        meta["adc_range"] = adc
     protocol = str(getattr(abf, "protocol", "") or "")
     if protocol and protocol != "None":
         meta["protocol"] = protocol
@@ -259,6 +262,25 @@ def _metadata(abf: Any, layout: _Layout) -> dict[str, Any]:
     if date is not None:
         meta["recorded_at"] = date
     return meta
+
+
+def _adc_range(abf: Any, layout: _Layout) -> list[list[float]] | None:
+    """Per channel, the lowest and highest value the converter can give, in the channel's units.
+
+    The converter's codes run from -lADCResolution to lADCResolution - 1; each is scaled as the
+    samples are (gain and offset). None for float data or a header without a resolution.
+    """
+    if layout.dtype.kind != "i":
+        return None
+    header = abf._headerV1 if layout.major == 1 else getattr(abf, "_protocolSection", None)
+    res = int(getattr(header, "lADCResolution", 0) or 0)
+    if res <= 0:
+        return None
+    out = []
+    for g, o in zip(layout.gains, layout.offsets):
+        lo, hi = float(np.float64(-res) * g + o), float(np.float64(res - 1) * g + o)
+        out.append([min(lo, hi), max(lo, hi)])
+    return out
 
 
 def _recording_date(abf: Any, layout: _Layout) -> str | None:

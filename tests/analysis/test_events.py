@@ -13,6 +13,7 @@ from analysis.events import AUTO_PREFIX, EVENT_FLAGS, apply_events, strip_events
 from analysis.settings import Settings
 from analysis.synthetic import DAD, EAD, Pause, SealTrouble, preset, synthesize
 from analysis.table import BeatTable
+from tests.analysis.beat_traces import gaussian_train
 
 QUALITY = Settings().quality
 
@@ -107,6 +108,69 @@ def test_clipped_beats_are_rejected_by_default():
     assert np.array_equal(flagged, cut)
     assert np.all(table["accepted"][cut] == 0)
     assert all("flat at 10 for" in r for r in table["reject_reason"][cut])
+
+
+def test_a_smooth_top_that_is_the_sweep_maximum_is_not_clipped():
+    # Noise-free beats read through a converter of 0.01 mV steps: each smooth peak is a run of
+    # equal samples at (or near) the sweep's maximum, and the flat diastole between the beats a
+    # run at its minimum; neither is clipping (common practice, no source: clipping is a signal
+    # cut off at a limit, not a rounded top).
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=20_000.0, seed=4)
+    v = np.round(syn.recording.sweep(0), 2)
+    table, _ = _run(syn, v={0: v})
+    assert _flagged(table, "clipped") == set()
+    from analysis.events_trace import ArraySweeps, sweep_trace_events
+
+    flat = np.full(40_000, -60.0)
+    flat[10_000:10_400] += 80.0 * np.hanning(400)  # one smooth beat on a noise-free flat diastole
+    beat = BeatTable({"t_upstroke_s": [0.51], "t_peak_s": [0.51], "t_apd90_s": [0.515], "t_mdp_s": [np.nan],
+                      "t_top_s": [np.nan], "peak_mV": [20.0], "apa_mV": [np.nan]})
+    assert not sweep_trace_events(ArraySweeps([flat]), 0, 20_000.0, beat, QUALITY)["clipped"].any()
+
+
+def test_clipping_at_the_converters_limit_when_the_reader_knows_it():
+    # Noise-free beats through a converter of 0.01 mV steps whose highest code lies two steps
+    # below the highest beat's true peak: a cut too shallow to tell from a rounded top, but flat
+    # at the limit the recording states (common practice, no source: samples at the ADC limit
+    # are saturated).
+    from analysis import analyze
+    from analysis.recording import Recording
+
+    syn = synthesize(preset("nodal-like"), duration_s=10.0, fs_hz=10_000.0, seed=4)
+    peaks = np.asarray(syn.truth.beats["peak_mV"])
+    limit = round(float(peaks.max()) - 0.02, 2)
+    v = np.minimum(np.round(syn.recording.sweep(0), 2), limit)
+    cut = peaks > limit + 0.005  # the beats whose tops the converter cut (construction)
+    assert cut.sum() >= 10
+    known = analyze(Recording.from_array(v, 10_000.0, metadata={"adc_range": [[-200.0, limit]]})).beats
+    flagged = np.array(["clipped" in f for f in known["flags"]])
+    assert np.array_equal(flagged, cut)
+    assert np.all(known["accepted"][flagged] == 0) and all("flat at" in r for r in known["reject_reason"][flagged])
+    unknown = analyze(Recording.from_array(v, 10_000.0)).beats
+    assert not any("clipped" in f for f in unknown["flags"])  # without the range: a rounded top
+
+
+def test_the_abf_reader_states_the_converters_range():
+    # pyabf's writer stores int(value x resolution / range x scale) in int16 codes from
+    # -resolution to resolution - 1 (pyabf/abfWriter.py; ABF header fields lADCResolution,
+    # fADCRange, fInstrumentScaleFactor): the range follows from one step.
+    from analysis import open_recording
+    from tests import recording_files as files
+
+    import tempfile
+    from pathlib import Path
+
+    with tempfile.TemporaryDirectory() as tmp:
+        v, _ = gaussian_train(10_000.0, 2.0)
+        path = files.write_abf1(Path(tmp) / "cell.abf", v, 10_000.0)
+        step = files.abf1_step(path)
+        rec = open_recording(path)
+        lo, hi = rec.metadata["adc_range"][0]
+        assert lo == pytest.approx(-32768 * step, rel=1e-6) and hi == pytest.approx(32767 * step, rel=1e-6)
+        assert hi > np.max(rec.sweep(0))  # the smooth peaks lie below the limit: nothing clipped
+        from analysis import analyze
+
+        assert not any("clipped" in f for f in analyze(rec).beats["flags"])
 
 
 def test_noise_level_and_noisy_flag():
