@@ -215,6 +215,11 @@ def analyze(
     for name, change in dict(recording.metadata.get("units_overridden", {})).items():
         warnings.append(f"units of channel {name} overridden ({change})")
     scale = _TO_MV.get(ch.units.strip().lower(), 1.0)
+    overridden = dict(recording.metadata.get("units_overridden", {})).get(ch.name)
+    if overridden:
+        implausible = _implausible_range_note(recording, idx, scale, _sweep_list(recording, sweeps), overridden)
+        if implausible:
+            warnings.append(implausible)
     fs = recording.sampling_rate_hz
     file_label = label if label is not None else (
         os.path.basename(recording.source_path) if recording.source_path else "recording"
@@ -256,6 +261,32 @@ def analyze(
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
         ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes,
+    )
+
+
+#: The widest span a membrane potential plausibly takes (mV): beyond it a channel's values are not
+#: a membrane potential in mV (MEASUREMENTS.md: MDPs -50 to -90 mV, peaks up to about +40 mV).
+_PLAUSIBLE_MV = (-150.0, 100.0)
+
+
+def _implausible_range_note(recording: Recording, idx: int, scale: float, sweeps: list[int], change: str) -> str | None:
+    """A plain warning when a channel whose units were overridden spans far beyond a membrane
+    potential's range (the gain the file states may be as wrong as its units), else None."""
+    lo, hi = np.inf, -np.inf
+    step = 1 << 20
+    for sw in sweeps:
+        n = recording.n_samples(sw)
+        for a in range(0, n, step):
+            x = recording.sweep(sw, idx, a, min(n, a + step))
+            lo, hi = min(lo, float(np.min(x)) * scale), max(hi, float(np.max(x)) * scale)
+    if not (np.isfinite(lo) and np.isfinite(hi)) or (lo >= _PLAUSIBLE_MV[0] and hi <= _PLAUSIBLE_MV[1]):
+        return None
+    ch = recording.channels[idx]
+    return (
+        f"channel {idx} ({ch.name}) spans {lo:.0f} to {hi:.0f} mV after its units override ({change}): "
+        f"implausible for a membrane potential ({_PLAUSIBLE_MV[0]:g} to {_PLAUSIBLE_MV[1]:g} mV at most); "
+        "the gain the file records is probably wrong too, so every voltage and dV/dt is off by that factor; "
+        "check the amplifier's scaling before using these numbers"
     )
 
 

@@ -161,6 +161,29 @@ def test_real_mislabelled_file_is_refused_then_analysed_with_the_override(real_a
 
 
 @pytest.mark.realdata
+def test_real_mislabelled_file_warns_that_its_values_are_no_membrane_potential(real_abf_dir):
+    # Stored as pA, its samples span -1595 to 816 in sweep 0 (MANIFEST.csv) and -1600 to 816 over
+    # its three sweeps (pyabf's scaling, read here): declared mV, that is no membrane potential,
+    # so the gain must be wrong as well as the units (the same cell's good-units file spans -79
+    # to 41 mV, MANIFEST.csv).
+    result = analyze(open_recording(real_abf_dir / "opto_aps_bad_units.abf", units={0: "mV"}))
+    note = [w for w in result.warnings if "implausible for a membrane potential" in w]
+    assert len(note) == 1 and "spans -1600 to 816 mV" in note[0] and "gain" in note[0]
+    good = analyze(open_recording(real_abf_dir / "opto_aps_good_units.abf", units={0: "mV"}))
+    assert not any("implausible" in w for w in good.warnings)  # -79 to 41 mV (MANIFEST.csv)
+
+
+def test_a_units_override_to_plausible_millivolts_says_nothing_more():
+    v, _ = _beats()
+    result = analyze(Recording.from_array(v, FS, units="pA").with_units(0, "mV"))
+    assert any("overridden (pA -> mV)" in w for w in result.warnings)
+    assert not any("implausible" in w for w in result.warnings)
+    wrong_gain = analyze(Recording.from_array(v * 20.0, FS, units="pA").with_units(0, "mV"))
+    # a gain 20 times too large: -1200 to +400 "mV" (construction)
+    assert any("implausible for a membrane potential" in w for w in wrong_gain.warnings)
+
+
+@pytest.mark.realdata
 def test_real_1_khz_recording_warns_about_dvdt_max(real_abf_dir):
     rec = open_recording(real_abf_dir / "File_axon_2.abf")  # 20 min at 1 kHz, current clamp (README.md)
     result = analyze(rec)
