@@ -48,6 +48,22 @@ def _wait_for_line(proc: subprocess.Popen, word: str) -> None:
     assert line.startswith(word), (line, proc.stderr.read() if proc.poll() is not None else "")
 
 
+def _kill_within_a_step(proc: subprocess.Popen, rng: random.Random, *, steps: int) -> list[int]:
+    """Let the child confirm ``steps`` steps (one printed line each), then kill it at a random
+    moment of a following step (the pace measured on the last step); returns what it confirmed."""
+    confirmed, last = [], time.perf_counter()
+    pace = 0.05
+    for _ in range(steps):
+        line = proc.stdout.readline()
+        assert line, proc.stderr.read()
+        confirmed.append(int(line.split()[1]))
+        now = time.perf_counter()
+        pace, last = now - last, now
+    _kill_after(proc, rng.uniform(0.0, 1.5) * pace)
+    confirmed += [int(line.split()[1]) for line in proc.stdout.read().splitlines() if line.strip()]
+    return confirmed
+
+
 def _temp_files(folder: Path) -> list[str]:
     return sorted(n for n in os.listdir(folder) if ".tmp" in n)
 
@@ -146,9 +162,8 @@ def test_kill_during_save_keeps_every_confirmed_decision(cell, tmp_path):
     for run in range(8):
         proc = _start([__file__, "save", str(results)], tmp_path)
         _wait_for_line(proc, "ready")
-        _kill_after(proc, rng.uniform(0.05, 1.5))
+        confirmed = _kill_within_a_step(proc, rng, steps=rng.randint(0, 3))
         assert proc.returncode == -signal.SIGKILL  # killed mid-review, not finished
-        confirmed = [int(line.split()[1]) for line in proc.stdout.read().splitlines() if line.startswith("saved")]
         state = _saved_state(results)  # opens: the kill never leaves a broken results file
         last = max((k for k in state if k is not None), default=-1)
         reported = max(confirmed, default=previous)
@@ -158,7 +173,7 @@ def test_kill_during_save_keeps_every_confirmed_decision(cell, tmp_path):
             latest = last - ((last - beat) % n)
             assert k == (latest if latest >= 0 else None), (run, beat, k, last)
         previous = last
-    assert previous >= 8  # the kills landed while saves were going on
+    assert previous >= 4  # the kills landed while saves were going on
 
 
 # -- the review's autosave ---------------------------------------------------------------------------
@@ -193,8 +208,7 @@ def test_kill_during_autosave_loses_no_confirmed_decision(cell, tmp_path):
             stale.unlink()
         proc = _start([__file__, "autosave", str(cell), str(folder)], tmp_path)
         _wait_for_line(proc, "ready")
-        _kill_after(proc, rng.uniform(0.02, 0.8))
-        confirmed = [int(line.split()[1]) for line in proc.stdout.read().splitlines() if line.startswith("journal")]
+        confirmed = _kill_within_a_step(proc, rng, steps=rng.randint(0, 6))
         journal = Journal(str(cell), key, folder=folder)
         if not confirmed and not journal.exists():
             continue  # killed before the first decision was written: nothing was confirmed
