@@ -21,10 +21,12 @@ smoothed membrane potential with adaptive levels, followed by checks of each can
    events are electrical artefacts. Upstrokes closer than ``min_interval_ms`` to the previous
    accepted one are artefacts too.
 
-Electrical spikes a few samples long that ride on a beat (on its plateau, its upstroke's foot or
-its diastole) never reach the detector's levels as candidates of their own; :func:`find_spikes`
-finds them on the full-rate samples so that the measurement can bridge them
-(:func:`bridge_spans`) before it looks for any extreme or crossing.
+Electrical spikes a few samples long (at most ``spike_max_ms``) are found by :func:`find_spikes`
+on the full-rate samples and bridged (:func:`bridge_spans`) before anything else is done, and
+each is reported as an artefact (reason ``spike``): on a beat's repolarisation a spike would
+otherwise be the event's highest point and make the beat look narrow, and in diastole it would
+be a candidate of its own. The measurement bridges the same spans before it looks for any
+extreme or crossing.
 
 Long sweeps are worked in chunks of ``chunk_s`` with ``chunk_overlap_s`` of context on each side;
 chunk and block boundaries are aligned so that every sample sees the same levels whatever the
@@ -55,6 +57,7 @@ ARTEFACT_REASONS = {
     "narrow": "narrower than min_width_ms at half amplitude (an electrical spike)",
     "slow": "smoothed dV/dt below the detection threshold",
     "too_close": "closer than min_interval_ms to the previous upstroke",
+    "spike": "a short electrical spike (at most spike_max_ms), bridged before detection",
 }
 
 
@@ -254,6 +257,13 @@ def detect_sweep(
     s = settings or DetectionSettings()
     if noise_mV is None:
         noise_mV = estimate_noise_mV(load, n)
+    if s.spike_max_ms > 0:
+        spans: list[tuple[int, int]] = []
+        det = detect_sweep(
+            _spike_free(load, fs_hz, noise_mV, s, spans), n, fs_hz,
+            settings=dataclasses.replace(s, spike_max_ms=0.0), noise_mV=noise_mV, pad=pad,
+        )
+        return _with_spikes(det, spans)
     q = max(1, int(fs_hz // s.working_rate_hz))
     if q > 1:
         return _detect_decimated(load, n, fs_hz, q, s, noise_mV, pad)
@@ -298,6 +308,43 @@ def detect_sweep(
     why[:] = reasons
     o = np.argsort(art_arr, kind="stable")
     return Detection(up[keep], pk[keep], art_arr[o], why[o], float(threshold), float(noise_mV))
+
+
+def _spike_free(load, fs_hz: float, noise_mV: float, s: DetectionSettings, spans: list):
+    """``load`` with short electrical spikes bridged; the sweep spans bridged go to ``spans``.
+
+    Regions read with context see the same spikes wherever they start (a spike is judged on a
+    millisecond around it), so overlapping reads only repeat spans.
+    """
+
+    def load_clean(a: int, b: int) -> np.ndarray:
+        x = np.asarray(load(a, b), dtype=np.float64)
+        sp = find_spikes(x, fs_hz, noise_mV=noise_mV, settings=s)
+        if not sp.size:
+            return x
+        spans.extend((int(p) + a, int(r) + a) for p, r in sp)
+        return bridge_spans(x, sp)
+
+    return load_clean
+
+
+def _with_spikes(det: Detection, spans: list) -> Detection:
+    """``det`` with each distinct spike span (overlaps merged) as a ``spike`` artefact at its middle."""
+    if not spans:
+        return det
+    merged: list[list[int]] = []
+    for a, b in sorted(set(spans)):
+        if merged and a <= merged[-1][1]:
+            merged[-1][1] = max(merged[-1][1], b)
+        else:
+            merged.append([a, b])
+    at = np.array([(a + b - 1) // 2 for a, b in merged], dtype=np.int64)
+    art = np.concatenate((det.i_artefact, at))
+    why = np.empty(art.size, dtype=object)
+    why[:det.i_artefact.size] = det.artefact_reason
+    why[det.i_artefact.size:] = "spike"
+    o = np.argsort(art, kind="stable")
+    return dataclasses.replace(det, i_artefact=art[o], artefact_reason=why[o])
 
 
 def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, noise_mV: float, pad: int) -> Detection:

@@ -227,6 +227,7 @@ def apply_events(
     quality: Any,
     *,
     sweeps_raw: Any = None,
+    detection: Any = None,
 ) -> tuple[BeatTable, list[str]]:
     """Add event and quality flags to a measured table and apply the rejection rules.
 
@@ -243,6 +244,9 @@ def apply_events(
         The quality settings section.
     sweeps_raw
         The samples as recorded per sweep, for the clipping test (None: ``sweeps_v_mV``).
+    detection
+        The detection settings: electrical spikes by their rule are bridged before EADs and
+        DADs are looked for (:func:`sweep_trace_events`; None: the defaults).
 
     Returns
     -------
@@ -261,7 +265,7 @@ def apply_events(
     if source is not None:
         for s in np.unique(sweep):
             rows = np.flatnonzero(sweep == s)
-            res = sweep_trace_events(source, int(s), fs_hz, base.take(rows), quality, raw=raw)
+            res = sweep_trace_events(source, int(s), fs_hz, base.take(rows), quality, raw=raw, detection=detection)
             for f in ("ead", "dad", "clipped", "noisy"):
                 found[f][rows] = res[f]
             for c in EVENT_COLUMNS:

@@ -18,6 +18,8 @@ import numpy as np
 from scipy.ndimage import uniform_filter1d
 from scipy.signal import butter, sosfiltfilt
 
+from .detect import bridge_spans, estimate_noise_mV, find_spikes
+from .settings import DetectionSettings
 from .table import BeatTable
 
 __all__ = ["ArraySweeps", "RecordingSweeps", "as_sweeps", "sweep_trace_events"]
@@ -200,6 +202,7 @@ def sweep_trace_events(
     *,
     raw: Any = None,
     chunk_s: float = 30.0,
+    detection: Any = None,
 ) -> dict[str, np.ndarray]:
     """EAD, DAD, clipping and diastolic noise for the beats of one sweep.
 
@@ -218,6 +221,11 @@ def sweep_trace_events(
         The sweep source of the samples as recorded, for the clipping test (None: ``source``).
     chunk_s : float
         Beats are worked in windows of about this length (bounds memory).
+    detection : DetectionSettings or None
+        Whose spike rule (:func:`analysis.detect.find_spikes`; None: the defaults) marks the
+        electrical spikes that are bridged before EADs and DADs are looked for, as detection
+        bridges them: a spike is no afterdepolarisation. The diastolic noise keeps them, so
+        that a spike in a diastole flags its beat ``noisy`` for review.
 
     Returns
     -------
@@ -256,6 +264,10 @@ def sweep_trace_events(
     last[-1] = n - 1
     last = np.maximum(last, np.maximum(i_apd90, i_up))
     margin = w_ead // 2 + w_dad // 2 + 2
+    spike_rule = detection if detection is not None else DetectionSettings()
+    spike_noise = estimate_noise_mV(lambda lo, hi: source.read(sweep, lo, hi), n)
+    # A spike is judged on the samples around it: the margin lets every window see it whole.
+    margin += int(math.ceil((spike_rule.spike_max_ms + 2 * spike_rule.spike_guard_ms) * 1e-3 * fs_hz)) + 4
     chunk = max(int(chunk_s * fs_hz), 1)
     b0 = 0
     while b0 < k:
@@ -265,11 +277,13 @@ def sweep_trace_events(
         a = max(0, int(first[b0:b1].min()) - margin)
         z = min(n, int(last[b0:b1].max()) + margin + 1)
         v = source.read(sweep, a, z)
-        vs = uniform_filter1d(v, size=w_ead, mode="nearest") if w_ead > 1 else v
+        spikes = find_spikes(v, fs_hz, noise_mV=spike_noise, settings=spike_rule)
+        vb = bridge_spans(v, spikes) if spikes.size else v
+        vs = uniform_filter1d(vb, size=w_ead, mode="nearest") if w_ead > 1 else vb
         dvdt = np.gradient(vs) * fs_hz * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
-        vd = uniform_filter1d(v, size=w_dad, mode="nearest") if w_dad > 1 else v
+        vd = uniform_filter1d(vb, size=w_dad, mode="nearest") if w_dad > 1 else vb
         for b in range(b0, b1):
-            _ead(b, a, v, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
+            _ead(b, a, vb, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
             _dad(b, a, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
             if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
                 seg = v[i_mdp[b] - a:i_top[b] - a + 1]

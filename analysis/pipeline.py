@@ -521,4 +521,5 @@ def flag_and_reject(
     pre = settings.preprocess if hum else dataclasses.replace(settings.preprocess, hum_removal="off")
     sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=pre)
     sweeps_raw = events.RecordingSweeps(recording, channel, scale=scale)
-    return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw)
+    return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
+                               detection=settings.detection)

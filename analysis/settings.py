@@ -166,9 +166,9 @@ class DetectionSettings(Section):
         doc="beats are found on the trace averaged down to about this rate (measurement uses every sample)",
     )
     spike_max_ms: float = setting(
-        1.0, unit="ms", min=0.0, max=5.0, source=_NO_SOURCE,
+        2.0, unit="ms", min=0.0, max=5.0, source=_NO_SOURCE,
         doc="an excursion that leaves the trace and comes back within this time is an electrical spike "
-        "(bridged before measuring; 0: never)",
+        "(bridged before detecting and measuring; 0: never)",
     )
     spike_min_mV: float = setting(
         10.0, unit="mV", min=1.0, max=200.0, source=_NO_SOURCE,

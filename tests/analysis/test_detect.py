@@ -49,10 +49,14 @@ def test_electrical_spikes_are_artefacts_not_beats():
     spikes = [int(0.5 * FS), int(1.7 * FS), int(3.3 * FS)]  # in diastole
     for i in spikes:
         v[i:i + 3] += 300.0  # three samples: far beyond any action potential
+    wide = int(2.3 * FS)  # in diastole too, 2.5 ms long: longer than a spike (spike_max_ms), narrower
+    v[wide:wide + 25] += 300.0  # than a beat (min_width_ms); construction
     det = detect_beats(v, FS)
     assert _matches(det.i_upstroke, beats - 0.025 / np.sqrt(2), FS, tol_s=0.002)
+    bridged = det.i_artefact[det.artefact_reason == "spike"]
+    assert len(bridged) == 3 and np.all(np.abs(bridged - np.array(spikes)) < 20)
     narrow = det.i_artefact[det.artefact_reason == "narrow"]
-    assert len(narrow) == 3 and np.all(np.abs(narrow - np.array(spikes)) < 20)
+    assert len(narrow) == 1 and abs(narrow[0] - wide) < 30
 
 
 def test_a_spike_just_before_an_upstroke_does_not_hide_the_beat():
@@ -159,7 +163,7 @@ def test_an_excursion_longer_than_the_spike_limit_is_left_alone():
     from analysis.detect import find_spikes
 
     v = np.full(5000, -60.0)
-    v[2000:2030] += 40.0  # 3 ms at 10 kHz: longer than spike_max_ms (1 ms); construction
+    v[2000:2030] += 40.0  # 3 ms at 10 kHz: longer than spike_max_ms (2 ms); construction
     v[3000:3008] += 40.0  # 0.8 ms: a spike
     assert find_spikes(v, FS, noise_mV=0.0)[:, 0].tolist() == [3000 - 2]
     assert find_spikes(v, FS, noise_mV=0.0, settings=DetectionSettings(spike_max_ms=0.0)).size == 0
