@@ -28,6 +28,10 @@ otherwise be the event's highest point and make the beat look narrow, and in dia
 be a candidate of its own. The measurement bridges the same spans before it looks for any
 extreme or crossing.
 
+An event still above its half amplitude where the sweep ends is an upstroke the sweep cuts off:
+its width cannot be judged, so it is a beat (the measurement flags it ``truncated``), never a
+``narrow`` artefact that would leave the beat before it without a next beat.
+
 Long sweeps are worked in chunks of ``chunk_s`` with ``chunk_overlap_s`` of context on each side;
 chunk and block boundaries are aligned so that every sample sees the same levels whatever the
 chunk size, and a candidate belongs to the chunk in whose core its rising crossing lies, so a beat
@@ -457,9 +461,12 @@ def _detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_tota
         t_left = arm + int(left[-1]) if left.size else arm
         right = np.flatnonzero(vs[ip:end] < half)
         t_right = ip + int(right[0]) if right.size else end
+        # Still above half amplitude where the sweep ends: an upstroke the sweep cuts off, whose
+        # width cannot be judged (a beat; the measurement flags it truncated).
+        cut_by_end = not right.size and offset + end >= n_total
         if amp < s.min_amplitude_mV:
             continue  # a sub-threshold depolarisation (or noise), not a beat and not an artefact
-        if t_right - t_left < width_min:
+        if t_right - t_left < width_min and not cut_by_end:
             arts.append(iu + offset)
             reasons.append("narrow")
             # A spike may hide a real upstroke later in the same event: look again after it.

@@ -72,6 +72,48 @@ def test_a_spike_in_diastole_is_no_dad():
         assert np.any((spans_s[:, 0] <= t + 1e-4) & (t <= spans_s[:, 1]))
 
 
+def test_an_upstroke_cut_by_the_sweep_end_spoils_no_other_beat():
+    # Episodic ventricular-like cell: sweep 3 ends 1.5 ms after an upstroke's dV/dt max (the
+    # train's upstroke at 3.99853 s of that sweep; synthetic truth).
+    syn = synthesize(preset("ventricular-like"), duration_s=4.0, fs_hz=50_000.0, seed=212, n_sweeps=5,
+                     sweep_gap_s=6.0, noise_mV=0.25, hum_mV=0.3, hum_hz=50.0, drift_mV_per_min=0.3)
+    truth = syn.truth.beats
+    truth = truth.take(np.flatnonzero(truth["sweep"] == 3))
+    assert 3.998 < truth["t_upstroke_s"][-1] < 3.999 and "truncated" in truth["flags"][-1]
+    result = analyze(syn.recording, sweeps=[3])
+    beats = result.beats
+    assert len(result.artefacts[3][0]) == 0  # no narrow event invented at the sweep's end
+    # The cut upstroke is a beat flagged truncated, as in the truth.
+    assert _same_beats(beats["t_upstroke_s"], truth["t_upstroke_s"])
+    assert "truncated" in beats["flags"][-1]
+    # The beat before it is complete and keeps its own peak and APD90 (noisy tolerances: 1 mV, 2 ms).
+    assert "truncated" not in beats["flags"][-2]
+    assert abs(beats["peak_mV"][-2] - truth["peak_mV"][-2]) < 1.0
+    assert abs(beats["apd90_ms"][-2] - truth["apd90_ms"][-2]) < 2.0
+    assert abs(beats["cl_ms"][-1] - truth["cl_ms"][-1]) < 1.0
+
+
+@pytest.mark.parametrize("cut_ms", [0.3, 0.8, 1.5, 3.0])
+def test_upstrokes_cut_at_any_point_near_the_sweep_end(cut_ms):
+    # The same cell at 10 kHz, each sweep cut a little after an upstroke's dV/dt max: the cut
+    # beat is a truncated beat or absent, never an artefact, and the beats before it are whole.
+    full = synthesize(preset("ventricular-like"), duration_s=6.0, fs_hz=FS, seed=212, noise_mV=0.25)
+    t_cut = float(full.truth.beats["t_upstroke_s"][-1]) + cut_ms * 1e-3
+    v = full.recording.sweep(0)[: int(round(t_cut * FS))]
+    det = detect_beats(v, FS)
+    assert len(det.i_artefact) == 0
+    t = np.asarray(det.i_upstroke) / FS
+    truth_t = np.asarray(full.truth.beats["t_upstroke_s"])
+    assert _same_beats(t, truth_t, tol_s=0.002) or _same_beats(t, truth_t[:-1], tol_s=0.002)
+    from analysis.recording import Recording
+
+    beats = analyze(Recording.from_array(v, FS)).beats
+    whole = int(np.argmin(np.abs(beats["t_upstroke_s"] - truth_t[-2])))  # the last complete beat
+    assert "truncated" not in beats["flags"][whole]
+    assert abs(beats["apd90_ms"][whole] - full.truth.beats["apd90_ms"][len(truth_t) - 2]) < 2.0  # noisy tolerance
+    assert all("truncated" in f for f in beats["flags"][whole + 1:])
+
+
 def test_the_events_bridge_spikes_by_the_detection_rule():
     # The events alone, on the exact truth table (analysis.synthetic): spikes of 1-1.5 ms in
     # three diastoles and one on a repolarisation, no DAD or EAD planted.
