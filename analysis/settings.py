@@ -122,12 +122,14 @@ class DetectionSettings(Section):
     order: ClassVar[tuple[tuple[str, str, str], ...]] = (("low_fraction", "<", "high_fraction"),)
 
     smoothing_ms: float = setting(
-        1.0, unit="ms", min=0.0, max=20.0, source="Savitzky-Golay smoothing; " + _NO_SOURCE,
-        doc="window of the Savitzky-Golay smoothing of V used to find beats (0: none)",
+        1.0, unit="ms", min=0.0, max=20.0, source="moving average; " + _NO_SOURCE,
+        doc="window of the centred moving average of V used to find beats (0: none; it shrinks what "
+        "is left of a short artefact, where a Savitzky-Golay fit would keep its peak)",
     )
     derivative_window_ms: float = setting(
-        5.0, unit="ms", min=0.1, max=50.0, source="Savitzky-Golay derivative; " + _NO_SOURCE,
-        doc="window of the smoothed dV/dt used to find upstrokes (wide: finds slow nodal upstrokes in noise)",
+        5.0, unit="ms", min=0.1, max=50.0, source="difference of two moving averages; " + _NO_SOURCE,
+        doc="span of the smoothed dV/dt used to find upstrokes: the means of V over its two halves, "
+        "their difference over the time between their centres (wide: finds slow nodal upstrokes in noise)",
     )
     min_dvdt_V_per_s: float = setting(
         0.5, unit="V/s", min=0.01, max=1000.0, source=_NO_SOURCE,

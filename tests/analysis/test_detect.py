@@ -167,3 +167,14 @@ def test_an_excursion_longer_than_the_spike_limit_is_left_alone():
     v[3000:3008] += 40.0  # 0.8 ms: a spike
     assert find_spikes(v, FS, noise_mV=0.0)[:, 0].tolist() == [3000 - 2]
     assert find_spikes(v, FS, noise_mV=0.0, settings=DetectionSettings(spike_max_ms=0.0)).size == 0
+
+
+def test_the_settings_name_the_smoothing_the_detector_applies():
+    # The detector smooths V with a centred moving average and takes dV/dt as the difference of
+    # two adjacent moving averages (analysis.detect); the settings' documentation must say so.
+    import dataclasses
+
+    meta = {f.name: f.metadata for f in dataclasses.fields(DetectionSettings)}
+    for name in ("smoothing_ms", "derivative_window_ms"):
+        text = f"{meta[name]['source']} {meta[name]['doc']}"
+        assert "moving average" in text and "Savitzky-Golay smoothing" not in text and "Savitzky-Golay derivative" not in text
