@@ -2,7 +2,7 @@
 
 import numpy as np
 
-__all__ = ["quadratic_fit"]
+__all__ = ["quadratic_fit", "quadratic_from_sums", "RunningSums"]
 
 
 def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
@@ -14,8 +14,15 @@ def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
     n = y.size
     j = np.arange(n, dtype=np.float64)
     sy = float(y.sum())
-    sjy = float(np.dot(j, y)) if n < 64 else float((j * y).sum())
-    sj2y = float((j * j * y).sum())
+    sjy = float(np.dot(j, y))
+    sj2y = float(np.dot(j * j, y))
+    return quadratic_from_sums(n, sy, sjy, sj2y, u0)
+
+
+def quadratic_from_sums(n: int, sy: float, sjy: float, sj2y: float, u0: float) -> tuple[float, float, float]:
+    """:func:`quadratic_fit` from the sums of ``y``, ``j y`` and ``j^2 y`` (``j = 0..n-1``)."""
+    if n < 3:
+        return (sy / n if n else 0.0), 0.0, 0.0
     # moments of j = 0..n-1
     m1 = n * (n - 1) / 2.0
     m2 = (n - 1) * n * (2 * n - 1) / 6.0
@@ -30,7 +37,7 @@ def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
 
     d = det3(g)
     if d == 0:
-        return float(y.mean()), 0.0, 0.0
+        return sy / n, 0.0, 0.0
     sol = []
     for k in range(3):
         mk = [list(row) for row in g]
@@ -39,3 +46,34 @@ def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
         sol.append(det3(mk) / d)
     b0, b1, b2 = sol  # in j; u = j + u0  ->  j = u - u0
     return b0 - b1 * u0 + b2 * u0 * u0, b1 - 2 * b2 * u0, b2
+
+
+class RunningSums:
+    """Running sums of ``y``, ``j y`` and ``j^2 y`` over a stretch, for many quadratic fits on it.
+
+    Each fit over a window of the stretch then costs a few subtractions instead of three passes
+    over the window's samples. ``y`` is kept as ``y - ref`` and the index relative to the
+    stretch's start, so the sums stay small enough for float64 to hold them to ~1e-10.
+    """
+
+    def __init__(self, y: np.ndarray, start: int, ref: float = 0.0) -> None:
+        z = np.asarray(y, dtype=np.float64) - ref
+        j = np.arange(z.size, dtype=np.float64)
+        self.start, self.stop, self.ref = start, start + z.size, ref
+        self._p = np.zeros((3, z.size + 1))
+        np.cumsum(z, out=self._p[0, 1:])
+        np.cumsum(j * z, out=self._p[1, 1:])
+        np.cumsum(j * j * z, out=self._p[2, 1:])
+
+    def covers(self, a: int, b: int) -> bool:
+        return self.start <= a and b <= self.stop
+
+    def fit(self, a: int, b: int, u0: float) -> tuple[float, float, float]:
+        """:func:`quadratic_fit` of the samples ``[a, b)`` (sweep indices) at ``u = u0, u0 + 1, ...``."""
+        i, k = a - self.start, b - self.start
+        s0, s1, s2 = self._p[:, k] - self._p[:, i]
+        # from j relative to the stretch to j' = j - i relative to the window
+        sjy = s1 - i * s0
+        sj2y = s2 - 2.0 * i * s1 + i * i * s0
+        c0, c1, c2 = quadratic_from_sums(b - a, float(s0), float(sjy), float(sj2y), u0)
+        return c0 + self.ref, c1, c2

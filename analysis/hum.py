@@ -45,6 +45,29 @@ def hum_pad_samples(fs_hz: float, block_s: float) -> int:
     return int(math.ceil((block_s + 2 * _MEAN_S) * fs_hz)) + 4
 
 
+def _running_max(x: np.ndarray, size: int) -> np.ndarray:
+    """Maximum of ``x`` over a centred window of ``size`` samples (clipped at the ends).
+
+    The van Herk / Gil-Werman scheme: running maxima within blocks of ``size`` from the left
+    and from the right, one pass each, so the cost does not grow with the window.
+    """
+    x = np.asarray(x)
+    n = x.size
+    if size <= 1 or n == 0:
+        return x.copy()
+    h = size // 2
+    low = np.min(x) if x.dtype != bool else False
+    nb = -(-(n + size) // size)
+    pad = np.full(nb * size, low, dtype=x.dtype)
+    pad[h:h + n] = x
+    blocks = pad.reshape(nb, size)
+    left = np.maximum.accumulate(blocks, axis=1).ravel()
+    right = np.maximum.accumulate(blocks[:, ::-1], axis=1)[:, ::-1].ravel()
+    # window [i, i + size) of the padded array = samples [i - h, i - h + size) of x
+    i = np.arange(n)
+    return np.maximum(right[i], left[np.minimum(i + size - 1, left.size - 1)])
+
+
 def _freqs(fs_hz: float, mains_hz, harmonics: int) -> list[tuple[float, int]]:
     """(fundamental, harmonic) pairs below a quarter of the sampling rate."""
     return [(f, k) for f in mains_hz for k in range(1, harmonics + 1) if f * k < fs_hz / 4]
@@ -92,14 +115,12 @@ def _piece_fit(x: np.ndarray, fs_hz: float, offset: int, pairs, m: int, min_mV: 
     Returns the amplitudes (0 where a component is below ``min_mV`` or within 3 standard errors
     of zero) and the robust SD of the piece's residual.
     """
-    from scipy.ndimage import maximum_filter1d
-
     r = x - _moving_mean(x, m)
     sub = r[:: max(1, r.size // 8000)]
     med = float(np.median(sub))
     sd = float(np.median(np.abs(sub - med))) / 0.6745
     bad = np.abs(r - med) > 4.0 * max(sd, 1e-6)
-    keep = ~maximum_filter1d(bad, size=m + 1, mode="nearest")
+    keep = ~_running_max(bad, m + 1)
     amps = np.zeros(len(pairs))
     if np.count_nonzero(keep) > 4 * len(pairs) + 10:
         y = r[keep]
@@ -211,12 +232,10 @@ def remove_hum(
     )
     if not survey:
         return x.copy(), 0.0
-    from scipy.ndimage import maximum_filter1d
-
     # The window: a whole number of 100 ms (5 periods of 50 Hz, 6 of 60 Hz), odd in samples.
     window = max(int(round(round(block_s / _MEAN_S) * _MEAN_S * fs_hz)), m) | 1
     r = x - _moving_mean(x, m)
-    loud = maximum_filter1d(np.abs(r), size=m + 1, mode="nearest")
+    loud = _running_max(np.abs(r), m + 1)
     c = _QUIET_SD * max(survey.residual_sd_mV, 1e-6)
     w = np.clip(2.0 - loud / c, 0.0, 1.0)
     # Within half a mean window of either end the residual's mean is one-sided: no weight there.

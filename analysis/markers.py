@@ -22,11 +22,12 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
-from scipy.ndimage import uniform_filter1d
 
-from .fits import quadratic_fit
+from .fits import RunningSums, quadratic_fit
 from .settings import MeasurementSettings
 from .signal import (
+    least_squares_slope,
+    moving_mean,
     noise_matched_window_ms,
     noise_rms_mV,
     parabolic_peak,
@@ -155,6 +156,9 @@ class _Context:
         self.v, self.fs, self.s, self.noise = v, fs, s, noise_mV
         self.n = v.size
         self.w_mdp = window_samples(s.mdp_smoothing_ms, fs, polyorder=3) if s.mdp_smoothing_ms > 0 else 1
+        # V averaged over the MDP window, once for the whole stretch: where each diastole's
+        # minimum lies (for the MDP and for the end of the peak's search).
+        self.box = moving_mean(v, self.w_mdp) if self.w_mdp > 1 else v
         top_ms = noise_matched_window_ms(
             noise_mV, fs, criterion_V_per_s=s.top_dvdt_V_per_s, fraction=s.top_noise_fraction,
             min_ms=s.top_derivative_window_ms, max_ms=max(s.top_derivative_max_window_ms, s.top_derivative_window_ms),
@@ -181,6 +185,8 @@ class _Context:
     def slope(self, a: int, b: int) -> tuple[np.ndarray, int]:
         """Least-squares-slope dV/dt (V/s) over the take-off window, on [a, b) with context."""
         h = self.w_top // 2
+        if a - h >= 0 and b + h <= self.n:
+            return least_squares_slope(self.v[a - h:b + h], self.fs, window=self.w_top) / 1000.0, a
         lo, hi = max(0, a - 2 * h), min(self.n, b + 2 * h)
         edges = lo == 0 or hi == self.n
         return savgol_derivative(self.v[lo:hi], self.fs, window=self.w_top, polyorder=2, edges=edges) / 1000.0, lo
@@ -231,8 +237,7 @@ class _Context:
         nxt = min(nxt, self.n)
         # Peak window: from the upstroke to the next diastole's minimum (or the data's end).
         if nxt < self.n:
-            box = uniform_filter1d(v[g:nxt], size=max(1, self.w_mdp), mode="nearest")
-            end = g + int(np.argmin(box)) + 1
+            end = g + int(np.argmin(self.box[g:nxt])) + 1
         else:
             end = self.n
         ip0 = g + int(np.argmax(v[g:end]))
@@ -331,7 +336,7 @@ class _Context:
         if self.w_mdp <= 1:
             j = int(np.argmin(seg))
             return float(prev + j), float(seg[j])
-        box = uniform_filter1d(seg, size=self.w_mdp, mode="nearest")
+        box = self.box[prev:g + 1]
         j0 = int(np.argmin(box))
         m0 = prev + j0
         if self.s.mdp_method == "local_fit":
@@ -505,11 +510,14 @@ class _Context:
         w_max = max(w_min, int(round(50e-3 * fs)))
         w = max(w_min, int(round(5e-3 * fs)))
         xc = x0
+        # Running sums over every window this refinement can reach from x0 without giving up.
+        sums = RunningSums(self.v[max(lo, int(x0) - 2 * w_max):min(hi, int(x0) + 2 * w_max + 2)],
+                           max(lo, int(x0) - 2 * w_max), level)
         for _ in range(8):
             a, b = max(lo, int(xc) - w), min(hi, int(xc) + w + 1)
             if b - a < 5:
                 return x0
-            c0, c1, c2 = quadratic_fit(self.v[a:b], a - xc)
+            c0, c1, c2 = sums.fit(a, b, a - xc) if sums.covers(a, b) else quadratic_fit(self.v[a:b], a - xc)
             slope = c1  # mV per sample at the centre
             disc = c1 * c1 - 4 * c2 * (c0 - level)
             if slope >= 0 or disc < 0:

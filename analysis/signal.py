@@ -26,13 +26,14 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import butter, filtfilt, iirnotch, savgol_coeffs, sosfiltfilt
 
 from .errors import SettingsError
 
 __all__ = [
     "window_samples",
+    "savgol_coeffs",
     "savgol_smooth",
+    "least_squares_slope",
     "moving_mean",
     "savgol_derivative",
     "central_difference",
@@ -84,7 +85,22 @@ def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float, edg
 
 @functools.lru_cache(maxsize=256)
 def _conv_coeffs(n: int, polyorder: int, deriv: int, delta: float) -> np.ndarray:
-    return savgol_coeffs(n, polyorder, deriv=deriv, delta=delta, use="conv")
+    return savgol_coeffs(n, polyorder, deriv=deriv, delta=delta)
+
+
+def savgol_coeffs(n: int, polyorder: int, *, deriv: int = 0, delta: float = 1.0) -> np.ndarray:
+    """Savitzky-Golay convolution coefficients for the centre of a window of ``n`` samples (odd).
+
+    The least-squares polynomial of degree ``polyorder`` through the window, its ``deriv``-th
+    derivative at the centre, as weights of the samples, reversed for :func:`numpy.convolve`
+    (Savitzky & Golay 1964, Anal Chem 36:1627; the same numbers as scipy.signal.savgol_coeffs
+    with ``use="conv"``, computed here so that opening the core does not import scipy.signal).
+    """
+    h = n // 2
+    u = (np.arange(n, dtype=np.float64) - h) / max(h, 1)  # positions scaled to [-1, 1]
+    fit = np.linalg.pinv(np.vander(u, polyorder + 1, increasing=True))
+    c = fit[deriv] * math.factorial(deriv) / (max(h, 1) * delta) ** deriv
+    return c[::-1].copy()
 
 
 @functools.lru_cache(maxsize=256)
@@ -198,6 +214,35 @@ def savgol_derivative(
     return _savgol(v, int(window), polyorder, deriv, 1.0 / fs_hz, edges)
 
 
+def least_squares_slope(v: np.ndarray, fs_hz: float, *, window: int) -> np.ndarray:
+    """The least-squares slope of ``v`` over ``window`` samples (odd) centred on each interior sample.
+
+    Returns ``len(v) - window + 1`` values, for the samples ``window // 2`` to
+    ``len(v) - window // 2 - 1``, in units of ``v`` per second. The same numbers as
+    :func:`savgol_derivative` with ``polyorder=2`` there (a quadratic's slope at the centre of a
+    symmetric window is the straight line's), from two running sums instead of a convolution,
+    so the cost does not grow with the window: ``sum(k v[i + k]) / sum(k^2)``, ``k = -h..h``.
+    """
+    x = np.asarray(v, dtype=np.float64)
+    n = int(window)
+    h = n // 2
+    m = x.size - 2 * h
+    if m <= 0:
+        return np.empty(0)
+    y = x - x[0]  # keeps the running sums small
+    j = np.arange(x.size, dtype=np.float64)
+    p0 = np.empty(x.size + 1)
+    p0[0] = 0.0
+    np.cumsum(y, out=p0[1:])
+    p1 = np.empty(x.size + 1)
+    p1[0] = 0.0
+    np.cumsum(j * y, out=p1[1:])
+    s0 = p0[n:] - p0[:m]
+    s1 = p1[n:] - p1[:m]
+    centre = j[h:h + m]
+    return (s1 - centre * s0) * (3.0 * fs_hz / (h * (h + 1) * (2 * h + 1)))
+
+
 def central_difference(v: np.ndarray, fs_hz: float) -> np.ndarray:
     """dV/dt by second-order central differences (one-sided at the ends), per second."""
     x = np.asarray(v, dtype=np.float64)
@@ -217,6 +262,8 @@ def lowpass(v: np.ndarray, fs_hz: float, *, cutoff_hz: float, order: int = 4) ->
             None, f"setting preprocess.lowpass_hz = {cutoff_hz:g} is not below half the sampling rate ({fs_hz / 2:g} Hz)",
             f"choose a corner below {fs_hz / 2:g} Hz or leave it out",
         )
+    from scipy.signal import butter, sosfiltfilt  # only when a low-pass is asked for
+
     sos = butter(order, cutoff_hz, btype="low", fs=fs_hz, output="sos")
     x = np.asarray(v, dtype=np.float64)
     if x.size <= 3 * (2 * len(sos) + 1):
@@ -230,6 +277,8 @@ def notch(v: np.ndarray, fs_hz: float, *, mains_hz: float, q: float = 30.0, harm
     Each notch is a second-order IIR (:func:`scipy.signal.iirnotch`) of quality ``q`` run forward
     and backward; harmonics at or above the Nyquist frequency are skipped.
     """
+    from scipy.signal import filtfilt, iirnotch  # only when a notch is asked for
+
     x = np.asarray(v, dtype=np.float64).copy()
     for k in range(1, harmonics + 1):
         f = mains_hz * k
@@ -587,5 +636,5 @@ def _search(lo: int, hi: int, a: int, d: np.ndarray) -> tuple[int, int]:
 @functools.lru_cache(maxsize=512)
 def _sg_noise(n: int, fs_hz: float) -> float:
     """V/s of derivative noise per mV of white noise, for the order-3 derivative over n samples."""
-    c = savgol_coeffs(n, 3, deriv=1, delta=1.0 / fs_hz)
+    c = _conv_coeffs(n, 3, 1, 1.0 / fs_hz)
     return float(np.sqrt(np.sum(c * c))) / 1000.0

@@ -19,3 +19,15 @@ def test_quadratic_fit_is_exact_on_a_parabola():
     u = u0 + np.arange(12)
     c = quadratic_fit(1.5 - 2.0 * u + 0.75 * u * u, u0)
     np.testing.assert_allclose(c, [1.5, -2.0, 0.75], atol=1e-9)  # exact by construction
+
+
+def test_running_sums_give_the_same_fits_as_the_samples():
+    from analysis.fits import RunningSums
+
+    y = -40.0 + 0.3 * np.random.default_rng(7).normal(size=3000).cumsum()
+    sums = RunningSums(y, 1000, ref=-42.0)  # a stretch starting at sample 1000 of its sweep
+    for a, b, u0 in ((1000, 1041, -20.5), (2100, 2105, -2.0), (1500, 4000, -1250.25)):
+        direct = np.polynomial.polynomial.polyfit(u0 + np.arange(b - a), y[a - 1000:b - 1000], 2)  # numpy.polynomial
+        # running sums over 3000 samples hold ~12 digits: within 1e-6 of the fit's own scale
+        np.testing.assert_allclose(sums.fit(a, b, u0), direct, rtol=0, atol=1e-6 * np.abs(direct).max())
+    assert sums.covers(1000, 4000) and not sums.covers(999, 1010)
