@@ -83,6 +83,9 @@ class Detection:
         The smoothed-dV/dt threshold used.
     noise_mV : float
         The white-noise rms the threshold was scaled to.
+    spike_spans : ndarray of int64, shape (k, 2)
+        The ``(start, stop)`` spans of the short electrical spikes bridged before detection
+        (guards included, overlaps merged), for the measurement and the events to bridge too.
     """
 
     i_upstroke: np.ndarray
@@ -91,6 +94,7 @@ class Detection:
     artefact_reason: np.ndarray = field(default_factory=lambda: np.empty(0, object))
     threshold_V_per_s: float = math.nan
     noise_mV: float = math.nan
+    spike_spans: np.ndarray = field(default_factory=lambda: np.empty((0, 2), np.int64))
 
     def __len__(self) -> int:
         return len(self.i_upstroke)
@@ -348,7 +352,8 @@ def _with_spikes(det: Detection, spans: list) -> Detection:
     why[:det.i_artefact.size] = det.artefact_reason
     why[det.i_artefact.size:] = "spike"
     o = np.argsort(art, kind="stable")
-    return dataclasses.replace(det, i_artefact=art[o], artefact_reason=why[o])
+    return dataclasses.replace(det, i_artefact=art[o], artefact_reason=why[o],
+                               spike_spans=np.asarray(merged, dtype=np.int64).reshape(-1, 2))
 
 
 def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, noise_mV: float, pad: int) -> Detection:

@@ -228,6 +228,7 @@ def apply_events(
     *,
     sweeps_raw: Any = None,
     detection: Any = None,
+    spikes: Any = None,
 ) -> tuple[BeatTable, list[str]]:
     """Add event and quality flags to a measured table and apply the rejection rules.
 
@@ -247,6 +248,9 @@ def apply_events(
     detection
         The detection settings: electrical spikes by their rule are bridged before EADs and
         DADs are looked for (:func:`sweep_trace_events`; None: the defaults).
+    spikes
+        Per sweep, the spike spans already found (``(start, stop)`` rows, as detection gives
+        them); None finds them by the detection settings' rule.
 
     Returns
     -------
@@ -265,7 +269,8 @@ def apply_events(
     if source is not None:
         for s in np.unique(sweep):
             rows = np.flatnonzero(sweep == s)
-            res = sweep_trace_events(source, int(s), fs_hz, base.take(rows), quality, raw=raw, detection=detection)
+            res = sweep_trace_events(source, int(s), fs_hz, base.take(rows), quality, raw=raw, detection=detection,
+                                     spikes=None if spikes is None else spikes.get(int(s)))
             for f in ("ead", "dad", "clipped", "noisy"):
                 found[f][rows] = res[f]
             for c in EVENT_COLUMNS:

@@ -11,18 +11,16 @@ does not depend on the chunking.
 
 from __future__ import annotations
 
+import functools
 import math
 from typing import Any, Mapping, Sequence
 
 import numpy as np
-from scipy.ndimage import uniform_filter1d
-from scipy.signal import butter, sosfiltfilt
-
 from .detect import bridge_spans, estimate_noise_mV, find_spikes
 from .settings import DetectionSettings
 from .table import BeatTable
 
-__all__ = ["ArraySweeps", "RecordingSweeps", "as_sweeps", "sweep_trace_events"]
+__all__ = ["ArraySweeps", "RecordingSweeps", "as_sweeps", "box_mean", "lowpass_residual_rms", "sweep_trace_events"]
 
 
 class ArraySweeps:
@@ -52,15 +50,20 @@ class RecordingSweeps:
         :func:`analysis.signal.preprocess`, computed with filter context on both sides.
     subtract_mV : float
         A constant taken off every sample (an LJP correction without filters).
+    hum_surveys : dict of int to HumSurvey, optional
+        Each sweep's hum as the analysis judged it (:func:`analysis.hum.hum_survey`); by default
+        each sweep is surveyed on first read.
     """
 
     def __init__(
         self, recording: Any, channel: int, *, scale: float = 1.0, preprocess: Any = None, subtract_mV: float = 0.0,
+        hum_surveys: Mapping[int, Any] | None = None,
     ) -> None:
         from .signal import filter_pad_samples
 
         self._rec, self._ch, self._scale, self._pre = recording, int(channel), float(scale), preprocess
         self._subtract = float(subtract_mV)
+        self._surveys: dict[int, Any] = dict(hum_surveys or {})
         self._pad = filter_pad_samples(recording.sampling_rate_hz, preprocess) if preprocess is not None else 0
         #: The converter's lowest and highest value in the units read, when the reader knows it
         #: and the samples are read as recorded (the clipping test's limits); else None.
@@ -73,6 +76,23 @@ class RecordingSweeps:
     def n_samples(self, sweep: int) -> int:
         return self._rec.n_samples(sweep)
 
+    def _hum(self, sweep: int):
+        """The sweep's hum, judged once on the whole sweep as the analysis judged it."""
+        if getattr(self._pre, "hum_removal", "off") == "off":
+            return False
+        if sweep not in self._surveys:
+            from .hum import hum_survey
+
+            def raw(a: int, b: int) -> np.ndarray:
+                x = self._rec.sweep(sweep, self._ch, a, b)
+                return x * self._scale if self._scale != 1.0 else x
+
+            self._surveys[sweep] = hum_survey(
+                None, self._rec.sampling_rate_hz, n=self._rec.n_samples(sweep), load=raw,
+                block_s=self._pre.hum_block_s, min_mV=self._pre.hum_min_mV,
+            ) or False
+        return self._surveys[sweep]
+
     def read(self, sweep: int, start: int, stop: int) -> np.ndarray:
         n = self._rec.n_samples(sweep)
         a, b = max(0, start - self._pad), min(n, stop + self._pad)
@@ -82,7 +102,7 @@ class RecordingSweeps:
         if self._pre is not None:
             from .signal import preprocess
 
-            x = preprocess(x, self._rec.sampling_rate_hz, self._pre, offset=a)
+            x = preprocess(x, self._rec.sampling_rate_hz, self._pre, offset=a, hum=self._hum(sweep))
         if self._subtract:
             x = x - self._subtract
         return x[start - a:stop - a]
@@ -143,25 +163,30 @@ def _clipped_runs(
     sweep's highest or lowest value counts where it cuts the signal off (:func:`_is_cut`), so
     that a smooth quantised top, or a noise-free flat diastole, is not taken for clipping.
     """
-    hi, lo = -math.inf, math.inf
-    for a in range(0, n, block):
-        x = raw.read(sweep, a, min(n, a + block))
-        if x.size:
-            hi, lo = max(hi, float(np.max(x))), min(lo, float(np.min(x)))
     runs: list[tuple[int, int, float]] = []
-    if not (math.isfinite(hi) and math.isfinite(lo)):
-        return runs
     known = adc_range is not None and len(adc_range) == 2 and all(map(math.isfinite, adc_range))
     if known:
-        tol = 1e-9 * max(abs(float(adc_range[1]) - float(adc_range[0])), 1.0)
-        # Only the converter's own limits count; the sweep reaches one when its extreme is it.
-        hi = hi if abs(hi - float(adc_range[1])) <= tol else math.nan
-        lo = lo if abs(lo - float(adc_range[0])) <= tol else math.nan
-    open_at: dict[float, int | None] = {v: None for v in (hi, lo) if not math.isnan(v)}
+        # Only the converter's own limits count (one pass: no need for the sweep's extremes).
+        lo, hi = float(adc_range[0]), float(adc_range[1])
+        tol = 1e-9 * max(abs(hi - lo), 1.0)
+    else:
+        hi, lo = -math.inf, math.inf
+        for a in range(0, n, block):
+            x = raw.read(sweep, a, min(n, a + block))
+            if x.size:
+                hi, lo = max(hi, float(np.max(x))), min(lo, float(np.min(x)))
+        if not (math.isfinite(hi) and math.isfinite(lo)):
+            return runs
+        tol = 0.0
+    open_at: dict[float, int | None] = {hi: None, lo: None}
     for a in range(0, n, block):
         x = raw.read(sweep, a, min(n, a + block))
+        if not any(v is not None for v in open_at.values()) and not (
+            np.max(x) >= hi - tol or np.min(x) <= lo + tol
+        ):
+            continue  # nothing at either extreme in this block, and no run going on
         for value in open_at:
-            at = (x == value).view(np.int8)
+            at = (np.abs(x - value) <= tol).view(np.int8)
             edges = np.diff(np.concatenate(([0], at, [0])))
             starts = list(np.flatnonzero(edges == 1) + a)
             stops = list(np.flatnonzero(edges == -1) + a)
@@ -193,6 +218,59 @@ def _clipped_runs(
     return out
 
 
+def box_mean(x: np.ndarray, width: int) -> np.ndarray:
+    """Moving average over ``width`` samples, the window ``[i - width // 2, i - width // 2 + width)``,
+    the ends extended with the first and last sample (the same numbers as scipy.ndimage's
+    ``uniform_filter1d(x, width, mode="nearest")``), from one running sum."""
+    x = np.asarray(x, dtype=np.float64)
+    if width <= 1 or x.size == 0:
+        return x
+    left = width // 2
+    right = width - left - 1
+    ref = float(x[0])
+    padded = np.concatenate((np.full(left, x[0] - ref), x - ref, np.full(right, x[-1] - ref)))
+    c = np.empty(padded.size + 1)
+    c[0] = 0.0
+    np.cumsum(padded, out=c[1:])
+    return (c[width:] - c[:-width]) * (1.0 / width) + ref
+
+
+@functools.lru_cache(maxsize=32)
+def _lowpass_kernel(rate_hz: float, corner_hz: float) -> np.ndarray:
+    """Samples (at ``rate_hz``) of the impulse response whose spectrum is ``1 / (1 + (f/fc)^4)``.
+
+    That is the gain of a second-order Butterworth low-pass run forward and backward (the square
+    of its magnitude, no phase): ``h(t) = (wc / 2 sqrt 2) exp(-a |t|) (cos a t + sin a |t|)``,
+    ``a = wc / sqrt 2``, taken to 10 time constants and scaled to unit sum.
+    """
+    a = 2.0 * math.pi * corner_hz / math.sqrt(2.0)
+    k = int(math.ceil(10.0 / a * rate_hz))
+    t = np.arange(-k, k + 1) / rate_hz
+    h = np.exp(-a * np.abs(t)) * (np.cos(a * t) + np.sin(a * np.abs(t)))
+    return h / h.sum()
+
+
+def lowpass_residual_rms(seg: np.ndarray, fs_hz: float, corner_hz: float) -> float:
+    """rms of ``seg`` minus its zero-phase low-pass at ``corner_hz`` (second-order Butterworth,
+    forward and backward), the ends extended by odd reflection over three corner periods.
+
+    The low-pass output is slow, so it is computed on the stretch averaged down to 50 samples
+    per corner period and interpolated back to every sample: within 0.1 % of the filter run at
+    the full rate (scipy.signal.sosfiltfilt), without a recursive filter per beat.
+    """
+    x = np.asarray(seg, dtype=np.float64)
+    n = x.size
+    padlen = min(n - 1, 3 * int(round(fs_hz / corner_hz)))
+    ext = np.concatenate((2.0 * x[0] - x[padlen:0:-1], x, 2.0 * x[-1] - x[-2:-padlen - 2:-1]))
+    d = max(1, int(fs_hz // (50.0 * corner_hz)))
+    m = (ext.size // d) * d
+    coarse = ext[:m].reshape(-1, d).mean(axis=1)
+    low = np.convolve(coarse, _lowpass_kernel(fs_hz / d, corner_hz), mode="same")
+    centres = (np.arange(coarse.size) + 0.5) * d - 0.5
+    r = x - np.interp(np.arange(padlen, padlen + n, dtype=np.float64), centres, low)
+    return float(math.sqrt((r * r).sum() / n))
+
+
 def sweep_trace_events(
     source: Any,
     sweep: int,
@@ -203,6 +281,7 @@ def sweep_trace_events(
     raw: Any = None,
     chunk_s: float = 30.0,
     detection: Any = None,
+    spikes: np.ndarray | None = None,
 ) -> dict[str, np.ndarray]:
     """EAD, DAD, clipping and diastolic noise for the beats of one sweep.
 
@@ -226,6 +305,9 @@ def sweep_trace_events(
         electrical spikes that are bridged before EADs and DADs are looked for, as detection
         bridges them: a spike is no afterdepolarisation. The diastolic noise keeps them, so
         that a spike in a diastole flags its beat ``noisy`` for review.
+    spikes : ndarray or None
+        The sweep's spike spans, ``(start, stop)`` rows, when already found (detection's);
+        None finds them by the ``detection`` rule.
 
     Returns
     -------
@@ -254,7 +336,6 @@ def sweep_trace_events(
     w_dad = max(1, int(round(quality.dad_smooth_ms * 1e-3 * fs_hz)))
     # Phase 4 lies well below the noise corner; hum (50/60 Hz) and white noise lie above it.
     corner_hz = min(quality.noise_highpass_hz, 0.4 * fs_hz)
-    sos = butter(2, corner_hz, fs=fs_hz, output="sos")
     pad = int(round(fs_hz / corner_hz))
 
     # The samples each beat needs: from its MDP (or upstroke) to the next take-off (or sweep end).
@@ -265,7 +346,8 @@ def sweep_trace_events(
     last = np.maximum(last, np.maximum(i_apd90, i_up))
     margin = w_ead // 2 + w_dad // 2 + 2
     spike_rule = detection if detection is not None else DetectionSettings()
-    spike_noise = estimate_noise_mV(lambda lo, hi: source.read(sweep, lo, hi), n)
+    known = None if spikes is None else np.asarray(spikes, np.int64).reshape(-1, 2)
+    spike_noise = estimate_noise_mV(lambda lo, hi: source.read(sweep, lo, hi), n) if known is None else 0.0
     # A spike is judged on the samples around it: the margin lets every window see it whole.
     margin += int(math.ceil((spike_rule.spike_max_ms + 2 * spike_rule.spike_guard_ms) * 1e-3 * fs_hz)) + 4
     chunk = max(int(chunk_s * fs_hz), 1)
@@ -277,19 +359,21 @@ def sweep_trace_events(
         a = max(0, int(first[b0:b1].min()) - margin)
         z = min(n, int(last[b0:b1].max()) + margin + 1)
         v = source.read(sweep, a, z)
-        spikes = find_spikes(v, fs_hz, noise_mV=spike_noise, settings=spike_rule)
-        vb = bridge_spans(v, spikes) if spikes.size else v
-        vs = uniform_filter1d(vb, size=w_ead, mode="nearest") if w_ead > 1 else vb
+        if known is None:
+            found = find_spikes(v, fs_hz, noise_mV=spike_noise, settings=spike_rule)
+        else:
+            found = known[(known[:, 0] > a) & (known[:, 1] < z - 1)] - a
+        vb = bridge_spans(v, found) if found.size else v
+        vs = box_mean(vb, w_ead)
         dvdt = np.gradient(vs) * fs_hz * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
-        vd = uniform_filter1d(vb, size=w_dad, mode="nearest") if w_dad > 1 else vb
+        vd = box_mean(vb, w_dad)
         for b in range(b0, b1):
             _ead(b, a, vb, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
             _dad(b, a, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
             if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
                 seg = v[i_mdp[b] - a:i_top[b] - a + 1]
                 if seg.size >= 2 * pad:
-                    resid = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=min(seg.size - 1, 3 * pad))
-                    out["noise_mV_rms"][b] = float(np.sqrt(np.mean(resid**2)))
+                    out["noise_mV_rms"][b] = lowpass_residual_rms(seg, fs_hz, corner_hz)
         b0 = b1
     with np.errstate(invalid="ignore"):
         out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)

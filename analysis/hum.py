@@ -127,10 +127,10 @@ def _piece_fit(x: np.ndarray, fs_hz: float, offset: int, pairs, m: int, min_mV: 
         y = y - y.mean()
         basis = _basis((np.flatnonzero(keep) + offset) / fs_hz, pairs)
         try:
-            sol = np.linalg.solve(basis.T @ basis, np.einsum("ij,i->j", basis, y))
+            sol = np.linalg.solve(np.einsum("ij,ik->jk", basis, basis), np.einsum("ij,i->j", basis, y))
         except np.linalg.LinAlgError:
             return amps, sd
-        resid = y - basis @ sol
+        resid = y - np.einsum("ij,j->i", basis, sol)
         se = math.sqrt(float(np.sum(resid * resid)) / max(y.size - sol.size, 1) * 2.0 / y.size)
         for k in range(len(pairs)):
             amp = math.hypot(sol[2 * k], sol[2 * k + 1])

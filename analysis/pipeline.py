@@ -18,7 +18,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from .detect import bridge_spans, detect_sweep, estimate_noise_mV, find_spikes
+from .detect import bridge_spans, detect_sweep, estimate_noise_mV
 from .errors import RecordingError, SettingsError
 from .markers import apd_name, measure_beats
 from .measure import features_of_sweep, marker_columns
@@ -233,10 +233,10 @@ def analyze(
         if progress is not None:
             progress(min(done[0], total), total)
 
-    parts, artefacts, rise, hum_sweeps, spikes = [], {}, [], [], {}
+    parts, artefacts, rise, hum_sweeps, spikes, surveys = [], {}, [], [], {}, {}
     for sw in sweep_ids:
         try:
-            cols, art, rise_sw, hum, spikes[sw] = _analyse_sweep(recording, sw, idx, scale, s, tick)
+            cols, art, rise_sw, surveys[sw], spikes[sw] = _analyse_sweep(recording, sw, idx, scale, s, tick)
         except SettingsError as exc:
             if exc.path is not None:
                 raise
@@ -244,7 +244,7 @@ def analyze(
             # frequency): name the recording, as every input error names a file.
             raise SettingsError(recording.source_path or "the data given", exc.problem, exc.fix) from None
         artefacts[sw] = art
-        if hum:
+        if surveys[sw]:
             hum_sweeps.append(sw)
         if cols is None:
             warnings.append(f"sweep {sw}: no beats found{_artefact_note(art)}")
@@ -256,7 +256,7 @@ def analyze(
     _sampling_warning(rise, fs, s, warnings)
     if hum_sweeps:
         warnings.append(f"mains hum found and subtracted in sweep(s) {_ranges(hum_sweeps)} (preprocess.hum_removal)")
-    beats, more = flag_and_reject(beats, recording, idx, s, scale=scale, hum=bool(hum_sweeps))
+    beats, more = flag_and_reject(beats, recording, idx, s, scale=scale, hum=surveys, spikes=spikes)
     warnings.extend(more)
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
@@ -348,9 +348,8 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     ups = det.i_upstroke
     if ups.size == 0:
         tick(n)
-        return None, art, [], load.hum, np.empty((0, 2), np.int64)
-    spans: list[np.ndarray] = []
-    measure = _Measurer(load, n, fs, s, noise, pad, spans)
+        return None, art, [], load.hum, det.spike_spans
+    measure = _Measurer(load, n, fs, s, noise, pad, det.spike_spans)
     prev = np.concatenate(([-1], ups[:-1]))
     nxt = np.concatenate((ups[1:], [n]))
     merged = measure(ups, prev, nxt, tick)
@@ -369,15 +368,16 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     merged["previous_row"] = previous_row
     cols = _sweep_columns(merged, sw, s)
     rise = [float(x) for x in merged["rise_samples"]]
-    spikes = np.unique(np.concatenate(spans), axis=0) if spans else np.empty((0, 2), np.int64)
-    return cols, art, rise, load.hum, spikes
+    return cols, art, rise, load.hum, det.spike_spans
 
 
 class _Measurer:
     """Measures beats of one sweep in chunks read through its loader (spikes bridged first)."""
 
-    def __init__(self, load, n: int, fs: float, s: Settings, noise: float, pad: int, spans: list) -> None:
-        self.load, self.n, self.fs, self.s, self.noise, self.spans = load, n, fs, s, noise, spans
+    def __init__(self, load, n: int, fs: float, s: Settings, noise: float, pad: int, spikes: np.ndarray) -> None:
+        self.load, self.n, self.fs, self.s, self.noise = load, n, fs, s, noise
+        #: The sweep's spike spans, as detection found and bridged them.
+        self.spikes = np.asarray(spikes, np.int64).reshape(-1, 2)
         self.chunk = max(int(s.detection.chunk_s * fs), 1)
         self.margin = pad + int(0.25 * fs) + 64
         #: Extra ``(start, stop)`` sweep spans bridged like spikes (short artefact detections).
@@ -397,17 +397,14 @@ class _Measurer:
             stop_at = int(nxt[k1 - 1])
             ra, rb = max(0, int(start_at) - self.margin), min(n, stop_at + self.margin)
             v = self.load(ra, rb)
-            # Short electrical spikes are bridged before anything is measured (MEASUREMENTS.md,
-            # Beats: a spike of a few samples is neither a beat nor part of one).
-            sp = find_spikes(v, fs, noise_mV=self.noise, settings=s.detection)
+            # Short electrical spikes are bridged before anything is measured, as detection
+            # bridged them (MEASUREMENTS.md, Beats: a spike of a few samples is neither a beat
+            # nor part of one), and so are short artefact detections when their neighbours are
+            # measured again.
+            sp = np.concatenate((self.spikes, self.bridges))
+            sp = sp[(sp[:, 0] > ra) & (sp[:, 1] < rb - 1)] - ra
             if sp.size:
-                self.spans.append(sp + ra)
-            extra = self.bridges[(self.bridges[:, 0] > ra) & (self.bridges[:, 1] < rb - 1)] - ra
-            if extra.size:
-                sp = np.concatenate((sp, extra))
-                sp = sp[np.argsort(sp[:, 0], kind="stable")]
-            if sp.size:
-                v = bridge_spans(v, sp)
+                v = bridge_spans(v, sp[np.argsort(sp[:, 0], kind="stable")])
             p = np.where(prev[k0:k1] >= 0, prev[k0:k1] - ra, -1)
             q = np.where(nxt[k0:k1] < n, nxt[k0:k1] - ra, rb - ra)
             m = measure_beats(
@@ -503,13 +500,17 @@ def _sampling_warning(rise_samples: list[float], fs: float, s: Settings, warning
 
 def flag_and_reject(
     beats: BeatTable, recording: Recording, channel: int, settings: Settings, *, scale: float = 1.0,
-    hum: bool = True,
+    hum: bool | dict = True, spikes: dict | None = None,
 ) -> tuple[BeatTable, list[str]]:
     """The hook where events and quality rules flag and automatically reject measured beats.
 
     Runs :func:`analysis.events.apply_events` when the settings carry a ``quality`` section;
     otherwise returns the table unchanged. The events module reads each sweep's preprocessed
     samples in windows of beats (:class:`analysis.events.RecordingSweeps`), never a whole sweep.
+    ``hum`` says whether any sweep carries hum, or gives each sweep's
+    :class:`analysis.hum.HumSurvey` (False where none) as the analysis judged it; ``spikes`` (per
+    sweep, the spike spans detection bridged, :attr:`AnalysisResult.spikes`) spares the events
+    finding them again; None finds them.
     """
     quality = getattr(settings, "quality", None)
     if quality is None or len(beats) == 0:
@@ -518,8 +519,10 @@ def flag_and_reject(
 
     # Read in windows (with filter context), so memory stays bounded by a chunk of beats. Without
     # hum in any sweep, the windows need not look for it again.
-    pre = settings.preprocess if hum else dataclasses.replace(settings.preprocess, hum_removal="off")
-    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=pre)
+    any_hum = any(hum.values()) if isinstance(hum, dict) else bool(hum)
+    pre = settings.preprocess if any_hum else dataclasses.replace(settings.preprocess, hum_removal="off")
+    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=pre,
+                                      hum_surveys=hum if isinstance(hum, dict) else None)
     sweeps_raw = events.RecordingSweeps(recording, channel, scale=scale)
     return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
-                               detection=settings.detection)
+                               detection=settings.detection, spikes=spikes)

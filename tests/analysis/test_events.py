@@ -283,3 +283,24 @@ def test_analyze_returns_flagged_and_automatically_rejected_beats():
     t_truth = truth["t_upstroke_s"][truth["train_beat"] == 3][0]
     assert ead.size == 1 and abs(beats["t_upstroke_s"][ead[0]] - t_truth) < 0.002
     assert (beats["accepted"] == 1).all()
+
+
+def test_the_moving_average_and_the_noise_filter_match_scipy():
+    # The events' own moving average and zero-phase low-pass (written to keep scipy out of the
+    # analysis) against the reference library they stand in for.
+    from scipy.ndimage import uniform_filter1d
+    from scipy.signal import butter, sosfiltfilt
+
+    from analysis.events_trace import box_mean, lowpass_residual_rms
+
+    rng = np.random.default_rng(11)
+    x = -60.0 + rng.normal(size=5000).cumsum() * 0.05
+    for width in (2, 40, 41, 400):
+        # scipy.ndimage.uniform_filter1d, mode "nearest" (reference library)
+        np.testing.assert_allclose(box_mean(x, width), uniform_filter1d(x, width, mode="nearest"), atol=1e-9)
+    fs = 20_000.0
+    t = np.arange(int(0.4 * fs)) / fs
+    seg = -60 + 50 * t + 12 * np.exp((t - 0.4) / 0.06) + 0.3 * rng.normal(size=t.size) + 0.4 * np.sin(2 * np.pi * 50 * t)
+    sos = butter(2, 20.0, fs=fs, output="sos")
+    ref = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=3 * 1000)  # scipy.signal (reference library)
+    assert lowpass_residual_rms(seg, fs, 20.0) == pytest.approx(float(np.sqrt(np.mean(ref**2))), rel=2e-3)
