@@ -23,7 +23,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .fits import RunningSums, quadratic_fit
+from .fits import RunningSums
 from .settings import MeasurementSettings
 from .signal import (
     least_squares_slope,
@@ -34,6 +34,7 @@ from .signal import (
     poly_lsq,
     savgol_derivative,
     savgol_smooth,
+    savgol_smooth_interior,
     upstroke_velocity,
     window_samples,
 )
@@ -52,6 +53,21 @@ MARKER_FIELDS = (
 #: of its smoothed maximum: wide enough to average the noise, narrow enough that a quartic still
 #: follows a sharp top (4 gave the smallest bias over the synthetic presets with 0.3-1 mV of noise).
 _TOP_BAND_NOISE = 4.0
+
+
+def _strided_mean(v: np.ndarray, w: int, q: int) -> np.ndarray:
+    """The centred mean of ``v`` over ``w`` samples (fewer at the ends) at samples 0, q, 2q, ..."""
+    if w <= 1:
+        return np.asarray(v[::q], dtype=np.float64)
+    n = v.size
+    c = np.empty(n + 1)
+    c[0] = 0.0
+    ref = float(v[0]) if n else 0.0
+    np.cumsum(v - ref, out=c[1:])
+    i = np.arange(0, n, q)
+    a = np.maximum(i - w // 2, 0)
+    b = np.minimum(i + w // 2 + 1, n)
+    return (c[b] - c[a]) / (b - a) + ref
 
 
 def apd_name(percent: float) -> str:
@@ -156,9 +172,11 @@ class _Context:
         self.v, self.fs, self.s, self.noise = v, fs, s, noise_mV
         self.n = v.size
         self.w_mdp = window_samples(s.mdp_smoothing_ms, fs, polyorder=3) if s.mdp_smoothing_ms > 0 else 1
-        # V averaged over the MDP window, once for the whole stretch: where each diastole's
-        # minimum lies (for the MDP and for the end of the peak's search).
-        self.box = moving_mean(v, self.w_mdp) if self.w_mdp > 1 else v
+        # V averaged over the MDP window, once for the whole stretch and at every q-th sample
+        # (an eighth of the window: it moves little in between): where each diastole's minimum
+        # lies, for the MDP and for the end of the peak's search.
+        self.q_box = max(1, self.w_mdp // 8)
+        self.box_q = _strided_mean(v, self.w_mdp, self.q_box)
         top_ms = noise_matched_window_ms(
             noise_mV, fs, criterion_V_per_s=s.top_dvdt_V_per_s, fraction=s.top_noise_fraction,
             min_ms=s.top_derivative_window_ms, max_ms=max(s.top_derivative_max_window_ms, s.top_derivative_window_ms),
@@ -172,6 +190,14 @@ class _Context:
     def t(self, i: float) -> float:
         return i / self.fs
 
+    def box_argmin(self, a: int, b: int) -> int:
+        """Index of the lowest MDP-window average of V in [a, b), to an eighth of the window."""
+        q = self.q_box
+        ia, ib = -(-a // q), -(-b // q)
+        if ib <= ia:
+            return a
+        return min(max((ia + int(np.argmin(self.box_q[ia:ib]))) * q, a), b - 1)
+
     def smooth(self, a: int, b: int, w: int) -> tuple[np.ndarray, int]:
         """V smoothed over w samples on [a, b) (with context), and the index of its first sample."""
         h = w // 2
@@ -180,6 +206,9 @@ class _Context:
         if w <= 1:
             return seg, lo
         edges = lo == 0 or hi == self.n  # elsewhere the context covers the filter's edges
+        if w >= 31 and not edges:
+            # A long window from running sums (the same numbers, a cost independent of it).
+            return savgol_smooth_interior(seg, w), lo + h
         return savgol_smooth(seg, self.fs, window_ms=w / self.fs * 1e3, polyorder=3, edges=edges), lo
 
     def slope(self, a: int, b: int) -> tuple[np.ndarray, int]:
@@ -237,7 +266,7 @@ class _Context:
         nxt = min(nxt, self.n)
         # Peak window: from the upstroke to the next diastole's minimum (or the data's end).
         if nxt < self.n:
-            end = g + int(np.argmin(self.box[g:nxt])) + 1
+            end = self.box_argmin(g, nxt) + 1
         else:
             end = self.n
         ip0 = g + int(np.argmax(v[g:end]))
@@ -336,13 +365,17 @@ class _Context:
         if self.w_mdp <= 1:
             j = int(np.argmin(seg))
             return float(prev + j), float(seg[j])
-        box = self.box[prev:g + 1]
-        j0 = int(np.argmin(box))
-        m0 = prev + j0
+        m0 = self.box_argmin(prev, g + 1)
+        j0 = m0 - prev
         if self.s.mdp_method == "local_fit":
+            h = self.w_mdp // 2
+            a = max(0, prev - h)
+            box = moving_mean(v[a:min(self.n, g + 1 + h)], self.w_mdp)[prev - a:prev - a + g + 1 - prev]
+            j0 = int(np.argmin(box))
             fit = self.mdp_fit(box, prev, j0)
             if fit is not None:
                 return fit
+            m0 = prev + j0
         a, b = max(prev, m0 - 2 * self.w_mdp), min(g + 1, m0 + 2 * self.w_mdp + 1)
         sm, off = self.smooth(a, b, self.w_mdp)
         part = sm[a - off:b - off]
@@ -510,14 +543,15 @@ class _Context:
         w_max = max(w_min, int(round(50e-3 * fs)))
         w = max(w_min, int(round(5e-3 * fs)))
         xc = x0
-        # Running sums over every window this refinement can reach from x0 without giving up.
-        sums = RunningSums(self.v[max(lo, int(x0) - 2 * w_max):min(hi, int(x0) + 2 * w_max + 2)],
-                           max(lo, int(x0) - 2 * w_max), level)
+        sums = None  # running sums over the windows near xc, rebuilt when a window leaves them
         for _ in range(8):
             a, b = max(lo, int(xc) - w), min(hi, int(xc) + w + 1)
             if b - a < 5:
                 return x0
-            c0, c1, c2 = sums.fit(a, b, a - xc) if sums.covers(a, b) else quadratic_fit(self.v[a:b], a - xc)
+            if sums is None or not sums.covers(a, b):
+                ra, rb = max(lo, int(xc) - 3 * w), min(hi, int(xc) + 3 * w + 2)
+                sums = RunningSums(self.v[ra:rb], ra, level)
+            c0, c1, c2 = sums.fit(a, b, a - xc)
             slope = c1  # mV per sample at the centre
             disc = c1 * c1 - 4 * c2 * (c0 - level)
             if slope >= 0 or disc < 0:

@@ -33,6 +33,7 @@ __all__ = [
     "window_samples",
     "savgol_coeffs",
     "savgol_smooth",
+    "savgol_smooth_interior",
     "least_squares_slope",
     "moving_mean",
     "savgol_derivative",
@@ -173,6 +174,39 @@ def savgol_smooth(v: np.ndarray, fs_hz: float, *, window_ms: float, polyorder: i
         return np.array(v, dtype=np.float64, copy=True)
     n = window_samples(window_ms, fs_hz, polyorder=polyorder)
     return _savgol(v, n, polyorder, 0, 1.0 / fs_hz, edges)
+
+
+def savgol_smooth_interior(v: np.ndarray, window: int) -> np.ndarray:
+    """Savitzky-Golay smoothing (polynomial order 2 or 3) at the interior samples, from running sums.
+
+    Returns ``len(v) - window + 1`` values, for the samples ``window // 2`` to
+    ``len(v) - window // 2 - 1``: the same numbers as :func:`savgol_smooth` there (a cubic's
+    value at the centre of a symmetric window is the quadratic's), as
+    ``(S4 sum(y) - S2 sum(k^2 y)) / (N S4 - S2^2)`` over ``k = -h..h`` from three running sums,
+    so a long window costs no more than a short one.
+    """
+    x = np.asarray(v, dtype=np.float64)
+    n = int(window)
+    h = n // 2
+    m = x.size - 2 * h
+    if m <= 0:
+        return np.empty(0)
+    ref = float(x[h]) if x.size > h else 0.0
+    y = x - ref
+    j = np.arange(x.size, dtype=np.float64)
+    p = np.zeros((3, x.size + 1))
+    np.cumsum(y, out=p[0, 1:])
+    jy = j * y
+    np.cumsum(jy, out=p[1, 1:])
+    np.cumsum(j * jy, out=p[2, 1:])
+    s0 = p[0, n:] - p[0, :m]
+    s1 = p[1, n:] - p[1, :m]
+    s2 = p[2, n:] - p[2, :m]
+    i = j[h:h + m]
+    k2y = s2 - 2.0 * i * s1 + i * i * s0  # sum over the window of (j - i)^2 y_j
+    s2k = h * (h + 1) * (2 * h + 1) / 3.0
+    s4k = s2k * (3 * h * h + 3 * h - 1) / 5.0
+    return (s4k * s0 - s2k * k2y) / (n * s4k - s2k * s2k) + ref
 
 
 def savgol_derivative(
@@ -352,6 +386,16 @@ def noise_rms_mV(v_mV: np.ndarray) -> float:
     return float(np.median(np.abs(d2)) / 0.6745 / math.sqrt(6.0))
 
 
+def _quick_noise_mV(v_mV: np.ndarray) -> float:
+    """White-noise rms from the mean absolute second difference (a phase-4 stretch, spikes
+    bridged: no outliers for a median to ignore): ``E|d2| = sqrt(6) s sqrt(2 / pi)``."""
+    x = np.asarray(v_mV, dtype=np.float64)
+    if x.size < 3:
+        return 0.0
+    d2 = x[2:] - 2.0 * x[1:-1] + x[:-2]
+    return float(np.abs(d2).mean() * math.sqrt(math.pi / 2.0) / math.sqrt(6.0))
+
+
 def slope_noise_V_per_s(noise_mV: float, fs_hz: float, window: int) -> float:
     """rms noise of the least-squares slope over ``window`` samples of white noise ``noise_mV``.
 
@@ -429,12 +473,12 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
     if n < 3 or peak <= 0:
         return parabolic_peak(y, i) if 0 < i < n - 1 else (0.0, peak)
     level = fraction * peak
-    lo = i
-    while lo > 0 and i - lo < max_half and y[lo - 1] >= level:
-        lo -= 1
-    hi = i
-    while hi < n - 1 and hi - i < max_half and y[hi + 1] >= level:
-        hi += 1
+    # The contiguous run of samples at or above the level around i (at most max_half each side).
+    a, b = max(0, i - max_half), min(n, i + max_half + 1)
+    below = np.flatnonzero(np.asarray(y[a:b]) < level) + a
+    k = int(np.searchsorted(below, i))
+    lo = int(below[k - 1]) + 1 if k > 0 else a
+    hi = int(below[k]) - 1 if k < below.size else b - 1
     if hi - lo < 3:
         return parabolic_peak(y, i)
     x = np.arange(lo, hi + 1, dtype=np.float64) - i
@@ -443,12 +487,24 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
         # A cubic follows an asymmetric top (an upstroke's dV/dt rises and falls at different rates).
         scale = max(abs(x[0]), abs(x[-1]), 1.0)
         c = poly_lsq(x / scale, yy, 3)
-        roots = np.roots([3 * c[3], 2 * c[2], c[1]]) if c[3] else np.roots([2 * c[2], c[1]])
-        cand = [float(r.real) * scale for r in np.atleast_1d(roots) if abs(r.imag) < 1e-12 and x[0] <= r.real * scale <= x[-1]]
-        if cand:
-            vals = [np.polynomial.polynomial.polyval(u / scale, c) for u in cand]
-            k = int(np.argmax(vals))
-            return cand[k], float(vals[k])
+        best = None
+        # Where the cubic's slope c1 + 2 c2 u + 3 c3 u^2 is zero (closed form).
+        qa, qb, qc = 3.0 * c[3], 2.0 * c[2], c[1]
+        disc = qb * qb - 4.0 * qa * qc
+        if disc < 0:
+            roots: tuple = ()
+        else:
+            # The cancellation-free form of the quadratic formula (a nearly parabolic top has
+            # a tiny cubic term).
+            q = -0.5 * (qb + math.copysign(math.sqrt(disc), qb))
+            roots = tuple(r for r in ((q / qa) if qa != 0.0 else None, (qc / q) if q != 0.0 else None) if r is not None)
+        for u in roots:
+            if x[0] <= u * scale <= x[-1]:
+                val = c[0] + u * (c[1] + u * (c[2] + u * c[3]))
+                if best is None or val > best[1]:
+                    best = (u * scale, val)
+        if best is not None:
+            return float(best[0]), float(best[1])
     c0, c1, c2 = poly_lsq(x, yy, 2)
     if c2 >= 0:
         return parabolic_peak(y, i)
@@ -586,7 +642,9 @@ def upstroke_velocity(
     # The noise just before the foot sizes the top fit: local, so that it does not depend on
     # how much else the sweep holds.
     m = max(64, int(0.05 * fs_hz))
-    local_noise = noise_rms_mV(v_mV[max(0, i_foot - m):i_foot + 1]) if i_foot >= 32 else noise_mV
+    local_noise = _quick_noise_mV(v_mV[max(0, i_foot - m):i_foot + 1]) if i_foot >= 32 else noise_mV
+    n_max = min(window_samples(max_window_ms, fs_hz, polyorder=3, minimum=5),
+                window_samples(0.5 * rise_ms, fs_hz, polyorder=3, minimum=5))
     for _ in range(3):
         d, a = _window_derivative(v_mV, fs_hz, lo, hi, n)
         # dV/dt max of phase 0: the largest derivative between the 10 % and 90 % crossings.
@@ -595,11 +653,7 @@ def upstroke_velocity(
         off, value = top_fit_peak(d, j, fraction=_top_fraction(d[j], _sg_noise(n, fs_hz) * local_noise))
         if noise_mV <= 0 or value <= 0:
             break
-        n_max = min(window_samples(max_window_ms, fs_hz, polyorder=3, minimum=5),
-                    window_samples(0.5 * rise_ms, fs_hz, polyorder=3, minimum=5))
-        n_new = n
-        while n_new < n_max and _sg_noise(n_new, fs_hz) * noise_mV > noise_fraction * value:
-            n_new += 2
+        n_new = _quiet_window(n, n_max, fs_hz, noise_fraction * value / noise_mV)
         if n_new == n:
             break
         n = n_new
@@ -618,6 +672,24 @@ def _top_fraction(peak: float, noise: float) -> float:
     return 1.0 - min(max(0.1, TOP_FIT_NOISE * noise / peak), 0.5)
 
 
+def _quiet_window(n: int, n_max: int, fs_hz: float, limit: float) -> int:
+    """The shortest odd window from ``n`` to ``n_max`` whose derivative noise per mV of white
+    noise is at most ``limit`` (``n`` when it already is; ``n_max`` when none is): the noise
+    falls as the window grows, so a bisection over odd lengths finds it."""
+    if n >= n_max or _sg_noise(n, fs_hz) <= limit:
+        return n
+    if _sg_noise(n_max, fs_hz) > limit:
+        return n_max
+    lo, hi = n, n_max  # noise(lo) > limit >= noise(hi)
+    while hi - lo > 2:
+        mid = lo + ((hi - lo) // 4) * 2
+        if _sg_noise(mid, fs_hz) > limit:
+            lo = mid
+        else:
+            hi = mid
+    return hi
+
+
 def _window_derivative(v: np.ndarray, fs: float, lo: int, hi: int, n: int, central: bool = False):
     h = n // 2
     a = max(0, lo - 2 * h - 2)
@@ -625,7 +697,9 @@ def _window_derivative(v: np.ndarray, fs: float, lo: int, hi: int, n: int, centr
     seg = v[a:b]
     if central:
         return central_difference(seg, fs) / 1000.0, a
-    return savgol_derivative(seg, fs, window=n, polyorder=3) / 1000.0, a
+    # With 2 h samples of context on each side the edge fits are never looked at.
+    edges = a == 0 or b == len(v)
+    return savgol_derivative(seg, fs, window=n, polyorder=3, edges=edges) / 1000.0, a
 
 
 def _search(lo: int, hi: int, a: int, d: np.ndarray) -> tuple[int, int]:
