@@ -23,7 +23,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .fits import RunningSums
+from .repolarisation import first_crossings, refine_crossings
 from .settings import MeasurementSettings
 from .signal import (
     least_squares_slope,
@@ -149,8 +149,10 @@ def measure_beats(
     out_up = np.full(k, -1, dtype=np.int64)
     flags: list[list[str]] = [[] for _ in range(k)]
     ctx = _Context(v, fs_hz, s, noise_mV)
+    repol = []
     for b in range(k):
         r = ctx.beat(int(ups[b]), int(prev[b]), int(nxt[b]), sweep_end, percents)
+        repol.append(r.pop("_repol"))
         for name, value in r.items():
             if name == "flags":
                 flags[b] = value
@@ -158,6 +160,26 @@ def measure_beats(
                 out_up[b] = value + offset
             else:
                 vals[name][b] = value
+    if k:
+        ip = np.array([x[0] for x in repol], np.int64)
+        limit = np.array([x[1] for x in repol], np.int64)
+        levels = np.array([x[2] for x in repol], np.float64).reshape(k, len(percents))
+        amp = np.array([x[3] for x in repol], np.float64)
+        crossings = first_crossings(v, fs_hz, ctx.w_rep, ip, limit, levels)
+        if s.apd_crossing_method == "local_fit":
+            m = len(percents)
+            crossings = refine_crossings(
+                v, fs_hz, crossings.ravel(), levels.ravel(), np.repeat(amp, m), np.repeat(ip, m), np.repeat(limit, m),
+            ).reshape(k, m)
+        deepest = percents.index(max(percents))
+        for b in range(k):
+            for p, x in zip(percents, crossings[b]):
+                if prev[b] >= 0 and not math.isnan(x):
+                    vals[f"t_{apd_name(p)}_s"][b] = x / fs_hz
+            if repol[b][4] or (sweep_end and nxt[b] >= v.size and math.isnan(crossings[b, deepest])):
+                flags[b].append("truncated")
+            if prev[b] < 0:
+                flags[b].insert(0, "no_diastole")
     t0 = offset / fs_hz
     for name in vals:
         if name.startswith("t_"):
@@ -308,22 +330,11 @@ class _Context:
                 r["t_top_s"] = self.t(i_top)
                 r["top_mV"] = self._top_value
                 self.phase4(r, i_mdp, i_top)
-        # Repolarisation.
+        # Repolarisation: the levels' crossings are found for all beats together (measure_beats).
         base = r.get("mdp_mV", float(v[i_foot]))
         amp = pv - base
-        deepest = max(percents)
-        limit = nxt if nxt < self.n else self.n
-        levels = [pv - p / 100.0 * amp for p in percents]
-        crossings = self.apd_crossings(int(ip0), limit, levels)
-        if s.apd_crossing_method == "local_fit":
-            crossings = [self.refine_crossing(x, lv, amp, int(ip0), limit) for x, lv in zip(crossings, levels)]
-        for p, x in zip(percents, crossings):
-            if prev >= 0 and not math.isnan(x):
-                r[f"t_{apd_name(p)}_s"] = self.t(x)
-        if cut_upstroke or (sweep_end and nxt >= self.n and math.isnan(crossings[percents.index(deepest)])):
-            flags.append("truncated")
-        if prev < 0:
-            flags.insert(0, "no_diastole")
+        r["_repol"] = (int(ip0), nxt if nxt < self.n else self.n, [pv - p / 100.0 * amp for p in percents], amp,
+                       cut_upstroke)
         r["flags"] = flags
         return r
 
@@ -527,91 +538,3 @@ class _Context:
             return float(a)
         y0, y1 = seg[j - 1], seg[j]
         return a + j - 1 + (level - y0) / (y1 - y0)
-
-    def refine_crossing(self, x0: float, level: float, amp: float, lo: int, hi: int) -> float:
-        """A downward crossing refined on a quadratic fitted to the raw samples around it.
-
-        The half-width of the fit is a quarter of the time V takes to fall 10 % of the APA at
-        the local slope (a few ms in phase 3, tens of ms on a plateau), so noise and mains hum
-        average out where repolarisation is slow, while the curve is still followed where it
-        is fast. On a clean trace the result agrees with linear interpolation between samples.
-        """
-        if math.isnan(x0) or not math.isfinite(amp) or amp <= 0:
-            return x0
-        fs = self.fs
-        w_min = max(3, int(round(0.5e-3 * fs)))
-        w_max = max(w_min, int(round(50e-3 * fs)))
-        w = max(w_min, int(round(5e-3 * fs)))
-        xc = x0
-        sums = None  # running sums over the windows near xc, rebuilt when a window leaves them
-        for _ in range(8):
-            a, b = max(lo, int(xc) - w), min(hi, int(xc) + w + 1)
-            if b - a < 5:
-                return x0
-            if sums is None or not sums.covers(a, b):
-                ra, rb = max(lo, int(xc) - 3 * w), min(hi, int(xc) + 3 * w + 2)
-                sums = RunningSums(self.v[ra:rb], ra, level)
-            c0, c1, c2 = sums.fit(a, b, a - xc)
-            slope = c1  # mV per sample at the centre
-            disc = c1 * c1 - 4 * c2 * (c0 - level)
-            if slope >= 0 or disc < 0:
-                # Noise or hum outweighs a slow repolarisation over this window: widen it.
-                if w >= w_max:
-                    return x0
-                w = min(2 * w, w_max)
-                continue
-            # Roots of c2 u^2 + c1 u + (c0 - level) = 0; keep the one nearest the centre.
-            if abs(c2) < 1e-12:
-                root = (level - c0) / c1
-            else:
-                r1 = (-c1 - math.sqrt(disc)) / (2 * c2)
-                r2 = (-c1 + math.sqrt(disc)) / (2 * c2)
-                root = r1 if abs(r1) < abs(r2) else r2
-            # A root beyond the window: move towards it and fit again.
-            x_new = xc + min(max(root, -w), w)
-            w_new = int(round(min(max(0.25 * 0.1 * amp / -slope, w_min), w_max)))
-            settled = abs(w_new - w) <= 0.25 * w
-            if abs(x_new - xc) < 0.25 and settled:
-                return float(x_new)
-            xc = x_new
-            if not settled:
-                w = w_new
-        return float(xc) if abs(xc - x0) < w_max else x0
-
-    def apd_crossings(self, ip: int, limit: int, levels: list[float]) -> list[float]:
-        """First downward crossing after the peak of each level, before ``limit`` (NaN if none)."""
-        v = self.v
-        out = []
-        start = ip
-        for level in levels:  # levels fall as the percentage rises
-            if not math.isfinite(level):
-                out.append(math.nan)
-                continue
-            x = math.nan
-            a = start
-            block = max(4096, 20 * self.w_rep)
-            while a < limit:
-                b = min(limit, a + block)
-                raw = np.flatnonzero(v[a:b] <= level + 5.0)
-                if raw.size == 0:
-                    a = b
-                    continue
-                a2 = a + int(raw[0])
-                b2 = min(limit, a2 + block)
-                sm, off = self.smooth(a2, b2, self.w_rep)
-                part = sm[a2 - off:b2 - off]
-                below = np.flatnonzero(part <= level)
-                if below.size == 0:
-                    a = b2
-                    continue
-                j = a2 + int(below[0])
-                if j > start and j - 1 - off >= 0:
-                    y0, y1 = sm[j - 1 - off], sm[j - off]
-                    x = j - 1 + (y0 - level) / (y0 - y1) if y0 != y1 else float(j)
-                else:
-                    x = float(j)
-                break
-            out.append(x)
-            if not math.isnan(x):
-                start = int(x)
-        return out

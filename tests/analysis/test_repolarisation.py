@@ -1,0 +1,63 @@
+"""APD level crossings of many beats at once against the formula of Gaussian beats.
+
+A Gaussian beat ``base + A exp(-((t - c) / w)^2)`` falls to ``peak - x/100 A`` at
+``c + w sqrt(-ln(1 - x/100))`` (beat_traces: from the formula, no other source).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from analysis.repolarisation import first_crossings, first_crossings_one, refine_crossing_one, refine_crossings
+from tests.analysis.beat_traces import gaussian_train
+
+FS = 20_000.0
+W = 0.025
+PERCENTS = (20.0, 50.0, 90.0)
+
+
+def _beats(noise_mV: float = 0.0):
+    v, centres = gaussian_train(FS, 4.0, cl_s=0.5)
+    v = v + noise_mV * np.random.default_rng(4).normal(size=v.size)
+    ip = np.rint(centres * FS).astype(np.int64)
+    limit = np.append(ip[1:], v.size)
+    levels = np.array([[20.0 - p / 100.0 * 80.0 for p in PERCENTS]] * ip.size)
+    truth = np.array([[c + W * math.sqrt(-math.log(1 - p / 100.0)) for p in PERCENTS] for c in centres])
+    return v, ip, limit, levels, truth
+
+
+def test_first_crossings_of_many_beats_are_the_formulas_and_the_one_by_one_search():
+    v, ip, limit, levels, truth = _beats()
+    w_rep = 21  # 1 ms at 20 kHz
+    got = first_crossings(v, FS, w_rep, ip, limit, levels)
+    # the Gaussian's own crossing times (formula), to a few microseconds of smoothing and
+    # interpolation
+    np.testing.assert_allclose(got / FS, truth, atol=5e-6)
+    for b in range(ip.size):
+        np.testing.assert_array_equal(got[b], first_crossings_one(v, w_rep, int(ip[b]), int(limit[b]), list(levels[b])))
+
+
+def test_refined_crossings_of_many_beats_follow_the_formula_under_noise():
+    v, ip, limit, levels, truth = _beats(noise_mV=0.3)
+    first = first_crossings(v, FS, 21, ip, limit, levels)
+    m = len(PERCENTS)
+    amp = np.full(ip.size * m, 80.0)
+    got = refine_crossings(v, FS, first.ravel(), levels.ravel(), amp, np.repeat(ip, m), np.repeat(limit, m))
+    # within 0.25 ms of the formula under 0.3 mV of noise (the noisy APD tolerance is 2 ms)
+    np.testing.assert_allclose(got.reshape(first.shape) / FS, truth, atol=2.5e-4)
+    one = [refine_crossing_one(v, FS, x, lv, 80.0, int(a), int(b))
+           for x, lv, a, b in zip(first.ravel(), levels.ravel(), np.repeat(ip, m), np.repeat(limit, m))]
+    np.testing.assert_allclose(got, one, rtol=0, atol=1e-6)
+
+
+def test_a_level_never_reached_is_nan_and_a_nan_level_is_skipped():
+    v, ip, limit, levels, _ = _beats()
+    levels[:, 2] = -75.0  # below the diastolic level: never crossed
+    levels[0, 0] = np.nan
+    got = first_crossings(v, FS, 21, ip, limit, levels)
+    assert np.isnan(got[:, 2]).all() and np.isnan(got[0, 0]) and np.isfinite(got[0, 1])
+    assert refine_crossings(v, FS, got[:, 2], levels[:, 2], np.full(ip.size, 80.0), ip, limit).tolist() == \
+        pytest.approx([float("nan")] * ip.size, nan_ok=True)
