@@ -9,8 +9,8 @@ Vocabulary (the words of the ``flags`` column this module adds, in the order the
 ------------------------------------------------------------------------------------------------
 ead
     Early afterdepolarisation: during repolarisation, between ``ead_start_repol_pct`` % of
-    repolarisation and APD90, the membrane potential (moving average over ``ead_smooth_ms``)
-    climbs again by at least
+    repolarisation and APD90, the membrane potential (moving average over ``ead_smooth_ms``,
+    taken on means of blocks an eighth as long; so is the DAD's) climbs again by at least
     ``ead_min_mV`` with a smoothed dV/dt above ``ead_min_dvdt_V_per_s`` (Cranefield's definition of
     an EAD as a depolarisation interrupting repolarisation; phase-2 EADs take off above -40 mV,
     phase-3 ones between -70 and -50 mV: Zhang & Qu 2021, Physiol Rep 9:e14883). The amplitude

@@ -344,7 +344,12 @@ def sweep_trace_events(
     last[:-1] = np.maximum(i_top[1:], i_up[1:])
     last[-1] = n - 1
     last = np.maximum(last, np.maximum(i_apd90, i_up))
-    margin = w_ead // 2 + w_dad // 2 + 2
+    # EADs and DADs are looked for on means of blocks of an eighth of the EAD window (aligned to
+    # the sweep's start): the moving averages of V over both windows are smooth at that scale,
+    # and the work shrinks by the block length.
+    d = max(1, w_ead // 8)
+    m_ead, m_dad = max(1, int(round(w_ead / d))), max(1, int(round(w_dad / d)))
+    margin = w_ead // 2 + w_dad // 2 + 2 + 2 * d
     spike_rule = detection if detection is not None else DetectionSettings()
     known = None if spikes is None else np.asarray(spikes, np.int64).reshape(-1, 2)
     spike_noise = estimate_noise_mV(lambda lo, hi: source.read(sweep, lo, hi), n) if known is None else 0.0
@@ -357,6 +362,7 @@ def sweep_trace_events(
         while b1 < k and last[b1] - first[b0] <= chunk:
             b1 += 1
         a = max(0, int(first[b0:b1].min()) - margin)
+        a -= a % d
         z = min(n, int(last[b0:b1].max()) + margin + 1)
         v = source.read(sweep, a, z)
         if known is None:
@@ -364,12 +370,15 @@ def sweep_trace_events(
         else:
             found = known[(known[:, 0] > a) & (known[:, 1] < z - 1)] - a
         vb = bridge_spans(v, found) if found.size else v
-        vs = box_mean(vb, w_ead)
-        dvdt = np.gradient(vs) * fs_hz * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
-        vd = box_mean(vb, w_dad)
+        nb = vb.size // d
+        blocks = vb[:nb * d].reshape(nb, d).mean(axis=1) if d > 1 else vb
+        vs = box_mean(blocks, m_ead)
+        dvdt = np.gradient(vs) * (fs_hz / d) * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
+        vd = box_mean(blocks, m_dad)
+        coarse = _Coarse(a, d)
         for b in range(b0, b1):
-            _ead(b, a, vb, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
-            _dad(b, a, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
+            _ead(b, coarse, vb, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
+            _dad(b, coarse, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
             if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
                 seg = v[i_mdp[b] - a:i_top[b] - a + 1]
                 if seg.size >= 2 * pad:
@@ -395,18 +404,32 @@ def sweep_trace_events(
     return out
 
 
-def _ead(b, a, v, vs, dvdt, i_peak, i_apd90, peak, apa, width, quality, out) -> None:
+class _Coarse:
+    """Block ``J`` of the block means holds the samples ``[a + J d, a + J d + d)``."""
+
+    def __init__(self, a: int, d: int) -> None:
+        self.a, self.d = a, d
+
+    def first_at_or_after(self, i: int) -> int:
+        return -(-(i - self.a) // self.d)
+
+    def last_at_or_before(self, i: int) -> int:
+        return (i - self.a + 1) // self.d - 1
+
+
+def _ead(b, coarse, v, vs, dvdt, i_peak, i_apd90, peak, apa, width, quality, out) -> None:
     """The climb above the running minimum of the repolarising trace, from the set level to APD90."""
     if not (i_peak[b] >= 0 and i_apd90[b] > i_peak[b] and math.isfinite(apa[b])):
         return
+    a = coarse.a
     level = peak[b] - quality.ead_start_repol_pct / 100.0 * apa[b]
     # The crossing is taken on the unsmoothed trace, and the search starts only where the
     # smoothing window no longer reaches back into the upstroke.
     below = np.flatnonzero(v[i_peak[b] - a:i_apd90[b] - a + 1] <= level)
     if not below.size:
         return
-    s0 = max(i_peak[b] + int(below[0]), i_peak[b] + width // 2 + 1) - a
-    s1 = i_apd90[b] - a
+    s0 = coarse.first_at_or_after(max(i_peak[b] + int(below[0]), i_peak[b] + width // 2 + 1))
+    s1 = min(coarse.last_at_or_before(int(i_apd90[b])), vs.size - 1)
     if s0 >= s1:
         return
     seg = vs[s0:s1 + 1]
@@ -422,7 +445,7 @@ def _ead(b, a, v, vs, dvdt, i_peak, i_apd90, peak, apa, width, quality, out) -> 
         out["ead_takeoff_mV"][b] = float(seg[start])
 
 
-def _dad(b, a, vd, i_apd90, i_top, i_up, k, n, width, quality, out) -> None:
+def _dad(b, coarse, vd, i_apd90, i_top, i_up, k, n, width, quality, out) -> None:
     """A hump that rises and falls back by ``dad_min_mV`` between APD90 and the next take-off."""
     if i_apd90[b] < 0:
         return
@@ -435,7 +458,10 @@ def _dad(b, a, vd, i_apd90, i_top, i_up, k, n, width, quality, out) -> None:
         stop = n - 1
     if stop - s0 <= 2:
         return
-    seg = vd[s0 - a:stop - a + 1]
+    j0, j1 = coarse.first_at_or_after(int(s0)), min(coarse.last_at_or_before(int(stop)), vd.size - 1)
+    if j1 - j0 < 1:
+        return
+    seg = vd[j0:j1 + 1]
     rise = seg - np.minimum.accumulate(seg)
     fall = seg - np.minimum.accumulate(seg[::-1])[::-1]
     hump = np.minimum(rise, fall)
