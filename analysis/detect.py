@@ -153,9 +153,10 @@ def find_spikes(
         return empty
     thr = max(s.spike_min_mV, 10.0 * float(noise_mV))
     d = np.diff(v)
+    steps = np.flatnonzero(np.abs(d) >= 0.5 * thr)  # v[e] is the level before, v[e + 1] the first spike sample
     spans = []
     for sign in (1.0, -1.0):
-        e = np.flatnonzero(sign * d >= 0.5 * thr)  # v[e] is the level before, v[e + 1] the first spike sample
+        e = steps[sign * d[steps] > 0]
         if e.size == 0:
             continue
         offs = np.arange(1, w + 2)
@@ -366,8 +367,13 @@ def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, 
 
     def load_q(a: int, b: int) -> np.ndarray:
         x = np.asarray(load(a * q, b * q), dtype=np.float64)
-        m = (x.size // q) * q
-        return x[:m].reshape(-1, q).mean(axis=1)
+        m = x.size // q
+        # The sum of q strided slices: far cheaper than a mean over a short inner axis.
+        out = x[0:m * q:q].copy()
+        for k in range(1, q):
+            out += x[k:m * q:q]
+        out *= 1.0 / q
+        return out
 
     det = detect_sweep(
         load_q, n // q, fs_hz / q, settings=dataclasses.replace(s, working_rate_hz=fs_hz / q),

@@ -358,7 +358,8 @@ def preprocess(v_mV: np.ndarray, fs_hz: float, settings, *, offset: int = 0, hum
     :class:`analysis.hum.HumSurvey` (:func:`analysis.hum.hum_survey` on the whole sweep), False
     for none, or None to judge it on ``v_mV`` itself.
     """
-    x = correct_ljp(v_mV, settings.ljp_mV)
+    # The caller's samples are a fresh read: without an LJP they need no copy.
+    x = np.asarray(v_mV, dtype=np.float64) - settings.ljp_mV if settings.ljp_mV else np.asarray(v_mV, dtype=np.float64)
     if getattr(settings, "hum_removal", "off") != "off" and hum is not False:
         from .hum import remove_hum
 
