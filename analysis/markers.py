@@ -17,6 +17,7 @@ start of the sweep. Which smoothing each marker uses, and why:
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import Sequence
@@ -56,18 +57,83 @@ _TOP_BAND_NOISE = 4.0
 
 
 def _strided_mean(v: np.ndarray, w: int, q: int) -> np.ndarray:
-    """The centred mean of ``v`` over ``w`` samples (fewer at the ends) at samples 0, q, 2q, ..."""
-    if w <= 1:
-        return np.asarray(v[::q], dtype=np.float64)
+    """The mean of ``v`` over about ``w`` samples around samples 0, q, 2q, ...
+
+    Built from sums of blocks of ``q`` samples (the block starting at each grid sample and the
+    ``w // (2 q)`` blocks on either side; fewer at the ends), so one pass over the samples: the
+    average only has to show where a diastole's minimum lies to within an eighth of the window.
+    """
+    if w <= 1 or q <= 1:
+        from .signal import moving_mean
+
+        return moving_mean(np.asarray(v, dtype=np.float64), max(w, 1) | 1)[::max(q, 1)]
     n = v.size
-    c = np.empty(n + 1)
-    c[0] = 0.0
+    nb = -(-n // q)
+    sums = np.zeros(nb)
+    counts = np.full(nb, float(q))
+    full = n // q
     ref = float(v[0]) if n else 0.0
-    np.cumsum(v - ref, out=c[1:])
-    i = np.arange(0, n, q)
-    a = np.maximum(i - w // 2, 0)
-    b = np.minimum(i + w // 2 + 1, n)
-    return (c[b] - c[a]) / (b - a) + ref
+    if full:
+        # einsum sums each block (a row of q samples) in one pass, unlike a reduction per row
+        sums[:full] = np.einsum("ij->i", v[:full * q].reshape(full, q)) - q * ref
+    if full < nb:
+        sums[full] = float(np.sum(v[full * q:] - ref))
+        counts[full] = n - full * q
+    r = max(0, w // (2 * q))
+    cs = np.concatenate(([0.0], np.cumsum(sums)))
+    cc = np.concatenate(([0.0], np.cumsum(counts)))
+    j = np.arange(nb)
+    a, b = np.maximum(j - r, 0), np.minimum(j + r + 1, nb)
+    return (cs[b] - cs[a]) / (cc[b] - cc[a]) + ref
+
+
+_RAMP = np.arange(0.0)
+
+
+def _ramp(m: int) -> np.ndarray:
+    """0, 1, ..., m - 1 as floats (a view of one array kept for all fits)."""
+    global _RAMP
+    r = _RAMP
+    if r.size < m:
+        r = np.arange(float(max(m, 2 * r.size)))
+        _RAMP = r
+    return r[:m]
+
+
+@functools.lru_cache(maxsize=64)
+def _savgol_smoothing(w: int) -> np.ndarray:
+    from .signal import savgol_coeffs
+
+    return savgol_coeffs(w, 3)
+
+
+def _quartic_max(coef: np.ndarray, u0: float, u1: float, n: int) -> tuple[float, float] | None:
+    """Where in (u0, u1) the quartic ``coef`` (lowest order first) is highest, and its value.
+
+    The quartic is scanned at two points per sample (``n`` samples span the interval) and the
+    best point refined by Newton's method on its derivative; None when the highest point is an
+    end of the interval (the top is not inside the fitted samples).
+    """
+    grid = np.linspace(u0, u1, 2 * n + 1)
+    val = np.polynomial.polynomial.polyval(grid, coef)
+    k = int(np.argmax(val))
+    if not 0 < k < grid.size - 1:
+        return None
+    c0, c1, c2, c3, c4 = (float(c) for c in coef)
+    u, lo, hi = float(grid[k]), float(grid[k - 1]), float(grid[k + 1])
+    for _ in range(6):
+        d1 = c1 + u * (2 * c2 + u * (3 * c3 + u * 4 * c4))
+        d2 = 2 * c2 + u * (6 * c3 + u * 12 * c4)
+        if d2 >= 0:
+            break
+        step = d1 / d2
+        u = min(max(u - step, lo), hi)
+        if abs(step) < 1e-12:
+            break
+    best = c0 + u * (c1 + u * (c2 + u * (c3 + u * c4)))
+    if best < float(val[k]):
+        return float(grid[k]), float(val[k])
+    return u, best
 
 
 def apd_name(percent: float) -> str:
@@ -207,6 +273,7 @@ class _Context:
         self.w_rep = window_samples(s.repolarisation_smoothing_ms, fs, polyorder=3) if s.repolarisation_smoothing_ms > 0 else 1
         self.w_d2 = window_samples(s.top_d2v_window_ms, fs, polyorder=3, minimum=5)
         self.search = int(round(0.2 * fs))  # how far back an upstroke's foot is looked for
+        self._slopes: tuple | None = None
 
     # -- helpers -----------------------------------------------------------------------------
     def t(self, i: float) -> float:
@@ -248,8 +315,14 @@ class _Context:
         b = g + 1
         while b > lo:
             a = max(lo, b - block)
-            d, off = self.slope(a, b + 1)
-            seg = d[a - off:b + 1 - off]
+            cached = self._slopes
+            if cached is not None and cached[0] <= a and cached[1] == b:
+                seg = cached[2][a - cached[0]:]  # the take-off dV/dt of this beat, computed once
+            else:
+                d, off = self.slope(a, b + 1)
+                seg = d[a - off:b + 1 - off]
+                if b == g + 1:
+                    self._slopes = (a, b, seg)
             below = np.flatnonzero(seg[:-1] < level) if seg.size > 1 else np.empty(0, int)
             if below.size:
                 j = int(below[-1])
@@ -262,6 +335,12 @@ class _Context:
     def value_at(self, x: float, w: int) -> float:
         """V (smoothed over w samples) at a fractional index, linearly interpolated."""
         i = int(math.floor(x))
+        h = w // 2
+        if w > 1 and i - h >= 0 and i + h + 2 <= self.n:
+            # Two Savitzky-Golay values straight from their coefficients.
+            pair = np.convolve(self.v[i - h:i + h + 2], _savgol_smoothing(w), mode="valid")
+            f = x - i
+            return float(pair[0] * (1 - f) + pair[1] * f)
         sm, off = self.smooth(i, i + 2, w)
         j = i - off
         if j + 1 >= sm.size:
@@ -272,12 +351,14 @@ class _Context:
     def ls_slope(self, x0: float, x1: float) -> float:
         """Least-squares slope (mV/s) of the raw samples whose times lie in [x0, x1]."""
         a, b = int(math.ceil(x0)), int(math.floor(x1)) + 1
-        if b - a < 3:
+        m = b - a
+        if m < 3:
             return math.nan
-        y = self.v[a:b]
-        x = np.arange(b - a, dtype=np.float64)
-        x -= x.mean()
-        return float(np.sum(x * (y - y.mean())) / np.sum(x * x) * self.fs)
+        y = self.v[a:b] - self.v[a]
+        # sum((k - mean k) y) / sum((k - mean k)^2), k = 0..m-1, with the sums in closed form
+        k = _ramp(m)
+        num = float((k * y).sum()) - 0.5 * (m - 1) * float(y.sum())
+        return num / (m * (m * m - 1) / 12.0) * self.fs
 
     # -- one beat ----------------------------------------------------------------------------
     def beat(self, g: int, prev: int, nxt: int, sweep_end: bool, percents: list[float]) -> dict:
@@ -301,6 +382,7 @@ class _Context:
             r["mdp_mV"], r["t_mdp_s"] = mdp, self.t(i_mdp)
         # Foot of the upstroke: where the take-off dV/dt last rises through 10 % of its value here.
         lo = int(i_mdp) if not math.isnan(i_mdp) else max(0, g - self.search, prev + 1 if prev >= 0 else 0)
+        self._slopes = None  # the take-off dV/dt before this upstroke, shared by foot and take-off
         d_g, off = self.slope(g, g + 1)
         d_here = float(d_g[g - off])
         foot = self.last_below(0.1 * d_here, lo, g) if d_here > 0 else math.nan
@@ -346,27 +428,38 @@ class _Context:
         top); a quartic is fitted there to the raw samples, so noise is averaged instead of its
         largest excursion being taken, and a sharp or asymmetric top is still followed.
         """
-        reach = max(3 * w, int(round(0.02 * self.fs)))
-        a, b = max(g, ip0 - reach), min(end, ip0 + reach + 1)
-        sm, off = self.smooth(a, b, w)
-        seg = sm[a - off:b - off]
-        j = int(np.argmax(seg))
-        po, pv = parabolic_peak(seg, j)
         delta = min(max(0.5, _TOP_BAND_NOISE * self.noise), 5.0)
-        top = seg >= seg[j] - delta
-        lo = j - (int(np.argmin(top[:j + 1][::-1])) if not top[:j + 1].all() else j)
-        hi = j + (int(np.argmin(top[j:])) if not top[j:].all() else top.size - j)
+        reach = max(3 * w, int(round(0.02 * self.fs)))
+        a_full, b_full = max(g, ip0 - reach), min(end, ip0 + reach + 1)
+        # Most tops are found within 10 ms: smooth that first, and the whole reach only when the
+        # top runs to its edge or V outside it comes near the top.
+        near = max(3 * w, int(round(0.01 * self.fs)))
+        a, b = max(g, ip0 - near), min(end, ip0 + near + 1)
+        for attempt in (0, 1):
+            if attempt:
+                a, b = a_full, b_full
+            sm, off = self.smooth(a, b, w)
+            seg = sm[a - off:b - off]
+            j = int(np.argmax(seg))
+            top = seg >= seg[j] - delta
+            lo = j - (int(np.argmin(top[:j + 1][::-1])) if not top[:j + 1].all() else j)
+            hi = j + (int(np.argmin(top[j:])) if not top[j:].all() else top.size - j)
+            if (a, b) == (a_full, b_full):
+                break
+            outside = max(float(np.max(self.v[a_full:a])) if a > a_full else -np.inf,
+                          float(np.max(self.v[b:b_full])) if b_full > b else -np.inf)
+            if (lo > 0 or a == a_full) and (hi < seg.size or b == b_full) and outside < seg[j] - delta - 1.0:
+                break
+        po, pv = parabolic_peak(seg, j)
         if hi - lo >= 7:
             x = np.arange(lo, hi, dtype=np.float64) - j
             y = self.v[a + lo:a + hi]
             scale = max(hi - lo, 1)
             u = x / scale
             coef = poly_lsq(u, y, 4)
-            grid = np.linspace(x[0], x[-1], 16 * (hi - lo) + 1)
-            val = np.polynomial.polynomial.polyval(grid / scale, coef)
-            k = int(np.argmax(val))
-            if 0 < k < grid.size - 1:
-                return a + j + float(grid[k]), float(val[k])
+            top_at = _quartic_max(coef, x[0] / scale, x[-1] / scale, hi - lo)
+            if top_at is not None:
+                return a + j + top_at[0] * scale, top_at[1]
         return a + j + po, pv
 
     def mdp(self, prev: int, g: int) -> tuple[float, float]:
