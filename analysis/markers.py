@@ -24,6 +24,7 @@ from typing import Sequence
 
 import numpy as np
 
+from .extrema import mdp_batch, peak_batch
 from .repolarisation import first_crossings, refine_crossings
 from .settings import MeasurementSettings
 from .signal import (
@@ -215,17 +216,31 @@ def measure_beats(
     out_up = np.full(k, -1, dtype=np.int64)
     flags: list[list[str]] = [[] for _ in range(k)]
     ctx = _Context(v, fs_hz, s, noise_mV)
+    # Each step that works on fixed windows around every beat takes all the beats at once
+    # (analysis.extrema, analysis.repolarisation); the steps between go beat by beat.
+    where = [ctx.locate(int(ups[b]), int(prev[b]), int(nxt[b]), sweep_end) for b in range(k)]
+    g = np.array([w[0] for w in where], np.int64).reshape(k)
+    nx = np.array([w[1] for w in where], np.int64).reshape(k)
+    end = np.array([w[2] for w in where], np.int64).reshape(k)
+    ip0 = np.array([w[3] for w in where], np.int64).reshape(k)
+    i_mdp, mdp = ctx.mdps(prev, g)
     repol = []
+    w_pk = np.ones(k, np.int64)
     for b in range(k):
-        r = ctx.beat(int(ups[b]), int(prev[b]), int(nxt[b]), sweep_end, percents)
-        repol.append(r.pop("_repol"))
+        r, w_pk[b] = ctx.upstroke_and_takeoff(int(g[b]), int(prev[b]), int(ip0[b]), i_mdp[b], mdp[b])
         for name, value in r.items():
-            if name == "flags":
-                flags[b] = value
-            elif name == "i_upstroke":
+            if name == "i_upstroke":
                 out_up[b] = value + offset
             else:
                 vals[name][b] = value
+    i_peak, pv = ctx.peaks(g, end, ip0, w_pk)
+    vals["peak_mV"], vals["t_peak_s"] = pv, i_peak / fs_hz
+    for b in range(k):
+        # Repolarisation: the levels' crossings are found for all beats together below.
+        base = mdp[b] if prev[b] >= 0 else float(v[ctx.i_foot[b]])
+        amp = pv[b] - base
+        repol.append((int(ip0[b]), int(nx[b]) if nx[b] < v.size else v.size,
+                      [pv[b] - p / 100.0 * amp for p in percents], amp, where[b][4]))
     if k:
         ip = np.array([x[0] for x in repol], np.int64)
         limit = np.array([x[1] for x in repol], np.int64)
@@ -274,6 +289,7 @@ class _Context:
         self.w_d2 = window_samples(s.top_d2v_window_ms, fs, polyorder=3, minimum=5)
         self.search = int(round(0.2 * fs))  # how far back an upstroke's foot is looked for
         self._slopes: tuple | None = None
+        self.i_foot: list[int] = []  # each beat's foot, in the order measured
 
     # -- helpers -----------------------------------------------------------------------------
     def t(self, i: float) -> float:
@@ -361,25 +377,53 @@ class _Context:
         return num / (m * (m * m - 1) / 12.0) * self.fs
 
     # -- one beat ----------------------------------------------------------------------------
-    def beat(self, g: int, prev: int, nxt: int, sweep_end: bool, percents: list[float]) -> dict:
-        v, s, fs = self.v, self.s, self.fs
-        r: dict = {}
-        flags: list[str] = []
+    def locate(self, g: int, prev: int, nxt: int, sweep_end: bool) -> tuple[int, int, int, int, bool]:
+        """The upstroke, the next one, the end of the peak's search and the raw maximum of a beat.
+
+        The peak window runs from the upstroke to the next diastole's minimum (or the data's
+        end); the last flag says whether the sweep ends during the upstroke.
+        """
         g = min(max(g, 0), self.n - 1)
         nxt = min(nxt, self.n)
-        # Peak window: from the upstroke to the next diastole's minimum (or the data's end).
-        if nxt < self.n:
-            end = self.box_argmin(g, nxt) + 1
-        else:
-            end = self.n
-        ip0 = g + int(np.argmax(v[g:end]))
-        cut_upstroke = sweep_end and nxt >= self.n and ip0 >= self.n - 2
+        end = self.box_argmin(g, nxt) + 1 if nxt < self.n else self.n
+        ip0 = g + int(np.argmax(self.v[g:end]))
+        return g, nxt, end, ip0, sweep_end and nxt >= self.n and ip0 >= self.n - 2
 
-        # MDP between the previous beat and this upstroke.
-        i_mdp = math.nan
+    def mdps(self, prev: np.ndarray, g: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(fractional index, value) of each beat's MDP between the previous upstroke and its own."""
+        k = g.size
+        i_mdp, mdp = np.full(k, np.nan), np.full(k, np.nan)
+        has = np.flatnonzero(prev >= 0)
+        if has.size == 0:
+            return i_mdp, mdp
+        if self.w_mdp > 1 and self.s.mdp_method == "smoothed_min":
+            m0 = np.array([self.box_argmin(int(prev[b]), int(g[b]) + 1) for b in has], np.int64)
+            idx, val, done = mdp_batch(self.v, self.w_mdp, m0, prev[has], g[has] + 1)
+            i_mdp[has[done]], mdp[has[done]] = idx[done], val[done]
+            has = has[~done]
+        for b in has:
+            i_mdp[b], mdp[b] = self.mdp(int(prev[b]), int(g[b]))
+        return i_mdp, mdp
+
+    def peaks(self, g: np.ndarray, end: np.ndarray, ip0: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(fractional index, value) of each beat's peak (:func:`analysis.extrema.peak_batch`)."""
+        delta = min(max(0.5, _TOP_BAND_NOISE * self.noise), 5.0)
+        idx, val, done = peak_batch(self.v, self.fs, g, end, ip0, w, delta)
+        for b in np.flatnonzero(~done):
+            idx[b], val[b] = self.peak(int(g[b]), int(end[b]), int(ip0[b]), int(w[b]))
+        return idx, val
+
+    def upstroke_and_takeoff(self, g: int, prev: int, ip0: int, i_mdp: float, mdp: float) -> tuple[dict, int]:
+        """The markers of one beat from its MDP to its upstroke, and the peak's smoothing window.
+
+        The foot, dV/dt max and its time, the upstroke time, the take-off and the phase-4 fits.
+        """
+        v, s, fs = self.v, self.s, self.fs
+        r: dict = {}
         if prev >= 0:
-            i_mdp, mdp = self.mdp(prev, g)
             r["mdp_mV"], r["t_mdp_s"] = mdp, self.t(i_mdp)
+        else:
+            i_mdp = math.nan
         # Foot of the upstroke: where the take-off dV/dt last rises through 10 % of its value here.
         lo = int(i_mdp) if not math.isnan(i_mdp) else max(0, g - self.search, prev + 1 if prev >= 0 else 0)
         self._slopes = None  # the take-off dV/dt before this upstroke, shared by foot and take-off
@@ -387,6 +431,7 @@ class _Context:
         d_here = float(d_g[g - off])
         foot = self.last_below(0.1 * d_here, lo, g) if d_here > 0 else math.nan
         i_foot = int(foot) if not math.isnan(foot) else lo
+        self.i_foot.append(i_foot)
         up = upstroke_velocity(
             v, fs, i_foot=i_foot, i_peak=ip0, method=s.dvdt_max_method, window_fraction=s.dvdt_max_window_fraction,
             min_window_ms=s.dvdt_max_min_window_ms, max_window_ms=s.dvdt_max_max_window_ms,
@@ -396,10 +441,6 @@ class _Context:
         r["t_dvdt_max_s"] = self.t(up.index)
         r["rise_ms"], r["rise_samples"], r["dvdt_window_ms"] = up.rise_ms, up.rise_samples, up.window_ms
         r["i_upstroke"] = int(round(up.index))
-        # Peak: a quartic fitted to the samples near the top of V smoothed as for dV/dt max.
-        w_pk = window_samples(up.window_ms, fs, polyorder=3, minimum=5) if up.window_ms > 0 else 1
-        i_peak, pv = self.peak(g, end, ip0, w_pk)
-        r["peak_mV"], r["t_peak_s"] = pv, self.t(i_peak)
         # Upstroke time.
         if s.upstroke_time_method == "dvdt_max":
             r["t_upstroke_s"] = self.t(up.index)
@@ -412,13 +453,9 @@ class _Context:
                 r["t_top_s"] = self.t(i_top)
                 r["top_mV"] = self._top_value
                 self.phase4(r, i_mdp, i_top)
-        # Repolarisation: the levels' crossings are found for all beats together (measure_beats).
-        base = r.get("mdp_mV", float(v[i_foot]))
-        amp = pv - base
-        r["_repol"] = (int(ip0), nxt if nxt < self.n else self.n, [pv - p / 100.0 * amp for p in percents], amp,
-                       cut_upstroke)
-        r["flags"] = flags
-        return r
+        # The peak is smoothed as dV/dt max was (a quartic is then fitted near its top).
+        w_pk = window_samples(up.window_ms, fs, polyorder=3, minimum=5) if up.window_ms > 0 else 1
+        return r, w_pk
 
     def peak(self, g: int, end: int, ip0: int, w: int) -> tuple[float, float]:
         """(fractional index, value) of the maximum of V in [g, end) near ``ip0``.

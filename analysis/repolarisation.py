@@ -23,7 +23,7 @@ import math
 import numpy as np
 
 from .fits import RunningSums
-from .signal import savgol_smooth, savgol_smooth_interior
+from .signal import savgol_smooth
 
 __all__ = ["first_crossings", "first_crossings_one", "refine_crossings", "refine_crossing_one"]
 
@@ -36,7 +36,7 @@ def _smooth_rows(x: np.ndarray, w: int) -> np.ndarray:
     if w <= 1:
         return x
     if w >= 31:
-        return np.stack([savgol_smooth_interior(row, w) for row in x]) if x.shape[0] < 4 else _smooth_rows_sums(x, w)
+        return _smooth_rows_sums(x, w)
     from .signal import savgol_coeffs
 
     c = savgol_coeffs(w, 3)  # reversed for convolution; symmetric for smoothing

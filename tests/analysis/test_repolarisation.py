@@ -61,3 +61,26 @@ def test_a_level_never_reached_is_nan_and_a_nan_level_is_skipped():
     assert np.isnan(got[:, 2]).all() and np.isnan(got[0, 0]) and np.isfinite(got[0, 1])
     assert refine_crossings(v, FS, got[:, 2], levels[:, 2], np.full(ip.size, 80.0), ip, limit).tolist() == \
         pytest.approx([float("nan")] * ip.size, nan_ok=True)
+
+
+def test_the_peak_and_mdp_of_many_beats_are_the_formulas_and_the_one_by_one_rules():
+    # Gaussian beats: peak base + A at the centre (formula); the diastole is flat at the base.
+    from analysis.markers import _Context
+    from analysis.settings import MeasurementSettings
+
+    v, ip, limit, _, _ = _beats(noise_mV=0.2)
+    ctx = _Context(v, FS, MeasurementSettings(), 0.2)
+    g = ip - int(W / np.sqrt(2) * FS)
+    end = np.append(ip[1:] - int(0.2 * FS), v.size)
+    w = np.full(ip.size, 21)
+    idx, val = ctx.peaks(g, end, ip, w)
+    np.testing.assert_allclose(val, 20.0, atol=0.1)  # base + A, within a third of the noise
+    np.testing.assert_allclose(idx / FS, ip / FS, atol=5e-4)  # a broad top under noise: within 2 % of its width
+    for b in range(ip.size):
+        one = ctx.peak(int(g[b]), int(end[b]), int(ip[b]), 21)
+        assert one == pytest.approx((idx[b], val[b]), abs=1e-9)
+    prev = np.concatenate(([-1], g[:-1]))
+    i_mdp, mdp = ctx.mdps(prev, g)
+    assert np.isnan(mdp[0]) and np.all(np.abs(mdp[1:] + 60.0) < 0.1)  # the flat base, -60 mV
+    for b in range(1, ip.size):
+        assert ctx.mdp(int(prev[b]), int(g[b])) == pytest.approx((i_mdp[b], mdp[b]), abs=1e-9)
