@@ -264,7 +264,7 @@ def lowpass_residual_rms(seg: np.ndarray, fs_hz: float, corner_hz: float) -> flo
     ext = np.concatenate((2.0 * x[0] - x[padlen:0:-1], x, 2.0 * x[-1] - x[-2:-padlen - 2:-1]))
     d = max(1, int(fs_hz // (50.0 * corner_hz)))
     m = (ext.size // d) * d
-    coarse = ext[:m].reshape(-1, d).mean(axis=1)
+    coarse = np.einsum("ij->i", ext[:m].reshape(-1, d)) * (1.0 / d)  # block means, one pass
     low = np.convolve(coarse, _lowpass_kernel(fs_hz / d, corner_hz), mode="same")
     centres = (np.arange(coarse.size) + 0.5) * d - 0.5
     r = x - np.interp(np.arange(padlen, padlen + n, dtype=np.float64), centres, low)
@@ -371,7 +371,7 @@ def sweep_trace_events(
             found = known[(known[:, 0] > a) & (known[:, 1] < z - 1)] - a
         vb = bridge_spans(v, found) if found.size else v
         nb = vb.size // d
-        blocks = vb[:nb * d].reshape(nb, d).mean(axis=1) if d > 1 else vb
+        blocks = np.einsum("ij->i", vb[:nb * d].reshape(nb, d)) * (1.0 / d) if d > 1 else vb
         vs = box_mean(blocks, m_ead)
         dvdt = np.gradient(vs) * (fs_hz / d) * 1e-3 if vs.size > 1 else np.zeros_like(vs)  # V/s
         vd = box_mean(blocks, m_dad)
