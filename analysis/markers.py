@@ -108,6 +108,39 @@ def _savgol_smoothing(w: int) -> np.ndarray:
     return savgol_coeffs(w, 3)
 
 
+def _slope_rows(x: np.ndarray, window: int, fs_hz: float) -> np.ndarray:
+    """:func:`analysis.signal.least_squares_slope` along each row (V/s for mV)."""
+    h = window // 2
+    m = x.shape[1] - 2 * h
+    y = x - x[:, :1]
+    j = np.arange(x.shape[1], dtype=np.float64)
+    p0 = np.zeros((x.shape[0], x.shape[1] + 1))
+    np.cumsum(y, axis=1, out=p0[:, 1:])
+    p1 = np.zeros_like(p0)
+    np.cumsum(j * y, axis=1, out=p1[:, 1:])
+    s0 = p0[:, window:] - p0[:, :m]
+    s1 = p1[:, window:] - p1[:, :m]
+    return (s1 - j[h:h + m] * s0) * (3.0 * fs_hz / (h * (h + 1) * (2 * h + 1))) / 1000.0
+
+
+def _last_below_rows(d: np.ndarray, start: np.ndarray, lo: np.ndarray, level: np.ndarray):
+    """Per row of take-off dV/dt ``d`` (column c is sample ``start + c``, the last column the
+    sample after the upstroke): where it last rises through ``level`` at or after ``lo``.
+
+    Returns ``(x, found)``; as :meth:`_Context.last_below` does on one block.
+    """
+    r, width = d.shape
+    c = np.arange(width - 1)
+    below = (d[:, :-1] < level[:, None]) & (c[None, :] >= (np.maximum(lo, start) - start)[:, None])
+    found = below.any(axis=1)
+    j = width - 2 - np.argmax(below[:, ::-1], axis=1)
+    at = np.arange(r)
+    d0, d1 = d[at, j], d[at, np.minimum(j + 1, width - 1)]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(d1 != d0, (level - d0) / (d1 - d0), 0.0)
+    return start + j + np.clip(frac, 0.0, 1.0), found
+
+
 def _quartic_max(coef: np.ndarray, u0: float, u1: float, n: int) -> tuple[float, float] | None:
     """Where in (u0, u1) the quartic ``coef`` (lowest order first) is highest, and its value.
 
@@ -224,9 +257,11 @@ def measure_beats(
     end = np.array([w[2] for w in where], np.int64).reshape(k)
     ip0 = np.array([w[3] for w in where], np.int64).reshape(k)
     i_mdp, mdp = ctx.mdps(prev, g)
+    ctx.find_feet(g, prev, i_mdp)
     repol = []
     w_pk = np.ones(k, np.int64)
     for b in range(k):
+        ctx.beat_index = b
         r, w_pk[b] = ctx.upstroke_and_takeoff(int(g[b]), int(prev[b]), int(ip0[b]), i_mdp[b], mdp[b])
         for name, value in r.items():
             if name == "i_upstroke":
@@ -290,6 +325,8 @@ class _Context:
         self.search = int(round(0.2 * fs))  # how far back an upstroke's foot is looked for
         self._slopes: tuple | None = None
         self.i_foot: list[int] = []  # each beat's foot, in the order measured
+        self.beat_index = 0
+        self.solved = self.solved_top = np.zeros(0, bool)
 
     # -- helpers -----------------------------------------------------------------------------
     def t(self, i: float) -> float:
@@ -413,6 +450,46 @@ class _Context:
             idx[b], val[b] = self.peak(int(g[b]), int(end[b]), int(ip0[b]), int(w[b]))
         return idx, val
 
+    def find_feet(self, g: np.ndarray, prev: np.ndarray, i_mdp: np.ndarray) -> None:
+        """Each beat's foot (and, for a fixed criterion, its take-off), all beats at once.
+
+        Both are where the take-off dV/dt last rises through a level before the upstroke (10 %
+        of its value at the upstroke, or the criterion), searched on the block of
+        :meth:`last_below` before each upstroke; beats whose crossing lies further back, or whose
+        block reaches an end of the samples, are left to :meth:`last_below` itself (NaN here).
+        """
+        k = g.size
+        self.feet = np.full(k, np.nan)
+        self.takeoffs = np.full(k, np.nan)
+        self.d_here = np.full(k, np.nan)
+        self.solved = np.zeros(k, bool)  # feet found here
+        self.solved_top = np.zeros(k, bool)
+        has_prev = (prev >= 0) & np.isfinite(i_mdp)
+        self.lo_foot = np.where(has_prev, np.floor(np.where(has_prev, i_mdp, 0.0)).astype(np.int64),
+                                np.maximum(np.maximum(0, g - self.search), np.where(prev >= 0, prev + 1, 0)))
+        block = max(2048, 8 * self.w_top)
+        h = self.w_top // 2
+        start = g + 1 - block
+        rows = np.flatnonzero((start - h >= 0) & (g + 2 + h <= self.n))
+        if rows.size == 0:
+            return
+        cols = np.arange(-h, block + 1 + h)
+        d = _slope_rows(self.v[start[rows, None] + cols[None, :]], self.w_top, self.fs)  # columns: start .. g + 1
+        self.d_here[rows] = d[:, block - 1]
+        level = 0.1 * self.d_here[rows]
+        x, found = _last_below_rows(d, start[rows], self.lo_foot[rows], level)
+        rising = self.d_here[rows] > 0
+        ok = rising & (found | (self.lo_foot[rows] >= start[rows]))  # found, or none down to the MDP
+        self.feet[rows[ok & found]] = x[ok & found]
+        self.solved[rows[ok]] = True
+        s = self.s
+        if s.top_method in ("dvdt_criterion", "linear_fits"):
+            top_lo = np.ceil(np.where(has_prev, i_mdp, 0.0)).astype(np.int64)[rows]
+            x, found = _last_below_rows(d, start[rows], top_lo, np.full(rows.size, s.top_dvdt_V_per_s))
+            ok = has_prev[rows] & (found | (top_lo >= start[rows]))
+            self.takeoffs[rows[ok & found]] = x[ok & found]
+            self.solved_top[rows[ok]] = True
+
     def upstroke_and_takeoff(self, g: int, prev: int, ip0: int, i_mdp: float, mdp: float) -> tuple[dict, int]:
         """The markers of one beat from its MDP to its upstroke, and the peak's smoothing window.
 
@@ -427,9 +504,13 @@ class _Context:
         # Foot of the upstroke: where the take-off dV/dt last rises through 10 % of its value here.
         lo = int(i_mdp) if not math.isnan(i_mdp) else max(0, g - self.search, prev + 1 if prev >= 0 else 0)
         self._slopes = None  # the take-off dV/dt before this upstroke, shared by foot and take-off
-        d_g, off = self.slope(g, g + 1)
-        d_here = float(d_g[g - off])
-        foot = self.last_below(0.1 * d_here, lo, g) if d_here > 0 else math.nan
+        b = self.beat_index
+        if self.solved[b]:
+            foot = float(self.feet[b])
+        else:
+            d_g, off = self.slope(g, g + 1)
+            d_here = float(d_g[g - off])
+            foot = self.last_below(0.1 * d_here, lo, g) if d_here > 0 else math.nan
         i_foot = int(foot) if not math.isnan(foot) else lo
         self.i_foot.append(i_foot)
         up = upstroke_velocity(
@@ -553,7 +634,11 @@ class _Context:
         self._top_value = math.nan
         if s.top_method in ("dvdt_criterion", "dvdt_fraction", "linear_fits"):
             level = s.top_dvdt_V_per_s if s.top_method != "dvdt_fraction" else s.top_fraction * up.dvdt_max_V_per_s
-            x = self.last_below(level, lo, g)
+            b = self.beat_index
+            if s.top_method != "dvdt_fraction" and self.solved_top[b]:
+                x = float(self.takeoffs[b])  # found with every beat's foot (find_feet)
+            else:
+                x = self.last_below(level, lo, g)
             if math.isnan(x):
                 return x
             if s.top_method != "linear_fits":
