@@ -451,13 +451,44 @@ def poly_lsq(x: np.ndarray, y: np.ndarray, deg: int) -> np.ndarray:
     """
     x = np.asarray(x, dtype=np.float64)
     y = np.asarray(y, dtype=np.float64)
-    vander = np.vander(x, deg + 1, increasing=True)
-    gram = np.einsum("ij,ik->jk", vander, vander)
-    rhs = np.einsum("ij,i->j", vander, y)
-    try:
-        return np.linalg.solve(gram, rhs)
-    except np.linalg.LinAlgError:
+    # The moments sum(x^p) and sum(x^p y), then the small symmetric system solved in Python:
+    # for fits of tens to hundreds of samples, each numpy call costs more than its arithmetic.
+    moments, rhs = [], []
+    xp = np.ones_like(x)
+    for p in range(2 * deg + 1):
+        moments.append(float(xp.sum()))
+        if p <= deg:
+            rhs.append(float((xp * y).sum()))
+        if p < 2 * deg:
+            xp = xp * x
+    sol = _solve_small([[moments[r + c] for c in range(deg + 1)] for r in range(deg + 1)], rhs)
+    if sol is None:
         return np.polynomial.polynomial.polyfit(x, y, deg)
+    return np.array(sol)
+
+
+def _solve_small(a: list[list[float]], b: list[float]) -> list[float] | None:
+    """``a x = b`` for a small system, by Gaussian elimination with partial pivoting (None when
+    singular)."""
+    n = len(b)
+    m = [row[:] + [b[i]] for i, row in enumerate(a)]
+    for col in range(n):
+        piv = max(range(col, n), key=lambda r: abs(m[r][col]))
+        if m[piv][col] == 0.0:
+            return None
+        m[col], m[piv] = m[piv], m[col]
+        inv = 1.0 / m[col][col]
+        for r in range(col + 1, n):
+            f = m[r][col] * inv
+            if f:
+                row_r, row_c = m[r], m[col]
+                for c in range(col, n + 1):
+                    row_r[c] -= f * row_c[c]
+    out = [0.0] * n
+    for r in range(n - 1, -1, -1):
+        acc = m[r][n] - sum(m[r][c] * out[c] for c in range(r + 1, n))
+        out[r] = acc / m[r][r]
+    return out
 
 
 def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int = 200) -> tuple[float, float]:
