@@ -36,6 +36,8 @@ def _smooth_rows(x: np.ndarray, w: int) -> np.ndarray:
     if w <= 1:
         return x
     if w >= 31:
+        # Running sums cost the same for any window (a shifted sum costs two passes per tap);
+        # they agree with the convolution to well under a microvolt.
         return _smooth_rows_sums(x, w)
     from .signal import savgol_coeffs
 
@@ -51,9 +53,11 @@ def _smooth_rows_sums(x: np.ndarray, w: int) -> np.ndarray:
     """:func:`analysis.signal.savgol_smooth_interior` along each row."""
     h = w // 2
     m = x.shape[1] - 2 * h
-    ref = x[:, h:h + 1]
+    # Values near zero and indices centred on the row keep the running sums small, so that the
+    # differences of them lose few digits.
+    ref = x.mean(axis=1, keepdims=True)
     y = x - ref
-    j = np.arange(x.shape[1], dtype=np.float64)
+    j = np.arange(x.shape[1], dtype=np.float64) - x.shape[1] // 2
     p = np.zeros((3, x.shape[0], x.shape[1] + 1))
     np.cumsum(y, axis=1, out=p[0, :, 1:])
     jy = j * y
