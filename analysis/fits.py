@@ -1,8 +1,14 @@
-"""Small least-squares fits run many times per beat, written without threaded BLAS calls."""
+"""Small least-squares fits run many times per beat, written without threaded BLAS calls.
+
+Polynomials through a few tens to hundreds of samples (:func:`poly_lsq`, :func:`quadratic_fit`,
+:class:`RunningSums`) and the tops of peaks (:func:`parabolic_peak`, :func:`top_fit_peak`).
+"""
+
+import math
 
 import numpy as np
 
-__all__ = ["quadratic_fit", "quadratic_from_sums", "RunningSums"]
+__all__ = ["quadratic_fit", "quadratic_from_sums", "RunningSums", "poly_lsq", "parabolic_peak", "top_fit_peak"]
 
 
 def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
@@ -78,3 +84,124 @@ class RunningSums:
         sj2y = s2 - 2.0 * i * s1 + i * i * s0
         c0, c1, c2 = quadratic_from_sums(b - a, float(s0), float(sjy), float(sj2y), u0)
         return c0 + self.ref, c1, c2
+
+
+def parabolic_peak(y: np.ndarray, i: int) -> tuple[float, float]:
+    """Sub-sample position and height of a peak at sample ``i`` from a parabola through 3 samples.
+
+    Returns ``(offset, value)`` with ``offset`` in samples, within [-0.5, 0.5]; at an edge the
+    sample itself.
+    """
+    if i <= 0 or i >= len(y) - 1:
+        return 0.0, float(y[i])
+    a, b, c = float(y[i - 1]), float(y[i]), float(y[i + 1])
+    den = a - 2.0 * b + c
+    if den >= 0:
+        return 0.0, b
+    off = 0.5 * (a - c) / den
+    off = min(max(off, -0.5), 0.5)
+    return off, b - 0.25 * (a - c) * off
+
+
+def poly_lsq(x: np.ndarray, y: np.ndarray, deg: int) -> np.ndarray:
+    """Least-squares polynomial coefficients, lowest order first (as numpy.polynomial).
+
+    Solved from the normal equations built with plain sums: for the few-hundred-sample fits
+    done per beat this avoids multithreaded BLAS calls, whose start-up costs more than the fit
+    on a busy machine. ``x`` should be scaled to about [-1, 1] by the caller.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    # The moments sum(x^p) and sum(x^p y), then the small symmetric system solved in Python:
+    # for fits of tens to hundreds of samples, each numpy call costs more than its arithmetic.
+    moments, rhs = [], []
+    xp = np.ones_like(x)
+    for p in range(2 * deg + 1):
+        moments.append(float(xp.sum()))
+        if p <= deg:
+            rhs.append(float((xp * y).sum()))
+        if p < 2 * deg:
+            xp = xp * x
+    sol = _solve_small([[moments[r + c] for c in range(deg + 1)] for r in range(deg + 1)], rhs)
+    if sol is None:
+        return np.polynomial.polynomial.polyfit(x, y, deg)
+    return np.array(sol)
+
+
+def _solve_small(a: list[list[float]], b: list[float]) -> list[float] | None:
+    """``a x = b`` for a small system, by Gaussian elimination with partial pivoting (None when
+    singular)."""
+    n = len(b)
+    m = [row[:] + [b[i]] for i, row in enumerate(a)]
+    for col in range(n):
+        piv = max(range(col, n), key=lambda r: abs(m[r][col]))
+        if m[piv][col] == 0.0:
+            return None
+        m[col], m[piv] = m[piv], m[col]
+        inv = 1.0 / m[col][col]
+        for r in range(col + 1, n):
+            f = m[r][col] * inv
+            if f:
+                row_r, row_c = m[r], m[col]
+                for c in range(col, n + 1):
+                    row_r[c] -= f * row_c[c]
+    out = [0.0] * n
+    for r in range(n - 1, -1, -1):
+        acc = m[r][n] - sum(m[r][c] * out[c] for c in range(r + 1, n))
+        out[r] = acc / m[r][r]
+    return out
+
+
+def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int = 200) -> tuple[float, float]:
+    """Position and height of a peak from a least-squares cubic (or parabola) through its top.
+
+    The curve is fitted to the contiguous samples around ``i`` that are at least ``fraction``
+    of the peak's height (at least the 3 samples around it), so that on a broad, noisy peak many
+    samples are averaged (no bias from taking the largest of noisy samples) while on a sharp one
+    it reduces to the three-point parabola; a cubic (from 7 samples on) follows an asymmetric top
+    without shifting its position. Returns ``(offset, value)``, ``offset`` in samples.
+    """
+    n = len(y)
+    peak = float(y[i])
+    if n < 3 or peak <= 0:
+        return parabolic_peak(y, i) if 0 < i < n - 1 else (0.0, peak)
+    level = fraction * peak
+    # The contiguous run of samples at or above the level around i (at most max_half each side).
+    a, b = max(0, i - max_half), min(n, i + max_half + 1)
+    below = np.flatnonzero(np.asarray(y[a:b]) < level) + a
+    k = int(np.searchsorted(below, i))
+    lo = int(below[k - 1]) + 1 if k > 0 else a
+    hi = int(below[k]) - 1 if k < below.size else b - 1
+    if hi - lo < 3:
+        return parabolic_peak(y, i)
+    x = np.arange(lo, hi + 1, dtype=np.float64) - i
+    yy = np.asarray(y[lo:hi + 1], dtype=np.float64)
+    if hi - lo >= 6:
+        # A cubic follows an asymmetric top (an upstroke's dV/dt rises and falls at different rates).
+        scale = max(abs(x[0]), abs(x[-1]), 1.0)
+        c = poly_lsq(x / scale, yy, 3)
+        best = None
+        # Where the cubic's slope c1 + 2 c2 u + 3 c3 u^2 is zero (closed form).
+        qa, qb, qc = 3.0 * c[3], 2.0 * c[2], c[1]
+        disc = qb * qb - 4.0 * qa * qc
+        if disc < 0:
+            roots: tuple = ()
+        else:
+            # The cancellation-free form of the quadratic formula (a nearly parabolic top has
+            # a tiny cubic term).
+            q = -0.5 * (qb + math.copysign(math.sqrt(disc), qb))
+            roots = tuple(r for r in ((q / qa) if qa != 0.0 else None, (qc / q) if q != 0.0 else None) if r is not None)
+        for u in roots:
+            if x[0] <= u * scale <= x[-1]:
+                val = c[0] + u * (c[1] + u * (c[2] + u * c[3]))
+                if best is None or val > best[1]:
+                    best = (u * scale, val)
+        if best is not None:
+            return float(best[0]), float(best[1])
+    c0, c1, c2 = poly_lsq(x, yy, 2)
+    if c2 >= 0:
+        return parabolic_peak(y, i)
+    off = -c1 / (2 * c2)
+    if not (x[0] <= off <= x[-1]):
+        return parabolic_peak(y, i)
+    return float(off), float(c0 - c1 * c1 / (4 * c2))
