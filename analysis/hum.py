@@ -169,12 +169,14 @@ def hum_survey(
     starts = [0] if n <= width else np.linspace(0, n - width, min(pieces, max(1, n // width))).astype(int)
     hits = np.zeros(len(pairs), int)
     sds = []
-    for a in starts:
+    need = max(1, (len(starts) + 1) // 2)
+    for done, a in enumerate(starts, 1):
         b = min(n, int(a) + width)
         amps, sd = _piece_fit(np.asarray(load(int(a), b), dtype=np.float64), fs_hz, int(a), pairs, m, min_mV)
         hits += amps > 0
         sds.append(sd)
-    need = max(1, (len(starts) + 1) // 2)
+        if (hits + (len(starts) - done)).max() < need:
+            break  # no component can reach half the pieces any more
     found = tuple(p for p, h in zip(pairs, hits) if h >= need)
     return HumSurvey(found, float(np.median(sds))) if found else HumSurvey()
 
