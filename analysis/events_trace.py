@@ -11,12 +11,12 @@ does not depend on the chunking.
 
 from __future__ import annotations
 
-import functools
 import math
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 from .detect import bridge_spans, estimate_noise_mV, find_spikes
+from .diastolic_noise import lowpass_residual_rms, residual_rms_many
 from .settings import DetectionSettings
 from .table import BeatTable
 
@@ -235,42 +235,6 @@ def box_mean(x: np.ndarray, width: int) -> np.ndarray:
     return (c[width:] - c[:-width]) * (1.0 / width) + ref
 
 
-@functools.lru_cache(maxsize=32)
-def _lowpass_kernel(rate_hz: float, corner_hz: float) -> np.ndarray:
-    """Samples (at ``rate_hz``) of the impulse response whose spectrum is ``1 / (1 + (f/fc)^4)``.
-
-    That is the gain of a second-order Butterworth low-pass run forward and backward (the square
-    of its magnitude, no phase): ``h(t) = (wc / 2 sqrt 2) exp(-a |t|) (cos a t + sin a |t|)``,
-    ``a = wc / sqrt 2``, taken to 10 time constants and scaled to unit sum.
-    """
-    a = 2.0 * math.pi * corner_hz / math.sqrt(2.0)
-    k = int(math.ceil(10.0 / a * rate_hz))
-    t = np.arange(-k, k + 1) / rate_hz
-    h = np.exp(-a * np.abs(t)) * (np.cos(a * t) + np.sin(a * np.abs(t)))
-    return h / h.sum()
-
-
-def lowpass_residual_rms(seg: np.ndarray, fs_hz: float, corner_hz: float) -> float:
-    """rms of ``seg`` minus its zero-phase low-pass at ``corner_hz`` (second-order Butterworth,
-    forward and backward), the ends extended by odd reflection over three corner periods.
-
-    The low-pass output is slow, so it is computed on the stretch averaged down to 50 samples
-    per corner period and interpolated back to every sample: within 0.1 % of the filter run at
-    the full rate (scipy.signal.sosfiltfilt), without a recursive filter per beat.
-    """
-    x = np.asarray(seg, dtype=np.float64)
-    n = x.size
-    padlen = min(n - 1, 3 * int(round(fs_hz / corner_hz)))
-    ext = np.concatenate((2.0 * x[0] - x[padlen:0:-1], x, 2.0 * x[-1] - x[-2:-padlen - 2:-1]))
-    d = max(1, int(fs_hz // (50.0 * corner_hz)))
-    m = (ext.size // d) * d
-    coarse = np.einsum("ij->i", ext[:m].reshape(-1, d)) * (1.0 / d)  # block means, one pass
-    low = np.convolve(coarse, _lowpass_kernel(fs_hz / d, corner_hz), mode="same")
-    centres = (np.arange(coarse.size) + 0.5) * d - 0.5
-    r = x - np.interp(np.arange(padlen, padlen + n, dtype=np.float64), centres, low)
-    return float(math.sqrt((r * r).sum() / n))
-
-
 def sweep_trace_events(
     source: Any,
     sweep: int,
@@ -379,10 +343,11 @@ def sweep_trace_events(
         for b in range(b0, b1):
             _ead(b, coarse, vb, vs, dvdt, i_peak, i_apd90, peak, apa, w_ead, quality, out)
             _dad(b, coarse, vd, i_apd90, i_top, i_up, k, n, w_dad, quality, out)
-            if i_mdp[b] >= 0 and i_top[b] > i_mdp[b]:
-                seg = v[i_mdp[b] - a:i_top[b] - a + 1]
-                if seg.size >= 2 * pad:
-                    out["noise_mV_rms"][b] = lowpass_residual_rms(seg, fs_hz, corner_hz)
+        # The diastoles' noise, all of this window's at once (unbridged: a spike there counts).
+        rows = np.arange(b0, b1)
+        rows = rows[(i_mdp[rows] >= 0) & (i_top[rows] - i_mdp[rows] + 1 >= 2 * pad)]
+        if rows.size:
+            out["noise_mV_rms"][rows] = residual_rms_many(v, i_mdp[rows] - a, i_top[rows] - a + 1, fs_hz, corner_hz)
         b0 = b1
     with np.errstate(invalid="ignore"):
         out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)

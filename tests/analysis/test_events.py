@@ -304,3 +304,14 @@ def test_the_moving_average_and_the_noise_filter_match_scipy():
     sos = butter(2, 20.0, fs=fs, output="sos")
     ref = seg - sosfiltfilt(sos, seg, padtype="odd", padlen=3 * 1000)  # scipy.signal (reference library)
     assert lowpass_residual_rms(seg, fs, 20.0) == pytest.approx(float(np.sqrt(np.mean(ref**2))), rel=2e-3)
+    # every diastole of a stretch at once, against the same reference library
+    from analysis.diastolic_noise import residual_rms_many
+
+    trace = np.concatenate((seg, seg[::-1] + 3.0, seg[: int(0.15 * fs)]))
+    starts, stops = np.array([0, seg.size, 2 * seg.size]), np.array([seg.size, 2 * seg.size, trace.size])
+    want = []
+    for a, b in zip(starts, stops):
+        part = trace[a:b]
+        r = part - sosfiltfilt(sos, part, padtype="odd", padlen=min(part.size - 1, 3 * 1000))  # scipy.signal
+        want.append(float(np.sqrt(np.mean(r**2))))
+    np.testing.assert_allclose(residual_rms_many(trace, starts, stops, fs, 20.0), want, rtol=2e-3)
