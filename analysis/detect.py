@@ -413,19 +413,58 @@ def _cumsum0(x: np.ndarray) -> np.ndarray:
     return c
 
 
-def _box_slope(x: np.ndarray, h: int, fs_hz: float) -> np.ndarray:
-    """Smoothed dV/dt (V/s for mV): mean of the next h samples minus mean of the previous h, / h dt."""
+def _box_slope(x: np.ndarray, h: int, fs_hz: float, c: np.ndarray | None = None) -> np.ndarray:
+    """Smoothed dV/dt (V/s for mV): mean of the next h samples minus mean of the previous h, / h dt.
+
+    ``c`` is the running sum of ``x - x[0]`` with a leading 0 when the caller has it.
+    """
     n = x.size
-    c = _cumsum0(x)
+    if c is None:
+        c = _cumsum0(x)
     out = np.zeros(n)
     if n > 2 * h + 1:
-        # i from h to n-h-2: left = mean x[i-h:i], right = mean x[i+1:i+h+1]
+        # i from h to n-h-2: left = mean x[i-h:i], right = mean x[i+1:i+h+1]; their difference
+        # from the sums directly (the h's cancel into one scale)
         i0, i1 = h, n - h - 1
-        left = (c[i0:i1] - c[0:i1 - h]) / h
-        right = (c[i0 + h + 1:i1 + h + 1] - c[i0 + 1:i1 + 1]) / h
-        out[i0:i1] = (right - left) / (h + 1) * fs_hz / 1000.0
+        out[i0:i1] = ((c[i0 + h + 1:i1 + h + 1] - c[i0 + 1:i1 + 1]) - (c[i0:i1] - c[0:i1 - h])) * (
+            fs_hz / 1000.0 / (h * (h + 1)))
         out[:i0] = out[i0]
         out[i1:] = out[i1 - 1]
+    return out
+
+
+def _mean_from_sums(x: np.ndarray, m: int, c: np.ndarray) -> np.ndarray:
+    """:func:`analysis.signal.moving_mean` of ``x`` over ``m`` (odd) samples from its running sum ``c``."""
+    if m <= 1 or x.size == 0:
+        return x
+    n = x.size
+    h = m // 2
+    out = np.empty(n)
+    if n > 2 * h:
+        out[h:n - h] = (c[m:] - c[:n + 1 - m]) * (1.0 / m)
+    edge = np.r_[0:min(h, n), max(h, n - h):n]
+    a = np.clip(edge - h, 0, n)
+    b = np.clip(edge + h + 1, 0, n)
+    out[edge] = (c[b] - c[a]) / (b - a)
+    return out + x[0]
+
+
+def _ramps(offset: int, size: int, centres: list[float], values: list[float]) -> np.ndarray:
+    """``np.interp`` of ``values`` at ``centres`` over the samples ``offset .. offset + size - 1``,
+    one straight line per interval between centres (flat beyond the ends)."""
+    out = np.empty(size)
+    x0 = offset
+    cs = np.asarray(centres, dtype=np.float64)
+    vs = np.asarray(values, dtype=np.float64)
+    # Sample boundaries of the intervals between centres.
+    cut = np.clip(np.ceil(cs - x0).astype(np.int64), 0, size)
+    out[:cut[0]] = vs[0]
+    out[cut[-1]:] = vs[-1]
+    for k in range(cs.size - 1):
+        a, b = cut[k], cut[k + 1]
+        if b > a:
+            t = (np.arange(a, b, dtype=np.float64) + (x0 - cs[k])) * ((vs[k + 1] - vs[k]) / (cs[k + 1] - cs[k]))
+            out[a:b] = t + vs[k]
     return out
 
 
@@ -445,15 +484,15 @@ def _levels(vs: np.ndarray, offset: int, lo: int, hi: int, block: int, n_total: 
         centres.append(0.5 * (a + b))
         low.append(p1 + s.low_fraction * span)
         high.append(p1 + s.high_fraction * span)
-    x = np.arange(offset, offset + vs.size, dtype=np.float64)
-    return np.interp(x, centres, low), np.interp(x, centres, high)
+    return _ramps(offset, vs.size, centres, low), _ramps(offset, vs.size, centres, high)
 
 
 def _detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total, core):
     m = max(1, int(round(s.smoothing_ms * 1e-3 * fs_hz))) | 1
-    vs = _moving_mean(v, m)
+    c = _cumsum0(v)  # one running sum for the smoothing and the smoothed dV/dt
+    vs = _mean_from_sums(v, m, c)
     h_der = max(1, int(round(s.derivative_window_ms * 1e-3 * fs_hz / 2)))
-    dvs = _box_slope(v, h_der, fs_hz)
+    dvs = _box_slope(v, h_der, fs_hz, c)
     lo_lvl, hi_lvl = _levels(vs, offset, levels_from[0], levels_from[1], block, n_total, s)
     state = np.zeros(vs.size, np.int8)
     state[vs < lo_lvl] = -1
