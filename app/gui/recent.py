@@ -6,13 +6,13 @@ Qt's per-user configuration location for the app.
 
 from __future__ import annotations
 
-import contextlib
 import json
 import os
-import tempfile
 from pathlib import Path
 
-__all__ = ["config_dir", "RecentFiles", "MAX_RECENT", "write_text_replacing"]
+from analysis.atomic import write_text_atomic
+
+__all__ = ["config_dir", "RecentFiles", "MAX_RECENT"]
 
 MAX_RECENT = 12
 
@@ -29,22 +29,6 @@ def config_dir() -> Path:
         path = Path(base) if base else Path.home() / ".config" / "upstroke"
     path.mkdir(parents=True, exist_ok=True)
     return path
-
-
-def write_text_replacing(path: Path, text: str) -> None:
-    """Write a small file through a temporary file and a rename, so a crash leaves the old one."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.remove(tmp)
-        raise
 
 
 class RecentFiles:
@@ -65,7 +49,8 @@ class RecentFiles:
         full = str(Path(file_path).resolve())
         items = [full] + [p for p in self.load() if p != full]
         items = items[:MAX_RECENT]
-        write_text_replacing(self.path, json.dumps(items, indent=1))
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        write_text_atomic(self.path, json.dumps(items, indent=1))
         return items
 
     def existing(self) -> list[str]:
