@@ -58,10 +58,10 @@ def stored_recordings(session: "Session") -> list[StoredRecording]:
     return out
 
 
-def save_session(session: "Session", path: str | os.PathLike) -> None:
-    """Write a session atomically (see :func:`analysis.store.save_results`)."""
+def save_session(session: "Session", path: str | os.PathLike, *, atomic: bool = True) -> None:
+    """Write a session atomically (see :func:`analysis.store.save_results` for ``atomic``)."""
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
-    save_results(path, ResultsFile(stored_recordings(session), default))
+    save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
 
 
 def _settings(text: str, path: str, label: str):

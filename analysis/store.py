@@ -26,6 +26,7 @@ recording was analysed) and the decisions' own times carry a clock.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import platform
@@ -221,7 +222,9 @@ def _write_recording(group, r: StoredRecording, results_folder: str) -> None:
         _set_text_attr(prov, key, r.provenance[key])
 
 
-def save_results(path: str | os.PathLike, results: ResultsFile | Sequence[StoredRecording]) -> None:
+def save_results(
+    path: str | os.PathLike, results: ResultsFile | Sequence[StoredRecording], *, atomic: bool = True,
+) -> None:
     """Write a results file atomically.
 
     Parameters
@@ -229,6 +232,10 @@ def save_results(path: str | os.PathLike, results: ResultsFile | Sequence[Stored
     path : str or path
         The file to write. An existing file is replaced only once the new one is complete.
     results : ResultsFile or sequence of StoredRecording
+    atomic : bool
+        False when ``path`` is itself a temporary file that the caller moves into place (a
+        command writing several outputs all or none): it is then written directly, without a
+        second temporary file beside it that a kill could strand.
 
     Raises
     ------
@@ -243,7 +250,7 @@ def save_results(path: str | os.PathLike, results: ResultsFile | Sequence[Stored
         raise ResultsFileError(path, "its folder does not exist", "create the folder or choose another place")
     content = results if isinstance(results, ResultsFile) else ResultsFile(list(results))
     try:
-        with atomic_output(target) as tmp:
+        with atomic_output(target) if atomic else contextlib.nullcontext(target) as tmp:
             with h5py.File(tmp, "w", libver=("earliest", "v110"), track_order=False) as f:
                 _set_text_attr(f, "format", FORMAT_NAME)
                 f.attrs["schema_version"] = np.int64(SCHEMA_VERSION)

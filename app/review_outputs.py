@@ -136,17 +136,17 @@ def review(args: argparse.Namespace, results: Sequence, settings, saved=None) ->
 
 
 def write_summary(results: Sequence, path: str) -> None:
-    """Write the summary CSV of the session :func:`review` built."""
-    from analysis.atomic import write_text_atomic
+    """Write the summary CSV of the session :func:`review` built to ``path`` (a temporary file the command moves into place)."""
     from analysis.summary import summary_csv
 
-    write_text_atomic(path, summary_csv(results.session.summary_table(results.keys)))
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        fh.write(summary_csv(results.session.summary_table(results.keys)))
 
 
 def write_results(results: Sequence, path: str) -> None:
     """Save the session :func:`review` built to ``path`` (a temporary file the command moves into place)."""
     from analysis.session_io import save_session
 
-    save_session(results.session, path)
+    save_session(results.session, path, atomic=False)
     for label, n in results.kept.items():
         print(f"{label}: kept its {n} saved review decision(s)")

@@ -119,13 +119,12 @@ def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Cal
 
 
 def _write_csv(results: Sequence, path: str) -> None:
-    from analysis.atomic import atomic_output
+    # ``path`` is the temporary file write_outputs moves into place.
     from analysis.table import BeatTable
 
     table = BeatTable.concat([r.beats for r in results])
-    with atomic_output(path) as tmp:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            table.to_csv(fh)
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        table.to_csv(fh)
 
 
 #: ``(argument name, writer(results, path))`` for each output option, in the order written.

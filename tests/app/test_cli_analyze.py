@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import os
 
 import numpy as np
 import pytest
@@ -47,6 +48,33 @@ def test_writes_the_beats_csv_and_a_summary(tmp_path, capsys):
     assert float(rows[1]["cl_ms"]) == pytest.approx(500.0, abs=0.05)  # construction (int16 steps of the ABF)
     assert f"{path}: {len(centres)} beats ({len(centres)} accepted)" in out and "mean CL 500.0 ms" in out
     assert f"wrote {out_csv}" in out
+
+
+def test_each_output_has_one_temporary_file_beside_it(tmp_path, capsys, monkeypatch):
+    """All three outputs are written straight into the temporary files the command moves into
+    place: none is wrapped in a second temporary file, which a kill between the two moves would
+    strand under a name the next run does not clean up (common practice, no source)."""
+    import tempfile
+
+    import analysis.atomic
+
+    path, _ = _cell(tmp_path)
+    made = []
+    real_mkstemp = tempfile.mkstemp
+
+    def recording_mkstemp(*a, **kw):
+        fd, name = real_mkstemp(*a, **kw)
+        made.append(name)
+        return fd, name
+
+    monkeypatch.setattr(analysis.atomic.tempfile, "mkstemp", recording_mkstemp)
+    targets = [tmp_path / "beats.csv", tmp_path / "summary.csv", tmp_path / "results.h5"]
+    code, _, err = _analyze(capsys, path, "--csv", targets[0], "--summary-csv", targets[1], "--out", targets[2])
+    assert code == 0, err
+    prefixes = sorted(f".{t.name}.tmp-{os.getpid()}-" for t in targets)
+    assert sorted(os.path.basename(m)[: len(p)] for m, p in zip(sorted(made), prefixes)) == prefixes
+    assert not [m for m in made if os.path.exists(m)]
+    assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == []
 
 
 def test_several_files_go_into_one_table_labelled_as_given(tmp_path, capsys, monkeypatch):
