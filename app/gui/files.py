@@ -1,4 +1,5 @@
-"""Files from the main window: open by dialog or drop, save and save as, CSV and figure export.
+"""Files from the main window: open by dialog or drop, save, save as and revert to saved, CSV and
+figure export.
 
 Saving goes through the core's session (an atomic write of the results file); exports write a
 temporary file and move it over the target, so a failed export never leaves half a file.
@@ -72,6 +73,47 @@ class FilesMixin:
         self.recent.add(path)
         self._fill_recent_menu()
         self.status(f"saved {path}")
+        return True
+
+    def revert_to_saved(self) -> bool:
+        """Throw away every change since the results file was saved and show it as saved.
+
+        The autosave journals of the file's recordings go too: the changes were discarded on
+        purpose, so the next start must not offer to recover them. The file is read before
+        anything is let go; when it cannot be read, nothing changes. True when reverted.
+        """
+        path = self.results_path
+        if not path:
+            self.show_error("nothing to revert to: the review has not been saved to a results file yet")
+            return False
+        if self.interactive and self.session.modified:
+            answer = QtWidgets.QMessageBox.question(
+                self, "Upstroke",
+                f"Revert to {os.path.basename(path)} as it was saved? The changes made since are lost, "
+                "and undo cannot bring them back.",
+                QtWidgets.QMessageBox.Yes | QtWidgets.QMessageBox.Cancel, QtWidgets.QMessageBox.Cancel,
+            )
+            if answer != QtWidgets.QMessageBox.Yes:
+                return False
+        from analysis.session import Session
+
+        from .autosave import Journal
+
+        try:
+            saved = Session.open(path)
+        except InputError as exc:
+            self.show_error(exc.one_line())
+            return False
+        shown = self.key
+        if self.journal is not None:
+            self.journal.discard()
+        for key in {*self.session.recordings, *saved.recordings}:
+            Journal(path, key).discard()
+        self.open_results(path, session=saved)
+        if shown in saved.recordings and shown != self.key:
+            self.select_recording(shown)
+            self._fill_recording_combo()
+        self.status(f"reverted to {path} as saved")
         return True
 
     def export_beats_csv(self, path: str | os.PathLike) -> None:

@@ -84,6 +84,9 @@ class LoadingMixin:
         self.runner.cancel_all()
         self._set_session(Session(self.settings_form.settings))
         self.key = None
+        # A recording opened on its own has no results file yet: saving asks where (it must not
+        # write over the results file shown before).
+        self.results_path = None
         self.origin = origin or recording.source_path or label or "recording"
         self.recording = recording
         self._label = label
@@ -97,10 +100,14 @@ class LoadingMixin:
         else:
             self._start_analysis(recording, self.channel)
 
-    def open_results(self, path: str) -> None:
-        """Open a results file: its recordings, decisions, conditions and settings."""
+    def open_results(self, path: str, *, session: Session | None = None) -> None:
+        """Open a results file: its recordings, decisions, conditions and settings.
+
+        ``session`` is the file already read by :meth:`Session.open` (so that a caller can
+        check the file opens before it lets go of anything).
+        """
         self.runner.cancel_all()
-        session = Session.open(path)
+        session = Session.open(path) if session is None else session
         self._set_session(session)
         self.origin = path
         self.results_path = path

@@ -212,6 +212,8 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.recent_menu = file_menu.addMenu("Open &recent")
         self.act_save = self._action(file_menu, "&Save results", self.save, K.StandardKey.Save, tip="Save results, decisions, conditions and settings (.h5)")
         self._action(file_menu, "Save results &as…", self.save_as, K.StandardKey.SaveAs)
+        self.act_revert = self._action(file_menu, "Re&vert to saved results", self.revert_to_saved,
+                                       tip="Drop every change since the results file was saved")
         file_menu.addSeparator()
         self._action(file_menu, "Export &beats CSV…", lambda: self._export_dialog("beats"))
         self._action(file_menu, "Export s&ummary CSV…", lambda: self._export_dialog("summary"))
@@ -386,6 +388,7 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.act_undo.setText(f"&Undo {s.undo_text.lower()}" if s.can_undo else "&Undo")
         self.act_redo.setText(f"&Redo {s.redo_text.lower()}" if s.can_redo else "&Redo")
         self.setWindowModified(s.modified)
+        self.act_revert.setEnabled(bool(self.results_path) and s.modified)
 
     def _autosave(self, event: str, key: str, _rows: list) -> None:
         if event in ("decisions_changed", "conditions_changed", "settings_changed") and key and key == self.key and self.journal:
