@@ -169,6 +169,7 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
     """
     targets = [os.path.abspath(os.fspath(p)) for p in paths]
     temps: list[str] = []
+    current = None  # the target being flushed or moved, once the writers are done
     try:
         for target in targets:
             _remove_stale(target)
@@ -177,9 +178,11 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
             temps.append(tmp)
         yield list(temps)
         for tmp, target in zip(temps, targets):
+            current = target
             _fsync_path(tmp)
             os.chmod(tmp, _mode_for(target))
         for tmp, target in zip(temps, targets):
+            current = target
             os.replace(tmp, target)
     except BaseException as exc:
         for tmp in temps:
@@ -188,7 +191,7 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
         if isinstance(exc, (OSError, WriteError)):
             # Name the output the user asked for, not its temporary file.
             where = getattr(exc, "path", None) or getattr(exc, "filename", None) or ""
-            target = next(
+            target = current or next(
                 (t for t, tmp in zip(targets, temps) if os.path.basename(tmp) in os.fspath(where)),
                 next((t for t in targets if temp_prefix(t) in os.fspath(where)), targets[0] if targets else where),
             )
