@@ -18,6 +18,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from .chunkpool import run_ordered, use_workers
 from .detect import bridge_spans, detect_sweep, estimate_noise_mV
 from .errors import RecordingError, SettingsError
 from .markers import apd_name, measure_beats
@@ -170,6 +171,7 @@ def analyze(
     progress: Progress | None = None,
     *,
     label: str | None = None,
+    workers: int | None = None,
 ) -> AnalysisResult:
     """Detect and measure every beat of a current-clamp recording.
 
@@ -187,6 +189,10 @@ def analyze(
         ``progress(done, total)``, in samples worked.
     label : str or None
         The ``file`` column (default: the recording's file name, or ``"recording"``).
+    workers : int or None
+        Processes that share the chunks of a long sweep (:mod:`analysis.chunkpool`; the
+        results are the same bytes whatever the number). None: the caller's context (one
+        unless :func:`analysis.chunkpool.use_workers` says otherwise).
 
     Returns
     -------
@@ -208,6 +214,9 @@ def analyze(
     >>> len(result.beats), round(float(result.beats["cl_ms"][1]), 1)
     (5, 500.0)
     """
+    if workers is not None:
+        with use_workers(workers):
+            return analyze(recording, settings, channel, sweeps, progress, label=label)
     s = settings or Settings()
     idx, note = choose_channel(recording, channel)
     ch = recording.channels[idx]
@@ -386,40 +395,57 @@ class _Measurer:
     def __call__(self, ups: np.ndarray, prev: np.ndarray, nxt: np.ndarray, tick) -> dict[str, np.ndarray]:
         """Marker columns of beats ``ups`` (sweep indices, in order) with the given previous
         (-1: none) and next (``n``: none) upstrokes."""
-        n, fs, s = self.n, self.fs, self.s
-        parts, flags = [], []
-        k0, done_to = 0, 0
+        groups = []  # (first beat, beat after the last) of each chunk
+        k0 = 0
         while k0 < ups.size:
             start_at = int(prev[k0]) if prev[k0] >= 0 else int(ups[k0])
             k1 = k0 + 1
             while k1 < ups.size and max(nxt[k1], ups[k1]) - start_at < self.chunk and prev[k1] >= start_at:
                 k1 += 1
-            stop_at = int(nxt[k1 - 1])
-            ra, rb = max(0, int(start_at) - self.margin), min(n, stop_at + self.margin)
-            v = self.load(ra, rb)
-            # Short electrical spikes are bridged before anything is measured, as detection
-            # bridged them (MEASUREMENTS.md, Beats: a spike of a few samples is neither a beat
-            # nor part of one), and so are short artefact detections when their neighbours are
-            # measured again.
-            sp = np.concatenate((self.spikes, self.bridges))
-            sp = sp[(sp[:, 0] > ra) & (sp[:, 1] < rb - 1)] - ra
-            if sp.size:
-                v = bridge_spans(v, sp[np.argsort(sp[:, 0], kind="stable")])
-            p = np.where(prev[k0:k1] >= 0, prev[k0:k1] - ra, -1)
-            q = np.where(nxt[k0:k1] < n, nxt[k0:k1] - ra, rb - ra)
-            m = measure_beats(
-                v, fs, ups[k0:k1] - ra, i_previous=p, i_next=q, settings=s.measurement, noise_mV=self.noise,
-                sweep_end=(rb == n), offset=ra,
-            )
-            parts.append(m.columns())
-            flags.extend(";".join(f) for f in m.flags)
-            if tick is not None:
-                tick(max(0, stop_at - done_to))
-                done_to = max(done_to, stop_at)
+            groups.append((k0, k1))
             k0 = k1
-        out = {name: np.concatenate([c[name] for c in parts]) for name in parts[0]}
-        out["flags"] = np.array(flags, dtype=object)
+        done_to = [0]
+
+        def advanced(i: int, _result) -> None:
+            stop_at = int(nxt[groups[i][1] - 1])
+            if tick is not None:
+                tick(max(0, stop_at - done_to[0]))
+            done_to[0] = max(done_to[0], stop_at)
+
+        parts = run_ordered(lambda i: self._chunk(ups, prev, nxt, *groups[i]), len(groups), advanced)
+        if not parts:
+            return {}
+        out = {name: np.concatenate([c[name] for c, _ in parts]) for name in parts[0][0]}
+        out["flags"] = np.array([f for _, fl in parts for f in fl], dtype=object)
         return out
+
+    def _chunk(self, ups: np.ndarray, prev: np.ndarray, nxt: np.ndarray, k0: int, k1: int):
+        """(marker columns, flags) of beats ``k0:k1``, read as one stretch with context."""
+        n, fs, s = self.n, self.fs, self.s
+        start_at = int(prev[k0]) if prev[k0] >= 0 else int(ups[k0])
+        stop_at = int(nxt[k1 - 1])
+        ra, rb = max(0, int(start_at) - self.margin), min(n, stop_at + self.margin)
+        v = self.load(ra, rb)
+        # Short electrical spikes are bridged before anything is measured, as detection
+        # bridged them (MEASUREMENTS.md, Beats: a spike of a few samples is neither a beat
+        # nor part of one), and so are short artefact detections when their neighbours are
+        # measured again.
+        sp = np.concatenate((self.spikes, self.bridges))
+        sp = sp[(sp[:, 0] > ra) & (sp[:, 1] < rb - 1)] - ra
+        if sp.size:
+            v = bridge_spans(v, sp[np.argsort(sp[:, 0], kind="stable")])
+        p = np.where(prev[k0:k1] >= 0, prev[k0:k1] - ra, -1)
+        q = np.where(nxt[k0:k1] < n, nxt[k0:k1] - ra, rb - ra)
+        m = measure_beats(
+            v, fs, ups[k0:k1] - ra, i_previous=p, i_next=q, settings=s.measurement, noise_mV=self.noise,
+            sweep_end=(rb == n), offset=ra,
+        )
+        return m.columns(), [";".join(f) for f in m.flags]
+
+
+#: The quality settings the measurement itself reads (:func:`_chain_without_artefacts`): a change
+#: of any of them measures the beats again, where other quality settings re-run only the events.
+MEASURING_QUALITY_FIELDS = ("reject_artefact", "artefact_max_dvdt_V_per_s", "artefact_min_apd90_ms")
 
 
 def _chain_without_artefacts(merged: dict[str, np.ndarray], s: Settings):

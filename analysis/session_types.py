@@ -212,6 +212,13 @@ def scope(old: Any, new: Any) -> str:
     if changed <= {"summary"}:
         return "summary"
     if changed <= {"summary", "quality"}:
+        from .pipeline import MEASURING_QUALITY_FIELDS
+
+        # The artefact rule also decides which beats the others' cycle lengths and MDPs skip.
+        if "quality" in changed and any(
+            getattr(old.quality, f, None) != getattr(new.quality, f, None) for f in MEASURING_QUALITY_FIELDS
+        ):
+            return "analysis"
         return "events"
     return "analysis"
 

@@ -153,6 +153,28 @@ def test_settings_changes_recompute_only_what_they_affect(session):
     assert session.auto_beats(key).equals(auto) and not session.settings(key).quality.reject_ead
 
 
+@pytest.mark.parametrize("change", [("quality.reject_artefact", False), ("quality.artefact_min_apd90_ms", 5.0)])
+def test_an_artefact_rule_change_measures_the_neighbours_again(change):
+    """A wide electrical artefact (6 ms, 80 mV) is detected and rejected, and its neighbours take
+    their cycle length and MDP from the real beats around it. A change of that rule must give
+    what a fresh analysis with the new settings gives (the reference: analysis.pipeline.analyze)."""
+    from analysis.pipeline import analyze
+    from analysis.synthetic import Artefact
+
+    rec = synthesize(preset("nodal-like"), duration_s=40.0, fs_hz=10_000.0, seed=5, noise_mV=0.3,
+                     artefacts=[Artefact(33.1, 80.0, 60)]).recording
+    s = Session()
+    key = s.add(rec, label="cell-31")
+    assert any(r.startswith("auto: artefact") for r in s.auto_beats(key)["reject_reason"])
+    new = Settings().replace(*change)
+    assert s.set_settings(new) == {key: "analysis"}
+    fresh = analyze(rec, new, label="cell-31").beats
+    got = s.auto_beats(key)
+    for name in ("t_upstroke_s", "cl_ms", "mdp_mV", "apd90_ms", "accepted"):
+        assert np.array_equal(np.asarray(got[name]), np.asarray(fresh[name]), equal_nan=True), name
+    assert list(got["reject_reason"]) == list(fresh["reject_reason"])
+
+
 def test_decisions_survive_a_reanalysis_matched_by_time(session):
     key = session.recordings[0]
     session.reject(key, [3], "bump")
