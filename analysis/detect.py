@@ -47,6 +47,7 @@ from typing import Callable
 
 import numpy as np
 
+from .chunkpool import run_ordered
 from .settings import DetectionSettings
 from .signal import moving_mean as _moving_mean
 from .signal import noise_rms_mV
@@ -298,19 +299,34 @@ def detect_sweep(
     threshold = max(s.min_dvdt_V_per_s, s.noise_factor * _box_slope_noise(noise_mV, fs_hz, h_der))
     pad = pad + 4 * h_der + int(round(s.smoothing_ms * 1e-3 * fs_hz)) + 8
 
-    ups, peaks, arts, reasons = [], [], [], []
-    for core_a in range(0, n, chunk):
+    # What the loader notes on the side (the spikes it bridged) is returned with each chunk's
+    # beats, so that chunks worked in other processes (analysis.chunkpool) report it too.
+    noted = getattr(load, "spans", None)
+
+    def region(i: int):
+        core_a = i * chunk
         core_b = min(n, core_a + chunk)
         lo = max(0, core_a - overlap)
         hi = min(n, core_b + overlap)
         ra, rb = max(0, lo - pad), min(n, hi + pad)
+        before = len(noted) if noted is not None else 0
         v = np.asarray(load(ra, rb), dtype=np.float64)
-        u, p, a, r = _detect_region(v, ra, fs_hz, s, threshold, levels_from=(lo, hi), block=block, n_total=n,
-                                    core=(core_a, core_b))
+        found = _detect_region(v, ra, fs_hz, s, threshold, levels_from=(lo, hi), block=block, n_total=n,
+                               core=(core_a, core_b))
+        side = []
+        if noted is not None:
+            side = noted[before:]
+            del noted[before:]
+        return found, side
+
+    ups, peaks, arts, reasons = [], [], [], []
+    for (u, p, a, r), side in run_ordered(region, -(-n // chunk)):
         ups.append(u)
         peaks.append(p)
         arts.append(a)
         reasons.extend(r)
+        if noted is not None:
+            noted.extend(side)
     up = np.concatenate(ups) if ups else np.empty(0, np.int64)
     pk = np.concatenate(peaks) if peaks else np.empty(0, np.int64)
     art = list(np.concatenate(arts)) if arts else []
@@ -349,6 +365,7 @@ def _spike_free(load, fs_hz: float, noise_mV: float, s: DetectionSettings, spans
         spans.extend((int(p) + a, int(r) + a) for p, r in sp)
         return bridge_spans(x, sp)
 
+    load_clean.spans = spans  # type: ignore[attr-defined]
     return load_clean
 
 
@@ -389,6 +406,9 @@ def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, 
             out += x[k:m * q:q]
         out *= 1.0 / q
         return out
+
+    if hasattr(load, "spans"):
+        load_q.spans = load.spans  # type: ignore[attr-defined]
 
     det = detect_sweep(
         load_q, n // q, fs_hz / q, settings=dataclasses.replace(s, working_rate_hz=fs_hz / q),

@@ -32,6 +32,10 @@ class InputError(ValueError):
         self.fix = fix
         super().__init__(self.one_line())
 
+    def __reduce__(self):
+        # Pickled as its three parts (an error raised in a worker process reaches the parent).
+        return type(self), (self.path, self.problem, self.fix)
+
     def one_line(self) -> str:
         """The message as a single line: ``FILE: PROBLEM; FIX``."""
         text = self.problem if self.path is None else f"{self.path}: {self.problem}"

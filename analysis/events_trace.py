@@ -15,6 +15,7 @@ import math
 from typing import Any, Mapping, Sequence
 
 import numpy as np
+from .chunkpool import run_ordered
 from .detect import bridge_spans, estimate_noise_mV, find_spikes
 from .diastolic_noise import lowpass_residual_rms, residual_rms_many
 from .settings import DetectionSettings
@@ -320,11 +321,19 @@ def sweep_trace_events(
     # A spike is judged on the samples around it: the margin lets every window see it whole.
     margin += int(math.ceil((spike_rule.spike_max_ms + 2 * spike_rule.spike_guard_ms) * 1e-3 * fs_hz)) + 4
     chunk = max(int(chunk_s * fs_hz), 1)
+    windows = []  # (first beat, beat after the last) of each window
     b0 = 0
     while b0 < k:
         b1 = b0 + 1
         while b1 < k and last[b1] - first[b0] <= chunk:
             b1 += 1
+        windows.append((b0, b1))
+        b0 = b1
+
+    def window(i: int) -> dict[str, np.ndarray]:
+        # What the window finds for its own beats (the windows may be worked in other
+        # processes: analysis.chunkpool).
+        b0, b1 = windows[i]
         a = max(0, int(first[b0:b1].min()) - margin)
         a -= a % d
         z = min(n, int(last[b0:b1].max()) + margin + 1)
@@ -348,7 +357,11 @@ def sweep_trace_events(
         rows = rows[(i_mdp[rows] >= 0) & (i_top[rows] - i_mdp[rows] + 1 >= 2 * pad)]
         if rows.size:
             out["noise_mV_rms"][rows] = residual_rms_many(v, i_mdp[rows] - a, i_top[rows] - a + 1, fs_hz, corner_hz)
-        b0 = b1
+        return {name: values[b0:b1] for name, values in out.items()}
+
+    for (b0, b1), found_here in zip(windows, run_ordered(window, len(windows))):
+        for name, values in found_here.items():
+            out[name][b0:b1] = values
     with np.errstate(invalid="ignore"):
         out["noisy"] = np.isfinite(out["noise_mV_rms"]) & (out["noise_mV_rms"] > quality.noise_max_mV_rms)
 

@@ -22,7 +22,7 @@ from analysis.errors import InputError
 from analysis.settings import Settings
 
 __all__ = [
-    "add_parser", "run", "parse_sweeps", "parse_units", "settings_from_args", "analyse_files",
+    "add_parser", "run", "parse_sweeps", "parse_units", "parse_workers", "settings_from_args", "analyse_files",
     "write_outputs", "summary_line", "OUTPUT_WRITERS",
 ]
 
@@ -65,6 +65,17 @@ def parse_units(text: str) -> tuple[int | str, str]:
     return (int(channel) if channel.isdigit() else channel), units.strip()
 
 
+def parse_workers(text: str) -> int:
+    """``"4"`` -> ``4`` (argparse type: at least 1)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError("give at least 1 worker")
+    return value
+
+
 def _channel(text: str) -> int | str:
     return int(text) if text.strip().isdigit() else text
 
@@ -88,6 +99,9 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     p.add_argument("--units", type=parse_units, action="append", default=[], metavar="CHANNEL=UNITS",
                    help="declare a channel's units when the file mislabels them, e.g. 0=mV (repeatable)")
     p.add_argument("--csv", metavar="BEATS.csv", help="write the beats table (one row per beat)")
+    p.add_argument("--workers", type=parse_workers, metavar="N",
+                   help="processes sharing the chunks of a long recording (Linux; default: every core; "
+                   "the results are the same with any number)")
     from app.review_outputs import add_arguments
 
     add_arguments(p)
@@ -110,11 +124,15 @@ def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Cal
     from analysis import open_recording
     from analysis.pipeline import analyze
 
+    from analysis.chunkpool import available_cores
+
     units = dict(args.units) if getattr(args, "units", None) else None
+    workers = getattr(args, "workers", None) or available_cores()
     results = []
     for path in args.files:
         rec = open_recording(path, units=units)
-        results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=progress, label=path))
+        results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=progress, label=path,
+                               workers=workers))
     return results
 
 

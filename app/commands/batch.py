@@ -16,7 +16,7 @@ import sys
 from contextlib import contextmanager
 from typing import Iterator
 
-from app.commands.analyze import _channel, parse_sweeps, parse_units, settings_from_args
+from app.commands.analyze import _channel, parse_sweeps, parse_units, parse_workers, settings_from_args
 from app.review_outputs import _condition
 
 __all__ = ["add_parser", "run"]
@@ -58,7 +58,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
     parser.add_argument("--units", type=parse_units, action="append", default=[], metavar="CHANNEL=UNITS",
                         help="declare a channel's units when the files mislabel them, e.g. 0=mV (repeatable)")
     where = parser.add_mutually_exclusive_group()  # local processes or a cluster's workers, not both
-    where.add_argument("--workers", type=_positive_int, metavar="N",
+    where.add_argument("--workers", type=parse_workers, metavar="N",
                         help=f"local worker processes (default: every core, here {os.cpu_count()})")
     where.add_argument("--scheduler", metavar="ADDRESS",
                         help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
@@ -66,16 +66,6 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
     parser.set_defaults(run=run)
     return parser
-
-
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError("give at least 1 worker")
-    return value
 
 
 @contextmanager

@@ -114,6 +114,8 @@ def test_settings_file_and_sweeps(tmp_path, capsys):
         (["--sweeps", "3-1"], "--sweeps"),
         (["--units", "0:mV"], "CHANNEL=UNITS"),
         (["--ljp", "x"], "--ljp"),
+        (["--workers", "0"], "at least 1 worker"),
+        (["--workers", "two"], "not a whole number"),
     ],
 )
 def test_bad_command_lines_exit_2(tmp_path, capsys, args, words):
