@@ -19,11 +19,9 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
-import multiprocessing
 import os
 import signal
 import sys
-from concurrent.futures import ProcessPoolExecutor
 from typing import Callable, Iterator, TypeVar
 
 __all__ = ["available_cores", "can_fork", "run_ordered", "use_workers", "workers"]
@@ -51,7 +49,7 @@ def available_cores() -> int:
 
 def can_fork() -> bool:
     """Whether chunks can go to forked workers here (Linux, outside a worker)."""
-    return sys.platform.startswith("linux") and not _IN_WORKER and "fork" in multiprocessing.get_all_start_methods()
+    return sys.platform.startswith("linux") and not _IN_WORKER and hasattr(os, "fork")
 
 
 def workers() -> int:
@@ -134,6 +132,10 @@ def run_ordered(task: Callable[[int], T], n_tasks: int, on_result: Callable[[int
             if on_result is not None:
                 on_result(i, results[-1])
         return results
+    # Imported here: a short recording (most of the app's work) never needs them.
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
     previous, _TASK = _TASK, task
     # This process works the first chunks itself while n_workers - 1 forked children work the
     # rest, a few chunks per message; when it is done it takes back the messages no child has
