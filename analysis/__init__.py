@@ -17,7 +17,6 @@ from .errors import InputError, RecordingError, ResultsFileError, SettingsError
 from .pipeline import AnalysisResult, analyze
 from .readers import open_recording, supported_extensions
 from .recording import Channel, Recording
-from .session import Session
 from .settings import Settings
 from .table import CSV_COLUMNS, BeatTable
 
@@ -39,3 +38,13 @@ __all__ = [
 ]
 
 __version__ = "0.1.0"
+
+
+def __getattr__(name: str):
+    # The review session is imported on first use: the command line's analyze and batch, and
+    # every worker process, start faster without it.
+    if name == "Session":
+        from .session import Session
+
+        return Session
+    raise AttributeError(f"module 'analysis' has no attribute {name!r}")
