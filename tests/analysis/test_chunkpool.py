@@ -81,10 +81,11 @@ def _both_ways(rec, settings):
 
 @linux_only
 @pytest.mark.slow
-def test_analysis_on_two_processes_is_byte_identical():
+@pytest.mark.parametrize("suffix", [".abf", ".nwb"])  # a memory map; an HDF5 file opened before the fork
+def test_analysis_on_two_processes_is_byte_identical(suffix):
     """The demo recording (hum, drift, electrical spikes, a DAD, a pause, seal trouble) in 10 s
     chunks, so that detection (with its spike spans), measurement and the events all go to the pool."""
-    one, two = _both_ways(open_recording(SAMPLE), Settings().replace("detection.chunk_s", 10.0))
+    one, two = _both_ways(open_recording(SAMPLE.with_suffix(suffix)), Settings().replace("detection.chunk_s", 10.0))
     assert one == two
     flags = {f for row in one[0].splitlines()[1:] for f in row.split(",")[5].split(";")}
     assert {"dad", "pause", "noisy"} <= flags and len(one[2]) == 3  # the review's catches (sample_data/README.md)
