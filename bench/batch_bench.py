@@ -125,6 +125,11 @@ def long_file(folder: Path, duration_min: float, fs_hz: float, bound_mb: float) 
     print(f"  analysed in {wall:.0f} s wall ({cpu:.0f} s CPU), exit {code}")
     print(f"  peak RSS, largest process: {single:6.0f} MB{note}; whole tree (sampled): {tree_mb:6.0f} MB; "
           f"bound {bound_mb:.0f} MB: {'within' if max(single, tree_mb) <= bound_mb else 'OVER'}")
+    # upstroke analyze shares the sweep's chunks between every core (forked workers): the whole
+    # tree counts, each worker's pages shared with the parent included.
+    wall, code, tree_mb, cpu = run_measured(["analyze", str(path), "--csv", str(folder / "long.csv")])
+    print(f"  upstroke analyze on every core: {wall:.0f} s wall ({cpu:.0f} s CPU), exit {code}; whole tree "
+          f"(sampled): {tree_mb:6.0f} MB; bound {bound_mb:.0f} MB: {'within' if tree_mb <= bound_mb else 'OVER'}")
     path.unlink()
 
 
