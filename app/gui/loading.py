@@ -119,8 +119,16 @@ class LoadingMixin:
         self._fill_recording_combo()
         self.select_recording(session.recordings[0])
 
+    def recoverable_reviews(self, *, skip: Sequence[str | os.PathLike] = ()) -> list[PendingReview]:
+        """The unsaved reviews that can be reopened, newest first: every journal in the autosave
+        folder whose recording or results file is still there, less those of the ``skip`` origins."""
+        skipped = {os.path.abspath(os.fspath(p)) for p in skip}
+        return [p for p in pending_reviews() if p.origin not in skipped and os.path.exists(p.origin)]
+
     def offer_recovery(self, *, choose=None, skip: Sequence[str | os.PathLike] = ()) -> PendingReview | None:
-        """At start: offer the reviews a crash or a kill left unsaved, and reopen the one chosen.
+        """Offer the reviews a crash or a kill left unsaved, and reopen the one chosen.
+
+        At start, and from File > Recover unsaved review… (:func:`~app.gui.recovery.add_recover_action`).
 
         Parameters
         ----------
@@ -129,7 +137,8 @@ class LoadingMixin:
             interactive window (:func:`~app.gui.recovery.ask_recovery`, where journals can also
             be discarded) and keeps them all otherwise.
         skip : sequence of paths
-            Origins not to offer (the file the app was started on: its review comes back anyway).
+            Origins not to offer: the file the app was started on, or the file shown now (its
+            journal is the review on screen); their reviews come back anyway.
 
         Returns
         -------
@@ -137,8 +146,7 @@ class LoadingMixin:
             The review reopened. Its recording (or results file) is opened as usual and the
             journal replayed once the analysis is done; journals whose origin is gone are kept.
         """
-        skipped = {os.path.abspath(os.fspath(p)) for p in skip}
-        pending = [p for p in pending_reviews() if p.origin not in skipped and os.path.exists(p.origin)]
+        pending = self.recoverable_reviews(skip=skip)
         if not pending:
             return None
         if choose is not None:
@@ -152,7 +160,8 @@ class LoadingMixin:
         if choice is None:
             left = [p for p in pending if p.path.exists()]
             if left:
-                self.status(f"{len(left)} unsaved review(s) kept; opening the file again recovers its review")
+                self.status(f"{len(left)} unsaved review(s) kept; File > Recover unsaved review… (or opening "
+                            "the file again) recovers one")
             return None
         if not self.open_path(choice.origin):
             return None

@@ -210,6 +210,9 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         file_menu = self.menuBar().addMenu("&File")
         self.act_open = self._action(file_menu, "&Open…", self._open_dialog, K.StandardKey.Open, tip="Open a recording or a results file")
         self.recent_menu = file_menu.addMenu("Open &recent")
+        from .recovery import add_recover_action
+
+        self.act_recover = add_recover_action(file_menu, self)
         self.act_save = self._action(file_menu, "&Save results", self.save, K.StandardKey.Save, tip="Save results, decisions, conditions and settings (.h5)")
         self._action(file_menu, "Save results &as…", self.save_as, K.StandardKey.SaveAs)
         self.act_revert = self._action(file_menu, "Re&vert to saved results", self.revert_to_saved,

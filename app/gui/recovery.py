@@ -1,18 +1,19 @@
-"""At start, the reviews a crash or a kill left unsaved: which to reopen, which to drop.
+"""The reviews a crash or a kill left unsaved: which to reopen, which to drop.
 
 The journals themselves are the core's (:mod:`analysis.session_journal`); this is the question
-the window asks about them (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`).
+the window asks about them (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`), at start and
+from File > Recover unsaved review… (:func:`add_recover_action`).
 """
 
 from __future__ import annotations
 
 import os
 
-from PySide6 import QtCore, QtWidgets
+from PySide6 import QtCore, QtGui, QtWidgets
 
 from .autosave import PendingReview
 
-__all__ = ["RecoveryDialog", "ask_recovery"]
+__all__ = ["RecoveryDialog", "add_recover_action", "ask_recovery", "recover_unsaved", "update_recover_action"]
 
 
 class RecoveryDialog(QtWidgets.QDialog):
@@ -75,3 +76,42 @@ def ask_recovery(parent: QtWidgets.QWidget, pending: list[PendingReview]) -> Pen
             pass
         pending.remove(choice)
     return None
+
+
+def _shown_origins(window) -> list[str]:
+    """The file on screen: its journal is the review being made, not one to recover."""
+    return [window.origin] if window.key is not None and window.origin else []
+
+
+def update_recover_action(action: QtGui.QAction, window) -> int:
+    """Enable the action when there is an unsaved review to recover, and say why (not) in its
+    tooltip; returns how many there are."""
+    n = len(window.recoverable_reviews(skip=_shown_origins(window)))
+    action.setEnabled(n > 0)
+    if n:
+        tip = f"{n} review(s) left unsaved by a crash or a kill: choose one to reopen, or discard them"
+    else:
+        tip = "No unsaved review to recover: every review was saved, reverted or discarded"
+    action.setToolTip(tip)
+    action.setStatusTip(tip)
+    return n
+
+
+def recover_unsaved(window) -> PendingReview | None:
+    """File > Recover unsaved review…: the start-up question, asked now
+    (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`)."""
+    choice = window.offer_recovery(skip=_shown_origins(window))
+    if choice is None and not window.recoverable_reviews(skip=_shown_origins(window)):
+        window.status("no unsaved review left to recover")
+    return choice
+
+
+def add_recover_action(menu: QtWidgets.QMenu, window) -> QtGui.QAction:
+    """Add File > Recover unsaved review… to ``menu``, brought up to date whenever it opens."""
+    action = QtGui.QAction("Re&cover unsaved review…", window)
+    action.triggered.connect(lambda: recover_unsaved(window))
+    menu.addAction(action)
+    menu.setToolTipsVisible(True)  # so that a disabled entry still says why
+    menu.aboutToShow.connect(lambda: update_recover_action(action, window))
+    update_recover_action(action, window)
+    return action
