@@ -24,7 +24,7 @@ from .cursors import CursorPanel
 from .files import FilesMixin
 from .loading import LoadingMixin
 from .overview import OverviewStrip
-from .plots import FigureInput, FiguresPanel
+from .plots import FigureInput, FiguresPanel, summary_beat_rows
 from .recent import RecentFiles
 from .review import BeatCard, ReasonPicker
 from .reviewing import ReviewMixin
@@ -367,9 +367,15 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
             groups.append(("", palette.TRACE))
         info = self.session.info(self.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, (_n, col) in zip(conds, groups)]
+        # The aligned beats are the summaries' (each condition's steady-state window); the
+        # session's current summaries, made now when a change has left them stale.
+        summaries = self.session.cached_summaries(self.key)
+        if summaries is None:
+            summaries = self.session.summaries(self.key)
         return FigureInput(self.recording, self._beats, channel=self.channel, offset_mV=self.ljp_mV(),
                            groups=groups, spans=spans, current_row=self.current_row,
-                           measurement=self.session.settings(self.key).measurement)
+                           measurement=self.session.settings(self.key).measurement,
+                           summary_rows=summary_beat_rows(self._beats, summaries, info.sweep_starts_s))
 
     def _on_decisions_changed(self, key: str, rows: list) -> None:
         if key == self.key:

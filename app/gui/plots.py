@@ -1,6 +1,6 @@
 """Figures of a recording's accepted beats, by condition, each exportable to PNG or SVG.
 
-* aligned beats with each condition's ensemble average;
+* aligned beats with each condition's ensemble average, over the beats its summary used;
 * the phase plane (dV/dt against V) of each condition's average beat and of the selected beat,
   with the smoothed derivative the take-off definition uses;
 * the time course of rate, APD90 and DDR per beat, with the conditions as bands;
@@ -49,6 +49,65 @@ class FigureInput:
     spans: list[tuple[str, float, float, str]] = field(default_factory=list)
     current_row: int = -1
     measurement: object = None  # the measurement settings (their take-off derivative window)
+    #: The beats each group's summary used, ``{name: (rows, window rule)}``
+    #: (:func:`summary_beat_rows`); None: every accepted beat of the group.
+    summary_rows: dict[str, tuple[np.ndarray, str]] | None = None
+
+
+#: Window rules under which a summary uses every eligible beat of its condition.
+_WHOLE_RULES = ("all", "auto (none found: all)")
+
+
+def summary_beat_rows(beats: BeatTable, summaries, sweep_starts_s) -> dict[str, tuple[np.ndarray, str]]:
+    """The beats each condition's summary used (its steady-state window), by condition name.
+
+    Parameters
+    ----------
+    beats : BeatTable
+        The reviewed table the summaries were made from.
+    summaries : sequence of analysis.summary.Summary
+        The session's current summaries of the recording (all sweep groups).
+    sweep_starts_s : sequence of float
+        The recording's sweep starts, to place beats in recording time.
+
+    Returns
+    -------
+    dict of str to (ndarray of int, str)
+        Rows in time order and the window rule (the summary's ``window`` column) per condition,
+        sweep groups pooled.
+
+    Notes
+    -----
+    A summary computed in this session lists its rows (``Summary.beat_rows``); one read back
+    from a results file does not, and its rows are those :func:`analysis.summary.summarize`
+    selects: the eligible beats (:func:`analysis.summary.eligible_mask`) of the condition and
+    sweep group inside the window's first and last beat.
+    """
+    from analysis.summary import eligible_mask
+
+    n = len(beats)
+    t_rec = plotdata.recording_times_s(beats, sweep_starts_s) if n else np.empty(0)
+    condition = np.asarray(beats["condition"], dtype=object) if "condition" in beats else np.full(n, "", dtype=object)
+    sweep = np.asarray(beats["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
+    eligible = eligible_mask(beats) if n else np.zeros(0, bool)
+    found: dict[str, tuple[list[np.ndarray], str]] = {}
+    for s in summaries:
+        v = s.values
+        name = str(v["condition"])
+        rows = np.asarray(s.beat_rows, dtype=np.int64)
+        if not rows.size and int(v["n_accepted"]):
+            lo, hi = float(v["window_start_s"]), float(v["window_end_s"])
+            sel = eligible & (condition == name) & (t_rec >= lo - 1e-9) & (t_rec <= hi + 1e-9)
+            if str(v["sweep_group"]) != "all":
+                sel &= sweep == int(v["sweep_group"])
+            rows = np.flatnonzero(sel)
+        parts, _rule = found.get(name, ([], ""))
+        found[name] = ([*parts, rows], str(v["window"]))
+    out = {}
+    for name, (parts, rule) in found.items():
+        rows = np.unique(np.concatenate(parts)) if parts else np.empty(0, np.int64)
+        out[name] = (rows[np.lexsort((t_rec[rows], sweep[rows]))] if rows.size else rows, rule)
+    return out
 
 
 def _style(plot: pg.PlotItem, bottom: tuple[str, str | None], left: tuple[str, str | None]) -> None:
@@ -60,6 +119,12 @@ def _style(plot: pg.PlotItem, bottom: tuple[str, str | None], left: tuple[str, s
         plot.getAxis(axis).setPen(palette.INK)
         plot.getAxis(axis).setTextPen(palette.INK)
         plot.getAxis(axis).enableAutoSIPrefix(False)
+
+
+def _legend(plot: pg.PlotItem, offset: tuple[int, int]) -> pg.LegendItem:
+    """A legend on a paper-coloured, nearly opaque ground, readable over the traces it covers."""
+    return plot.addLegend(offset=offset, labelTextColor=palette.INK, brush=palette.rgba(palette.PAPER, 215),
+                          pen=palette.rgba(palette.INK, 60))
 
 
 def _accepted_rows(beats: BeatTable, group: str | None = None) -> np.ndarray:
@@ -94,13 +159,23 @@ class _Figure(pg.GraphicsLayoutWidget):
 
 
 class AlignedBeatsFigure(_Figure):
+    """Each condition's beats aligned at their upstroke, with their ensemble average.
+
+    The beats are those of the condition's summary (its steady-state window) when the input
+    has them, so that the average and the count in the legend are the summary's; a faint line
+    is drawn for at most :attr:`MAX_DRAWN` of them, the average is over up to
+    :attr:`MAX_AVERAGED` (spread evenly when there are more).
+    """
+
     title = "Aligned beats"
+    MAX_DRAWN = 30
+    MAX_AVERAGED = 400
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
         _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
-        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+        self.legend = _legend(self.plot, (-10, 10))
         self.averages: dict[str, plotdata.AlignedBeats] = {}
 
     def draw(self, data: FigureInput) -> None:
@@ -109,23 +184,39 @@ class AlignedBeatsFigure(_Figure):
         self.averages = {}
         # One time base for every condition, set by the shortest typical cycle, so that no
         # window reaches into the next beat.
-        groups = [(name, colour, _accepted_rows(data.beats, name)) for name, colour in data.groups]
-        cls = [np.nanmedian(np.asarray(data.beats["cl_ms"], float)[rows]) for _n, _c, rows in groups
+        groups = [(name, colour, *self._rows(data, name)) for name, colour in data.groups]
+        cls = [np.nanmedian(np.asarray(data.beats["cl_ms"], float)[rows]) for _n, _c, rows, _w in groups
                if rows.size and "cl_ms" in data.beats and np.isfinite(np.asarray(data.beats["cl_ms"], float)[rows]).any()]
         cl = float(min(cls)) if cls else 800.0
-        for name, colour, rows in groups:
+        for name, colour, rows, which in groups:
             if not rows.size:
                 continue
             aligned = plotdata.aligned_beats(
                 data.recording, data.beats, rows, channel=data.channel, offset_mV=data.offset_mV,
-                before_ms=0.3 * cl, after_ms=0.65 * cl, max_beats=30,
+                before_ms=0.3 * cl, after_ms=0.65 * cl, max_beats=self.MAX_AVERAGED,
             )
             self.averages[name] = aligned
             faint = pg.mkPen(palette.rgba(colour, 30), width=1)
-            for trace in aligned.traces:
+            drawn = np.unique(np.linspace(0, aligned.rows.size - 1, min(aligned.rows.size, self.MAX_DRAWN)).round().astype(int))
+            for trace in aligned.traces[drawn]:
                 self.plot.plot(aligned.t_ms, trace, pen=faint)
-            self.plot.plot(aligned.t_ms, aligned.mean, pen=pg.mkPen(colour, width=2.6),
-                           name=f"{_group_label(name)}: mean of {rows.size} beats")
+            label = f"{_group_label(name)}: n = {rows.size} ({which}"
+            if aligned.rows.size < rows.size:
+                label += f"; mean of {aligned.rows.size} spread evenly"
+            self.plot.plot(aligned.t_ms, aligned.mean, pen=pg.mkPen(colour, width=2.6), name=label + ")")
+
+    @staticmethod
+    def _rows(data: FigureInput, name: str) -> tuple[np.ndarray, str]:
+        """A group's beats and what they are: its summary's, else every accepted one."""
+        if data.summary_rows is None:
+            return _accepted_rows(data.beats, name), "accepted beats"
+        rows, rule = data.summary_rows.get(name, (np.empty(0, np.int64), ""))
+        whole = "all beats" if not name else "whole condition"
+        return rows, whole if rule in _WHOLE_RULES else "steady window"
+
+    def legend_texts(self) -> list[str]:
+        """The legend's entries, top to bottom."""
+        return [label.text for _sample, label in self.legend.items]
 
 
 def _window(v: np.ndarray, fs: float, data: FigureInput) -> float | None:
@@ -139,7 +230,7 @@ class PhasePlaneFigure(_Figure):
         super().__init__(parent)
         self.plot = self.addPlot()
         _style(self.plot, ("V", "mV"), ("dV/dt", "V/s"))
-        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+        self.legend = _legend(self.plot, (-10, 10))
 
     def draw(self, data: FigureInput, averages: dict[str, plotdata.AlignedBeats] | None = None) -> None:
         self.plot.clear()
@@ -209,7 +300,7 @@ class PoincareFigure(_Figure):
         self.plot = self.addPlot()
         _style(self.plot, ("CL n", "ms"), ("CL n+1", "ms"))
         self.plot.setAspectLocked(True)
-        self.legend = self.plot.addLegend(offset=(10, 10), labelTextColor=palette.INK)
+        self.legend = _legend(self.plot, (10, 10))
         self.pairs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
 
     def draw(self, data: FigureInput) -> None:
@@ -237,7 +328,7 @@ class DdrClFigure(_Figure):
         super().__init__(parent)
         self.plot = self.addPlot()
         _style(self.plot, ("CL", "ms"), ("DDR", "mV/s"))
-        self.legend = self.plot.addLegend(offset=(-10, 10), labelTextColor=palette.INK)
+        self.legend = _legend(self.plot, (-10, 10))
         self.fits: dict[str, plotdata.LineFit] = {}
 
     def draw(self, data: FigureInput) -> None:

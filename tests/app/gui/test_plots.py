@@ -64,3 +64,86 @@ def test_only_the_figure_shown_is_drawn_until_another_tab_opens(panel):
     assert w._dirty == {"phase_plane", "time_course", "poincare", "ddr_cl"}  # "aligned" is the tab shown
     w.tabs.setCurrentIndex(4)
     assert "ddr_cl" not in w._dirty and w.figures["ddr_cl"].fits
+
+
+@pytest.fixture
+def steady_window(qtbot, cell_abf, cell_result):
+    """The window on the two-sweep cell with one condition over both sweeps whose summary uses
+    only its last 5 s, and a beat rejected inside that window."""
+    from analysis.conditions import Condition, SteadyState
+    from app.gui.main_window import MainWindow
+
+    w = MainWindow(interactive=False)
+    qtbot.addWidget(w)
+    w.resize(1400, 900)
+    w.show()
+    rec, result = cell_result
+    w.open_recording_file(rec, origin=str(cell_abf), result=result)
+    assert w.settle(60_000) and w.key is not None
+    assert w.add_condition(Condition("baseline", 0.0, 17.0, "s", SteadyState("last_s", 5.0)))
+    t = plotdata.recording_times_s(w.session.beats(w.key), rec.sweep_starts_s)
+    w.select_beat(int(np.flatnonzero(t > t.max() - 3.0)[0]))
+    w.reject_current("noise")
+    assert w.settle(60_000)
+    w.figures.redraw({"aligned"})
+    return w
+
+
+def _last_5_s(beats, sweep_starts_s) -> np.ndarray:
+    """The rule 'last 5 s' by hand: accepted beats with a diastole and a full repolarisation
+    within 5 s of the condition's last such beat (the window rule of docs/user-guide.md;
+    common practice, no source)."""
+    t = plotdata.recording_times_s(beats, sweep_starts_s)
+    clean = np.array([not {"no_diastole", "truncated"} & set(str(f).split(";")) for f in beats["flags"]])
+    ok = (np.asarray(beats["accepted"]) == 1) & clean & (np.asarray(beats["condition"]) == "baseline")
+    end = t[ok].max()
+    return np.flatnonzero(ok & (t > end - 5.0))
+
+
+def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
+    w = steady_window
+    beats = w.session.beats(w.key)
+    (summary,) = [s for s in w.session.summaries(w.key) if s.values["condition"] == "baseline"]
+    n = int(summary.values["n_accepted"])
+    in_condition = int(np.sum((beats["condition"] == "baseline") & (beats["accepted"] == 1)))
+    by_hand = _last_5_s(beats, w.recording.sweep_starts_s)
+    assert n == by_hand.size and 4 <= n < in_condition - 5  # the window is shorter than the condition
+    assert w.summary_panel.cell_text("beats used / all (✕)").startswith(f"{n} / ")
+    figure = w.figures.figures["aligned"]
+    assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
+    avg = figure.averages["baseline"]
+    assert np.array_equal(np.sort(avg.rows), by_hand)  # the very beats the summary used
+    assert np.allclose(avg.mean, np.nanmean(avg.traces, axis=0), equal_nan=True)  # numpy reference
+
+    # Read back from the results file (summaries stored without their rows): the same beats.
+    out = tmp_path / "steady.h5"
+    assert w.save_results(out) and w.revert_to_saved()
+    assert w.settle(60_000)
+    w.figures.redraw({"aligned"})
+    assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
+    assert np.array_equal(np.sort(figure.averages["baseline"].rows), by_hand)
+
+
+def test_summary_rows_read_back_match_the_rows_the_summary_listed(steady_window):
+    from analysis.summary import Summary
+    from app.gui.plots import summary_beat_rows
+
+    w = steady_window
+    beats = w.session.beats(w.key)
+    summaries = w.session.summaries(w.key)
+    listed = summary_beat_rows(beats, summaries, w.recording.sweep_starts_s)
+    # As a results file holds them: the values alone, no rows.
+    stored = [Summary(dict(s.values), s.steady_suggestion, s.steady_note) for s in summaries]
+    assert all(s.beat_rows.size == 0 for s in stored)
+    again = summary_beat_rows(beats, stored, w.recording.sweep_starts_s)
+    assert listed.keys() == again.keys() and len(listed) >= 1
+    for name, (rows, rule) in listed.items():
+        assert np.array_equal(again[name][0], rows) and again[name][1] == rule
+        assert rows.size == sum(int(s.values["n_accepted"]) for s in summaries if s.values["condition"] == name)
+
+
+def test_without_summaries_the_legend_says_every_accepted_beat(panel):
+    w, data = panel
+    w.redraw({"aligned"})
+    n = int(np.sum((data.beats["condition"] == "baseline") & (data.beats["accepted"] == 1)))
+    assert w.figures["aligned"].legend_texts()[0] == f"baseline: n = {n} (accepted beats)"
