@@ -134,6 +134,8 @@ class FilesMixin:
                 fh.write(text)
 
     def export_figures(self, folder: str | os.PathLike, fmt: str = "png") -> list[str]:
+        if self.key is not None:
+            self.session.summaries(self.key)  # current, so that the figures use the summaries' beats
         self.figures.set_input(self._figure_input())
         stem = Path(self.session.label(self.key)).stem if self.key else ""
         return self.figures.export_all(folder, fmt=fmt, stem=stem)

@@ -74,6 +74,7 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self._busy_reasons: set[str] = set()
         self._pending_settings = None
         self.summaries: list = []
+        self._summaries_of: tuple[str, int] | None = None  # (recording, beats) the summaries shown are of
         self.bridge = None
         self._build_widgets()
         self._build_actions()
@@ -347,6 +348,7 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         if key != self.key:
             return  # another recording is shown now
         self.summaries = summaries
+        self._summaries_of = (key, len(self._beats)) if self._beats is not None else None
         conds = self.session.conditions(self.key)
         colours = {c.name: palette.condition_colour(i) for i, c in enumerate(conds)}
         values = [s.values for s in summaries]
@@ -367,15 +369,16 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
             groups.append(("", palette.TRACE))
         info = self.session.info(self.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, (_n, col) in zip(conds, groups)]
-        # The aligned beats are the summaries' (each condition's steady-state window); the
-        # session's current summaries, made now when a change has left them stale.
+        # The aligned beats are the summaries' (each condition's steady-state window). Between a
+        # change and its summary job's result, the summaries shown stand in if they are of this
+        # table; the result redraws the figures. Nothing is summarised here, on the GUI thread.
         summaries = self.session.cached_summaries(self.key)
-        if summaries is None:
-            summaries = self.session.summaries(self.key)
+        if summaries is None and self._summaries_of == (self.key, len(self._beats)):
+            summaries = self.summaries
+        rows = None if summaries is None else summary_beat_rows(self._beats, summaries, info.sweep_starts_s)
         return FigureInput(self.recording, self._beats, channel=self.channel, offset_mV=self.ljp_mV(),
                            groups=groups, spans=spans, current_row=self.current_row,
-                           measurement=self.session.settings(self.key).measurement,
-                           summary_rows=summary_beat_rows(self._beats, summaries, info.sweep_starts_s))
+                           measurement=self.session.settings(self.key).measurement, summary_rows=rows)
 
     def _on_decisions_changed(self, key: str, rows: list) -> None:
         if key == self.key:

@@ -115,6 +115,17 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
     assert np.array_equal(np.sort(avg.rows), by_hand)  # the very beats the summary used
     assert np.allclose(avg.mean, np.nanmean(avg.traces, axis=0), equal_nan=True)  # numpy reference
 
+    # A beat inside the window rejected: the figure follows the summary once its job is back.
+    w.select_beat(int(by_hand[by_hand.size // 2]))
+    w.reject_current("noise")
+    assert w.settle(60_000)
+    w.figures.redraw({"aligned"})
+    by_hand = _last_5_s(w.session.beats(w.key), w.recording.sweep_starts_s)
+    assert by_hand.size == n - 1  # the window still ends at the same beat
+    n -= 1
+    assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
+    assert np.array_equal(np.sort(figure.averages["baseline"].rows), by_hand)
+
     # Read back from the results file (summaries stored without their rows): the same beats.
     out = tmp_path / "steady.h5"
     assert w.save_results(out) and w.revert_to_saved()
