@@ -37,6 +37,8 @@ class SpanBands(pg.GraphicsObject):
         self._hatch = hatch
         self._label_row = int(label_row)
         self._label_pen = QtGui.QPen(QtGui.QColor(label_colour)) if label_colour else None
+        self._label_font = QtGui.QFont()
+        self._label_font.setPointSizeF(8.5)
         self._bounds = QtCore.QRectF()
         self.setZValue(z)
 
@@ -117,21 +119,68 @@ class SpanBands(pg.GraphicsObject):
         sx, sy = tr.m11(), tr.m22()
         if sx == 0 or sy == 0:
             return
-        font = painter.font()
-        font.setPointSizeF(8.5)
-        metrics = QtGui.QFontMetrics(font)
-        y_screen_top = vr.bottom() if sy < 0 else vr.top()
+        # Baseline below the label's top; the text is placed from the band's centre in pixels.
+        baseline = QtGui.QFontMetricsF(self._label_font).ascent() - self._top_px(tr, vr)
+        y_data = vr.bottom() if sy < 0 else vr.top()
+        for i, rect in self._label_layout(tr, vr, visible):
+            centre = (self._t0[i] + self._t1[i]) / 2
+            centre_px = tr.map(QtCore.QPointF(centre, y_data)).x()
+            painter.save()
+            painter.translate(QtCore.QPointF(centre, y_data))
+            painter.scale(1.0 / sx, 1.0 / sy)
+            painter.setFont(self._label_font)
+            painter.setPen(self._label_pen)
+            painter.drawText(QtCore.QPointF(rect.left() - centre_px, rect.top() + baseline), self._labels[i])
+            painter.restore()
+
+    # -- labels --------------------------------------------------------------------------------
+    def label_rects(self) -> list[tuple[str, QtCore.QRectF]]:
+        """The labels drawn now and where: ``(text, rect in scene coordinates)``, band order."""
+        vr = self.viewRect()
+        if self._label_pen is None or vr is None or not len(self._t0):
+            return []
+        view = self.getViewBox()
+        if view is not None and hasattr(view, "updateMatrix"):
+            view.updateMatrix()  # a new range reaches the item's transform only at the next paint
+        visible = np.flatnonzero((self._t1 >= vr.left()) & (self._t0 <= vr.right()))
+        return [(self._labels[i], rect) for i, rect in self._label_layout(self.sceneTransform(), vr, visible)]
+
+    @staticmethod
+    def _top_px(tr: QtGui.QTransform, vr: QtCore.QRectF) -> float:
+        return min(tr.map(vr.topLeft()).y(), tr.map(vr.bottomLeft()).y())
+
+    def _label_layout(self, tr: QtGui.QTransform, vr: QtCore.QRectF, visible: np.ndarray):
+        """Where each visible band's label goes, in the pixels ``tr`` maps data to.
+
+        A label is drawn when its band is wide enough to hold it. It is centred on the band, and
+        shifted inward where the band runs past the view's edge, so that it stays whole inside
+        the view while it still starts (or ends) over its own band; such a shifted label is left
+        out where it would cover its neighbour's.
+        """
+        metrics = QtGui.QFontMetricsF(self._label_font)
+        v0, v1 = sorted((tr.map(vr.topLeft()).x(), tr.map(vr.topRight()).x()))
+        top = self._top_px(tr, vr) + 2 + self._label_row * (metrics.height() + 1)
+        out = []
         for i in visible:
             if i >= len(self._labels) or not self._labels[i]:
                 continue
+            p0, p1 = sorted((tr.map(QtCore.QPointF(self._t0[i], 0.0)).x(), tr.map(QtCore.QPointF(self._t1[i], 0.0)).x()))
             width = metrics.horizontalAdvance(self._labels[i])
-            if abs((self._t1[i] - self._t0[i]) * sx) < width + 4:
+            if p1 - p0 < width + 4:
                 continue
-            painter.save()
-            painter.translate(QtCore.QPointF((self._t0[i] + self._t1[i]) / 2, y_screen_top))
-            painter.scale(1.0 / sx, 1.0 / sy)
-            painter.setFont(font)
-            painter.setPen(self._label_pen)
-            y = metrics.ascent() + 2 + self._label_row * (metrics.height() + 1)
-            painter.drawText(QtCore.QPointF(-width / 2, y), self._labels[i])
-            painter.restore()
+            if min(p1, v1) - max(p0, v0) < 4:
+                continue  # only a sliver of the band in view: its label would float beside it
+            # Within the band, then inward at the view's edges (a margin of 2 px): the view wins,
+            # so a band that runs past an edge has its label start (or end) at that edge, over
+            # the band's visible part.
+            centred = min(max((p0 + p1 - width) / 2, p0), p1 - width)
+            left = max(min(centred, v1 - 2 - width), v0 + 2)
+            out.append((int(i), QtCore.QRectF(left, top, width, metrics.height()), left != centred))
+        # A label shifted at an edge gives way to a neighbour it would cover (neither would read).
+        keep = []
+        for k, (i, rect, shifted) in enumerate(out):
+            neighbours = [r for _i, r, _s in out[max(0, k - 1):k] + out[k + 1:k + 2]]
+            if shifted and any(rect.intersects(r) for r in neighbours):
+                continue
+            keep.append((i, rect))
+        return keep

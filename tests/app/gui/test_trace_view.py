@@ -7,6 +7,8 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
+from PySide6 import QtCore  # noqa: E402
+
 from app.gui.trace_data import SweepLevels  # noqa: E402
 from app.gui.trace_view import TraceView  # noqa: E402
 
@@ -108,3 +110,70 @@ def test_markers_hide_when_too_many_beats_are_in_view(view, monkeypatch):
     assert not view.phase_bands.isVisible() and view.phases_visible()  # still switched on
     view.show_span(1.0, 3.0)
     assert view.markers["peak"].isVisible() and view.phase_bands.isVisible()
+
+
+def _flagged_view(view, qtbot, row: int):
+    rec, beats = handmade(n_sweeps=1)
+    flags = beats["flags"].copy()
+    flags[row] = "noisy;mdp_drift"
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    view.set_beats(beats.with_columns(flags=flags))
+    qtbot.waitExposed(view)
+    return beats
+
+
+def _scene_x(view, t_s: float) -> float:
+    return view.flag_bands.mapToScene(QtCore.QPointF(t_s, 0.0)).x()
+
+
+@pytest.mark.parametrize("edge", ["left", "right"])
+def test_a_flag_label_at_the_views_edge_is_shifted_inward_and_stays_over_its_beat(view, qtbot, edge):
+    beats = _flagged_view(view, qtbot, 3)
+    t_up = beats["t_upstroke_s"][3]
+    band = (beats["t_mdp_s"][3], beats["t_apd90_s"][3])  # the flag band spans MDP to APD90
+    centre = (band[0] + band[1]) / 2
+    # The edge cuts through the band between its centre and its end, so a label centred on the
+    # band would begin outside the view.
+    if edge == "left":
+        view.show_span(centre + 0.05, centre + 3.05)
+    else:
+        view.show_span(centre - 3.05, centre - 0.05)
+    qtbot.waitUntil(lambda: len(view.flag_bands.label_rects()) == 1)
+    [(text, rect)] = view.flag_bands.label_rects()
+    assert text == "⚑ noisy, mdp_drift"  # both words, in the table's order
+    half = rect.width() / 2
+    if edge == "left":
+        assert _scene_x(view, centre) - half < view.vb.sceneBoundingRect().left()  # centred: cut off
+    else:
+        assert _scene_x(view, centre) + half > view.vb.sceneBoundingRect().right()
+    assert view.vb.sceneBoundingRect().contains(rect)  # whole, inside the view
+    lo, hi = sorted((_scene_x(view, band[0]), _scene_x(view, band[1])))
+    # It starts (at the left edge) or ends (at the right) over its own beat's band.
+    inner = rect.left() + 1 if edge == "left" else rect.right() - 1
+    assert lo <= inner <= hi
+    assert view.beat_at(view.vb.mapSceneToView(QtCore.QPointF(inner, rect.center().y())).x()) == 3
+    assert band[0] < t_up < band[1]
+
+
+def test_flag_labels_away_from_the_edges_stay_centred_on_their_band(view, qtbot):
+    beats = _flagged_view(view, qtbot, 3)
+    view.show_span(0.5, 4.5)
+    qtbot.waitUntil(lambda: len(view.flag_bands.label_rects()) == 1)
+    [(_text, rect)] = view.flag_bands.label_rects()
+    centre = (beats["t_mdp_s"][3] + beats["t_apd90_s"][3]) / 2
+    assert rect.center().x() == pytest.approx(_scene_x(view, centre), abs=0.5)  # centred, to half a pixel
+
+
+def test_a_shifted_flag_label_gives_way_to_its_neighbours(view, qtbot):
+    rec, beats = handmade(n_sweeps=1)
+    flags = beats["flags"].copy()
+    flags[3] = flags[4] = "noisy;mdp_drift"
+    view.set_sweep(SweepLevels(rec, 0, 0))
+    view.set_beats(beats.with_columns(flags=flags))
+    qtbot.waitExposed(view)
+    # Beat 3's band runs past the left edge; shifted to the edge, its label would cover beat 4's.
+    view.show_span(beats["t_apd90_s"][3] - 0.09, beats["t_apd90_s"][3] + 3.91)
+    qtbot.waitUntil(lambda: len(view.flag_bands.label_rects()) == 1)
+    [(_text, rect)] = view.flag_bands.label_rects()
+    centre4 = (beats["t_mdp_s"][4] + beats["t_apd90_s"][4]) / 2
+    assert rect.center().x() == pytest.approx(_scene_x(view, centre4), abs=0.5)  # beat 4's, centred
