@@ -57,7 +57,8 @@ class FilesMixin:
         return bool(path) and self.save_results(path if Path(path).suffix.lower() in RESULTS_EXTENSIONS else path + ".h5")
 
     def save_results(self, path: str | os.PathLike) -> bool:
-        """Save the session (atomically) and forget the autosave journal."""
+        """Save the session (atomically) and forget the autosave journals of its reviews: those
+        of every recording the file holds, not only the one shown."""
         if self.key is None:
             self.show_error("nothing to save yet: open a recording and let the analysis finish")
             return False
@@ -67,8 +68,7 @@ class FilesMixin:
             self.show_error(exc.one_line())
             return False
         self.results_path = os.fspath(path)
-        if self.journal is not None:
-            self.journal.discard()
+        self._discard_review_journals()
         self._journal_follows(self.results_path)
         self.recent.add(path)
         self._fill_recent_menu()
@@ -170,6 +170,19 @@ class FilesMixin:
         )
         if answer == QtWidgets.QMessageBox.Save:
             return self.save()
-        if answer == QtWidgets.QMessageBox.Discard and self.journal is not None:
-            self.journal.discard()
+        if answer == QtWidgets.QMessageBox.Discard:
+            self._discard_review_journals()
         return answer == QtWidgets.QMessageBox.Discard
+
+    def _discard_review_journals(self) -> None:
+        """Delete the journals whose review the session holds (it has just been saved, or the
+        user discarded it): the one shown and every other recording's this window wrote or
+        replayed. A journal another run left for a recording not shown since stays: its
+        review is not in the session, so it is still offered for recovery."""
+        from .autosave import Journal
+
+        if self.journal is not None:
+            self.journal.discard()
+        for key in self.journaled_keys & set(self.session.recordings):
+            Journal(self.origin or key, key).discard()
+        self.journaled_keys.clear()

@@ -47,6 +47,8 @@ class LoadingMixin:
         if getattr(self, "bridge", None) is not None:
             self.bridge.detach()
         self.session = session
+        #: Recordings whose journal this window wrote or replayed: their review is the session's.
+        self.journaled_keys: set[str] = set()
         self.bridge = SessionBridge(session, self)
         self.bridge.decisions_changed.connect(self._on_decisions_changed)
         self.bridge.conditions_changed.connect(self._on_conditions_changed)
@@ -313,6 +315,7 @@ class LoadingMixin:
         except InputError as exc:
             self.status(f"the autosaved review could not be restored ({exc.one_line()}); it was kept")
             return
+        self.journaled_keys.add(journal.key)
         if report is not None:
             self.status(report.text())
         self._refresh_all()

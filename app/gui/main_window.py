@@ -408,6 +408,8 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
                 self.journal.write(self.session)
             except OSError as exc:
                 self.status(f"autosave failed: {exc}")
+            else:
+                self.journaled_keys.add(key)
 
     def _fill_channel_combo(self, recording) -> None:
         self.channel_combo.clear()
