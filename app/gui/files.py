@@ -104,7 +104,7 @@ class FilesMixin:
         except InputError as exc:
             self.show_error(exc.one_line())
             return False
-        shown = self.key
+        shown, row = self.key, self.current_row
         if self.journal is not None:
             self.journal.discard()
         for key in {*self.session.recordings, *saved.recordings}:
@@ -113,6 +113,8 @@ class FilesMixin:
         if shown in saved.recordings and shown != self.key:
             self.select_recording(shown)
             self._fill_recording_combo()
+        if self.key == shown and self.beats is not None and 0 <= row < len(self.beats):
+            self.select_beat(row, follow=False)  # the same recording, as saved: the beat stays
         self.status(f"reverted to {path} as saved")
         return True
 

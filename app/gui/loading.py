@@ -86,6 +86,7 @@ class LoadingMixin:
         self.runner.cancel_all()
         self._set_session(Session(self.settings_form.settings))
         self.key = None
+        self._forget_beats()
         # A recording opened on its own has no results file yet: saving asks where (it must not
         # write over the results file shown before).
         self.results_path = None
@@ -172,7 +173,8 @@ class LoadingMixin:
         return choice
 
     def select_recording(self, key: str) -> None:
-        """Show one recording of the session."""
+        """Show one recording of the session, its first measured beat selected."""
+        self._forget_beats()
         self.key = key
         info = self.session.info(key)
         self.settings_form.show_settings(self.session.settings(key))

@@ -299,6 +299,15 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
         self.trace_view.set_beats(None)
         self.beat_card.show_beat(None, -1)
 
+    def _forget_beats(self) -> None:
+        """Another recording is about to be shown: no beat of the one before stays in the table,
+        selected, highlighted or in the beat card; its own beats select one when they come."""
+        self.current_row = -1
+        self._beats = None
+        self.table.set_table(None)
+        self.trace_view.set_current_beat(-1)
+        self.beat_card.show_beat(None, -1)
+
     def _refresh_all(self) -> None:
         self._refresh_beats()
         self._refresh_conditions()
@@ -318,9 +327,13 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
             self.current_row = -1
             rows = self._sweep_rows()
             if rows.size:
+                # The sweep's first beat measured whole: its very first has no diastole before it.
                 self.current_row = int(rows[min(1, rows.size - 1)])
         if self.current_row >= 0:
             self.select_beat(self.current_row, follow=False)
+        else:
+            self.table.clearSelection()
+            self.beat_card.show_beat(None, -1)
         self._summary_timer.start()
 
     def _refresh_conditions(self) -> None:
