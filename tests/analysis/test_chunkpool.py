@@ -147,3 +147,14 @@ def test_workers_die_with_their_parent(tmp_path):
     while any(alive(p) for p in pids) and time.monotonic() < deadline:
         time.sleep(0.05)
     assert not any(alive(p) for p in pids)
+
+
+@linux_only
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["File_axon_2.abf", "171116sh_0019.abf", "opto_aps_good_units.abf"])
+def test_real_recordings_on_two_processes_are_byte_identical(real_abf_dir, name):
+    """Recordings from working labs (../shared/real-abf: a gap-free file, 22 sweeps, 3 sweeps),
+    in 2 s chunks so that every stage goes to the pool; the reference is one process."""
+    one, two = _both_ways(open_recording(real_abf_dir / name), Settings().replace("detection.chunk_s", 2.0))
+    assert one == two
+    assert one[0].count("\n") > 20  # beats were found, so the comparison covers measured rows
