@@ -2,6 +2,8 @@
 
 One graphics item draws any number of bands, so a three-minute recording's hundreds of beats
 cost one item rather than hundreds of region widgets. Bands take no part in auto-ranging.
+A few wide bands that must be named where they cover data (conditions) get
+:class:`BandLabels`: one text item each, on a paper ground.
 """
 
 from __future__ import annotations
@@ -10,7 +12,9 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui
 
-__all__ = ["SpanBands"]
+from . import palette
+
+__all__ = ["BandLabels", "SpanBands"]
 
 
 class SpanBands(pg.GraphicsObject):
@@ -184,3 +188,75 @@ class SpanBands(pg.GraphicsObject):
                 continue
             keep.append((i, rect))
         return keep
+
+
+class BandLabels:
+    """Names of bands along the top of a plot, each on a semi-opaque paper label bordered in its
+    band's colour, so that it reads over the trace or the points beneath.
+
+    Each label is centred on the visible part of its band and kept inside that part and the
+    plot; it hides while that part is too narrow to hold it. It follows the plot's range and
+    size by itself. The overview strip and the time-course figure name their conditions so.
+
+    Parameters
+    ----------
+    plot : pyqtgraph.PlotItem
+        The plot the labels go on (above its data: they take no part in auto-ranging).
+    z : float
+        Stacking order, above the data and any navigation window.
+    """
+
+    #: Opacity of the paper ground (of 255): the data beneath still shows, faintly.
+    GROUND_ALPHA = 215
+
+    def __init__(self, plot: pg.PlotItem, *, z: float = 25) -> None:
+        self._plot = plot
+        self._box = plot.getViewBox()
+        self._z = z
+        #: The labels, one per band, in band order.
+        self.items: list[pg.TextItem] = []
+        self._spans: list[tuple[float, float]] = []
+        self._font = QtGui.QFont()
+        self._font.setPointSizeF(8.5)
+        self._box.sigRangeChanged.connect(lambda *_a: self.place())
+        self._box.sigResized.connect(lambda *_a: self.place())
+
+    def set_labels(self, names, colours, spans) -> None:
+        """One label per band: its name, its colour (the border) and its ``(start, end)`` in x."""
+        names = list(names)
+        for label in self.items[len(names):]:
+            self._plot.removeItem(label)
+        del self.items[len(names):]
+        for i, (name, colour) in enumerate(zip(names, colours)):
+            if i == len(self.items):
+                label = pg.TextItem(anchor=(0.5, 0.0))
+                label.setZValue(self._z)
+                label.textItem.document().setDocumentMargin(1.5)  # covers as little data as it can
+                self._plot.addItem(label, ignoreBounds=True)
+                self.items.append(label)
+            label = self.items[i]
+            label.setText(str(name), color=palette.INK)
+            label.setFont(self._font)
+            label.fill = pg.mkBrush(palette.rgba(palette.PAPER, self.GROUND_ALPHA))
+            label.border = pg.mkPen(colour, width=1)
+            label.update()
+        self._spans = [(float(a), float(b)) for a, b in spans]
+        self.place()
+
+    def place(self) -> None:
+        """Put each label at the top of the plot, centred on the visible part of its band, or
+        hide it when that part is too narrow for it."""
+        if not self.items:
+            return
+        (x0, x1), (_y0, y1) = self._box.viewRange()
+        px_x, _px_y = self._box.viewPixelSize()
+        if not (px_x > 0 and np.isfinite(px_x)):
+            return
+        for label, (a, b) in zip(self.items, self._spans):
+            lo, hi = max(a, x0), min(b, x1)
+            half = (label.textItem.boundingRect().width() / 2 + 3) * px_x
+            if hi - lo < 2 * half:
+                label.setVisible(False)
+                continue
+            label.setPos((lo + hi) / 2, y1)  # it fits, so centred it stays inside lo..hi
+            label.setVisible(True)

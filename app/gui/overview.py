@@ -13,7 +13,7 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
 from . import palette
-from .bands import SpanBands
+from .bands import BandLabels, SpanBands
 
 __all__ = ["OverviewStrip", "MarkingViewBox"]
 
@@ -107,8 +107,7 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
 
         self.condition_bands = [SpanBands(z=-20), SpanBands(z=-20)]
         #: One label per condition, on a paper ground so that it reads over the envelope.
-        self.condition_labels: list[pg.TextItem] = []
-        self._label_spans: list[tuple[float, float]] = []
+        self.condition_names = BandLabels(self.trace_plot, z=25)  # above the navigation window
         self.steady_bands = [SpanBands(hatch=True, z=-19), SpanBands(hatch=True, z=-19)]
         for plot, bands, steady in zip((self.trace_plot, self.rate_plot), self.condition_bands, self.steady_bands):
             plot.addItem(bands, ignoreBounds=True)
@@ -127,8 +126,6 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
         for box in (self.trace_box, self.rate_box):
             box.clicked_at.connect(self.clicked_at)
             box.span_marked.connect(self.condition_marked)
-        self.trace_box.sigRangeChanged.connect(lambda *_a: self._place_labels())
-        self.trace_box.sigResized.connect(lambda *_a: self._place_labels())
 
     # -- content -------------------------------------------------------------------------------
     def set_recording_geometry(self, sweep_starts_s, sweep_durations_s) -> None:
@@ -171,7 +168,7 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
         names = [n for n, *_ in spans]
         self.condition_bands[0].set_bands(t0, t1, colours)
         self.condition_bands[1].set_bands(t0, t1, colours)
-        self._set_labels(names, [c for *_, c in spans], list(zip(t0, t1)))
+        self.condition_names.set_labels(names, [c for *_, c in spans], list(zip(t0, t1)))
         steady = steady or []
         s0 = [a for a, _, _ in steady]
         s1 = [min(b, self._duration_s) for _, b, _ in steady]
@@ -179,46 +176,10 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
         for bands in self.steady_bands:
             bands.set_bands(s0, s1, scol)
 
-    # -- condition labels ----------------------------------------------------------------------
-    def _set_labels(self, names: list[str], colours: list[str], spans: list[tuple[float, float]]) -> None:
-        for label in self.condition_labels[len(names):]:
-            self.trace_plot.removeItem(label)
-        del self.condition_labels[len(names):]
-        font = self.font()
-        font.setPointSizeF(8.5)
-        for i, (name, colour) in enumerate(zip(names, colours)):
-            if i == len(self.condition_labels):
-                label = pg.TextItem(anchor=(0.5, 0.0))
-                label.setZValue(25)  # above the envelope and the navigation window
-                label.textItem.document().setDocumentMargin(1.5)  # covers as few spike tips as it can
-                self.trace_plot.addItem(label, ignoreBounds=True)
-                self.condition_labels.append(label)
-            label = self.condition_labels[i]
-            label.setText(name, color=palette.INK)
-            label.setFont(font)
-            label.fill = pg.mkBrush(palette.rgba(palette.PAPER, 215))
-            label.border = pg.mkPen(colour, width=1)
-            label.update()
-        self._label_spans = list(spans)
-        self._place_labels()
-
-    def _place_labels(self) -> None:
-        """Each label at the top of the strip, centred on the visible part of its band, kept
-        inside that part and the strip; hidden when the band is too narrow to hold it."""
-        if not self.condition_labels:
-            return
-        (x0, x1), (_y0, y1) = self.trace_box.viewRange()
-        px_x, _px_y = self.trace_box.viewPixelSize()
-        if not (px_x > 0 and np.isfinite(px_x)):
-            return
-        for label, (a, b) in zip(self.condition_labels, self._label_spans):
-            lo, hi = max(a, x0), min(b, x1)
-            half = (label.textItem.boundingRect().width() / 2 + 3) * px_x
-            if hi - lo < 2 * half:
-                label.setVisible(False)
-                continue
-            label.setPos((lo + hi) / 2, y1)  # it fits, so centred it stays inside lo..hi
-            label.setVisible(True)
+    @property
+    def condition_labels(self) -> list[pg.TextItem]:
+        """The conditions' labels, in the order of :meth:`set_conditions`."""
+        return self.condition_names.items
 
     def set_marking(self, on: bool) -> None:
         """Condition-marking mode: any drag on the strip marks a span."""

@@ -20,14 +20,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import pyqtgraph as pg
 import pyqtgraph.exporters  # noqa: F401  (registers the exporters)
-from PySide6 import QtCore, QtWidgets
+from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis import plotdata
 from analysis.recording import Recording
 from analysis.table import BeatTable
 
 from . import palette
-from .bands import SpanBands
+from .bands import BandLabels, SpanBands
 
 __all__ = ["FigureInput", "FiguresPanel", "export_figure", "FIGURES"]
 
@@ -255,21 +255,51 @@ class TimeCourseFigure(_Figure):
     #: (column, label, unit) of the three stacked plots.
     ROWS = (("rate_bpm", "rate", "bpm"), ("apd90_ms", "APD90", "ms"), ("ddr_mV_per_s", "DDR", "mV/s"))
 
+    #: Width of the plots' left axes, in pixels (the same for all, so their time axes align).
+    AXIS_WIDTH_PX = 62
+
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plots: list[pg.PlotItem] = []
         self.bands: list[SpanBands] = []
+        self.header = self._header()
         for i, (_col, label, unit) in enumerate(self.ROWS):
-            plot = self.addPlot(row=i, col=0)
+            plot = self.addPlot(row=i + 1, col=0)
             _style(plot, ("time in recording", "s") if i == len(self.ROWS) - 1 else ("", None), (label, unit))
-            plot.getAxis("left").setWidth(62)
-            if self.plots:
-                plot.setXLink(self.plots[0])
-            bands = SpanBands(label_colour=palette.INK if i == 0 else None, z=-20)
+            plot.getAxis("left").setWidth(self.AXIS_WIDTH_PX)
+            plot.setXLink(self.header)
+            bands = SpanBands(z=-20)
             plot.addItem(bands, ignoreBounds=True)
             self.plots.append(plot)
             self.bands.append(bands)
         self.points: list[pg.ScatterPlotItem] = []
+
+    def _header(self) -> pg.PlotItem:
+        """A thin row above the plots with a bar per condition and its name on a paper label,
+        so that the names never cover a beat's point."""
+        header = self.addPlot(row=0, col=0)
+        header.setMenuEnabled(False)
+        header.hideButtons()
+        header.setMouseEnabled(x=False, y=False)
+        header.hideAxis("bottom")
+        axis = header.getAxis("left")
+        axis.setWidth(self.AXIS_WIDTH_PX)
+        axis.setStyle(showValues=False)
+        axis.setTicks([[], []])  # an empty axis: it only keeps the bars in line with the plots
+        axis.setPen(pg.mkPen(None))
+        header.getViewBox().disableAutoRange()
+        header.setYRange(0.0, 1.0, padding=0.0)
+        font = QtGui.QFont()
+        font.setPointSizeF(8.5)
+        height = QtGui.QFontMetricsF(font).height() + 9  # the label, its margins and border
+        header.setMinimumHeight(height)
+        header.setMaximumHeight(height)
+        #: The conditions as bars above the plots (their washes run down the plots too).
+        self.condition_bars = SpanBands(z=-20)
+        header.addItem(self.condition_bars, ignoreBounds=True)
+        #: The conditions' names.
+        self.condition_names = BandLabels(header)
+        return header
 
     def draw(self, data: FigureInput) -> None:
         rows = _accepted_rows(data.beats)
@@ -288,8 +318,11 @@ class TimeCourseFigure(_Figure):
                 if sel.any():
                     plot.addItem(pg.ScatterPlotItem(t[sel], y[sel], size=4, pen=None, brush=pg.mkBrush(colour)))
             bands.set_bands([s[1] for s in data.spans], [min(s[2], rec_end) for s in data.spans],
-                            [palette.rgba(s[3], 40) for s in data.spans], [s[0] for s in data.spans])
+                            [palette.rgba(s[3], 40) for s in data.spans])
             plot.enableAutoRange()
+        spans = [(s[1], min(s[2], rec_end)) for s in data.spans]
+        self.condition_bars.set_bands([a for a, _ in spans], [b for _, b in spans], [palette.rgba(s[3], 110) for s in data.spans])
+        self.condition_names.set_labels([s[0] for s in data.spans], [s[3] for s in data.spans], spans)
 
 
 class PoincareFigure(_Figure):

@@ -7,9 +7,10 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
-from PySide6 import QtGui  # noqa: E402
+from PySide6 import QtCore, QtGui  # noqa: E402
 
 from analysis import plotdata  # noqa: E402
+from app.gui import palette  # noqa: E402
 from app.gui.plots import FigureInput, FiguresPanel, export_figure  # noqa: E402
 
 from .handmade import handmade  # noqa: E402
@@ -158,3 +159,31 @@ def test_without_summaries_the_legend_says_every_accepted_beat(panel):
     w.redraw({"aligned"})
     n = int(np.sum((data.beats["condition"] == "baseline") & (data.beats["accepted"] == 1)))
     assert w.figures["aligned"].legend_texts()[0] == f"baseline: n = {n} (accepted beats)"
+
+
+def test_time_course_names_its_conditions_on_paper_labels_above_the_points(panel, qtbot):
+    from app.gui.bands import BandLabels
+    from app.gui.overview import OverviewStrip
+
+    w, data = panel
+    w.tabs.setCurrentIndex(2)  # the time course, shown so that its labels are laid out
+    figure = w.figures["time_course"]
+    qtbot.waitUntil(lambda: all(label.isVisible() for label in figure.condition_names.items))
+    labels = figure.condition_names.items
+    assert [label.textItem.toPlainText() for label in labels] == ["baseline", "drug"]
+    # The very labels the overview strip puts on its conditions (one class, not a copy).
+    strip = OverviewStrip()
+    qtbot.addWidget(strip)
+    assert type(figure.condition_names) is type(strip.condition_names) is BandLabels
+    header = figure.header.getViewBox()
+    rate_box = figure.plots[0].getViewBox().sceneBoundingRect()
+    for label, (_name, a, b, colour) in zip(labels, data.spans):
+        assert label.fill.style() != QtCore.Qt.NoBrush
+        assert 0 < label.fill.color().alpha() < 255  # semi-opaque
+        assert label.fill.color().name() == palette.PAPER
+        assert label.border.color().name() == colour
+        rect = label.mapRectToScene(label.boundingRect())
+        assert header.sceneBoundingRect().contains(rect)
+        left, right = (header.mapViewToScene(QtCore.QPointF(x, 0.5)).x() for x in (a, b))
+        assert left <= rect.left() and rect.right() <= right  # inside its condition's span
+        assert rect.bottom() <= rate_box.top()  # above the rate points: it covers none of them
