@@ -135,34 +135,49 @@ def run_ordered(task: Callable[[int], T], n_tasks: int, on_result: Callable[[int
     # Imported here: a short recording (most of the app's work) never needs them.
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
+    from concurrent.futures.process import BrokenProcessPool
 
     previous, _TASK = _TASK, task
     # This process works the first chunks itself while n_workers - 1 forked children work the
     # rest, a few chunks per message; when it is done it takes back the messages no child has
-    # started yet.
+    # started yet. Chunks no child could work (no process to be had under a process or memory
+    # limit, a worker killed) are worked here too: the results are the same wherever they come from.
     share = -(-n_tasks // n_workers)
     step = max(1, (n_tasks - share) // (4 * (n_workers - 1)))
     batches = [list(range(a, min(n_tasks, a + step))) for a in range(share, n_tasks, step)]
-    pool = ProcessPoolExecutor(n_workers - 1, mp_context=multiprocessing.get_context("fork"), initializer=_start_worker,
-                               initargs=(os.getpid(),))
+    pool = None
+    futures: list = []
     try:
-        futures = [pool.submit(_call_many, batch) for batch in batches]
+        try:
+            pool = ProcessPoolExecutor(n_workers - 1, mp_context=multiprocessing.get_context("fork"),
+                                       initializer=_start_worker, initargs=(os.getpid(),))
+            for batch in batches:
+                futures.append(pool.submit(_call_many, batch))
+        except (OSError, BrokenProcessPool):
+            pass  # the batches without a future are worked below
         for i in range(share):
             results.append(task(i))
             if on_result is not None:
                 on_result(i, results[-1])
-        for batch, future in zip(batches, futures):
-            found = [task(i) for i in batch] if future.cancel() else future.result()
+        for k, batch in enumerate(batches):
+            found = None
+            if k < len(futures) and not futures[k].cancel():
+                with contextlib.suppress(BrokenProcessPool):
+                    found = futures[k].result()
+            if found is None:
+                found = [task(i) for i in batch]
             for i, result in zip(batch, found):
                 results.append(result)
                 if on_result is not None:
                     on_result(i, result)
     except BaseException:
-        pool.shutdown(wait=True, cancel_futures=True)
+        if pool is not None:
+            pool.shutdown(wait=True, cancel_futures=True)
         raise
     finally:
         _TASK = previous
-    pool.shutdown(wait=True)
+    if pool is not None:
+        pool.shutdown(wait=True)
     return results
 
 

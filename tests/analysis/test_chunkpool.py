@@ -158,3 +158,33 @@ def test_real_recordings_on_two_processes_are_byte_identical(real_abf_dir, name)
     one, two = _both_ways(open_recording(real_abf_dir / name), Settings().replace("detection.chunk_s", 2.0))
     assert one == two
     assert one[0].count("\n") > 20  # beats were found, so the comparison covers measured rows
+
+
+def _dies_in_a_worker(i: int):
+    if chunkpool._IN_WORKER:
+        os._exit(3)  # as the kernel's out-of-memory killer would end it
+    return i, os.getpid()
+
+
+@linux_only
+def test_chunks_of_a_worker_that_died_are_worked_here():
+    with use_workers(2):
+        out = run_ordered(_dies_in_a_worker, 12)
+    assert out == [(i, os.getpid()) for i in range(12)]
+
+
+@linux_only
+def test_no_process_to_be_had_works_every_chunk_here(monkeypatch):
+    """fork(2) failing with EAGAIN (a process limit reached): the chunks are worked in this process."""
+    import concurrent.futures
+    import errno
+
+    class NoProcesses(concurrent.futures.ProcessPoolExecutor):
+        def submit(self, *args, **kwargs):
+            raise OSError(errno.EAGAIN, "Resource temporarily unavailable")
+
+    monkeypatch.setattr(concurrent.futures, "ProcessPoolExecutor", NoProcesses)
+    order = []
+    with use_workers(2):
+        out = run_ordered(_where, 10, on_result=lambda i, r: order.append(i))
+    assert out == [(i, os.getpid()) for i in range(10)] and order == list(range(10))
