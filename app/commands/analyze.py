@@ -11,6 +11,7 @@ file nor replaces a good one). :func:`report` prints a short summary per file an
 from __future__ import annotations
 
 import argparse
+import contextlib
 import math
 import os
 import sys
@@ -119,21 +120,45 @@ def settings_from_args(args: argparse.Namespace) -> Settings:
     return settings
 
 
-def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Callable | None = None) -> list:
-    """Open and analyse each file in order; the first bad file raises (nothing written yet)."""
-    from analysis import open_recording
-    from analysis.pipeline import analyze
+def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Callable | None = None,
+                  stream: Any = None) -> list:
+    """Open and analyse each file in order; the first bad file raises (nothing written yet).
 
+    ``progress(done, total)`` follows each file's analysis; without it, a progress bar per file
+    is drawn on ``stream`` (default stderr) when that is a terminal, and cleared once the file
+    is done, so that the summary lines stand alone.
+    """
+    from analysis import open_recording
     from analysis.chunkpool import available_cores
+    from analysis.pipeline import analyze
 
     units = dict(args.units) if getattr(args, "units", None) else None
     workers = getattr(args, "workers", None) or available_cores()
     results = []
     for path in args.files:
         rec = open_recording(path, units=units)
-        results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=progress, label=path,
-                               workers=workers))
+        with _progress_bar(path, stream if stream is not None else sys.stderr, progress) as tick:
+            results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=tick,
+                                   label=path, workers=workers))
     return results
+
+
+@contextlib.contextmanager
+def _progress_bar(path: str, stream: Any, progress: Callable | None):
+    """``progress`` itself when given; else a tqdm bar on ``stream`` (drawn on a terminal only)."""
+    if progress is not None:
+        yield progress
+        return
+    from tqdm import tqdm
+
+    with tqdm(total=1, desc=os.path.basename(path), file=stream, disable=None, leave=False, dynamic_ncols=True,
+              bar_format="{desc}: {percentage:3.0f}%|{bar}| {elapsed}<{remaining}") as bar:
+        def tick(done: int, total: int) -> None:
+            if bar.total != total:
+                bar.total = total
+            bar.update(done - bar.n)
+
+        yield tick
 
 
 def _write_csv(results: Sequence, path: str) -> None:

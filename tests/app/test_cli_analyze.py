@@ -184,3 +184,25 @@ def test_real_1_khz_file_gets_the_dvdt_warning(real_abf_dir, tmp_path, capsys):
     code, out, err = _analyze(capsys, real_abf_dir / "File_axon_2.abf", "--csv", tmp_path / "o.csv")
     assert code == 0 and "dV/dt max cannot be trusted" in err and "1 kHz" in err  # 1 kHz (MANIFEST.csv)
     assert len(list(csv.reader(io.StringIO((tmp_path / "o.csv").read_text())))) > 1
+
+
+class _Terminal(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+def test_a_progress_bar_on_a_terminal_only(tmp_path):
+    """tqdm draws on a terminal and stays silent on a pipe or file (tqdm's disable=None)."""
+    import argparse
+
+    from app.commands.analyze import analyse_files
+
+    path, centres = _cell(tmp_path)
+    args = argparse.Namespace(files=[str(path)], units=[], channel=None, sweeps=None, workers=1)
+    terminal, pipe = _Terminal(), io.StringIO()
+    (on_terminal,) = analyse_files(args, Settings(), stream=terminal)
+    (on_pipe,) = analyse_files(args, Settings(), stream=pipe)
+    drawn = terminal.getvalue()
+    assert drawn.startswith(f"\r{path.name}:") and "%|" in drawn and pipe.getvalue() == ""
+    assert drawn.endswith("\r") and drawn.rsplit("\r", 2)[-2].strip() == ""  # cleared when the file is done
+    assert len(on_terminal.beats) == len(on_pipe.beats) == len(centres)  # one row per beat built in
