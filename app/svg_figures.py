@@ -12,11 +12,12 @@ from __future__ import annotations
 
 import math
 from typing import Sequence
-from xml.sax.saxutils import escape
 
 import numpy as np
 
 from analysis.table import BeatTable
+
+from .svg_elements import document, escape, num
 
 __all__ = ["PANELS", "nice_ticks", "time_course_svg"]
 
@@ -53,7 +54,7 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
 
 
 def _fmt(x: float) -> str:
-    return f"{x:.1f}".rstrip("0").rstrip(".") if abs(x) < 1e6 else f"{x:.3g}"
+    return num(x, 1)
 
 
 def _label(x: float) -> str:
@@ -102,10 +103,6 @@ def time_course_svg(
         return _LEFT + plot_w * x / x_max
 
     out = [
-        '<?xml version="1.0" encoding="UTF-8"?>',
-        f'<svg xmlns="http://www.w3.org/2000/svg" width="{_W}" height="{height}" viewBox="0 0 {_W} {height}" '
-        'font-family="sans-serif" font-size="11">',
-        f'<rect width="{_W}" height="{height}" fill="white"/>',
         f'<text x="{_LEFT}" y="20" font-size="14">{escape(title)}</text>',
         f'<text x="{_W - _RIGHT}" y="20" text-anchor="end" fill="#555">filled: accepted; open grey: rejected</text>',
     ]
@@ -153,5 +150,4 @@ def time_course_svg(
                 out.append(f'<circle cx="{cx}" cy="{cy}" r="2.5" fill="none" stroke="#999"/>')
     last_bottom = _TOP + n_panels * _PANEL_H + (n_panels - 1) * _GAP
     out.append(f'<text x="{_LEFT + plot_w / 2:.1f}" y="{last_bottom + 34}" text-anchor="middle">time from the start of the recording (s)</text>')
-    out.append("</svg>")
-    return "\n".join(out) + "\n"
+    return document(_W, height, out, font='font-family="sans-serif" font-size="11"')
