@@ -19,7 +19,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pyqtgraph as pg
-import pyqtgraph.exporters  # noqa: F401  (registers the exporters)
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis import plotdata
@@ -28,6 +27,7 @@ from analysis.table import BeatTable
 
 from . import palette
 from .bands import BandLabels, SpanBands
+from .figure_export import export_figure
 
 __all__ = ["FigureInput", "FiguresPanel", "export_figure", "FIGURES"]
 
@@ -398,43 +398,6 @@ FIGURES = (
     ("poincare", PoincareFigure),
     ("ddr_cl", DdrClFigure),
 )
-
-
-def export_figure(figure: _Figure, path: str | os.PathLike, *, width_px: int = 1600) -> str:
-    """Write a figure to PNG or SVG (by the path's extension) with pyqtgraph's exporters."""
-    path = os.fspath(path)
-    ext = os.path.splitext(path)[1].lower()
-    if ext == ".svg":
-        try:
-            pg.exporters.SVGExporter(figure.export_item()).export(path)
-        except ValueError:
-            # pyqtgraph's SVG clean-up cannot parse the closed paths ("... Z") that recent Qt
-            # versions write; Qt's own SVG generator draws the same scene.
-            _export_svg_with_qt(figure, path)
-        return path
-    if ext == ".png":
-        exporter = pg.exporters.ImageExporter(figure.export_item())
-        exporter.parameters()["width"] = width_px
-    else:
-        raise ValueError(f"{path}: figures export to .png or .svg")
-    exporter.export(path)
-    return path
-
-
-def _export_svg_with_qt(figure: _Figure, path: str) -> None:
-    from PySide6 import QtGui, QtSvg
-
-    rect = figure.export_item().sceneBoundingRect()
-    generator = QtSvg.QSvgGenerator()
-    generator.setFileName(path)
-    generator.setSize(QtCore.QSize(int(rect.width()), int(rect.height())))
-    generator.setViewBox(QtCore.QRectF(0, 0, rect.width(), rect.height()))
-    generator.setTitle(figure.title)
-    painter = QtGui.QPainter(generator)
-    try:
-        figure.scene().render(painter, QtCore.QRectF(0, 0, rect.width(), rect.height()), rect)
-    finally:
-        painter.end()
 
 
 class FiguresPanel(QtWidgets.QWidget):
