@@ -79,6 +79,10 @@ class SpanBands(pg.GraphicsObject):
     def __len__(self) -> int:
         return len(self._t0)
 
+    def spans(self) -> list[tuple[float, float, QtGui.QBrush]]:
+        """``(start, end, brush)`` of each band, in data x (for exporters that draw them)."""
+        return [(float(a), float(b), brush) for a, b, brush in zip(self._t0, self._t1, self._brushes)]
+
     # -- pyqtgraph hooks ---------------------------------------------------------------------
     def dataBounds(self, axis, frac=1.0, orthoRange=None):  # noqa: N802 (pyqtgraph API)
         return None  # never widen the view to show bands

@@ -307,8 +307,8 @@ class _Writer:
         if view is None or not len(bands):
             return []
         out = []
-        # The bands' own arrays (this module draws them as SpanBands.paint does).
-        for t0, t1, brush in zip(bands._t0, bands._t1, bands._brushes):
+        # Drawn as SpanBands.paint draws them.
+        for t0, t1, brush in bands.spans():
             if t1 < view.left() or t0 > view.right():
                 continue
             out += self._box(bands, QtCore.QRectF(t0, view.top(), t1 - t0, view.height()), None, brush)

@@ -177,3 +177,15 @@ def test_a_shifted_flag_label_gives_way_to_its_neighbours(view, qtbot):
     [(_text, rect)] = view.flag_bands.label_rects()
     centre4 = (beats["t_mdp_s"][4] + beats["t_apd90_s"][4]) / 2
     assert rect.center().x() == pytest.approx(_scene_x(view, centre4), abs=0.5)  # beat 4's, centred
+
+
+def test_span_bands_give_their_spans_and_brushes(qapp):
+    """The bands an exporter draws are exactly those set (common practice, no source)."""
+    from app.gui.bands import SpanBands
+
+    bands = SpanBands()
+    red, blue = (200, 40, 40, 60), (40, 40, 200, 60)
+    bands.set_bands([0.0, 2.5], [1.0, 4.0], [red, blue])
+    got = bands.spans()
+    assert [(a, b) for a, b, _ in got] == [(0.0, 1.0), (2.5, 4.0)]
+    assert [brush.color().getRgb() for _, _, brush in got] == [red, blue]
