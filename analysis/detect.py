@@ -264,6 +264,7 @@ def detect_beats(
 def detect_sweep(
     load: Callable[[int, int], np.ndarray], n: int, fs_hz: float, *,
     settings: DetectionSettings | None = None, noise_mV: float | None = None, pad: int = 0,
+    progress: Callable[[int, int], None] | None = None,
 ) -> Detection:
     """Beats in one sweep read in chunks through ``load(start, stop)``.
 
@@ -278,6 +279,9 @@ def detect_sweep(
     noise_mV : float or None
     pad : int
         Extra samples read on each side of a chunk's context (filter edges, smoothing).
+    progress : callable or None
+        ``progress(done, total)`` as the chunks are done (in the samples detection works on,
+        which may be averaged: only the ratio means anything).
     """
     s = settings or DetectionSettings()
     if noise_mV is None:
@@ -286,12 +290,12 @@ def detect_sweep(
         spans: list[tuple[int, int]] = []
         det = detect_sweep(
             _spike_free(load, fs_hz, noise_mV, s, spans), n, fs_hz,
-            settings=dataclasses.replace(s, spike_max_ms=0.0), noise_mV=noise_mV, pad=pad,
+            settings=dataclasses.replace(s, spike_max_ms=0.0), noise_mV=noise_mV, pad=pad, progress=progress,
         )
         return _with_spikes(det, spans)
     q = max(1, int(fs_hz // s.working_rate_hz))
     if q > 1:
-        return _detect_decimated(load, n, fs_hz, q, s, noise_mV, pad)
+        return _detect_decimated(load, n, fs_hz, q, s, noise_mV, pad, progress)
     block = max(16, int(round(s.level_window_s * fs_hz)))
     chunk = max(1, int(math.ceil(s.chunk_s * fs_hz / block))) * block
     overlap = max(1, int(math.ceil(s.chunk_overlap_s * fs_hz / block))) * block
@@ -320,7 +324,11 @@ def detect_sweep(
         return found, side
 
     ups, peaks, arts, reasons = [], [], [], []
-    for (u, p, a, r), side in run_ordered(region, -(-n // chunk)):
+    def advanced(i: int, _result) -> None:
+        if progress is not None:
+            progress(min(n, (i + 1) * chunk), n)
+
+    for (u, p, a, r), side in run_ordered(region, -(-n // chunk), advanced):
         ups.append(u)
         peaks.append(p)
         arts.append(a)
@@ -389,7 +397,8 @@ def _with_spikes(det: Detection, spans: list) -> Detection:
                                spike_spans=np.asarray(merged, dtype=np.int64).reshape(-1, 2))
 
 
-def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, noise_mV: float, pad: int) -> Detection:
+def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, noise_mV: float, pad: int,
+                      progress: Callable[[int, int], None] | None = None) -> Detection:
     """Detection on means of ``q`` samples (aligned to the sweep's start), indices mapped back.
 
     Averaging costs one pass and divides all later work by ``q``; it also shrinks electrical
@@ -412,7 +421,7 @@ def _detect_decimated(load, n: int, fs_hz: float, q: int, s: DetectionSettings, 
 
     det = detect_sweep(
         load_q, n // q, fs_hz / q, settings=dataclasses.replace(s, working_rate_hz=fs_hz / q),
-        noise_mV=noise_mV / math.sqrt(q), pad=-(-pad // q),
+        noise_mV=noise_mV / math.sqrt(q), pad=-(-pad // q), progress=progress,
     )
     half = q // 2
     return Detection(

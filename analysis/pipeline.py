@@ -351,8 +351,15 @@ def _analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     load = _loader(recording, sw, ch, scale, s)
     pad = filter_pad_samples(fs, s.preprocess)
     noise = estimate_noise_mV(load, n)
-    det = detect_sweep(load, n, fs, settings=s.detection, noise_mV=noise, pad=pad)
-    tick(n)
+    sent = [0]  # samples of this sweep reported so far for detection
+
+    def detected(done: int, total: int) -> None:
+        now = n * done // total if total else n
+        tick(now - sent[0])
+        sent[0] = now
+
+    det = detect_sweep(load, n, fs, settings=s.detection, noise_mV=noise, pad=pad, progress=detected)
+    tick(n - sent[0])
     art = (det.i_artefact, det.artefact_reason)
     ups = det.i_upstroke
     if ups.size == 0:

@@ -141,6 +141,22 @@ def test_progress_reaches_the_total():
     assert seen and seen[-1][0] == seen[-1][1] and all(a <= b for a, b in seen)
 
 
+def test_progress_moves_during_detection_of_a_long_sweep():
+    """A sweep of several detection chunks reports each chunk, so a progress bar moves before the
+    measurement starts (the first half of the total is detection; common practice, no source)."""
+    from analysis.settings import Settings
+
+    v, _ = _beats()
+    rec = Recording.from_array(np.tile(v, 8), FS)  # 24 s: detection works it in blocks of several seconds
+    seen = []
+    analyze(rec, Settings().replace("detection.chunk_s", 1.0),
+            progress=lambda done, total: seen.append((done, total)))
+    total = seen[-1][1]
+    during_detection = [d for d, _ in seen if d < total // 2]
+    assert len(during_detection) >= 3 and all(a <= b for a, b in zip(seen, seen[1:]))
+    assert seen[-1][0] == total
+
+
 # -- real recordings from working labs (../shared/real-abf) ---------------------------------------
 @pytest.mark.realdata
 def test_real_multichannel_file_analyses_its_only_mv_channel(real_abf_dir):
