@@ -301,12 +301,14 @@ class MainWindow(FilesMixin, LoadingMixin, ReviewMixin, QtWidgets.QMainWindow):
 
     def _forget_beats(self) -> None:
         """Another recording is about to be shown: no beat of the one before stays in the table,
-        selected, highlighted or in the beat card; its own beats select one when they come."""
+        selected, highlighted, in the beat card or in the figures; its own beats select one when
+        they come."""
         self.current_row = -1
         self._beats = None
         self.table.set_table(None)
         self.trace_view.set_current_beat(-1)
         self.beat_card.show_beat(None, -1)
+        self.figures.set_input(None)
 
     def _refresh_all(self) -> None:
         self._refresh_beats()

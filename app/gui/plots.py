@@ -154,6 +154,12 @@ class _Figure(pg.GraphicsLayoutWidget):
     def draw(self, data: FigureInput) -> None:  # pragma: no cover - overridden
         raise NotImplementedError
 
+    def blank(self) -> None:
+        """Nothing drawn: no recording, or the next one's analysis still running (so that a
+        figure never shows the previous recording's beats under the new one's name)."""
+        self.plot.clear()
+        self.legend.clear()
+
     def export_item(self):
         return self.ci
 
@@ -177,6 +183,10 @@ class AlignedBeatsFigure(_Figure):
         _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
         self.legend = _legend(self.plot, (-10, 10))
         self.averages: dict[str, plotdata.AlignedBeats] = {}
+
+    def blank(self) -> None:
+        super().blank()
+        self.averages = {}
 
     def draw(self, data: FigureInput) -> None:
         self.plot.clear()
@@ -300,6 +310,14 @@ class TimeCourseFigure(_Figure):
         #: The conditions' names.
         self.condition_names = BandLabels(header)
         return header
+
+    def blank(self) -> None:
+        for plot, bands in zip(self.plots, self.bands):
+            for item in list(plot.listDataItems()):
+                plot.removeItem(item)
+            bands.set_bands([], [], [])
+        self.condition_bars.set_bands([], [], [])
+        self.condition_names.set_labels([], [], [])
 
     def draw(self, data: FigureInput) -> None:
         rows = _accepted_rows(data.beats)
@@ -427,8 +445,14 @@ class FiguresPanel(QtWidgets.QWidget):
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
     def set_input(self, data: FigureInput | None) -> None:
-        """New data: the figure shown is redrawn now, the others when their tab is opened."""
+        """New data: the figure shown is redrawn now, the others when their tab is opened;
+        None blanks every figure."""
         self._input = data
+        if data is None:
+            for figure in self.figures.values():
+                figure.blank()
+            self._dirty = set()
+            return
         self._dirty = {key for key, _cls in FIGURES}
         self._redraw_if_needed()
 

@@ -63,9 +63,24 @@ def test_a_file_opened_next_shows_its_own_first_beat(window, other_abf):
     # while it is analysed, nothing of the file before is shown as selected
     assert window.table.beat_model.rowCount() == 0 and window.table.current_table_row() == -1
     assert window.beat_card.title.text() == "no beat selected"
+    assert _drawn(window) == {}  # no figure shows the file before under the new one's name
     assert window.settle(60_000) and not window.last_error
     assert window.session.label(window.key).endswith("cell-s3.abf")
     _assert_on_first_beat(window)
+    window.figures.redraw()
+    drawn = _drawn(window)
+    assert drawn["poincare"] > 0 and drawn["time_course"] > 0  # drawn again from the new file
+
+
+def _drawn(w) -> dict[str, int]:
+    """Data items each figure draws (figures drawing none left out)."""
+    counts = {}
+    for key, figure in w.figures.figures.items():
+        plots = [item for item in figure.ci.items if hasattr(item, "listDataItems")]
+        n = sum(len(p.listDataItems()) for p in plots)
+        if n:
+            counts[key] = n
+    return counts
 
 
 def test_a_results_file_opened_next_shows_its_first_recordings_first_beat(window, other_abf, cell_abf, tmp_path):
