@@ -9,7 +9,8 @@ back in chunk order and the chunks are the same whatever the number of workers, 
 the same bytes with one worker or many (``tests/analysis/test_chunkpool.py``).
 
 The number of workers is a context setting, one unless a caller asks for more
-(:func:`use_workers`). The command line asks for the cores available. The app's worker threads
+(:func:`use_workers`). The command line asks for the cores available, at most four
+(:func:`default_workers`). The app's worker threads
 and the batch processes stay at one: forking a process that runs other threads (a Qt
 application) is unsafe, and a batch already keeps every core busy with whole files. Forking is
 used on Linux only; elsewhere the chunks are worked one after another.
@@ -24,7 +25,7 @@ import signal
 import sys
 from typing import Callable, Iterator, TypeVar
 
-__all__ = ["available_cores", "can_fork", "run_ordered", "use_workers", "workers"]
+__all__ = ["available_cores", "can_fork", "default_workers", "run_ordered", "use_workers", "workers"]
 
 T = TypeVar("T")
 
@@ -37,6 +38,17 @@ _WORKERS: contextvars.ContextVar[int] = contextvars.ContextVar("upstroke_chunk_w
 _TASK: Callable[[int], object] | None = None
 #: True in a worker process: its chunks never fork again.
 _IN_WORKER = False
+
+
+#: The most workers the command line starts by default: each holds a chunk's arrays (about
+#: 50-100 MB at 20-50 kHz), and past a few workers the stages' serial parts dominate anyway.
+DEFAULT_MAX_WORKERS = 4
+
+
+def default_workers() -> int:
+    """Workers for a long recording when the user does not say: the cores, at most
+    :data:`DEFAULT_MAX_WORKERS`."""
+    return min(available_cores(), DEFAULT_MAX_WORKERS)
 
 
 def available_cores() -> int:

@@ -197,11 +197,11 @@ def main() -> int:
             return float(np.median([r[k] for r in runs[name]]))
 
         print()
-        from analysis.chunkpool import available_cores
+        from analysis.chunkpool import default_workers
 
-        cores = available_cores()
+        cores = default_workers()  # the processes upstroke analyze starts here by default
         print(f"{'':34s}{'wall s':>9s}{'(median)':>10s}{'CPU s':>9s}{'(median)':>10s}{'peak MB':>10s}{'worker MB':>11s}")
-        for name, label in (("floor", "floor (read + one pass)"), ("analyze", f"upstroke analyze ({cores} cores)"),
+        for name, label in (("floor", "floor (read + one pass)"), ("analyze", f"upstroke analyze ({cores} workers)"),
                             ("analyze1", "upstroke analyze --workers 1"), ("script", "straightforward script")):
             print(f"{label:34s}{best(name, 0):9.2f}{median(name, 0):10.2f}{best(name, 1):9.2f}"
                   f"{median(name, 1):10.2f}{max(r[2] for r in runs[name]):10.0f}{max(r[3] for r in runs[name]):11.0f}")

@@ -101,7 +101,7 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                    help="declare a channel's units when the file mislabels them, e.g. 0=mV (repeatable)")
     p.add_argument("--csv", metavar="BEATS.csv", help="write the beats table (one row per beat)")
     p.add_argument("--workers", type=parse_workers, metavar="N",
-                   help="processes sharing the chunks of a long recording (Linux; default: every core; "
+                   help="processes sharing the chunks of a long recording (Linux; default: every core, at most 4; "
                    "the results are the same with any number)")
     from app.review_outputs import add_arguments
 
@@ -129,11 +129,11 @@ def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Cal
     is done, so that the summary lines stand alone.
     """
     from analysis import open_recording
-    from analysis.chunkpool import available_cores
+    from analysis.chunkpool import default_workers
     from analysis.pipeline import analyze
 
     units = dict(args.units) if getattr(args, "units", None) else None
-    workers = getattr(args, "workers", None) or available_cores()
+    workers = getattr(args, "workers", None) or default_workers()
     results = []
     for path in args.files:
         rec = open_recording(path, units=units)

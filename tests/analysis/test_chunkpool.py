@@ -188,3 +188,10 @@ def test_no_process_to_be_had_works_every_chunk_here(monkeypatch):
     with use_workers(2):
         out = run_ordered(_where, 10, on_result=lambda i, r: order.append(i))
     assert out == [(i, os.getpid()) for i in range(10)] and order == list(range(10))
+
+
+def test_the_default_is_every_core_up_to_four(monkeypatch):
+    """A chunk's arrays per worker (50-100 MB) bound how many the command line starts by itself."""
+    for cores, expected in ((1, 1), (2, 2), (4, 4), (64, 4)):
+        monkeypatch.setattr(chunkpool, "available_cores", lambda c=cores: c)
+        assert chunkpool.default_workers() == expected
