@@ -1,4 +1,5 @@
-"""Recordings shared by the window's tests: one synthetic nodal-like cell, as ABF, analysed once."""
+"""Recordings shared by the window's tests: one synthetic nodal-like cell, as ABF, analysed once,
+and windows opened on it."""
 
 from __future__ import annotations
 
@@ -25,3 +26,24 @@ def cell_result(cell_abf):
     """The core's analysis of the file, made once for the module."""
     rec = open_recording(cell_abf)
     return rec, analyze(rec, label=cell_abf.name)
+
+
+@pytest.fixture
+def cell_window(qtbot, cell_abf, cell_result):
+    """``cell_window(size=None)``: a new window with the module's cell open and its analysis
+    settled (given the module's result, so nothing is analysed again); ``size`` shows it at that
+    size (for tests that look at what is drawn)."""
+    from app.gui.main_window import MainWindow
+
+    def make(*, size: tuple[int, int] | None = None):
+        w = MainWindow(interactive=False)
+        qtbot.addWidget(w)
+        if size is not None:
+            w.resize(*size)
+            w.show()
+        rec, result = cell_result
+        w.open_recording_file(rec, origin=str(cell_abf), result=result)
+        assert w.settle(60_000)
+        return w
+
+    return make

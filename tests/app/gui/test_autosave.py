@@ -23,11 +23,9 @@ def _window(qtbot):
 
 
 @pytest.fixture
-def window(qtbot, cell_abf, cell_result):
-    w = _window(qtbot)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and w.key is not None and not w.last_error
+def window(cell_window):
+    w = cell_window()
+    assert w.key is not None and not w.last_error
     return w
 
 

@@ -21,12 +21,10 @@ def _window(qtbot, *, interactive: bool = False):
 
 
 @pytest.fixture
-def saved(qtbot, cell_abf, cell_result, tmp_path):
+def saved(cell_window, tmp_path):
     """The window on the file with beat 3 rejected and saved; then beat 6 rejected, unsaved."""
-    w = _window(qtbot)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and w.key is not None and not w.last_error
+    w = cell_window()
+    assert w.key is not None and not w.last_error
     w.select_beat(3)
     w.reject_current("noise")
     out = tmp_path / "cell-q7.h5"
@@ -87,11 +85,8 @@ def test_revert_to_an_unreadable_file_changes_nothing(saved):
     assert [p.decisions for p in pending_reviews()] == [2]  # the journal is all that is left of it
 
 
-def test_without_a_results_file_there_is_nothing_to_revert(qtbot, cell_abf, cell_result):
-    w = _window(qtbot)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000)
+def test_without_a_results_file_there_is_nothing_to_revert(cell_window):
+    w = cell_window()
     w.select_beat(2)
     w.reject_current("noise")
     assert not w.act_revert.isEnabled()

@@ -12,16 +12,12 @@ pytest.importorskip("pytestqt")
 from analysis.pipeline import analyze  # noqa: E402
 from analysis.session import Session  # noqa: E402
 from analysis.synthetic import preset, synthesize  # noqa: E402
-from app.gui.main_window import MainWindow  # noqa: E402
 
 
 @pytest.fixture
-def window(qtbot, cell_abf, cell_result):
-    w = MainWindow(interactive=False)
-    qtbot.addWidget(w)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and w.key is not None and not w.last_error
+def window(cell_window):
+    w = cell_window()
+    assert w.key is not None and not w.last_error
     return w
 
 

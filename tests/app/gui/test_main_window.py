@@ -28,12 +28,9 @@ def _window(qtbot):
 
 
 @pytest.fixture
-def window(qtbot, cell_abf, cell_result):
+def window(cell_window):
     """The window on the file, given the module's analysis (the first test analyses itself)."""
-    w = _window(qtbot)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000)
+    w = cell_window(size=(1400, 900))
     assert w.key is not None and not w.last_error
     return w
 

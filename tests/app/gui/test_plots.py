@@ -68,19 +68,14 @@ def test_only_the_figure_shown_is_drawn_until_another_tab_opens(panel):
 
 
 @pytest.fixture
-def steady_window(qtbot, cell_abf, cell_result):
+def steady_window(cell_window, cell_result):
     """The window on the two-sweep cell with one condition over both sweeps whose summary uses
     only its last 5 s, and a beat rejected inside that window."""
     from analysis.conditions import Condition, SteadyState
-    from app.gui.main_window import MainWindow
 
-    w = MainWindow(interactive=False)
-    qtbot.addWidget(w)
-    w.resize(1400, 900)
-    w.show()
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and w.key is not None
+    w = cell_window(size=(1400, 900))
+    rec, _ = cell_result
+    assert w.key is not None
     assert w.add_condition(Condition("baseline", 0.0, 17.0, "s", SteadyState("last_s", 5.0)))
     t = plotdata.recording_times_s(w.session.beats(w.key), rec.sweep_starts_s)
     w.select_beat(int(np.flatnonzero(t > t.max() - 3.0)[0]))

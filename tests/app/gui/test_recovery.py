@@ -14,13 +14,10 @@ from app.gui.recovery import RecoveryDialog  # noqa: E402
 
 
 @pytest.fixture
-def crashed(qtbot, cell_abf, cell_result):
+def crashed(cell_window):
     """A review of the file with beat 5 rejected, left unsaved (the window dropped as by a crash)."""
-    w = MainWindow(interactive=False)
-    qtbot.addWidget(w)
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and w.key is not None
+    w = cell_window()
+    assert w.key is not None
     w.select_beat(5)
     w.reject_current("seal or access trouble")
     assert w.journal.exists()

@@ -10,7 +10,6 @@ pytest.importorskip("pytestqt")
 from analysis.session import Session  # noqa: E402
 from analysis.synthetic import preset, synthesize  # noqa: E402
 from analysis.synthetic_io import write_abf  # noqa: E402
-from app.gui.main_window import MainWindow  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -23,15 +22,10 @@ def other_abf(tmp_path_factory):
 
 
 @pytest.fixture
-def window(qtbot, cell_abf, cell_result):
+def window(cell_window):
     """The window on the first cell with a late beat of its second sweep under review."""
-    w = MainWindow(interactive=False)
-    qtbot.addWidget(w)
-    w.resize(1400, 900)
-    w.show()
-    rec, result = cell_result
-    w.open_recording_file(rec, origin=str(cell_abf), result=result)
-    assert w.settle(60_000) and not w.last_error
+    w = cell_window(size=(1400, 900))
+    assert not w.last_error
     late = int(np.flatnonzero(np.asarray(w.beats["sweep"]) == 1)[3])
     w.select_beat(late)
     assert w.current_row == late and w.table.current_table_row() == late and w.sweep == 1
