@@ -5,8 +5,8 @@ figure on screen. The PNG is the scene rendered at the figure's size onto an ima
 pixel density (``width_px`` wide), so that everything is enlarged alike: pyqtgraph's own image
 exporter scales the painter instead, which legends (drawn ignoring transformations) and label
 grounds (drawn with their own transform) escape, so that in its files they came out small and
-in the wrong place. Both files are written beside the target and moved over it, so that a
-failed export never leaves half a file.
+in the wrong place. Both are written through the core's atomic writer
+(:func:`analysis.atomic.atomic_output`), so that a failed export never leaves half a file.
 """
 
 from __future__ import annotations
@@ -16,6 +16,8 @@ import os
 import pyqtgraph as pg
 import pyqtgraph.exporters  # noqa: F401  (registers the exporters)
 from PySide6 import QtCore, QtGui, QtWidgets
+
+from analysis.atomic import atomic_output
 
 from .figure_svg import figure_svg
 
@@ -105,24 +107,18 @@ def export_figure(figure: pg.GraphicsLayoutWidget, path: str | os.PathLike, *, w
     ------
     ValueError
         For another extension.
-    OSError
-        When the file cannot be written (nothing is left at ``path`` then).
+    analysis.atomic.WriteError
+        When the file cannot be written (the file at ``path``, if any, is left as it was).
     """
     path = os.fspath(path)
     ext = os.path.splitext(path)[1].lower()
     if ext not in (".png", ".svg"):
         raise ValueError(f"{path}: figures export to .png or .svg")
-    folder, name = os.path.split(os.path.abspath(path))
-    partial = os.path.join(folder, f".{name}.partial{ext}")
-    try:
+    with atomic_output(path) as partial:
         if ext == ".svg":
             _settle(figure)
             with open(partial, "w", encoding="utf-8", newline="\n") as f:
                 f.write(figure_svg(figure, title=getattr(figure, "title", "")))
         elif not figure_png(figure, width_px=width_px).save(partial, "PNG"):
             raise OSError(f"{path}: the image could not be written")
-        os.replace(partial, path)
-    finally:
-        if os.path.exists(partial):
-            os.remove(partial)
     return path
