@@ -22,6 +22,7 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis import plotdata
+from analysis.errors import InputError
 from analysis.recording import Recording
 from analysis.table import BeatTable
 
@@ -498,4 +499,7 @@ class FiguresPanel(QtWidgets.QWidget):
             if not os.path.splitext(path)[1]:
                 path += ".png"
             self.redraw({key})
-            export_figure(self.figures[key], path)
+            try:
+                export_figure(self.figures[key], path)
+            except (InputError, ValueError) as exc:  # a folder one cannot write to, another extension
+                QtWidgets.QMessageBox.warning(self, "Export figure", str(exc))

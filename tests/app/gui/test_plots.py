@@ -59,6 +59,21 @@ def test_export_png_and_svg(panel, tmp_path):
     assert len(paths) == 5 and all(QtGui.QImage(p).width() == 1600 for p in paths)
 
 
+def test_export_dialog_says_why_a_figure_cannot_be_written(panel, tmp_path, monkeypatch):
+    """A folder that is not there: one warning naming the file, nothing written (common practice,
+    no source)."""
+    from PySide6 import QtWidgets
+
+    w, _ = panel
+    target = tmp_path / "no-such-folder" / "rate.png"
+    monkeypatch.setattr(QtWidgets.QFileDialog, "getSaveFileName", lambda *a, **k: (str(target), ""))
+    warned = []
+    monkeypatch.setattr(QtWidgets.QMessageBox, "warning", lambda parent, title, text: warned.append((title, text)))
+    w._export_dialog()
+    assert len(warned) == 1 and warned[0][0] == "Export figure" and str(target) in warned[0][1]
+    assert not target.parent.exists()
+
+
 def test_only_the_figure_shown_is_drawn_until_another_tab_opens(panel):
     w, data = panel
     w.set_input(data)
