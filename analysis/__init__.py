@@ -2,7 +2,9 @@
 
 The stable API is small::
 
-    from analysis import open_recording, analyze
+    from analysis import analyze
+
+    from analysis.readers import open_recording
     rec = open_recording("cell.abf")
     result = analyze(rec)
     result.beats          # BeatTable with the beats CSV's columns
@@ -13,12 +15,13 @@ Review, conditions, summaries and the results file go through :class:`Session`::
     session = Session.open("study.h5")    # or Session(); session.add("cell.abf")
 """
 
-from .errors import InputError, RecordingError, ResultsFileError, SettingsError
-from .pipeline import AnalysisResult, analyze
-from .readers import open_recording, supported_extensions
-from .recording import Channel, Recording
-from .settings import Settings
-from .table import CSV_COLUMNS, BeatTable
+from analysis._version import __version__
+from analysis.errors import InputError, RecordingError, ResultsFileError, SettingsError
+from analysis.pipeline import AnalysisResult, analyze
+from analysis.readers import open_recording, supported_extensions
+from analysis.recording import Channel, Recording
+from analysis.settings import Settings
+from analysis.table import CSV_COLUMNS, BeatTable
 
 __all__ = [
     "AnalysisResult",
@@ -37,14 +40,13 @@ __all__ = [
     "supported_extensions",
 ]
 
-__version__ = "0.1.0"
 
 
 def __getattr__(name: str):
     # The review session is imported on first use: the command line's analyze and batch, and
     # every worker process, start faster without it.
     if name == "Session":
-        from .session import Session
+        from analysis.session import Session
 
         return Session
     raise AttributeError(f"module 'analysis' has no attribute {name!r}")

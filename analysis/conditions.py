@@ -2,7 +2,7 @@
 
 A condition is a time range (seconds from the start of the recording, so that it means the same
 in gap-free and episodic files) or an inclusive range of sweeps. Each condition carries the
-steady-state window its summary is computed over: the suggestion of :mod:`analysis.summary`
+steady-state window its summary is computed over: the suggestion of :mod:`analysis.stats._summary`
 (the default), the last T seconds, the last N beats, or the whole condition.
 
 The text form, used by ``upstroke analyze --condition`` and shown in the app, is::
@@ -27,7 +27,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .errors import InputError
+from analysis.errors import InputError
 
 __all__ = [
     "Condition",

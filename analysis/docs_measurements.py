@@ -7,12 +7,12 @@ Every part of the page comes from one place in the core, so that the page cannot
 code does not do:
 
 * the beats CSV's columns: :data:`analysis.table.COLUMNS` and the feature registry
-  :data:`analysis.measure.FEATURES` (with the APD features of the default settings);
-* how each marker is found: the docstrings of :mod:`analysis.markers` and :mod:`analysis.signal`;
-* how beats are found: the docstring of :mod:`analysis.detect`;
-* the flags: :data:`analysis.measure.FLAG_WORDS` and the vocabulary in the docstring of
-  :mod:`analysis.events`, with the automatic rejections of the default quality settings;
-* rhythm and variability: the docstring of :mod:`analysis.variability`;
+  :data:`analysis.beats.FEATURES` (with the APD features of the default settings);
+* how each marker is found: the docstrings of :mod:`analysis.beats._markers` and :mod:`analysis.signal._filters`;
+* how beats are found: the docstring of :mod:`analysis.beats._detect`;
+* the flags: :data:`analysis.beats.FLAG_WORDS` and the vocabulary in the docstring of
+  :mod:`analysis.flags._events`, with the automatic rejections of the default quality settings;
+* rhythm and variability: the docstring of :mod:`analysis.stats._variability`;
 * every setting: :func:`analysis.settings.describe` (unit, default, bounds or choices, what it
   does, its source).
 """
@@ -24,8 +24,22 @@ import re
 import sys
 from types import ModuleType
 
-from . import detect, events, markers, measure, settings, signal, table, variability
-from .events import EVENT_FLAGS, rejection_flags
+from analysis import table
+
+from analysis.beats import _detect as detect
+
+from analysis.flags import _events as events
+
+from analysis.beats import _markers as markers
+
+from analysis.beats import _features as measure
+
+from analysis.settings import _settings as settings
+
+from analysis.signal import _filters as signal
+
+from analysis.stats import _variability as variability
+from analysis.flags import EVENT_FLAGS, rejection_flags
 
 __all__ = ["flag_vocabulary", "render"]
 
@@ -64,8 +78,8 @@ def _cell(text: object) -> str:
 def flag_vocabulary() -> dict[str, str]:
     """Every word of the ``flags`` column with its meaning, in the order they are written.
 
-    The structural flags come from :data:`analysis.measure.FLAG_WORDS`, the event and quality
-    flags from the vocabulary in :mod:`analysis.events`' docstring (a definition list: the word
+    The structural flags come from :data:`analysis.beats.FLAG_WORDS`, the event and quality
+    flags from the vocabulary in :mod:`analysis.flags._events`' docstring (a definition list: the word
     on its own line, its meaning indented below).
     """
     out = dict(measure.FLAG_WORDS)
@@ -85,7 +99,7 @@ def flag_vocabulary() -> dict[str, str]:
         out[word] = " ".join(meaning)
     missing = [w for w in EVENT_FLAGS if w not in out]
     if missing:
-        raise LookupError(f"analysis.events documents no meaning for {missing}")
+        raise LookupError(f"analysis.flags._events documents no meaning for {missing}")
     return {w: out[w] for w in (*measure.FLAG_WORDS, *EVENT_FLAGS)}
 
 
@@ -94,7 +108,7 @@ def _vocabulary_title() -> str:
     for line in doc.splitlines():
         if line.startswith("Vocabulary"):
             return line.strip()
-    raise LookupError("analysis.events has no Vocabulary section")
+    raise LookupError("analysis.flags._events has no Vocabulary section")
 
 
 def _columns() -> list[str]:

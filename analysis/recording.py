@@ -16,7 +16,7 @@ from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
-from .errors import RecordingError
+from analysis.errors import RecordingError
 
 __all__ = [
     "Channel",

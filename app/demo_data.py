@@ -12,7 +12,7 @@ The scenario (invented; the cells, the compound and the values are fictional):
   4 s sweeps at 50 kHz (fast upstrokes need it), with one early afterdepolarisation.
 
 :func:`gap_free_scenario` and :func:`episodic_scenario` synthesise both from
-:mod:`analysis.synthetic` with fixed seeds; ``sample_data/make_samples.py`` writes them to the
+:mod:`analysis.synthetic._cells` with fixed seeds; ``sample_data/make_samples.py`` writes them to the
 bundled files. :func:`demo_paths` finds those files beside the package (a source checkout, or the
 ``share/upstroke/sample_data`` folder an installed copy puts them in). :func:`demo_recording`
 returns what ``upstroke demo`` opens: the bundled gap-free file when there is one, otherwise the
@@ -86,7 +86,7 @@ def gap_free_scenario():
 
     Returns
     -------
-    analysis.synthetic.Synthetic
+    analysis.synthetic._cells.Synthetic
         The recording and its truth (``truth.events`` holds every planted event's time).
 
     Notes
@@ -123,7 +123,7 @@ def episodic_scenario():
 
     Returns
     -------
-    analysis.synthetic.Synthetic
+    analysis.synthetic._cells.Synthetic
     """
     import numpy as np
 

@@ -137,7 +137,7 @@ def review(args: argparse.Namespace, results: Sequence, settings, saved=None) ->
 
 def write_summary(results: Sequence, path: str) -> None:
     """Write the summary CSV of the session :func:`review` built to ``path`` (a temporary file the command moves into place)."""
-    from analysis.summary import summary_csv
+    from analysis.stats import summary_csv
 
     with open(path, "w", encoding="utf-8", newline="") as fh:
         fh.write(summary_csv(results.session.summary_table(results.keys)))
@@ -145,7 +145,7 @@ def write_summary(results: Sequence, path: str) -> None:
 
 def write_results(results: Sequence, path: str) -> None:
     """Save the session :func:`review` built to ``path`` (a temporary file the command moves into place)."""
-    from analysis.session_io import save_session
+    from analysis.session import save_session
 
     save_session(results.session, path, atomic=False)
     for label, n in results.kept.items():

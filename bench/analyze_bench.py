@@ -35,7 +35,7 @@ FS_HZ = 20_000.0
 
 
 def make_trace(minutes: float, seed: int = 11) -> tuple[np.ndarray, int]:
-    """An invented nodal-like cell (analysis.synthetic's preset) with noise and drift; and its beat count."""
+    """An invented nodal-like cell (analysis.synthetic._cells's preset) with noise and drift; and its beat count."""
     from analysis.synthetic import preset, synthesize
 
     syn = synthesize(

@@ -76,7 +76,7 @@ class Provider:
 def make_seeds(folder: Path) -> list[Path]:
     """The seed recordings, written into ``folder``."""
     from analysis.synthetic import preset, synthesize
-    from analysis.synthetic_io import write_abf, write_nwb
+    from analysis.synthetic import write_abf, write_nwb
 
     syn = synthesize(preset("nodal-like"), duration_s=1.0, fs_hz=10_000.0, seed=7)
     seeds = [folder / "synthetic.abf", folder / "synthetic.nwb"]

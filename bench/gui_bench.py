@@ -1,7 +1,7 @@
 """The desktop app on a long recording: time to the first drawn sweep, and pan/zoom frame times.
 
 Writes a 30-minute 20 kHz gap-free ABF 1 file (36 M samples, 72 MB of int16) of a synthetic
-nodal-like cell (``analysis.synthetic``, tiled) with pyabf's writer, then runs, each in a fresh
+nodal-like cell (``analysis.synthetic._cells``, tiled) with pyabf's writer, then runs, each in a fresh
 process and offscreen:
 
 * ``upstroke``  the main window: ``open_path`` to the first paint of the trace view (the analysis

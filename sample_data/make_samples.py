@@ -9,7 +9,7 @@ seeds). No cell was recorded: the cells NL-0417 and VL-0212 and the compound UP-
 Files
 -----
 NL-0417_gapfree.abf
-    Three minutes gap-free at 10 kHz, ABF1 with int16 samples (``analysis.synthetic_io.write_abf``).
+    Three minutes gap-free at 10 kHz, ABF1 with int16 samples (``analysis.synthetic.write_abf``).
 NL-0417_gapfree.nwb
     The same int16 samples as NWB (one ``CurrentClampSeries``, its ``conversion`` giving volts),
     gzip-compressed.
@@ -53,7 +53,7 @@ if str(HERE.parent) not in sys.path:  # run from a plain checkout, without an in
 
 from analysis import open_recording  # noqa: E402
 from analysis.conditions import assign_conditions  # noqa: E402
-from analysis.synthetic_io import write_abf  # noqa: E402
+from analysis.synthetic import write_abf  # noqa: E402
 from analysis.table import BeatTable  # noqa: E402
 from app import demo_data  # noqa: E402
 

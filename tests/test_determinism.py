@@ -25,7 +25,7 @@ CLOCK_FIELDS = ("analysed_at_utc", "time_utc")
 def recordings(tmp_path_factory) -> Path:
     """Two synthetic cells with noise, hum, drift, an artefact and a pause (ABF 1 and NWB)."""
     from analysis.synthetic import Artefact, Pause, preset, synthesize
-    from analysis.synthetic_io import write_abf, write_nwb
+    from analysis.synthetic import write_abf, write_nwb
 
     folder = tmp_path_factory.mktemp("determinism")
     a = synthesize(preset("nodal-like"), duration_s=5.0, fs_hz=10_000.0, seed=21, noise_mV=0.3, hum_mV=0.2,

@@ -4,7 +4,7 @@ autosave: the previous results and every confirmed review decision survive.
 CONTRACT.md ("Results file"): saves are atomic, so a crash or kill mid-save leaves the previous file
 intact; a failed command never leaves a partial or corrupt output behind. A review decision is
 *confirmed* once the call that records it has returned: the results-file save, or the autosave
-journal's write (``analysis.session_journal.Journal``, which the app calls after every change,
+journal's write (``analysis.session.Journal``, which the app calls after every change,
 offers at its next start (``pending_reviews``) and replays when the recording is opened again).
 The children are this file run as a script.
 """
@@ -73,7 +73,7 @@ def _temp_files(folder: Path) -> list[str]:
 def cell(tmp_path_factory) -> Path:
     """A synthetic cell long enough that analysis and saving take a noticeable part of a second."""
     from analysis.synthetic import preset, synthesize
-    from analysis.synthetic_io import write_abf
+    from analysis.synthetic import write_abf
 
     folder = tmp_path_factory.mktemp("kill")
     path = folder / "cell.abf"
@@ -181,7 +181,7 @@ def test_kill_during_save_keeps_every_confirmed_decision(cell, tmp_path):
 def _child_autosave(recording: str, folder: str) -> None:
     """Review beats one by one as the app does: decide, then write the journal."""
     from analysis.session import Session
-    from analysis.session_journal import Journal
+    from analysis.session import Journal
 
     session = Session()
     key = session.add(recording)
@@ -197,7 +197,7 @@ def test_kill_during_autosave_loses_no_confirmed_decision(cell, tmp_path):
     """8 kills during a review: opening the recording again finds the journal (the app restores
     it and says so) and replaying it brings back every confirmed decision."""
     from analysis.session import Session
-    from analysis.session_journal import Journal, pending_reviews
+    from analysis.session import Journal, pending_reviews
 
     folder = tmp_path / "autosave"
     rng = random.Random(SEED + 2)

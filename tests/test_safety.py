@@ -25,7 +25,7 @@ FORBIDDEN_NAMES = {"pickle", "cPickle", "_pickle", "cloudpickle", "dill", "shelv
 ALLOWED = {
     # It checks that a batch task's record can cross a process boundary, as multiprocessing and
     # Dask pickle it in transit; nothing pickled is ever stored or read back from a file.
-    ("tests/analysis/test_batch.py", "pickle"),
+    ("tests/analysis/batch/test_batch.py", "pickle"),
 }
 SKIP_DIRS = {".git", ".venv", "venv", "build", "dist", "__pycache__", ".hypothesis", ".pytest_cache"}
 
@@ -59,7 +59,7 @@ def _unsafe_uses(path: Path) -> list[str]:
 
 def test_no_pickle_or_eval_anywhere():
     files = _python_files()
-    assert len(files) > 50 and any(p.name == "store.py" for p in files)  # the whole tree was read
+    assert len(files) > 50 and any(p.name == "_store.py" for p in files)  # the whole tree was read
     problems = []
     for path in files:
         rel = path.relative_to(REPO).as_posix()
@@ -95,7 +95,7 @@ def _pickle_payload(marker: Path) -> bytes:
 def test_opaque_data_holding_a_pickle_is_refused_and_never_run(good_results, tmp_path):
     import h5py
 
-    from analysis.store import load_results
+    from analysis.results import load_results
 
     marker = tmp_path / "unpickled-something"
     payload = np.frombuffer(_pickle_payload(marker), dtype=f"V{len(_pickle_payload(marker))}")
@@ -115,7 +115,7 @@ def test_opaque_data_holding_a_pickle_is_refused_and_never_run(good_results, tmp
 def test_reference_and_compound_types_are_refused(good_results, tmp_path):
     import h5py
 
-    from analysis.store import load_results
+    from analysis.results import load_results
 
     for kind in ("reference", "compound"):
         path = tmp_path / f"{kind}.h5"

@@ -14,9 +14,9 @@ from dataclasses import dataclass
 from types import ModuleType
 from typing import Callable, Mapping
 
-from ..errors import RecordingError
-from ..recording import Recording, clamp_mode_from_units, UNKNOWN_CLAMP
-from . import abf, nwb, text
+from analysis.errors import RecordingError
+from analysis.recording import Recording, clamp_mode_from_units, UNKNOWN_CLAMP
+from analysis.readers import abf, nwb, text
 
 __all__ = ["Reader", "READERS", "open_recording", "supported_extensions", "reader_names"]
 

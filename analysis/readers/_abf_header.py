@@ -13,8 +13,8 @@ from __future__ import annotations
 import math
 import struct
 
-from ..errors import RecordingError
-from ._timebase import check_rate
+from analysis.errors import RecordingError
+from analysis.readers._timebase import check_rate
 
 __all__ = ["ABF1_SIGNATURE", "ABF2_SIGNATURE", "check_layout"]
 

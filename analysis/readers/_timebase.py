@@ -11,7 +11,7 @@ from typing import Callable
 
 import numpy as np
 
-from ..errors import RecordingError
+from analysis.errors import RecordingError
 
 __all__ = ["RELATIVE_TOLERANCE", "MIN_RATE_HZ", "MAX_RATE_HZ", "check_rate", "rate_from_times"]
 

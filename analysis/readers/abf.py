@@ -21,9 +21,9 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import RecordingError
-from ..recording import Channel, MIN_SAMPLES_PER_SWEEP, Recording, clamp_mode_from_units
-from ._abf_header import ABF1_SIGNATURE, ABF2_SIGNATURE, check_layout
+from analysis.errors import RecordingError
+from analysis.recording import Channel, MIN_SAMPLES_PER_SWEEP, Recording, clamp_mode_from_units
+from analysis.readers._abf_header import ABF1_SIGNATURE, ABF2_SIGNATURE, check_layout
 
 __all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff"]
 

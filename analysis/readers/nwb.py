@@ -18,9 +18,9 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import RecordingError
-from ..recording import CURRENT_CLAMP, MIN_SAMPLES_PER_SWEEP, Channel, Recording, clamp_mode_from_units
-from ._timebase import check_rate, rate_from_times
+from analysis.errors import RecordingError
+from analysis.recording import CURRENT_CLAMP, MIN_SAMPLES_PER_SWEEP, Channel, Recording, clamp_mode_from_units
+from analysis.readers._timebase import check_rate, rate_from_times
 
 __all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff"]
 

@@ -19,9 +19,9 @@ from typing import Callable
 
 import numpy as np
 
-from ..errors import RecordingError
-from ..recording import MIN_SAMPLES_PER_SWEEP, Recording
-from ._timebase import RELATIVE_TOLERANCE, rate_from_times
+from analysis.errors import RecordingError
+from analysis.recording import MIN_SAMPLES_PER_SWEEP, Recording
+from analysis.readers._timebase import RELATIVE_TOLERANCE, rate_from_times
 
 __all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff", "parse_label"]
 

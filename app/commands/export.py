@@ -59,7 +59,7 @@ def beats_csv(session) -> str:
 
 def summary_text(session) -> str:
     """The summary CSV of every recording of a session."""
-    from analysis.summary import summary_csv
+    from analysis.stats import summary_csv
 
     return summary_csv(session.summary_table())
 
@@ -111,7 +111,7 @@ def _describe(session, results: str) -> list[str]:
 
 def run(args: argparse.Namespace) -> int:
     """Export what the options ask for; 0 on success (bad input raises InputError, exit 2)."""
-    from analysis.atomic import atomic_outputs
+    from analysis.results._atomic import atomic_outputs
     from analysis.session import Session
 
     session = Session.open(args.results)

@@ -1,6 +1,6 @@
 """Autosave of the review in the app's own folder: the core's journal with its default place.
 
-The journal itself is Qt-free, in :mod:`analysis.session_journal` (its module docstring documents
+The journal itself is Qt-free, in :mod:`analysis.session._journal` (its module docstring documents
 the API and its durability: every write is fsynced, file and folder, before it returns). Here it
 gets the app's folder, ``autosave/`` in :func:`~app.gui.recent.config_dir`, so that
 
@@ -17,11 +17,9 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-from analysis.session_journal import (
-    JOURNAL_VERSION, JournalError, JournalReview, PendingReview, RestoreReport, write_durably,
-)
-from analysis.session_journal import Journal as _Journal
-from analysis.session_journal import pending_reviews as _pending_reviews
+from analysis.session import JOURNAL_VERSION, JournalError, JournalReview, PendingReview, RestoreReport, write_durably
+from analysis.session import Journal as _Journal
+from analysis.session import pending_reviews as _pending_reviews
 
 from .recent import config_dir
 
@@ -37,7 +35,7 @@ def autosave_folder() -> Path:
 
 
 class Journal(_Journal):
-    """:class:`analysis.session_journal.Journal` in the app's folder unless told otherwise."""
+    """:class:`analysis.session.Journal` in the app's folder unless told otherwise."""
 
     def __init__(self, origin: str, key: str, folder: str | os.PathLike | None = None) -> None:
         super().__init__(origin, key, autosave_folder() if folder is None else folder)

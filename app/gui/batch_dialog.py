@@ -209,7 +209,7 @@ def batch_analyse_folder(parent: QWidget | None = None, *, folder: str | None = 
     parent : QWidget or None
     folder, out_path : str or None
         None asks the user with a file dialog.
-    settings : analysis.settings.Settings or None
+    settings : analysis.settings._settings.Settings or None
         The settings to analyse with (the window's current ones); None for the defaults.
     channel : int, str or None
     on_saved : callable or None

@@ -1,6 +1,6 @@
 """The panel that reads out what lies between the trace view's two cursors.
 
-The numbers come from :func:`analysis.cursors.readout`, called when a cursor drag finishes
+The numbers come from :func:`analysis.readouts.readout`, called when a cursor drag finishes
 (not on every pixel of the drag), over the samples between the cursors.
 """
 
@@ -10,7 +10,7 @@ import math
 
 from PySide6 import QtCore, QtWidgets
 
-from analysis.cursors import CursorReadout
+from analysis.readouts import CursorReadout
 
 from . import palette
 

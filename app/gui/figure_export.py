@@ -6,7 +6,7 @@ pixel density (``width_px`` wide), so that everything is enlarged alike: pyqtgra
 exporter scales the painter instead, which legends (drawn ignoring transformations) and label
 grounds (drawn with their own transform) escape, so that in its files they came out small and
 in the wrong place. Both are written through the core's atomic writer
-(:func:`analysis.atomic.atomic_output`), so that a failed export never leaves half a file.
+(:func:`analysis.results.atomic_output`), so that a failed export never leaves half a file.
 """
 
 from __future__ import annotations
@@ -17,7 +17,7 @@ import pyqtgraph as pg
 import pyqtgraph.exporters  # noqa: F401  (registers the exporters)
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.atomic import atomic_output
+from analysis.results import atomic_output
 
 from .figure_svg import figure_svg
 
@@ -107,7 +107,7 @@ def export_figure(figure: pg.GraphicsLayoutWidget, path: str | os.PathLike, *, w
     ------
     ValueError
         For another extension.
-    analysis.atomic.WriteError
+    analysis.results._atomic.WriteError
         When the file cannot be written (the file at ``path``, if any, is left as it was).
     """
     path = os.fspath(path)

@@ -120,15 +120,15 @@ class FilesMixin:
 
     def export_beats_csv(self, path: str | os.PathLike) -> None:
         """The reviewed beats of the recording, in the beats CSV's columns."""
-        from analysis.atomic import atomic_output
+        from analysis.results import atomic_output
 
         with atomic_output(path) as tmp:
             with open(tmp, "w", encoding="utf-8", newline="") as fh:
                 self.session.beats(self.key).to_csv(fh)
 
     def export_summary_csv(self, path: str | os.PathLike) -> None:
-        from analysis.atomic import atomic_output
-        from analysis.summary import summary_csv
+        from analysis.results import atomic_output
+        from analysis.stats import summary_csv
 
         text = summary_csv(self.session.summary_table([self.key]))
         with atomic_output(path) as tmp:

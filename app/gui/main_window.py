@@ -13,7 +13,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.plotdata import recording_times_s
+from analysis.readouts import recording_times_s
 from analysis.session import Session
 
 from . import palette

@@ -7,7 +7,7 @@
 * the Poincare plot of successive cycle lengths;
 * DDR against CL per beat, coloured by condition, with each condition's fitted line.
 
-Every number drawn comes from :mod:`analysis.plotdata` (and through it the core's variability
+Every number drawn comes from :mod:`analysis.readouts._plotdata` (and through it the core's variability
 module); this module only draws.
 """
 
@@ -21,7 +21,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis import plotdata
+from analysis.readouts import _plotdata as plotdata
 from analysis.errors import InputError
 from analysis.recording import Recording
 from analysis.table import BeatTable
@@ -66,7 +66,7 @@ def summary_beat_rows(beats: BeatTable, summaries, sweep_starts_s) -> dict[str, 
     ----------
     beats : BeatTable
         The reviewed table the summaries were made from.
-    summaries : sequence of analysis.summary.Summary
+    summaries : sequence of analysis.stats._summary.Summary
         The session's current summaries of the recording (all sweep groups).
     sweep_starts_s : sequence of float
         The recording's sweep starts, to place beats in recording time.
@@ -80,11 +80,11 @@ def summary_beat_rows(beats: BeatTable, summaries, sweep_starts_s) -> dict[str, 
     Notes
     -----
     A summary computed in this session lists its rows (``Summary.beat_rows``); one read back
-    from a results file does not, and its rows are those :func:`analysis.summary.summarize`
-    selects: the eligible beats (:func:`analysis.summary.eligible_mask`) of the condition and
+    from a results file does not, and its rows are those :func:`analysis.stats.summarize`
+    selects: the eligible beats (:func:`analysis.stats.eligible_mask`) of the condition and
     sweep group inside the window's first and last beat.
     """
-    from analysis.summary import eligible_mask
+    from analysis.stats import eligible_mask
 
     n = len(beats)
     t_rec = plotdata.recording_times_s(beats, sweep_starts_s) if n else np.empty(0)

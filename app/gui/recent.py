@@ -10,7 +10,7 @@ import json
 import os
 from pathlib import Path
 
-from analysis.atomic import write_text_atomic
+from analysis.results import write_text_atomic
 
 __all__ = ["config_dir", "RecentFiles", "MAX_RECENT"]
 

@@ -1,6 +1,6 @@
 """The reviews a crash or a kill left unsaved: which to reopen, which to drop.
 
-The journals themselves are the core's (:mod:`analysis.session_journal`); this is the question
+The journals themselves are the core's (:mod:`analysis.session._journal`); this is the question
 the window asks about them (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`), at start and
 from File > Recover unsaved review… (:func:`add_recover_action`).
 """

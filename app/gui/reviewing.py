@@ -10,7 +10,7 @@ import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.conditions import Condition, ConditionError, SteadyState
-from analysis.cursors import readout
+from analysis.readouts import readout
 from analysis.errors import InputError
 
 from .conditions import ConditionDialog

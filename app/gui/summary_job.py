@@ -2,7 +2,7 @@
 
 A summary includes an ensemble-averaged beat measured by the core, which takes long enough to
 make the window stutter after every verdict if done on the GUI thread. The session is not
-thread-safe, so the work goes in three steps (:mod:`analysis.session_jobs`):
+thread-safe, so the work goes in three steps (:mod:`analysis.session._jobs`):
 
 1. on the GUI thread, :meth:`Session.summary_job` takes a snapshot of immutable inputs;
 2. a worker of the thread pool computes it;

@@ -3,7 +3,7 @@
 One column per condition (and sweep group), one row per parameter: mean ± SD of every per-beat
 parameter, then the cycle-length variability with the mean rate beside it (variability falls
 with rate), then the window used, the counts and the cell-type hint with its rule. The values
-are the core's summaries (:func:`analysis.summary.summarize`); nothing is computed here.
+are the core's summaries (:func:`analysis.stats.summarize`); nothing is computed here.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from typing import Mapping, Sequence
 
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.summary import PARAMETERS
+from analysis.stats import PARAMETERS
 
 from . import palette
 

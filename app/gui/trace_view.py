@@ -13,7 +13,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.phases import phase_spans
+from analysis.beats import phase_spans
 from analysis.recording import Recording
 from analysis.table import BeatTable
 

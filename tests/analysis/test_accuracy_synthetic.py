@@ -1,4 +1,4 @@
-"""Accuracy on synthetic cells whose every parameter is known exactly (analysis.synthetic).
+"""Accuracy on synthetic cells whose every parameter is known exactly (analysis.synthetic._cells).
 
 The truth of each beat is computed on the exact waveform and its closed-form derivative by
 MEASUREMENTS.md's definitions; the tolerances are those the DiFrancesco-Noble 1985 reference test
@@ -83,7 +83,7 @@ def _disturbed(name: str, seed: int = 22):
 @pytest.mark.parametrize("name", sorted(CELLS))
 def test_clean_cell_is_measured_within_the_tolerances(name):
     syn = synthesize(preset(name), duration_s=DURATION_S, fs_hz=CELLS[name], seed=21)
-    # analysis.synthetic's exact truth; clean tolerances (acceptance list).
+    # analysis.synthetic._cells's exact truth; clean tolerances (acceptance list).
     assert compare(_analyze(syn.recording), syn.truth.beats, CLEAN) == []
 
 
@@ -91,7 +91,7 @@ def test_clean_cell_is_measured_within_the_tolerances(name):
 def test_noise_hum_drift_artefacts_and_a_dad_stay_within_twice_the_tolerances(name):
     syn = _disturbed(name)
     beats = _analyze(syn.recording)
-    # analysis.synthetic's exact truth; noisy tolerances; the four spikes in diastole and the DAD
+    # analysis.synthetic._cells's exact truth; noisy tolerances; the four spikes in diastole and the DAD
     # are not beats (MEASUREMENTS.md, Beats: detection must not be fooled by them).
     assert compare(beats, syn.truth.beats, NOISY) == []
 
@@ -104,14 +104,14 @@ def test_cycle_length_with_noise_holds_for_other_seeds(name):
     for seed in (23, 24, 25, 26):
         syn = _disturbed(name, seed)
         problems += [f"seed {seed}: {p}" for p in compare(_analyze(syn.recording), syn.truth.beats, NOISY[:1])]
-    # analysis.synthetic's exact truth; noisy CL tolerance 1 ms (acceptance list).
+    # analysis.synthetic._cells's exact truth; noisy CL tolerance 1 ms (acceptance list).
     assert problems == []
 
 
 @pytest.mark.parametrize("name", sorted(CELLS))
 def test_early_ddr_and_apd20_meet_the_ddr_and_apd_tolerances_clean(name):
     syn = synthesize(preset(name), duration_s=DURATION_S, fs_hz=CELLS[name], seed=21)
-    # analysis.synthetic's exact truth; the acceptance list's DDR (10 %) and APD (1 ms)
+    # analysis.synthetic._cells's exact truth; the acceptance list's DDR (10 %) and APD (1 ms)
     # tolerances applied to DDR100 and APD20.
     assert compare(_analyze(syn.recording), syn.truth.beats, EXTRA_CLEAN) == []
 
@@ -119,7 +119,7 @@ def test_early_ddr_and_apd20_meet_the_ddr_and_apd_tolerances_clean(name):
 @pytest.mark.parametrize("name", sorted(CELLS))
 def test_early_ddr_and_apd20_meet_twice_the_ddr_and_apd_tolerances_with_noise(name):
     syn = _disturbed(name)
-    # analysis.synthetic's exact truth; twice the DDR and APD tolerances, with noise.
+    # analysis.synthetic._cells's exact truth; twice the DDR and APD tolerances, with noise.
     assert compare(_analyze(syn.recording), syn.truth.beats, EXTRA_NOISY) == []
 
 
@@ -131,7 +131,7 @@ def test_a_spike_on_the_plateau_is_not_the_peak(name):
     syn = synthesize(
         preset(name), duration_s=8.0, fs_hz=CELLS[name], seed=23, artefacts=[Artefact(t_spike, 40.0, 3)],
     )
-    # analysis.synthetic's exact truth (the spike is not part of the cell); clean tolerances:
+    # analysis.synthetic._cells's exact truth (the spike is not part of the cell); clean tolerances:
     # an electrical artefact a few samples long is neither a beat nor a beat's peak or upstroke
     # (MEASUREMENTS.md, Beats).
     assert compare(_analyze(syn.recording), syn.truth.beats, CLEAN) == []
@@ -146,7 +146,7 @@ def test_the_peak_of_a_noisy_trace_is_not_biased_up_by_the_noise(name):
     for seed in (31, 32):
         syn = synthesize(preset(name), duration_s=DURATION_S, fs_hz=CELLS[name], seed=seed, noise_mV=0.3)
         errors += list(np.asarray(_analyze(syn.recording)["peak_mV"]) - np.asarray(syn.truth.beats["peak_mV"]))
-    # analysis.synthetic's exact truth; the mean error within a fifth of the clean peak tolerance
+    # analysis.synthetic._cells's exact truth; the mean error within a fifth of the clean peak tolerance
     # (0.5 mV, acceptance list), and every beat within the clean tolerance itself.
     assert abs(np.mean(errors)) < 0.1 and np.max(np.abs(errors)) < 0.5
 
@@ -155,7 +155,7 @@ def test_a_hum_free_recording_keeps_its_last_beat_whatever_its_length():
     # The sweep ends 0.28 s after the last upstroke, so its last, short second of samples holds
     # that beat's action potential; there is no hum at all.
     syn = synthesize(preset("nodal-like"), duration_s=3.25, fs_hz=10_000.0, seed=0, start_phase=0.2)
-    # analysis.synthetic's exact truth; clean tolerances.
+    # analysis.synthetic._cells's exact truth; clean tolerances.
     assert compare(_analyze(syn.recording), syn.truth.beats, CLEAN) == []
 
 

@@ -4,8 +4,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from analysis import docs_measurements, measure, settings
-from analysis.events import EVENT_FLAGS
+from analysis import docs_measurements
+
+from analysis.beats import _features as measure
+
+from analysis.settings import _settings as settings
+from analysis.flags import EVENT_FLAGS
 from analysis.table import CSV_COLUMNS
 
 PAGE = Path(__file__).resolve().parents[2] / "docs" / "measurements.md"

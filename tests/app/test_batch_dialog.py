@@ -7,7 +7,7 @@ import pytest
 pytest.importorskip("pytestqt")
 
 from analysis import analyze, open_recording  # noqa: E402
-from analysis.store import load_results  # noqa: E402
+from analysis.results import load_results  # noqa: E402
 from tests.batch_recordings import beating_trace, write_abf1  # noqa: E402
 
 FS_HZ = 10_000.0

@@ -56,7 +56,7 @@ def test_each_output_has_one_temporary_file_beside_it(tmp_path, capsys, monkeypa
     strand under a name the next run does not clean up (common practice, no source)."""
     import tempfile
 
-    import analysis.atomic
+    import analysis.results._atomic
 
     path, _ = _cell(tmp_path)
     made = []
@@ -67,7 +67,7 @@ def test_each_output_has_one_temporary_file_beside_it(tmp_path, capsys, monkeypa
         made.append(name)
         return fd, name
 
-    monkeypatch.setattr(analysis.atomic.tempfile, "mkstemp", recording_mkstemp)
+    monkeypatch.setattr(analysis.results._atomic.tempfile, "mkstemp", recording_mkstemp)
     targets = [tmp_path / "beats.csv", tmp_path / "summary.csv", tmp_path / "results.h5"]
     code, _, err = _analyze(capsys, path, "--csv", targets[0], "--summary-csv", targets[1], "--out", targets[2])
     assert code == 0, err

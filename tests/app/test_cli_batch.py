@@ -36,7 +36,7 @@ def _good(folder):
 
 
 def test_batch_with_two_workers_writes_what_analyze_writes(folder, tmp_path, capsys):
-    from analysis.store import load_results
+    from analysis.results import load_results
 
     good = _good(folder)
     a, b = tmp_path / "analyze", tmp_path / "batch"
@@ -58,7 +58,7 @@ def test_batch_with_two_workers_writes_what_analyze_writes(folder, tmp_path, cap
 
 
 def test_a_failing_file_in_the_middle_is_listed_the_rest_saved_exit_2(folder, tmp_path, capsys):
-    from analysis.store import load_results
+    from analysis.results import load_results
 
     out = tmp_path / "r.h5"
     code = main(["batch", str(folder), "--workers", "2", "--out", str(out), "--quiet"])

@@ -13,7 +13,7 @@ import pytest
 
 from analysis.session import Session
 from analysis.synthetic import EAD, Stretch, preset, synthesize
-from analysis.synthetic_io import write_abf
+from analysis.synthetic import write_abf
 from app.cli import main
 
 

@@ -8,7 +8,7 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
-from analysis import plotdata
+from analysis.readouts import _plotdata as plotdata
 from analysis.session import Session
 from app import demo_data
 from app.cli import main

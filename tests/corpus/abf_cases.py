@@ -3,7 +3,7 @@
 Seeds: the real ABF 1 and ABF 2 recordings that myokit's wheel ships
 (``myokit/tests/data/formats/abf-v1.abf``, ``abf-v2.abf``, written by the acquisition software
 itself), and a synthetic current-clamp cell written in pyabf's own ABF 1 writer's layout
-(:func:`analysis.synthetic_io.write_abf`). Field offsets are those of the format as pyabf reads
+(:func:`analysis.synthetic.write_abf`). Field offsets are those of the format as pyabf reads
 it: ``pyabf/abf1/headerV1.py`` (ABF 1 header), ``pyabf/abf2/headerV2.py`` and
 ``pyabf/abf2/section.py`` (ABF 2 header and section map: block, bytes per entry, entry count).
 """
@@ -55,7 +55,7 @@ def _myokit_formats() -> Path | None:
 
 def _synthetic_abf1(path: Path) -> Path:
     from analysis.synthetic import preset, synthesize
-    from analysis.synthetic_io import write_abf
+    from analysis.synthetic import write_abf
 
     syn = synthesize(preset("nodal-like"), duration_s=2.0, fs_hz=10_000.0, seed=3)
     write_abf(syn.recording, path)

@@ -1,6 +1,6 @@
 """Damaged NWB files, and HDF5 files that are not recordings.
 
-Seed: a synthetic current-clamp cell written with pynwb (:func:`analysis.synthetic_io.write_nwb`,
+Seed: a synthetic current-clamp cell written with pynwb (:func:`analysis.synthetic.write_nwb`,
 one ``CurrentClampSeries`` per sweep). Each case removes or rewrites one part with h5py at the
 place the NWB 2 schema puts it (``/acquisition/NAME/data`` with attributes ``conversion``,
 ``offset``, ``unit``; ``starting_time`` with attribute ``rate``; the ``electrode`` link; the root
@@ -23,7 +23,7 @@ _PYNWB = r"could not read|damaged|incomplete|corrupt|missing"
 
 def _seed(path: Path) -> Path:
     from analysis.synthetic import preset, synthesize
-    from analysis.synthetic_io import write_nwb
+    from analysis.synthetic import write_nwb
 
     syn = synthesize(preset("nodal-like"), duration_s=1.0, fs_hz=10_000.0, seed=5)
     write_nwb(syn.recording, path)

@@ -16,7 +16,7 @@ from .make_corpus import Case
 def good_recording(folder: Path) -> Path:
     """A synthetic nodal-like cell, 2 s at 10 kHz, in ABF 1 (pyabf's writer's layout)."""
     from analysis.synthetic import preset, synthesize
-    from analysis.synthetic_io import write_abf
+    from analysis.synthetic import write_abf
 
     path = folder / "good-cell.abf"
     if not path.exists():

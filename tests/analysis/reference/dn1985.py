@@ -7,7 +7,7 @@ Simulation (CVODES) integrates it; the model's own ``dot(membrane.V)`` is the ex
 
 The truth here is a deliberately plain, loop-per-beat implementation of MEASUREMENTS.md's
 definitions on the dense solution, written apart from the analysis core and from
-``analysis.synthetic_truth`` so that neither checks itself.
+``analysis.synthetic._truth`` so that neither checks itself.
 """
 
 from __future__ import annotations

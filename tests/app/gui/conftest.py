@@ -8,12 +8,12 @@ import pytest
 from analysis import open_recording
 from analysis.pipeline import analyze
 from analysis.synthetic import preset, synthesize
-from analysis.synthetic_io import write_abf
+from analysis.synthetic import write_abf
 
 
 @pytest.fixture(scope="module")
 def cell_abf(tmp_path_factory):
-    """Two 8 s sweeps of a synthetic nodal-like cell (analysis.synthetic), as ABF."""
+    """Two 8 s sweeps of a synthetic nodal-like cell (analysis.synthetic._cells), as ABF."""
     syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=4_000.0, seed=11, noise_mV=0.2,
                      n_sweeps=2, sweep_gap_s=1.0)
     path = tmp_path_factory.mktemp("rec") / "cell-q7.abf"

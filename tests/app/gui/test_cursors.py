@@ -7,7 +7,7 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
-from analysis.cursors import readout  # noqa: E402
+from analysis.readouts import readout  # noqa: E402
 from app.gui.cursors import CursorPanel  # noqa: E402
 
 from .handmade import FS_HZ, handmade  # noqa: E402

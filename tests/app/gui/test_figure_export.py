@@ -158,7 +158,7 @@ def test_ddr_vs_cl_fastest_ddr_lands_on_its_values(exported):
 
 def test_time_course_slowest_beat_lands_on_its_time_and_rate(exported):
     """In the rate panel, the slowest accepted beat (the demo's pause) at its time and rate."""
-    from analysis import plotdata
+    from analysis.readouts import _plotdata as plotdata
 
     figures, _ = exported
     figure = figures.figures["time_course"]

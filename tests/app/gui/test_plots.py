@@ -9,7 +9,7 @@ pytest.importorskip("pytestqt")
 
 from PySide6 import QtCore, QtGui  # noqa: E402
 
-from analysis import plotdata  # noqa: E402
+from analysis.readouts import _plotdata as plotdata  # noqa: E402
 from app.gui import palette  # noqa: E402
 from app.gui.plots import FigureInput, FiguresPanel, export_figure  # noqa: E402
 
@@ -147,7 +147,7 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
 
 
 def test_summary_rows_read_back_match_the_rows_the_summary_listed(steady_window):
-    from analysis.summary import Summary
+    from analysis.stats import Summary
     from app.gui.plots import summary_beat_rows
 
     w = steady_window

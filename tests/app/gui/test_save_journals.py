@@ -12,7 +12,7 @@ from PySide6 import QtWidgets  # noqa: E402
 
 from analysis.session import Session  # noqa: E402
 from analysis.synthetic import preset, synthesize  # noqa: E402
-from analysis.synthetic_io import write_abf  # noqa: E402
+from analysis.synthetic import write_abf  # noqa: E402
 from app.gui.autosave import Journal, pending_reviews  # noqa: E402
 from app.gui.main_window import MainWindow  # noqa: E402
 

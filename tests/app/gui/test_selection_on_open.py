@@ -9,7 +9,7 @@ pytest.importorskip("pytestqt")
 
 from analysis.session import Session  # noqa: E402
 from analysis.synthetic import preset, synthesize  # noqa: E402
-from analysis.synthetic_io import write_abf  # noqa: E402
+from analysis.synthetic import write_abf  # noqa: E402
 
 
 @pytest.fixture(scope="module")

@@ -1,0 +1,162 @@
+"""Per-beat parameters: markers found on the trace, then columns through a feature registry.
+
+Measurement has two stages:
+
+1. :func:`measure_beats` finds each beat's markers on the trace (a loop over beats; each step
+   works on that beat's own samples): dV/dt max and its time, the peak, the MDP, the take-off,
+   the phase-4 fits and the APD level crossings. Definitions are MEASUREMENTS.md's defaults or the
+   alternatives chosen in :class:`analysis.settings.MeasurementSettings` (see
+   :mod:`analysis.beats._markers` for each one).
+2. :data:`FEATURES`, the registry of named columns (name with its unit, function, description,
+   published source), turns the markers of one sweep into table columns, vectorised.
+
+Undefined values are NaN. The first beat of a sweep has no preceding diastole: its MDP, TOP, DDR,
+APA, APDs and CL are NaN and it carries ``no_diastole``; a beat whose repolarisation the sweep's
+end cuts off carries ``truncated``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Mapping
+
+import numpy as np
+
+from analysis.beats._markers import BeatMarkers, apd_name, measure_beats
+from analysis.settings import MeasurementSettings
+
+__all__ = ["Feature", "FEATURES", "FLAG_WORDS", "features_of_sweep", "marker_columns"]
+
+#: Flags this module sets (the events module adds its own).
+FLAG_WORDS = {
+    "no_diastole": "first beat of its sweep: no preceding diastole, so no MDP, TOP, DDR, APA, APD or CL",
+    "truncated": "the sweep ends before the beat has repolarised (APDs cut off), or during its upstroke",
+}
+
+
+@dataclass(frozen=True)
+class Feature:
+    """One measured column.
+
+    Attributes
+    ----------
+    name : str
+        Column name, with its unit.
+    unit : str
+    description : str
+    source : str
+        The published definition (or "common practice, no source").
+    compute : callable
+        ``compute(markers, settings) -> ndarray`` over the beats of one sweep, in order.
+    """
+
+    name: str
+    unit: str
+    description: str
+    source: str
+    compute: Callable[[Mapping[str, np.ndarray], MeasurementSettings], np.ndarray]
+
+
+def _col(name: str) -> Callable[[Mapping[str, np.ndarray], MeasurementSettings], np.ndarray]:
+    return lambda m, s: np.asarray(m[name], dtype=np.float64)
+
+
+def _cl(m: Mapping[str, np.ndarray], s: MeasurementSettings) -> np.ndarray:
+    t = np.asarray(m["t_upstroke_s"], dtype=np.float64)
+    out = np.full(t.shape, np.nan)
+    if "previous_row" in m:
+        # The previous beat of the chain (artefact-like detections are not beats).
+        prev = np.asarray(m["previous_row"], np.int64)
+        has = prev >= 0
+        out[has] = (t[has] - t[prev[has]]) * 1e3
+    elif t.size > 1:
+        out[1:] = np.diff(t) * 1e3
+    # A beat without a measured predecessor in the same continuous sweep has no cycle length.
+    out[~np.asarray(m["has_previous"], bool)] = np.nan
+    return out
+
+
+def _rate(m: Mapping[str, np.ndarray], s: MeasurementSettings) -> np.ndarray:
+    cl = _cl(m, s)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(cl > 0, 60000.0 / cl, np.nan)
+
+
+def _apa(m: Mapping[str, np.ndarray], s: MeasurementSettings) -> np.ndarray:
+    return np.asarray(m["peak_mV"], float) - np.asarray(m["mdp_mV"], float)
+
+
+def _apd(pct: float) -> Callable[[Mapping[str, np.ndarray], MeasurementSettings], np.ndarray]:
+    def f(m: Mapping[str, np.ndarray], s: MeasurementSettings) -> np.ndarray:
+        ref = {"dvdt_max": "t_dvdt_max_s", "top": "t_top_s", "peak": "t_peak_s"}[s.apd_reference]
+        return (np.asarray(m[f"t_{apd_name(pct)}_s"], float) - np.asarray(m[ref], float)) * 1e3
+    return f
+
+
+_MS = "MEASUREMENTS.md"
+
+#: The registry of measured columns of the beats CSV (APD columns follow the settings).
+FEATURES: dict[str, Feature] = {
+    f.name: f
+    for f in (
+        Feature("t_upstroke_s", "s", "upstroke time (dV/dt max, or a voltage-level crossing) from the sweep's start",
+                _MS, _col("t_upstroke_s")),
+        Feature("cl_ms", "ms", "cycle length: this upstroke minus the previous one in the same sweep", _MS, _cl),
+        Feature("rate_bpm", "bpm", "beating rate, 60000 / cycle length", _MS, _rate),
+        Feature("mdp_mV", "mV", "maximum diastolic potential: minimum V between the previous peak and the upstroke",
+                _MS, _col("mdp_mV")),
+        Feature("top_mV", "mV", "take-off potential (default: V where dV/dt last rises through 0.5 V/s)",
+                _MS, _col("top_mV")),
+        Feature("ddr_mV_per_s", "mV/s", "diastolic depolarisation rate: least-squares slope of V from MDP to TOP",
+                _MS, _col("ddr_mV_per_s")),
+        Feature("ddr100_mV_per_s", "mV/s", "early DDR: least-squares slope over the first 100 ms after the MDP",
+                "Verkerk et al. 2007, Eur Heart J 28:2472", _col("ddr100_mV_per_s")),
+        Feature("dvdt_max_V_per_s", "V/s", "maximum upstroke velocity (Savitzky-Golay derivative sized to the upstroke)",
+                _MS, _col("dvdt_max_V_per_s")),
+        Feature("peak_mV", "mV", "peak potential: maximum V after the upstroke, before the next diastole",
+                _MS, _col("peak_mV")),
+        Feature("apa_mV", "mV", "action-potential amplitude, peak - MDP", _MS, _apa),
+    )
+}
+
+
+def apd_features(percents) -> list[Feature]:
+    """One APD feature per repolarisation percentage of the settings."""
+    return [
+        Feature(f"{apd_name(p)}_ms", "ms",
+                f"AP duration from the reference time to {p:g} % repolarisation (V <= peak - {p:g} % of APA)",
+                _MS, _apd(p))
+        for p in percents
+    ]
+
+
+def marker_columns(percents) -> tuple[str, ...]:
+    """The extra (non-CSV) columns measure adds to the beat table."""
+    return (
+        "i_upstroke", "t_mdp_s", "t_top_s", "t_peak_s",
+        *(f"t_{apd_name(p)}_s" for p in sorted(set(percents) | {20.0, 50.0, 90.0})),
+        "rise_ms", "dvdt_window_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
+    )
+
+
+def features_of_sweep(markers: BeatMarkers | Mapping[str, np.ndarray], settings: MeasurementSettings) -> dict[str, np.ndarray]:
+    """The measured columns of one sweep's beats, from their markers, through the registry.
+
+    ``markers`` may hold ``previous_row``, each beat's previous beat in the chain (-1: none);
+    by default it is the row before.
+
+    The CSV's APD columns (20, 50 and 90 %) are always present (NaN when the settings leave them
+    out); other percentages add their own columns.
+    """
+    m = markers.columns() if isinstance(markers, BeatMarkers) else markers
+    out = {name: f.compute(m, settings) for name, f in FEATURES.items()}
+    for f in apd_features(settings.apd_percent):
+        out[f.name] = f.compute(m, settings)
+    n = len(m["t_upstroke_s"])
+    for p in (20.0, 50.0, 90.0):
+        out.setdefault(f"{apd_name(p)}_ms", np.full(n, np.nan))
+    # APA and APDs need a diastole.
+    nod = ~np.asarray(m["has_previous"], bool)
+    for name in ["apa_mV", *[k for k in out if k.startswith("apd")]]:
+        out[name] = np.where(nod, np.nan, out[name])
+    return out

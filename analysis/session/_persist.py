@@ -1,0 +1,153 @@
+"""Saving a :class:`~analysis.session.Session` to a results file and opening it again.
+
+The results file stores each recording's beat table as the user sees it (decisions and
+conditions applied) so that h5py, MATLAB and R users read the reviewed verdicts directly, plus
+two columns with the automatic verdicts (``auto_accepted``, ``auto_reject_reason``) from which,
+with the decision log, the session is rebuilt exactly.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from analysis.errors import ResultsFileError, SettingsError
+from analysis.results import ResultsFile, StoredRecording, load_results, save_results
+from analysis.table import BeatTable
+
+if TYPE_CHECKING:  # pragma: no cover
+    from analysis.session._session import Session
+
+__all__ = ["AUTO_COLUMNS", "open_session", "save_session", "stored_recordings"]
+
+#: Columns of the stored beat table that hold the automatic verdicts.
+AUTO_COLUMNS = ("auto_accepted", "auto_reject_reason")
+
+
+def stored_recordings(session: "Session") -> list[StoredRecording]:
+    """Every recording of a session in the results file's terms (summaries computed)."""
+    from analysis.stats import summary_columns
+
+    out = []
+    for key in session.recordings:
+        e = session._entry(key)
+        view = session.beats(key)
+        auto = e.table
+        n = len(auto)
+        reasons = auto["reject_reason"] if "reject_reason" in auto else np.full(n, "", dtype=object)
+        stored = view.with_columns(auto_accepted=np.asarray(auto["accepted"]), auto_reject_reason=reasons)
+        summaries = session.summaries(key)
+        ensembles = [
+            (s.ensemble.v_mV, s.ensemble.fs_hz, s.ensemble.t0_s) if s.ensemble is not None else (np.empty(0), e.info.sampling_rate_hz, 0.0)
+            for s in summaries
+        ]
+        i = e.info
+        out.append(StoredRecording(
+            source_path=i.source_path, label=i.label, sha256=i.sha256, reader=i.reader, channel=i.channel,
+            channel_name=i.channel_name, units=i.units, ljp_mV=e.ljp_mV, sweeps=i.sweeps,
+            sampling_rate_hz=i.sampling_rate_hz, sweep_starts_s=i.sweep_starts_s, sweep_lengths=i.sweep_lengths,
+            settings_json=json.dumps(e.settings.to_dict(), sort_keys=True, indent=1, allow_nan=False),
+            settings_schema=int(e.settings.to_dict()["schema_version"]), settings_hash=e.settings.short_hash(),
+            beats=stored, decisions=e.decisions.copy(), conditions=tuple(e.conditions),
+            summary=summary_columns(summaries), ensembles=ensembles, warnings=tuple(e.warnings),
+            provenance=dict(i.provenance),
+        ))
+    return out
+
+
+def save_session(session: "Session", path: str | os.PathLike, *, atomic: bool = True) -> None:
+    """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
+    default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
+    save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
+
+
+def _settings(text: str, path: str, label: str):
+    from analysis.settings import Settings
+
+    try:
+        return Settings.from_dict(json.loads(text))
+    except (ValueError, SettingsError) as exc:
+        problem = exc.problem if isinstance(exc, SettingsError) else f"not JSON ({exc})"
+        raise ResultsFileError(path, f"the settings of {label} cannot be read: {problem}", "update Upstroke, or analyse the recording again") from None
+
+
+def _auto_table(stored: BeatTable) -> BeatTable:
+    cols = stored.columns()
+    for c in AUTO_COLUMNS:
+        if c not in cols:
+            raise KeyError(c)
+    cols["accepted"] = cols.pop("auto_accepted")
+    cols["reject_reason"] = cols.pop("auto_reject_reason")
+    cols.pop("reviewed", None)
+    cols["condition"] = np.full(len(stored), "", dtype=object)
+    return BeatTable(cols)
+
+
+def _stored_summaries(r: StoredRecording) -> list:
+    """The saved summaries, so that a session opened without its sources keeps them."""
+    import math
+
+    from analysis.stats import Ensemble
+    from analysis.stats._summary import _DECIMALS
+    from analysis.stats import PARAMETERS, SUMMARY_COLUMNS, Summary
+
+    cols = r.summary
+    if list(cols) != list(SUMMARY_COLUMNS):
+        return None  # written by another version of the summaries: recompute when asked
+    for c in SUMMARY_COLUMNS:  # numbers where the summary CSV writes numbers (a damaged file)
+        if _DECIMALS[c] is not None and np.asarray(cols[c]).dtype.kind not in "biuf":
+            raise TypeError(f"summary column {c} holds text, not numbers")
+    n = len(cols[SUMMARY_COLUMNS[0]])
+    out = []
+    for i in range(n):
+        values = {c: (cols[c][i].item() if hasattr(cols[c][i], "item") else cols[c][i]) for c in SUMMARY_COLUMNS}
+        ens = None
+        if i < len(r.ensembles) and r.ensembles[i][0].size:
+            v, fs, t0 = r.ensembles[i]
+            params = {col: float(values[f"ensemble_{col}"]) for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")}
+            ens = Ensemble(np.asarray(v), fs, t0, int(values["ensemble_n"]), params)
+        lo, hi = float(values["steady_start_s"]), float(values["steady_end_s"])
+        suggestion = (lo, hi) if math.isfinite(lo) and math.isfinite(hi) else None
+        out.append(Summary(values, suggestion, str(values["steady_note"]), ens))
+    return out
+
+
+def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
+    """Rebuild a session from a results file (recordings are opened lazily)."""
+    from analysis.conditions import ConditionError, check_conditions
+    from analysis.session._types import Entry as _Entry, RecordingFacts, key_of as _key_of
+
+    text = os.fspath(path)
+    content: ResultsFile = load_results(text, verify_sources=verify_sources)
+    default = _settings(content.default_settings_json, text, "the session") if content.default_settings_json else None
+    session = cls(default, match_tolerance_s=match_tolerance_s)
+    for r in content.recordings:
+        try:
+            table = _auto_table(r.beats)
+            conditions = check_conditions(r.conditions)
+            summaries = _stored_summaries(r)
+        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
+            raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
+        # The stored ljp_mV attribute is not read back: the settings hold the LJP (one home).
+        info = RecordingFacts(
+            source_path=r.source_path, label=r.label, sha256=r.sha256, reader=r.reader, channel=r.channel,
+            channel_name=r.channel_name, units=r.units, sweeps=r.sweeps,
+            sampling_rate_hz=r.sampling_rate_hz, sweep_starts_s=r.sweep_starts_s, sweep_lengths=r.sweep_lengths,
+            provenance=dict(r.provenance),
+        )
+        key = _key_of(r.source_path) if r.sha256 else r.label
+        base, n = key, 2
+        while key in session._entries:  # a file written elsewhere may hold a source twice
+            key, n = f"{base}#{n}", n + 1
+        session._entries[key] = _Entry(
+            info=info, settings=_settings(r.settings_json, text, r.label), table=table,
+            warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,
+            requested_channel=r.channel, summaries=summaries,
+        )
+    session.path = os.path.abspath(text)
+    session.open_warnings = list(content.open_warnings)
+    session._clean_depth = 0
+    return session

@@ -1,0 +1,248 @@
+"""The plain data of a review session: notifications, recording facts, prepared changes.
+
+These types belong to :class:`analysis.session.Session` (which re-exports the public ones); they
+live here so that the session's modules stay small.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field, fields
+from typing import Any, Callable
+
+import numpy as np
+
+from analysis.conditions import Condition, assign_conditions
+from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
+from analysis.recording import Recording
+from analysis.table import BeatTable
+
+__all__ = [
+    "EVENTS", "Change", "Entry", "RecordingFacts", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS",
+    "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope",
+]
+
+EVENTS = (
+    "recording_added", "recording_removed", "results_changed", "decisions_changed",
+    "conditions_changed", "settings_changed", "history_changed", "saved", "warning",
+)
+#: Columns the session adds to the automatic table in its view.
+VIEW_COLUMNS = ("reviewed",)
+
+
+@dataclass(frozen=True)
+class Change:
+    """One change notification.
+
+    Attributes
+    ----------
+    event : str
+        One of :data:`EVENTS`.
+    recording : str or None
+        The recording's key, when the change concerns one.
+    rows : tuple of int
+        Rows of :meth:`Session.beats` concerned (decisions), else empty.
+    detail : str
+        Text for ``warning`` and ``saved`` (the path), else empty.
+    """
+
+    event: str
+    recording: str | None = None
+    rows: tuple[int, ...] = ()
+    detail: str = ""
+
+
+@dataclass
+class RecordingFacts:
+    """What the session keeps about one recording besides its beats and settings (internal).
+
+    Everything here is a fact of the source or of the analysis run; the liquid-junction potential
+    is not, because it is a setting (``preprocess.ljp_mV``) and has one home: the recording's
+    settings. :meth:`Session.info` adds it to a :class:`RecordingInfo` snapshot.
+    """
+
+    source_path: str
+    label: str
+    sha256: str = ""
+    reader: str = ""
+    channel: int = 0
+    channel_name: str = ""
+    units: str = "mV"
+    sweeps: tuple[int, ...] | None = None
+    sampling_rate_hz: float = math.nan
+    sweep_starts_s: tuple[float, ...] = ()
+    sweep_lengths: tuple[int, ...] = ()
+    provenance: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def sweep_durations_s(self) -> tuple[float, ...]:
+        return tuple(n / self.sampling_rate_hz for n in self.sweep_lengths)
+
+
+@dataclass
+class RecordingInfo(RecordingFacts):
+    """Source, reader, channel, LJP, geometry and provenance of a recording: a snapshot.
+
+    Attributes mirror :class:`analysis.results.StoredRecording`: ``source_path``, ``label``,
+    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
+    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
+    ``provenance``. ``ljp_mV`` is read from the recording's settings when the snapshot is made
+    (:meth:`Session.info`), so it always equals ``session.settings(key).preprocess.ljp_mV``;
+    changing the snapshot changes nothing in the session.
+    """
+
+    ljp_mV: float = 0.0
+
+    @classmethod
+    def of(cls, facts: RecordingFacts, ljp_mV: float) -> "RecordingInfo":
+        values = {f.name: getattr(facts, f.name) for f in fields(RecordingFacts)}
+        values["provenance"] = dict(facts.provenance)
+        return cls(**values, ljp_mV=float(ljp_mV))
+
+
+@dataclass
+class Entry:
+    """A recording's state inside a session (internal to the session modules)."""
+
+    info: RecordingFacts
+    settings: Any
+    table: BeatTable
+    warnings: tuple[str, ...]
+    decisions: DecisionLog
+    conditions: tuple[Condition, ...]
+    recording: Recording | None = None
+    requested_channel: int | str | None = None
+    summaries: list | None = None
+    version: int = 0
+
+    @property
+    def ljp_mV(self) -> float:
+        """The liquid-junction potential the results subtract: the settings' own value."""
+        return float(self.settings.preprocess.ljp_mV)
+
+
+@dataclass(frozen=True)
+class SettingsChange:
+    """New settings and the results they give, computed by :meth:`Session.prepare_settings`.
+
+    Attributes
+    ----------
+    settings : Settings
+    scopes : dict of str to str
+        Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
+        ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
+        (detection and measurement re-run on the analysed sweeps).
+    tables, warnings, provenance : dict
+        The new results of the recordings that were re-analysed (scopes ``events`` and
+        ``analysis``).
+    summaries : dict of str to list
+        Per recording changed, its summaries under the new settings, computed with the
+        decisions and conditions of ``versions``.
+    versions : dict of str to int
+        Per recording, its version when the change was prepared: the summaries are kept only if
+        nothing was edited since.
+    bases : dict of str to (Settings, BeatTable)
+        Per recording, the settings and automatic table the change was prepared from: the change
+        applies only while they are still the recording's (see :meth:`Session.apply_settings`).
+    """
+
+    settings: Any
+    scopes: dict[str, str]
+    tables: dict[str, BeatTable]
+    warnings: dict[str, tuple[str, ...]]
+    provenance: dict[str, dict[str, str]]
+    summaries: dict[str, list] = field(default_factory=dict)
+    versions: dict[str, int] = field(default_factory=dict)
+    bases: dict[str, tuple[Any, BeatTable]] = field(default_factory=dict)
+
+
+def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingFacts:
+    """The facts a session keeps about a recording just analysed."""
+    from analysis.results import provenance_now
+
+    return RecordingFacts(
+        source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
+        label=label,
+        sha256=(rec.sha256 or "") if rec.source_path else "",
+        reader=rec.format,
+        channel=int(result.channel),
+        channel_name=str(result.channel_name),
+        units=rec.units(int(result.channel)),
+        sweeps=None if sweeps is None else tuple(int(s) for s in sweeps),
+        sampling_rate_hz=rec.sampling_rate_hz,
+        sweep_starts_s=tuple(rec.sweep_starts_s),
+        sweep_lengths=tuple(rec.sweep_lengths),
+        provenance=provenance_now(),
+    )
+
+
+def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:
+    """An entry's automatic table with its decisions and conditions applied (see Session.beats)."""
+    t = e.table
+    n = len(t)
+    sweep = np.asarray(t["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
+    t_up = np.asarray(t["t_upstroke_s"], dtype=np.float64) if n else np.empty(0)
+    verdict, reason = e.decisions.state(sweep, t_up, tolerance_s=tolerance_s)
+    accepted = np.asarray(t["accepted"]).copy() if n else np.empty(0, np.int64)
+    reasons = np.array(t["reject_reason"], dtype=object) if "reject_reason" in t else np.full(n, "", dtype=object)
+    decided = verdict != CLEAR
+    accepted[decided] = verdict[decided]
+    reasons[decided & (verdict == ACCEPT)] = ""
+    rejected = decided & (verdict == REJECT)
+    reasons[rejected] = reason[rejected]
+    starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
+    t_rec = starts[sweep] + t_up if n else np.empty(0)
+    condition = assign_conditions(sweep, t_rec, e.conditions)
+    return t.with_columns(
+        accepted=accepted, reject_reason=reasons, condition=condition, reviewed=decided.astype(np.int64),
+    )
+
+
+def key_of(source: str) -> str:
+    """The session key of a recording's source path."""
+    return os.path.normcase(os.path.abspath(source))
+
+
+def scope(old: Any, new: Any) -> str:
+    """What a change of settings from ``old`` to ``new`` recomputes (see :class:`SettingsChange`)."""
+    if old == new:
+        return "none"
+    changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
+    if changed <= {"summary"}:
+        return "summary"
+    if changed <= {"summary", "quality"}:
+        from analysis.pipeline._analyze import MEASURING_QUALITY_FIELDS
+
+        # The artefact rule also decides which beats the others' cycle lengths and MDPs skip.
+        if "quality" in changed and any(
+            getattr(old.quality, f, None) != getattr(new.quality, f, None) for f in MEASURING_QUALITY_FIELDS
+        ):
+            return "analysis"
+        return "events"
+    return "analysis"
+
+
+def cycle_measurer(settings: Any, ljp_mV: float, fs_hz: float) -> Callable[[np.ndarray], dict | None]:
+    """Measures an averaged cycle (repeated three times) with the measurement core."""
+    from analysis.stats import measure_cycle
+    from analysis.pipeline import analyze
+
+    def analyze_trace(v_mV: np.ndarray, rate_hz: float) -> BeatTable:
+        # The averaged cycle is already corrected; analyze subtracts the LJP once more.
+        rec = Recording.from_array(v_mV + ljp_mV, rate_hz, units="mV")
+        return analyze(rec, settings=settings, channel=0).beats
+
+    return lambda v: measure_cycle(v, fs_hz, analyze_trace, cycle_samples=v.size // 3)
+
+
+def is_event_warning(text: str) -> bool:
+    """True for a warning the events module wrote (replaced when the events run again)."""
+    from analysis.flags import _events as events
+
+    return events.is_event_warning(text)
+
+
+def mV_scale(units: str) -> float:
+    """Factor from a voltage channel's units to mV (1 for mV and for unknown units)."""
+    return {"v": 1000.0, "uv": 1e-3, "µv": 1e-3}.get(units.strip().lower(), 1.0)
