@@ -15,7 +15,7 @@ Review, conditions, summaries and the results file go through :class:`Session`::
     session = Session.open("study.h5")    # or Session(); session.add("cell.abf")
 """
 
-from analysis._version import __version__
+from analysis._version import __version__  # noqa: F401 (analysis.__version__)
 from analysis.errors import InputError, RecordingError, ResultsFileError, SettingsError
 from analysis.pipeline import AnalysisResult, analyze
 from analysis.readers import open_recording, supported_extensions
@@ -46,7 +46,7 @@ def __getattr__(name: str):
     # The review session is imported on first use: the command line's analyze and batch, and
     # every worker process, start faster without it.
     if name == "Session":
-        from analysis.session import Session
+        from analysis.session import Session  # on first use: analyze, batch and their workers start without the review session's modules
 
         return Session
     raise AttributeError(f"module 'analysis' has no attribute {name!r}")

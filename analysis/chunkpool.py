@@ -95,7 +95,7 @@ def _start_worker(parent: int) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # A worker dies with its parent (killed, say): it would otherwise wait for work forever.
     with contextlib.suppress(OSError, AttributeError):
-        import ctypes
+        import ctypes  # only on Linux, to ask for a parent-death signal
 
         libc = ctypes.CDLL(None, use_errno=True)
         libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL, 0, 0, 0)

@@ -7,13 +7,12 @@ import os
 from typing import Iterable, Sequence
 
 from analysis.errors import InputError
+from analysis.readers import supported_extensions
 
 __all__ = ["find_recordings"]
 
 
 def _registered_extensions() -> tuple[str, ...]:
-    from analysis.readers import supported_extensions
-
     return tuple(_norm_ext(e) for e in supported_extensions())
 
 

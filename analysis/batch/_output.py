@@ -2,14 +2,21 @@
 
 from __future__ import annotations
 
+import contextlib
+import json
 import os
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any, Mapping
+from typing import Any, Mapping
 
 import numpy as np
 
-if TYPE_CHECKING:  # pragma: no cover
-    from analysis.batch._batch import BatchResult
+from analysis.batch._task import stored_from_outcome
+from analysis.batch._types import BatchResult
+from analysis.errors import ResultsFileError
+from analysis.results import ResultsFile, atomic_output, load_results, save_results
+from analysis.settings import Settings
+from analysis.stats import summary_csv as summary_text
+from analysis.table import BeatTable
 
 __all__ = ["SavedBatch", "prepare_existing", "save_batch"]
 
@@ -57,23 +64,12 @@ def save_batch(
     ResultsFileError
         When an existing results file cannot be read, or the outputs cannot be written.
     """
-    import contextlib
-    import json
 
-    from analysis.batch._task import stored_from_outcome
-    from analysis.results import atomic_output
-    from analysis.results import ResultsFile, load_results, save_results
-    from analysis.stats import summary_csv as summary_text
-    from analysis.table import BeatTable
 
     stored = [stored_from_outcome(o) for o in result.succeeded]
     if settings is None:
-        from analysis.settings import Settings
-
         settings = Settings()
     if isinstance(settings, Mapping):
-        from analysis.settings import Settings
-
         settings = Settings.from_dict(settings)
     default_json = json.dumps(settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
     recordings = stored
@@ -138,8 +134,6 @@ def prepare_existing(
         When the file is damaged or foreign (it is never replaced then), or holds review
         decisions for one of the recordings.
     """
-    from analysis.errors import ResultsFileError
-    from analysis.results import load_results
 
     if not os.path.exists(out):
         return {}

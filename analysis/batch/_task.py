@@ -10,13 +10,19 @@ caller rebuilds the StoredRecording with :func:`stored_from_outcome` and alone w
 from __future__ import annotations
 
 import dataclasses
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
-if TYPE_CHECKING:  # pragma: no cover
-    from analysis.batch._batch import FileOutcome, FileTask
-    from analysis.results import StoredRecording
+from analysis.batch._types import FileOutcome, FileTask
+from analysis.conditions import parse_condition
+from analysis.decisions import DecisionLog
+from analysis.pipeline import analyze
+from analysis.readers import open_recording
+from analysis.results import StoredRecording
+from analysis.session import Session, stored_recordings
+from analysis.settings import Settings
+from analysis.table import BeatTable
 
 __all__ = ["run_task", "stored_from_outcome"]
 
@@ -28,19 +34,12 @@ _PLAIN = (
 )
 
 
-def run_task(task: "FileTask") -> "FileOutcome":
+def run_task(task: FileTask) -> FileOutcome:
     """Analyse the task's recording; raises :class:`~analysis.errors.InputError` for a bad file.
 
     The steps are those of ``upstroke analyze``: open (with any units declared), analyse with the
     file labelled as given, then the session's view and summaries.
     """
-    from analysis.readers import open_recording
-    from analysis.batch._batch import FileOutcome
-    from analysis.conditions import parse_condition
-    from analysis.pipeline import analyze
-    from analysis.session import Session
-    from analysis.session import stored_recordings
-    from analysis.settings import Settings
 
     settings = Settings.from_dict(task.settings) if task.settings is not None else Settings()
     rec = open_recording(task.open_path, units=dict(task.units) if task.units else None)
@@ -57,7 +56,7 @@ def run_task(task: "FileTask") -> "FileOutcome":
     )
 
 
-def _flatten(stored: "StoredRecording") -> dict[str, Any]:
+def _flatten(stored: StoredRecording) -> dict[str, Any]:
     meta: dict[str, Any] = {name: getattr(stored, name) for name in _PLAIN}
     meta["decisions"] = stored.decisions.columns()
     meta["conditions"] = [c.text() for c in stored.conditions]
@@ -68,12 +67,8 @@ def _flatten(stored: "StoredRecording") -> dict[str, Any]:
     return meta
 
 
-def stored_from_outcome(outcome: "FileOutcome") -> "StoredRecording":
+def stored_from_outcome(outcome: FileOutcome) -> StoredRecording:
     """The :class:`~analysis.results.StoredRecording` a successful task described."""
-    from analysis.conditions import parse_condition
-    from analysis.decisions import DecisionLog
-    from analysis.results import StoredRecording
-    from analysis.table import BeatTable
 
     if not outcome.ok:
         raise ValueError(f"{outcome.path} has no results: {outcome.reason}")
@@ -92,6 +87,4 @@ def stored_from_outcome(outcome: "FileOutcome") -> "StoredRecording":
 
 
 def _fields() -> tuple[str, ...]:
-    from analysis.results import StoredRecording
-
     return tuple(f.name for f in dataclasses.fields(StoredRecording))

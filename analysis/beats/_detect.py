@@ -49,7 +49,6 @@ import numpy as np
 
 from analysis.chunkpool import run_ordered
 from analysis.settings import DetectionSettings
-from analysis.signal import moving_mean as _moving_mean
 from analysis.signal import noise_rms_mV
 
 __all__ = [

@@ -22,7 +22,7 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from analysis.beats._markers import BeatMarkers, apd_name, measure_beats
+from analysis.beats._markers import BeatMarkers, apd_name
 from analysis.settings import MeasurementSettings
 
 __all__ = ["Feature", "FEATURES", "FLAG_WORDS", "features_of_sweep", "marker_columns"]

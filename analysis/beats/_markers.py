@@ -25,10 +25,19 @@ import numpy as np
 
 from analysis.beats._extrema import mdp_batch, peak_batch
 from analysis.beats._repolarisation import first_crossings, refine_crossings
-from analysis.settings import MeasurementSettings
-from analysis.signal import moving_mean, noise_matched_window_ms, noise_rms_mV, parabolic_peak, poly_lsq, savgol_smooth, savgol_smooth_interior, window_samples
-from analysis.beats._upstroke import upstroke_velocity
 from analysis.beats._takeoff import TakeoffSteps
+from analysis.beats._upstroke import upstroke_velocity
+from analysis.settings import MeasurementSettings
+from analysis.signal import (
+    moving_mean,
+    noise_matched_window_ms,
+    noise_rms_mV,
+    parabolic_peak,
+    poly_lsq,
+    savgol_smooth,
+    savgol_smooth_interior,
+    window_samples,
+)
 
 __all__ = ["BeatMarkers", "measure_beats", "apd_name", "MARKER_FIELDS"]
 
@@ -54,8 +63,6 @@ def _strided_mean(v: np.ndarray, w: int, q: int) -> np.ndarray:
     average only has to show where a diastole's minimum lies to within an eighth of the window.
     """
     if w <= 1 or q <= 1:
-        from analysis.signal import moving_mean
-
         return moving_mean(np.asarray(v, dtype=np.float64), max(w, 1) | 1)[::max(q, 1)]
     n = v.size
     nb = -(-n // q)

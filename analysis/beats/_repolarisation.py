@@ -22,8 +22,7 @@ import math
 
 import numpy as np
 
-from analysis.signal import RunningSums
-from analysis.signal import savgol_smooth
+from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth
 
 __all__ = ["first_crossings", "first_crossings_one", "refine_crossings", "refine_crossing_one"]
 
@@ -39,7 +38,6 @@ def _smooth_rows(x: np.ndarray, w: int) -> np.ndarray:
         # Running sums cost the same for any window (a shifted sum costs two passes per tap);
         # they agree with the convolution to well under a microvolt.
         return _smooth_rows_sums(x, w)
-    from analysis.signal import savgol_coeffs
 
     c = savgol_coeffs(w, 3)  # reversed for convolution; symmetric for smoothing
     m = x.shape[1] - w + 1

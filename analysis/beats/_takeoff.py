@@ -24,8 +24,14 @@ import math
 
 import numpy as np
 
-from analysis.signal import least_squares_slope, savgol_derivative, window_samples
-from analysis.signal import parabolic_peak, poly_lsq
+from analysis.signal import (
+    least_squares_slope,
+    parabolic_peak,
+    poly_lsq,
+    savgol_coeffs,
+    savgol_derivative,
+    window_samples,
+)
 
 __all__ = ["TakeoffSteps"]
 
@@ -45,8 +51,6 @@ def _ramp(m: int) -> np.ndarray:
 
 @functools.lru_cache(maxsize=64)
 def _savgol_smoothing(w: int) -> np.ndarray:
-    from analysis.signal import savgol_coeffs
-
     return savgol_coeffs(w, 3)
 
 
@@ -282,7 +286,7 @@ class TakeoffSteps:
 
     def exponential(self, i_mdp: float, i_top: float):
         """Fit V = Vinf - A exp(-t/tau) over [MDP, TOP]: (mean slope mV/s, tau ms, Vinf mV)."""
-        from scipy.optimize import curve_fit
+        from scipy.optimize import curve_fit  # scipy.optimize is slow to import; only the exponential DDR fit needs it
 
         a, b = int(math.ceil(i_mdp)), int(math.floor(i_top)) + 1
         if b - a < 10:

@@ -57,7 +57,7 @@ from typing import Any
 
 import numpy as np
 
-from analysis.flags._trace import ArraySweeps, RecordingSweeps, as_sweeps, sweep_trace_events
+from analysis.flags._trace import as_sweeps, sweep_trace_events
 from analysis.table import BeatTable
 
 __all__ = ["AUTO_PREFIX", "EVENT_FLAGS", "REJECTABLE_FLAGS", "apply_events", "artefact_like", "is_event_warning", "rejection_flags", "strip_events", "table_events"]

@@ -15,10 +15,16 @@ import math
 from typing import Any, Mapping, Sequence
 
 import numpy as np
+
+from analysis.beats import (
+    bridge_spans,
+    estimate_noise_mV,
+    find_spikes,
+    residual_rms_many,
+)
 from analysis.chunkpool import run_ordered
-from analysis.beats import bridge_spans, estimate_noise_mV, find_spikes
-from analysis.beats import lowpass_residual_rms, residual_rms_many
 from analysis.settings import DetectionSettings
+from analysis.signal import filter_pad_samples, hum_survey, noise_rms_mV, preprocess
 from analysis.table import BeatTable
 
 __all__ = ["ArraySweeps", "RecordingSweeps", "as_sweeps", "box_mean", "sweep_trace_events"]
@@ -60,8 +66,6 @@ class RecordingSweeps:
         self, recording: Any, channel: int, *, scale: float = 1.0, preprocess: Any = None, subtract_mV: float = 0.0,
         hum_surveys: Mapping[int, Any] | None = None,
     ) -> None:
-        from analysis.signal import filter_pad_samples
-
         self._rec, self._ch, self._scale, self._pre = recording, int(channel), float(scale), preprocess
         self._subtract = float(subtract_mV)
         self._surveys: dict[int, Any] = dict(hum_surveys or {})
@@ -82,8 +86,6 @@ class RecordingSweeps:
         if getattr(self._pre, "hum_removal", "off") == "off":
             return False
         if sweep not in self._surveys:
-            from analysis.signal import hum_survey
-
             def raw(a: int, b: int) -> np.ndarray:
                 x = self._rec.sweep(sweep, self._ch, a, b)
                 return x * self._scale if self._scale != 1.0 else x
@@ -101,8 +103,6 @@ class RecordingSweeps:
         if self._scale != 1.0:
             x = x * self._scale
         if self._pre is not None:
-            from analysis.signal import preprocess
-
             x = preprocess(x, self._rec.sampling_rate_hz, self._pre, offset=a, hum=self._hum(sweep))
         if self._subtract:
             x = x - self._subtract
@@ -148,7 +148,6 @@ def _is_cut(x: np.ndarray, s: int, e: int, value: float, top: bool, h: int) -> b
     steps = np.abs(np.diff(around))
     steps = steps[steps > 0]
     q = float(np.min(steps)) if steps.size else 0.0
-    from analysis.signal import noise_rms_mV
 
     flanks = np.concatenate((x[max(0, s - 4 * h):s], x[e:e + 4 * h]))
     return depth > max(40.0 * q, 6.0 * noise_rms_mV(flanks))

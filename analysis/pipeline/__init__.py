@@ -3,6 +3,12 @@
 The modules below are private to this package; import from here."""
 
 
-from analysis.pipeline._analyze import AnalysisResult, analyze, choose_channel, flag_and_reject, looks_like_membrane_potential
+from analysis.pipeline._analyze import (
+    AnalysisResult,
+    analyze,
+    choose_channel,
+    flag_and_reject,
+    looks_like_membrane_potential,
+)
 
 __all__ = ["AnalysisResult", "analyze", "choose_channel", "flag_and_reject", "looks_like_membrane_potential"]

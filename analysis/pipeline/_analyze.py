@@ -18,14 +18,24 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from analysis.beats import (
+    ARTEFACT_REASONS,
+    apd_name,
+    bridge_spans,
+    detect_beats,
+    detect_sweep,
+    estimate_noise_mV,
+    features_of_sweep,
+    marker_columns,
+    measure_beats,
+)
 from analysis.chunkpool import run_ordered, use_workers
-from analysis.beats import bridge_spans, detect_sweep, estimate_noise_mV
 from analysis.errors import RecordingError, SettingsError
-from analysis.beats import apd_name, measure_beats
-from analysis.beats import features_of_sweep, marker_columns
+from analysis import flags
+from analysis.flags import artefact_like
 from analysis.recording import CURRENT_CLAMP, VOLTAGE_CLAMP, Recording
 from analysis.settings import Settings
-from analysis.signal import filter_pad_samples, preprocess
+from analysis.signal import filter_pad_samples, hum_survey, preprocess
 from analysis.table import CSV_COLUMNS, BeatTable
 
 __all__ = ["AnalysisResult", "analyze", "choose_channel", "flag_and_reject", "looks_like_membrane_potential"]
@@ -86,7 +96,6 @@ def looks_like_membrane_potential(recording: Recording, channel: int, *, seconds
     lo, hi = np.percentile(x, [0.5, 99.5])
     if not (-110.0 <= lo and hi <= 80.0 and hi - lo >= 20.0):
         return False
-    from analysis.beats import detect_beats
 
     return len(detect_beats(x, fs)) >= 1
 
@@ -317,7 +326,6 @@ def _artefact_note(art) -> str:
     reasons = list(art[1])
     if not reasons:
         return ""
-    from analysis.beats import ARTEFACT_REASONS
 
     parts = [f"{reasons.count(r)} {r}" for r in ARTEFACT_REASONS if r in reasons]
     return f" ({', '.join(parts)} event(s) rejected as artefacts; see the detection settings)"
@@ -333,8 +341,6 @@ def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
 
     hum = False
     if s.preprocess.hum_removal != "off":
-        from analysis.signal import hum_survey
-
         hum = hum_survey(None, fs, n=recording.n_samples(sw), load=raw, block_s=s.preprocess.hum_block_s,
                          min_mV=s.preprocess.hum_min_mV) or False
 
@@ -465,7 +471,6 @@ def _chain_without_artefacts(merged: dict[str, np.ndarray], s: Settings):
     quality = getattr(s, "quality", None)
     if quality is None or not getattr(quality, "reject_artefact", False):
         return None
-    from analysis.flags import artefact_like
 
     feats = features_of_sweep(merged, s.measurement)
     bad = artefact_like(feats["dvdt_max_V_per_s"], feats["apd90_ms"], quality)[0]
@@ -548,14 +553,13 @@ def flag_and_reject(
     quality = getattr(settings, "quality", None)
     if quality is None or len(beats) == 0:
         return beats, []
-    from analysis.flags import _events as events
 
     # Read in windows (with filter context), so memory stays bounded by a chunk of beats. Without
     # hum in any sweep, the windows need not look for it again.
     any_hum = any(hum.values()) if isinstance(hum, dict) else bool(hum)
     pre = settings.preprocess if any_hum else dataclasses.replace(settings.preprocess, hum_removal="off")
-    sweeps_v = events.RecordingSweeps(recording, channel, scale=scale, preprocess=pre,
+    sweeps_v = flags.RecordingSweeps(recording, channel, scale=scale, preprocess=pre,
                                       hum_surveys=hum if isinstance(hum, dict) else None)
-    sweeps_raw = events.RecordingSweeps(recording, channel, scale=scale)
-    return events.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
+    sweeps_raw = flags.RecordingSweeps(recording, channel, scale=scale)
+    return flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
                                detection=settings.detection, spikes=spikes)

@@ -129,7 +129,7 @@ def read(path: str | os.PathLike) -> Recording:
 
 def _check_hdf5(origin: str) -> str:
     """The file's NWB version, after refusing files h5py cannot open or that are not NWB."""
-    import h5py
+    import h5py  # heavy; ABF and text files never need it
 
     try:
         with h5py.File(origin, "r") as fh:
@@ -240,7 +240,7 @@ def _check_stored(ds: Any, origin: str, what: str) -> None:
     of 10^12 samples with no chunk written takes a few bytes), and reading it whole would
     allocate what the declaration says.
     """
-    import h5py
+    import h5py  # heavy; ABF and text files never need it
 
     if not isinstance(ds, h5py.Dataset):
         raise RecordingError(origin, f"{what} stores no samples in the file", _CORRUPT_FIX)
@@ -270,7 +270,7 @@ class _NwbSamples:
         self._files: dict[str, Any] = {}
 
     def __call__(self, sweep: int, channel: int, start: int, stop: int) -> np.ndarray:
-        import h5py
+        import h5py  # heavy; ABF and text files never need it
 
         s = self._columns[channel][sweep]
         fh = self._files.get(s.filename)

@@ -3,7 +3,17 @@
 The modules below are private to this package; import from here."""
 
 
-from analysis.readouts._cursors import CursorReadout, readout_samples, readout
-from analysis.readouts._plotdata import AlignedBeats, LineFit, aligned_beats, consecutive_mask, fit_line, phase_plane, poincare_pairs, recording_times_s, take_off_window_ms
+from analysis.readouts._cursors import CursorReadout, readout, readout_samples
+from analysis.readouts._plotdata import (
+    AlignedBeats,
+    LineFit,
+    aligned_beats,
+    consecutive_mask,
+    fit_line,
+    phase_plane,
+    poincare_pairs,
+    recording_times_s,
+    take_off_window_ms,
+)
 
 __all__ = ["AlignedBeats", "CursorReadout", "LineFit", "aligned_beats", "consecutive_mask", "fit_line", "phase_plane", "poincare_pairs", "readout", "readout_samples", "recording_times_s", "take_off_window_ms"]

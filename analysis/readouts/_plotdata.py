@@ -12,8 +12,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from analysis.recording import Recording
-from analysis.table import BeatTable
+from analysis.signal import (
+    noise_matched_window_ms,
+    noise_rms_mV,
+    savgol_derivative,
+    window_samples,
+)
 from analysis.stats import linear_relation, successive_pairs
+from analysis.table import BeatTable
 
 __all__ = [
     "AlignedBeats",
@@ -161,7 +167,6 @@ def phase_plane(v: np.ndarray, fs_hz: float, *, window_ms: float | None = None) 
         return v, np.full(v.size, np.nan)
     if window_ms is None:
         return v, np.gradient(v) * fs_hz / 1e3
-    from analysis.signal import savgol_derivative, window_samples
 
     n = window_samples(window_ms, fs_hz, polyorder=3)
     if n < 5 or n > v.size:
@@ -175,7 +180,6 @@ def take_off_window_ms(v: np.ndarray, fs_hz: float, measurement) -> float:
     The measurement settings' shortest window, widened on a noisy trace until the slope's noise
     is below their fraction of the take-off criterion (:func:`analysis.signal.noise_matched_window_ms`).
     """
-    from analysis.signal import noise_matched_window_ms, noise_rms_mV
 
     finite = np.asarray(v, dtype=np.float64)
     finite = finite[np.isfinite(finite)]

@@ -3,7 +3,20 @@
 The modules below are private to this package; import from here."""
 
 
-from analysis.results._atomic import WriteError, atomic_output, write_text_atomic, temp_prefix
-from analysis.results._store import FORMAT_NAME, SCHEMA_VERSION, ResultsFile, StoredRecording, load_results, provenance_now, save_results
+from analysis.results._atomic import (
+    WriteError,
+    atomic_output,
+    temp_prefix,
+    write_text_atomic,
+)
+from analysis.results._store import (
+    FORMAT_NAME,
+    SCHEMA_VERSION,
+    ResultsFile,
+    StoredRecording,
+    load_results,
+    provenance_now,
+    save_results,
+)
 
 __all__ = ["FORMAT_NAME", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "load_results", "provenance_now", "save_results", "temp_prefix", "write_text_atomic"]

@@ -35,12 +35,13 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from analysis.results._atomic import atomic_output
+from analysis._version import __version__
 from analysis.conditions import Condition, SteadyState
 from analysis.decisions import FIELDS as DECISION_FIELDS
-from analysis.decisions import DecisionLog
+from analysis.decisions import DecisionLog, now_utc
 from analysis.errors import ResultsFileError
 from analysis.recording import file_sha256
+from analysis.results._atomic import atomic_output
 from analysis.table import BeatTable
 
 __all__ = [
@@ -132,11 +133,9 @@ class ResultsFile:
 
 def provenance_now() -> dict[str, str]:
     """Versions of the software that analyses, and the time (UTC), for a new analysis."""
-    import h5py
-    import scipy
+    import h5py  # heavy; analyze without --out never needs it
+    import scipy  # only for its version, recorded in the provenance
 
-    from analysis._version import __version__
-    from analysis.decisions import now_utc
 
     return {
         "upstroke_version": __version__,
@@ -150,7 +149,7 @@ def provenance_now() -> dict[str, str]:
 
 # -- writing ----------------------------------------------------------------------------------
 def _str_dtype():
-    import h5py
+    import h5py  # heavy; analyze without --out never needs it
 
     return h5py.string_dtype("utf-8")
 
@@ -242,7 +241,7 @@ def save_results(
     ResultsFileError
         When the folder does not exist or cannot be written.
     """
-    import h5py
+    import h5py  # heavy; analyze without --out never needs it
 
     target = os.path.abspath(os.fspath(path))
     folder = os.path.dirname(target)
@@ -254,7 +253,6 @@ def save_results(
             with h5py.File(tmp, "w", libver=("earliest", "v110"), track_order=False) as f:
                 _set_text_attr(f, "format", FORMAT_NAME)
                 f.attrs["schema_version"] = np.int64(SCHEMA_VERSION)
-                from analysis._version import __version__
 
                 _set_text_attr(f, "upstroke_version", __version__)
                 if content.default_settings_json is not None:
@@ -287,7 +285,7 @@ def _checked(ds):
     only when the file stores the data they declare: a dataset's shape is just a declaration
     (10^12 rows with no chunk written take a few bytes), and reading it would allocate it.
     """
-    import h5py
+    import h5py  # heavy; analyze without --out never needs it
 
     if not isinstance(ds, h5py.Dataset):
         raise TypeError(f"{ds.name} is not a dataset")
@@ -314,7 +312,7 @@ def _read_columns(group) -> dict[str, np.ndarray]:
 
 
 def h5_is_string(ds) -> bool:
-    import h5py
+    import h5py  # heavy; analyze without --out never needs it
 
     return h5py.check_string_dtype(ds.dtype) is not None
 
@@ -416,7 +414,7 @@ def load_results(path: str | os.PathLike, *, verify_sources: bool = True) -> Res
         When the file is missing, not HDF5, truncated or corrupt, not an Upstroke results file, or
         of a newer or unknown schema version.
     """
-    import h5py
+    import h5py  # heavy; analyze without --out never needs it
 
     text = os.fspath(path)
     if not os.path.exists(text):

@@ -8,13 +8,9 @@ beat's earlier verdict (action ``undo``), redoing appends the verdicts again (ac
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import TYPE_CHECKING
 
 from analysis.decisions import CLEAR, REJECT, Decision, now_utc
-from analysis.session._types import SettingsChange
-
-if TYPE_CHECKING:  # pragma: no cover
-    from analysis.session._session import Session
+from analysis.session._types import SessionCore, SettingsChange
 
 __all__ = ["Command", "ConditionsCommand", "DecideCommand", "SettingsCommand", "SweepsCommand"]
 
@@ -38,7 +34,7 @@ class Command:
 class DecideCommand(Command):
     """Appends review entries; undo appends entries that restore each beat's earlier verdict."""
 
-    def __init__(self, session: Session, key: str, rows: list[int], new: list[Decision], before, text: str) -> None:
+    def __init__(self, session: SessionCore, key: str, rows: list[int], new: list[Decision], before, text: str) -> None:
         self.session, self.key, self.rows, self.new, self.before, self.text = session, key, rows, new, before, text
         self.keys = (key,)
 
@@ -66,7 +62,7 @@ class DecideCommand(Command):
 
 
 class ConditionsCommand(Command):
-    def __init__(self, session: Session, key: str, old, new) -> None:
+    def __init__(self, session: SessionCore, key: str, old, new) -> None:
         self.session, self.key, self.old, self.new = session, key, old, new
         self.keys = (key,)
         self.text = "Change the conditions"
@@ -85,7 +81,7 @@ class ConditionsCommand(Command):
 
 
 class SettingsCommand(Command):
-    def __init__(self, session: Session, change: SettingsChange, keys: list[str]) -> None:
+    def __init__(self, session: SessionCore, change: SettingsChange, keys: list[str]) -> None:
         self.session, self.change = session, change
         self.keys = tuple(keys)
         self.text = "Change the settings"
@@ -126,7 +122,7 @@ class SettingsCommand(Command):
 class SweepsCommand(Command):
     """Replaces a recording's sweep selection and its table (the merged re-analysis)."""
 
-    def __init__(self, session: Session, key: str, sweeps, table, warnings) -> None:
+    def __init__(self, session: SessionCore, key: str, sweeps, table, warnings) -> None:
         self.session, self.key = session, key
         self.keys = (key,)
         self.text = "Change the sweeps analysed"

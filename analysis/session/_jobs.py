@@ -21,13 +21,25 @@ is being done, in words a user reads in a status bar.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
+from analysis import pipeline
 from analysis.conditions import Condition
 from analysis.decisions import DecisionLog
+from analysis.flags import RecordingSweeps
 from analysis.recording import Recording
-from analysis.session._types import Entry, RecordingFacts, SettingsChange, cycle_measurer, is_event_warning, mV_scale, reviewed_table
+from analysis.results import provenance_now
+from analysis.session._types import (
+    Entry,
+    RecordingFacts,
+    SettingsChange,
+    cycle_measurer,
+    is_event_warning,
+    mV_scale,
+    reviewed_table,
+)
+from analysis.stats import summarize
 from analysis.table import BeatTable
 
 __all__ = ["Progress", "SettingsJob", "SummaryJob"]
@@ -49,13 +61,10 @@ def summaries_of(
     The ensemble beat reads the samples of ``recording`` (None: no ensemble beat) with the
     settings' own LJP subtracted, and is measured with the same settings as every beat.
     """
-    from analysis.stats import summarize
 
     source = measure = None
     ljp_mV = float(settings.preprocess.ljp_mV)
     if recording is not None and getattr(settings.summary, "ensemble", True):
-        from analysis.flags import RecordingSweeps
-
         source = RecordingSweeps(recording, facts.channel, scale=mV_scale(facts.units), subtract_mV=ljp_mV)
         measure = cycle_measurer(settings, ljp_mV, facts.sampling_rate_hz)
     return summarize(
@@ -66,8 +75,6 @@ def summaries_of(
 
 
 def _facts_copy(facts: RecordingFacts) -> RecordingFacts:
-    from dataclasses import replace
-
     return replace(facts, provenance=dict(facts.provenance))
 
 
@@ -161,8 +168,6 @@ class SettingsJob:
         return {it.key: it.scope for it in self.items}
 
     def __call__(self, progress: Progress | None = None) -> SettingsChange:
-        from analysis.results import provenance_now
-
         report = progress or _quiet
         busy = [it for it in self.items if it.scope != "none"]
         tables, warnings, prov, summaries, versions, bases = {}, {}, {}, {}, {}, {}
@@ -190,18 +195,17 @@ class SettingsJob:
 
     def _results(self, it: SettingsItem, step: Progress, share: float) -> tuple[BeatTable, tuple[str, ...]]:
         """The recording's new automatic table and warnings (unchanged for the summary scope)."""
-        from analysis.pipeline import analyze, flag_and_reject
 
         if it.scope == "analysis":
             message = "detecting and measuring beats"
             step(0.0, message)
-            res = analyze(it.recording, settings=self.settings, channel=it.channel, sweeps=it.facts.sweeps,
+            res = pipeline.analyze(it.recording, settings=self.settings, channel=it.channel, sweeps=it.facts.sweeps,
                           label=it.facts.label,
                           progress=lambda done, total: step(share * (done / total if total else 1.0), message))
             return res.beats, tuple(res.warnings)
         if it.scope == "events":
             step(0.0, "running the events and quality rules")
-            table, more = flag_and_reject(it.table, it.recording, it.facts.channel, self.settings,
+            table, more = pipeline.flag_and_reject(it.table, it.recording, it.facts.channel, self.settings,
                                           scale=mV_scale(it.facts.units))
             kept = tuple(w for w in it.warnings if not is_event_warning(w))
             return table, kept + tuple(more)

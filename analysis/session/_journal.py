@@ -47,16 +47,15 @@ import re
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Callable, Iterator
+from typing import Any, Callable, Iterator
 
 import numpy as np
 
 from analysis.conditions import Condition, ConditionError, SteadyState
 from analysis.decisions import ACCEPT, CLEAR, DecisionLog, now_utc
 from analysis.errors import InputError
-
-if TYPE_CHECKING:  # pragma: no cover
-    from analysis.session._session import Session
+from analysis.session._session import Session
+from analysis.settings import Settings
 
 __all__ = [
     "JOURNAL_VERSION", "Journal", "JournalError", "JournalReview", "PendingReview", "RestoreReport",
@@ -214,7 +213,7 @@ class Journal:
     def exists(self) -> bool:
         return self.path.is_file()
 
-    def write(self, session: "Session") -> None:
+    def write(self, session: Session) -> None:
         """Write the recording's review (settings, conditions, decision log), durably, now.
 
         While :meth:`replaying` holds writes this only notes that one is due.
@@ -263,7 +262,6 @@ class Journal:
         data = self.read()
         if data is None:
             return None
-        from analysis.settings import Settings
 
         try:
             settings = Settings.from_dict(data["settings"])
@@ -283,7 +281,7 @@ class Journal:
                              settings, conditions, log)
 
     @contextlib.contextmanager
-    def replaying(self, session: "Session") -> Iterator[None]:
+    def replaying(self, session: Session) -> Iterator[None]:
         """Hold writes until the block ends, then write once if any were asked for.
 
         A restore changes settings, conditions and verdicts one after another; a journal written
@@ -298,7 +296,7 @@ class Journal:
             self._missed = False
             self.write(session)
 
-    def restore(self, session: "Session", *, progress: Callable[[float, str], None] | None = None) -> RestoreReport | None:
+    def restore(self, session: Session, *, progress: Callable[[float, str], None] | None = None) -> RestoreReport | None:
         """Replay the journal onto the session in one call; None when there is nothing to replay.
 
         Settings differing from the session's are applied first, re-analysing on this thread
@@ -314,7 +312,7 @@ class Journal:
                 session.apply_settings(session.prepare_settings(review.settings, [self.key], progress=progress))
             return self.replay(session, review, settings_changed=changed)
 
-    def replay(self, session: "Session", review: JournalReview, *, settings_changed: bool = False) -> RestoreReport | None:
+    def replay(self, session: Session, review: JournalReview, *, settings_changed: bool = False) -> RestoreReport | None:
         """Put the journal's conditions and verdicts onto the session (its settings already are).
 
         Only beats whose journalled verdict differs from the session's are decided, grouped by

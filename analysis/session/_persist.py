@@ -9,17 +9,27 @@ with the decision log, the session is rebuilt exactly.
 from __future__ import annotations
 
 import json
+import math
 import os
-from typing import TYPE_CHECKING
 
 import numpy as np
 
+from analysis.conditions import ConditionError, check_conditions
 from analysis.errors import ResultsFileError, SettingsError
 from analysis.results import ResultsFile, StoredRecording, load_results, save_results
+from analysis.session._types import Entry as _Entry
+from analysis.session._types import RecordingFacts, SessionCore
+from analysis.session._types import key_of as _key_of
+from analysis.settings import Settings
+from analysis.stats import (
+    PARAMETERS,
+    SUMMARY_COLUMNS,
+    Ensemble,
+    Summary,
+    summary_columns,
+)
+from analysis.stats._summary import _DECIMALS
 from analysis.table import BeatTable
-
-if TYPE_CHECKING:  # pragma: no cover
-    from analysis.session._session import Session
 
 __all__ = ["AUTO_COLUMNS", "open_session", "save_session", "stored_recordings"]
 
@@ -27,9 +37,8 @@ __all__ = ["AUTO_COLUMNS", "open_session", "save_session", "stored_recordings"]
 AUTO_COLUMNS = ("auto_accepted", "auto_reject_reason")
 
 
-def stored_recordings(session: "Session") -> list[StoredRecording]:
+def stored_recordings(session: SessionCore) -> list[StoredRecording]:
     """Every recording of a session in the results file's terms (summaries computed)."""
-    from analysis.stats import summary_columns
 
     out = []
     for key in session.recordings:
@@ -58,15 +67,13 @@ def stored_recordings(session: "Session") -> list[StoredRecording]:
     return out
 
 
-def save_session(session: "Session", path: str | os.PathLike, *, atomic: bool = True) -> None:
+def save_session(session: SessionCore, path: str | os.PathLike, *, atomic: bool = True) -> None:
     """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
     save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
 
 
 def _settings(text: str, path: str, label: str):
-    from analysis.settings import Settings
-
     try:
         return Settings.from_dict(json.loads(text))
     except (ValueError, SettingsError) as exc:
@@ -88,11 +95,7 @@ def _auto_table(stored: BeatTable) -> BeatTable:
 
 def _stored_summaries(r: StoredRecording) -> list:
     """The saved summaries, so that a session opened without its sources keeps them."""
-    import math
 
-    from analysis.stats import Ensemble
-    from analysis.stats._summary import _DECIMALS
-    from analysis.stats import PARAMETERS, SUMMARY_COLUMNS, Summary
 
     cols = r.summary
     if list(cols) != list(SUMMARY_COLUMNS):
@@ -115,10 +118,8 @@ def _stored_summaries(r: StoredRecording) -> list:
     return out
 
 
-def open_session(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
+def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> SessionCore:
     """Rebuild a session from a results file (recordings are opened lazily)."""
-    from analysis.conditions import ConditionError, check_conditions
-    from analysis.session._types import Entry as _Entry, RecordingFacts, key_of as _key_of
 
     text = os.fspath(path)
     content: ResultsFile = load_results(text, verify_sources=verify_sources)

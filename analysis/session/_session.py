@@ -50,14 +50,32 @@ from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
+from analysis import pipeline
 from analysis.conditions import Condition, check_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
 from analysis.errors import RecordingError
+from analysis.readers import open_recording
 from analysis.recording import Recording
-from analysis.session._commands import Command, ConditionsCommand, DecideCommand, SweepsCommand
-from analysis.session._jobs import SettingsJob, SummaryJob
-from analysis.session._types import EVENTS, VIEW_COLUMNS, Change, Entry, RecordingInfo, SettingsChange, info_from, is_event_warning, key_of, mV_scale, reviewed_table
+from analysis.session._commands import (
+    Command,
+    ConditionsCommand,
+    DecideCommand,
+    SweepsCommand,
+)
+from analysis.session._persist import open_session, save_session
+from analysis.session._types import (
+    EVENTS,
+    Change,
+    Entry,
+    RecordingInfo,
+    info_from,
+    is_event_warning,
+    key_of,
+    mV_scale,
+    reviewed_table,
+)
 from analysis.session._work import SessionWork
+from analysis.settings import Settings
 from analysis.table import BeatTable
 
 __all__ = ["Session"]
@@ -77,8 +95,6 @@ class Session(SessionWork):
     """
 
     def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010) -> None:
-        from analysis.settings import Settings
-
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
         self._entries: dict[str, Entry] = {}
@@ -162,8 +178,6 @@ class Session(SessionWork):
         -----
         Adding clears nothing from the undo history, but adding is not itself undoable.
         """
-        from analysis.readers import open_recording
-        from analysis.pipeline import analyze
 
         given = source if not isinstance(source, Recording) else None
         rec = source if isinstance(source, Recording) else open_recording(source)
@@ -171,7 +185,7 @@ class Session(SessionWork):
         if label is None:
             label = os.fspath(given) if given is not None else (rec.source_path or f"recording-{len(self._entries) + 1}")
         if result is None:
-            result = analyze(rec, settings=settings, channel=channel, sweeps=sweeps, label=label)
+            result = pipeline.analyze(rec, settings=settings, channel=channel, sweeps=sweeps, label=label)
         key = key_of(rec.source_path) if rec.source_path else label
         info = info_from(rec, result, label, sweeps)
         entry = Entry(
@@ -237,8 +251,6 @@ class Session(SessionWork):
         """
         e = self._entry(key)
         if e.recording is None:
-            from analysis.readers import open_recording
-
             path = e.info.source_path
             if not os.path.isfile(path):
                 raise RecordingError(path, "the source recording is not there", "put it back or re-link it, then try again")
@@ -382,7 +394,6 @@ class Session(SessionWork):
         decisions stay in the log and apply again if the sweeps come back). The events and
         quality rules then run on the merged table, since MDP drift compares across sweeps.
         """
-        from analysis.pipeline import analyze, flag_and_reject
 
         e = self._entry(key)
         rec = self.recording(key)
@@ -396,12 +407,12 @@ class Session(SessionWork):
         added = [s for s in wanted if s not in had]
         if added:
             channel = e.requested_channel if e.requested_channel is not None else e.info.channel
-            res = analyze(rec, settings=e.settings, channel=channel, sweeps=added, label=e.info.label)
+            res = pipeline.analyze(rec, settings=e.settings, channel=channel, sweeps=added, label=e.info.label)
             parts.append(BeatTable({n: res.beats[n] for n in parts[0].names}))
             warnings += [w for w in res.warnings if w not in warnings and not is_event_warning(w)]
         merged = BeatTable.concat(parts)
         order = np.lexsort((np.asarray(merged["t_upstroke_s"], float), np.asarray(merged["sweep"])))
-        merged, more = flag_and_reject(merged.take(order), rec, e.info.channel, e.settings, scale=mV_scale(e.info.units))
+        merged, more = pipeline.flag_and_reject(merged.take(order), rec, e.info.channel, e.settings, scale=mV_scale(e.info.units))
         selection = None if sweeps is None else tuple(wanted)
         self._run(SweepsCommand(self, key, selection, merged, tuple(warnings + more)))
 
@@ -470,7 +481,6 @@ class Session(SessionWork):
     # -- files -------------------------------------------------------------------------------
     def save(self, path: str | os.PathLike) -> None:
         """Write the session to a results file, atomically (see :mod:`analysis.results._store`)."""
-        from analysis.session._persist import save_session
 
         save_session(self, path)
         self.path = os.path.abspath(os.fspath(path))
@@ -490,6 +500,5 @@ class Session(SessionWork):
         ResultsFileError
             When the file is missing, damaged, foreign or of a newer schema.
         """
-        from analysis.session._persist import open_session
 
         return open_session(cls, path, verify_sources=verify_sources, match_tolerance_s=match_tolerance_s)

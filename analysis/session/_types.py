@@ -9,17 +9,22 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass, field, fields
-from typing import Any, Callable
+from typing import Any, Callable, Protocol, Sequence
 
 import numpy as np
 
 from analysis.conditions import Condition, assign_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
+from analysis import flags
+from analysis.pipeline import analyze
+from analysis.pipeline._analyze import MEASURING_QUALITY_FIELDS
 from analysis.recording import Recording
+from analysis.results import provenance_now
+from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
 __all__ = [
-    "EVENTS", "Change", "Entry", "RecordingFacts", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS",
+    "EVENTS", "SessionCore", "Change", "Entry", "RecordingFacts", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS",
     "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope",
 ]
 
@@ -29,6 +34,34 @@ EVENTS = (
 )
 #: Columns the session adds to the automatic table in its view.
 VIEW_COLUMNS = ("reviewed",)
+
+
+class SessionCore(Protocol):
+    """What the session's commands and its results-file persistence see of a session.
+
+    :class:`analysis.session.Session` satisfies it; the commands and the persistence depend on
+    this description instead of on the session's module, so that the session imports them and
+    not the other way round.
+    """
+
+    _entries: dict[str, "Entry"]
+    default_settings: Any
+    path: str | None
+    open_warnings: list[str]
+    _clean_depth: int
+
+    @property
+    def recordings(self) -> tuple[str, ...]: ...
+
+    def _entry(self, key: str) -> "Entry": ...
+
+    def _invalidate(self, key: str) -> None: ...
+
+    def _emit(self, event: str, recording: str | None = None, rows: Sequence[int] = (), detail: str = "") -> None: ...
+
+    def beats(self, key: str) -> BeatTable: ...
+
+    def summaries(self, key: str) -> Any: ...
 
 
 @dataclass(frozen=True)
@@ -159,7 +192,6 @@ class SettingsChange:
 
 def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingFacts:
     """The facts a session keeps about a recording just analysed."""
-    from analysis.results import provenance_now
 
     return RecordingFacts(
         source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
@@ -212,8 +244,6 @@ def scope(old: Any, new: Any) -> str:
     if changed <= {"summary"}:
         return "summary"
     if changed <= {"summary", "quality"}:
-        from analysis.pipeline._analyze import MEASURING_QUALITY_FIELDS
-
         # The artefact rule also decides which beats the others' cycle lengths and MDPs skip.
         if "quality" in changed and any(
             getattr(old.quality, f, None) != getattr(new.quality, f, None) for f in MEASURING_QUALITY_FIELDS
@@ -225,8 +255,6 @@ def scope(old: Any, new: Any) -> str:
 
 def cycle_measurer(settings: Any, ljp_mV: float, fs_hz: float) -> Callable[[np.ndarray], dict | None]:
     """Measures an averaged cycle (repeated three times) with the measurement core."""
-    from analysis.stats import measure_cycle
-    from analysis.pipeline import analyze
 
     def analyze_trace(v_mV: np.ndarray, rate_hz: float) -> BeatTable:
         # The averaged cycle is already corrected; analyze subtracts the LJP once more.
@@ -238,9 +266,8 @@ def cycle_measurer(settings: Any, ljp_mV: float, fs_hz: float) -> Callable[[np.n
 
 def is_event_warning(text: str) -> bool:
     """True for a warning the events module wrote (replaced when the events run again)."""
-    from analysis.flags import _events as events
 
-    return events.is_event_warning(text)
+    return flags.is_event_warning(text)
 
 
 def mV_scale(units: str) -> float:

@@ -14,9 +14,16 @@ import numpy as np
 
 from analysis.errors import RecordingError
 from analysis.session._commands import SettingsCommand
-from analysis.session._jobs import Progress, SettingsJob, SummaryJob, snapshot_settings_item, snapshot_summary
+from analysis.session._jobs import (
+    Progress,
+    SettingsJob,
+    SummaryJob,
+    snapshot_settings_item,
+    snapshot_summary,
+)
 from analysis.session._types import SettingsChange
 from analysis.session._types import scope as change_scope
+from analysis.stats import summary_columns
 
 __all__ = ["SessionWork"]
 
@@ -155,7 +162,6 @@ class SessionWork:
 
     def summary_table(self, keys: Sequence[str] | None = None) -> dict[str, np.ndarray]:
         """The summaries of several recordings (all by default) as summary-CSV columns."""
-        from analysis.stats import summary_columns
 
         keys = list(self._entries) if keys is None else list(keys)
         return summary_columns([s for k in keys for s in self.summaries(k)])

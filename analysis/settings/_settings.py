@@ -33,6 +33,7 @@ value; such fields must default to None, because TOML has no null: a missing key
 ``tuple[float, ...]``.
 """
 
+import difflib
 import hashlib
 import json
 import os
@@ -41,7 +42,24 @@ from dataclasses import dataclass, fields
 from typing import Any, Mapping
 
 from analysis.errors import SettingsError
-from analysis.settings._fields import FieldInfo, Section, _check_value, _kind, _range_text, section, setting  # noqa: F401
+from analysis.settings._fields import (  # noqa: F401
+    FieldInfo,
+    Section,
+    _check_value,
+    _kind,
+    _range_text,
+    section,
+    setting,
+)
+
+# The sections themselves (what each step reads) are in their own module.
+from analysis.settings._sections import (
+    DetectionSettings,
+    MeasurementSettings,
+    PreprocessSettings,
+    QualitySettings,
+    SummarySettings,
+)
 
 __all__ = ["SCHEMA_VERSION", "Settings", "describe"]
 
@@ -49,9 +67,6 @@ __all__ = ["SCHEMA_VERSION", "Settings", "describe"]
 #: removed or changes meaning.
 SCHEMA_VERSION = 1
 
-
-# The sections themselves (what each step reads) are in their own module.
-from analysis.settings._sections import APD_REFERENCES, DDR_METHODS, DVDT_MAX_METHODS, TOP_METHODS, UPSTROKE_TIME_METHODS, DetectionSettings, MeasurementSettings, PreprocessSettings, QualitySettings, SummarySettings
 
 
 @dataclass(frozen=True)
@@ -202,7 +217,6 @@ _check_declarations()
 
 def _name_hint(name: str, names: list[str], section_name: str) -> str:
     """A short fix for a mistyped setting: the closest names, not all of them (keeps one line)."""
-    import difflib
 
     close = difflib.get_close_matches(str(name), names, n=3, cutoff=0.5)
     if close:

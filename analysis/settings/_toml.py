@@ -38,7 +38,7 @@ def save_settings(settings: Settings, path: str | os.PathLike) -> None:
     Unset optional values are left out (TOML has no null); :func:`load_settings` reads them
     back as unset.
     """
-    import tomli_w
+    import tomli_w  # only writing settings needs it
 
     p = os.fspath(path)
     data = settings.to_dict()

@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import functools
 import math
-from dataclasses import dataclass
 
 import numpy as np
 
@@ -102,7 +101,7 @@ def _edge_coeffs(n: int, polyorder: int, deriv: int) -> tuple[np.ndarray, np.nda
 
 
 def _fft_convolve(x: np.ndarray, coeffs: np.ndarray) -> np.ndarray:
-    from scipy.signal import oaconvolve
+    from scipy.signal import oaconvolve  # scipy.signal is slow to import; only long windows need it
 
     return oaconvolve(x, coeffs, mode="same")
 

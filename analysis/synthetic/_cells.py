@@ -27,8 +27,14 @@ from typing import Sequence
 
 import numpy as np
 
-from analysis.recording import Recording
-from analysis.synthetic._model import BeatTrain, Bump, RepolarisationShape, _Events, smooth_window
+from analysis.recording import CURRENT_CLAMP, Channel, Recording
+from analysis.synthetic._model import (
+    BeatTrain,
+    Bump,
+    RepolarisationShape,
+    _Events,
+    smooth_window,
+)
 from analysis.synthetic._truth import beat_truth
 from analysis.table import BeatTable
 
@@ -542,7 +548,6 @@ def _event_table(train, planted, artefacts, pauses, seal_troubles, starts, durat
 
 def _recording(data: np.ndarray, fs_hz: float, starts: Sequence[float], cell: CellParams, seed: int) -> Recording:
     """A Recording over the generated samples without copying them (long recordings are large)."""
-    from analysis.recording import CURRENT_CLAMP, Channel
 
     def loader(sweep: int, channel: int, start: int, stop: int) -> np.ndarray:
         return data[sweep, start:stop].copy()

@@ -51,7 +51,7 @@ def write_abf(recording: Recording, path: str | os.PathLike, *, channel: int | s
     Samples are truncated toward zero to int16 as pyabf does; at +-100 mV the step is 1/327.68 mV.
     Sweeps must be of equal length, as ABF1 episodes are.
     """
-    import pyabf.abfWriter
+    import pyabf.abfWriter  # only writing an ABF file needs it
 
     index = recording.channel_index(channel)
     lengths = {recording.n_samples(i) for i in range(recording.n_sweeps)}
@@ -111,8 +111,8 @@ def write_nwb(
     identifier, session_description, session_start_time, cell_id
         NWB file metadata; fixed defaults keep the file's contents the same on every run.
     """
-    from pynwb import NWBHDF5IO, NWBFile
-    from pynwb.icephys import CurrentClampSeries
+    from pynwb import NWBHDF5IO, NWBFile  # heavy; only writing an NWB file needs it
+    from pynwb.icephys import CurrentClampSeries  # heavy; only writing an NWB file needs it
 
     index = recording.channel_index(channel)
     if recording.units(index) != "mV":

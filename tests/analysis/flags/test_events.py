@@ -292,7 +292,7 @@ def test_the_moving_average_and_the_noise_filter_match_scipy():
     from scipy.signal import butter, sosfiltfilt
 
     from analysis.flags import box_mean
-    from analysis.flags._trace import lowpass_residual_rms
+    from analysis.beats import lowpass_residual_rms
 
     rng = np.random.default_rng(11)
     x = -60.0 + rng.normal(size=5000).cumsum() * 0.05
