@@ -24,6 +24,7 @@ from typing import Sequence
 import numpy as np
 
 from analysis.beats._extrema import mdp_batch, peak_batch
+from analysis.columns import apd_name
 from analysis.beats._repolarisation import first_crossings, refine_crossings
 from analysis.settings import MeasurementSettings
 from analysis.signal import moving_mean, noise_matched_window_ms, noise_rms_mV, parabolic_peak, poly_lsq, savgol_smooth, savgol_smooth_interior, window_samples
@@ -104,12 +105,6 @@ def _quartic_max(coef: np.ndarray, u0: float, u1: float, n: int) -> tuple[float,
     if best < float(val[k]):
         return float(grid[k]), float(val[k])
     return u, best
-
-
-def apd_name(percent: float) -> str:
-    """``apd90`` for 90, ``apd12p5`` for 12.5."""
-    text = f"{percent:g}".replace(".", "p")
-    return f"apd{text}"
 
 
 @dataclass
