@@ -123,11 +123,6 @@ def _style(plot: pg.PlotItem, bottom: tuple[str, str | None], left: tuple[str, s
         plot.getAxis(axis).enableAutoSIPrefix(False)
 
 
-def _axis(name: str) -> tuple[str, str]:
-    """A beat column's axis label and unit, from the catalogue."""
-    return column(name).label, column(name).unit
-
-
 def _legend(plot: pg.PlotItem, offset: tuple[int, int]) -> pg.LegendItem:
     """A legend on a paper-coloured, nearly opaque ground, readable over the traces it covers."""
     return plot.addLegend(offset=offset, labelTextColor=palette.INK, brush=palette.rgba(palette.PAPER, 215),
@@ -356,8 +351,7 @@ class PoincareFigure(_Figure):
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
-        cl = column("cl_ms")
-        _style(self.plot, (f"{cl.label} n", cl.unit), (f"{cl.label} n+1", cl.unit))
+        _style(self.plot, *((f"{column('cl_ms').label} {n}", column("cl_ms").unit) for n in ("n", "n+1")))
         self.plot.setAspectLocked(True)
         self.legend = _legend(self.plot, (10, 10))
         self.pairs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
@@ -386,7 +380,7 @@ class DdrClFigure(_Figure):
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
-        _style(self.plot, _axis("cl_ms"), _axis("ddr_mV_per_s"))
+        _style(self.plot, *((column(n).label, column(n).unit) for n in ("cl_ms", "ddr_mV_per_s")))
         self.legend = _legend(self.plot, (-10, 10))
         self.fits: dict[str, plotdata.LineFit] = {}
 
