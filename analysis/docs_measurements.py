@@ -6,8 +6,8 @@ setting or a flag; a test fails while the committed page and the code disagree.
 Every part of the page comes from one place in the core, so that the page cannot say something the
 code does not do:
 
-* the beats CSV's columns: :data:`analysis.table.COLUMNS` and the feature registry
-  :data:`analysis.beats.FEATURES` (with the APD features of the default settings);
+* the beats CSV's columns: the catalogue :mod:`analysis.columns` (name, unit, the one
+  description, the published source);
 * how each marker is found: the docstrings of :mod:`analysis.beats._markers` and :mod:`analysis.signal._filters`;
 * how beats are found: the docstring of :mod:`analysis.beats._detect`;
 * the flags: :data:`analysis.beats.FLAG_WORDS` and the vocabulary in the docstring of
@@ -24,7 +24,7 @@ import re
 import sys
 from types import ModuleType
 
-from analysis import table
+from analysis import columns
 
 from analysis.beats import _detect as detect
 
@@ -112,15 +112,10 @@ def _vocabulary_title() -> str:
 
 
 def _columns() -> list[str]:
-    feats = dict(measure.FEATURES)
-    feats.update({f.name: f for f in measure.apd_features(settings.MeasurementSettings().apd_percent)})
     rows = ["| column | unit | definition (default) | source |", "|---|---|---|---|"]
-    for col in table.COLUMNS:
-        f = feats.get(col.name)
-        if f is None:
-            rows.append(f"| `{col.name}` | | {_cell(col.description)} | CONTRACT.md |")
-        else:
-            rows.append(f"| `{col.name}` | {f.unit} | {_cell(f.description)} | {_cell(f.source)} |")
+    for col in columns.csv_columns():
+        unit = f"{col.unit} " if col.unit else ""
+        rows.append(f"| `{col.name}` | {unit}| {_cell(col.description)} | {_cell(col.source)} |")
     return rows
 
 

@@ -3,7 +3,8 @@
 Rejection is a value in the ``accepted`` column with a reason elsewhere, never a removed row, so
 columns cannot fall out of line. The columns that the beats CSV carries, in its order, are
 :data:`CSV_COLUMNS`; a table may carry more (marker times and sample indices used by events,
-summaries and the app), which the CSV leaves out.
+summaries and the app), which the CSV leaves out. Every column is declared once, in the catalogue
+:mod:`analysis.columns`.
 """
 
 from __future__ import annotations
@@ -11,58 +12,17 @@ from __future__ import annotations
 import csv
 import io
 import math
-from dataclasses import dataclass
 from typing import IO, Iterable, Iterator, Mapping, Sequence
 
 import numpy as np
 
-__all__ = ["Column", "COLUMNS", "CSV_COLUMNS", "BeatTable", "format_value"]
+from analysis.columns import BeatColumn, csv_columns
+
+__all__ = ["COLUMNS", "CSV_COLUMNS", "BeatTable", "format_value"]
 
 
-@dataclass(frozen=True)
-class Column:
-    """How one column is stored and written.
-
-    Attributes
-    ----------
-    name : str
-        Column name; its unit is part of the name where it has one.
-    kind : str
-        ``"float"``, ``"int"`` or ``"str"``.
-    decimals : int or None
-        Digits after the decimal point in CSV output (floats only).
-    description : str
-        One line for docs, tooltips and the CSV reference.
-    """
-
-    name: str
-    kind: str
-    decimals: int | None = None
-    description: str = ""
-
-
-#: Every column of the beats CSV, in the contract's order.
-COLUMNS: tuple[Column, ...] = (
-    Column("file", "str", description="the recording, as given on the command line or stored"),
-    Column("sweep", "int", description="sweep number, from 0"),
-    Column("beat", "int", description="beat number within its sweep, from 0"),
-    Column("t_upstroke_s", "float", 6, "upstroke time from the start of its sweep"),
-    Column("accepted", "int", description="1 accepted, 0 rejected (by review or a quality rule)"),
-    Column("flags", "str", description="';'-separated flag words, empty when none"),
-    Column("condition", "str", description="the condition the beat falls in, empty when none"),
-    Column("cl_ms", "float", 3, "cycle length: this upstroke minus the previous one"),
-    Column("rate_bpm", "float", 3, "beating rate, 60000 / cl_ms"),
-    Column("mdp_mV", "float", 3, "maximum diastolic potential"),
-    Column("top_mV", "float", 3, "take-off potential"),
-    Column("ddr_mV_per_s", "float", 3, "diastolic depolarisation rate (phase-4 slope)"),
-    Column("ddr100_mV_per_s", "float", 3, "early DDR over the first 100 ms after the MDP"),
-    Column("dvdt_max_V_per_s", "float", 3, "maximum upstroke velocity"),
-    Column("peak_mV", "float", 3, "peak potential"),
-    Column("apa_mV", "float", 3, "action-potential amplitude, peak - MDP"),
-    Column("apd20_ms", "float", 3, "action-potential duration at 20 % repolarisation"),
-    Column("apd50_ms", "float", 3, "action-potential duration at 50 % repolarisation"),
-    Column("apd90_ms", "float", 3, "action-potential duration at 90 % repolarisation"),
-)
+#: Every column of the beats CSV, in the contract's order: the catalogue's CSV columns.
+COLUMNS: tuple[BeatColumn, ...] = csv_columns()
 CSV_COLUMNS: tuple[str, ...] = tuple(c.name for c in COLUMNS)
 _BY_NAME = {c.name: c for c in COLUMNS}
 
@@ -207,7 +167,7 @@ class BeatTable:
 
 def _as_column(name: str, values: object) -> np.ndarray:
     spec = _BY_NAME.get(name)
-    kind = spec.kind if spec else None
+    kind = spec.dtype if spec else None
     if kind == "float":
         return np.array(values, dtype=np.float64, copy=True).reshape(-1)
     if kind == "int":

@@ -15,6 +15,7 @@ from typing import Sequence
 
 import numpy as np
 
+from analysis.columns import column
 from analysis.table import BeatTable
 
 from .svg_elements import document, escape, num
@@ -23,11 +24,9 @@ __all__ = ["PANELS", "nice_ticks", "time_course_svg"]
 
 #: (column, axis label, smallest axis span) of each panel, top to bottom. The smallest span keeps
 #: beat-to-beat noise from filling a panel as if it were a change.
-PANELS: tuple[tuple[str, str, float], ...] = (
-    ("rate_bpm", "rate (bpm)", 10.0),
-    ("apd90_ms", "APD90 (ms)", 20.0),
-    ("ddr_mV_per_s", "DDR (mV/s)", 10.0),
-    ("mdp_mV", "MDP (mV)", 4.0),
+PANELS: tuple[tuple[str, str, float], ...] = tuple(
+    (name, column(name).axis_label, span)
+    for name, span in (("rate_bpm", 10.0), ("apd90_ms", 20.0), ("ddr_mV_per_s", 10.0), ("mdp_mV", 4.0))
 )
 _W, _PANEL_H, _LEFT, _RIGHT, _TOP, _GAP, _BOTTOM = 860, 150, 80, 20, 46, 26, 44
 _BANDS = ("#dfe9f5", "#f6e6d5", "#e0f0df", "#efe0f0", "#f3f0d6")

@@ -7,8 +7,9 @@ Measurement has two stages:
    the phase-4 fits and the APD level crossings. Definitions are MEASUREMENTS.md's defaults or the
    alternatives chosen in :class:`analysis.settings.MeasurementSettings` (see
    :mod:`analysis.beats._markers` for each one).
-2. :data:`FEATURES`, the registry of named columns (name with its unit, function, description,
-   published source), turns the markers of one sweep into table columns, vectorised.
+2. :data:`FEATURES`, the registry of compute functions, one per measured column of the catalogue
+   :mod:`analysis.columns` (which holds each column's name, unit, description and published
+   source), turns the markers of one sweep into table columns, vectorised.
 
 Undefined values are NaN. The first beat of a sweep has no preceding diastole: its MDP, TOP, DDR,
 APA, APDs and CL are NaN and it carries ``no_diastole``; a beat whose repolarisation the sweep's
@@ -23,6 +24,7 @@ from typing import Callable, Mapping
 import numpy as np
 
 from analysis.beats._markers import BeatMarkers, apd_name
+from analysis.columns import CSV_APD_PERCENTS, BeatColumn, apd_column, column
 from analysis.settings import MeasurementSettings
 
 __all__ = ["Feature", "FEATURES", "FLAG_WORDS", "features_of_sweep", "marker_columns"]
@@ -36,25 +38,37 @@ FLAG_WORDS = {
 
 @dataclass(frozen=True)
 class Feature:
-    """One measured column.
+    """One measured column: its catalogue record and the function that computes it.
+
+    The name, unit, description and published source are the catalogue's
+    (:mod:`analysis.columns`); the registry adds only the algorithm.
 
     Attributes
     ----------
-    name : str
-        Column name, with its unit.
-    unit : str
-    description : str
-    source : str
-        The published definition (or "common practice, no source").
+    column : BeatColumn
+        The column's record in the catalogue.
     compute : callable
         ``compute(markers, settings) -> ndarray`` over the beats of one sweep, in order.
     """
 
-    name: str
-    unit: str
-    description: str
-    source: str
+    column: BeatColumn
     compute: Callable[[Mapping[str, np.ndarray], MeasurementSettings], np.ndarray]
+
+    @property
+    def name(self) -> str:
+        return self.column.name
+
+    @property
+    def unit(self) -> str:
+        return self.column.unit
+
+    @property
+    def description(self) -> str:
+        return self.column.description
+
+    @property
+    def source(self) -> str:
+        return self.column.source
 
 
 def _col(name: str) -> Callable[[Mapping[str, np.ndarray], MeasurementSettings], np.ndarray]:
@@ -93,48 +107,35 @@ def _apd(pct: float) -> Callable[[Mapping[str, np.ndarray], MeasurementSettings]
     return f
 
 
-_MS = "MEASUREMENTS.md"
-
-#: The registry of measured columns of the beats CSV (APD columns follow the settings).
+#: The registry of measured columns of the beats CSV (APD columns follow the settings): each
+#: column's compute function, by the column's name in the catalogue.
 FEATURES: dict[str, Feature] = {
-    f.name: f
-    for f in (
-        Feature("t_upstroke_s", "s", "upstroke time (dV/dt max, or a voltage-level crossing) from the sweep's start",
-                _MS, _col("t_upstroke_s")),
-        Feature("cl_ms", "ms", "cycle length: this upstroke minus the previous one in the same sweep", _MS, _cl),
-        Feature("rate_bpm", "bpm", "beating rate, 60000 / cycle length", _MS, _rate),
-        Feature("mdp_mV", "mV", "maximum diastolic potential: minimum V between the previous peak and the upstroke",
-                _MS, _col("mdp_mV")),
-        Feature("top_mV", "mV", "take-off potential (default: V where dV/dt last rises through 0.5 V/s)",
-                _MS, _col("top_mV")),
-        Feature("ddr_mV_per_s", "mV/s", "diastolic depolarisation rate: least-squares slope of V from MDP to TOP",
-                _MS, _col("ddr_mV_per_s")),
-        Feature("ddr100_mV_per_s", "mV/s", "early DDR: least-squares slope over the first 100 ms after the MDP",
-                "Verkerk et al. 2007, Eur Heart J 28:2472", _col("ddr100_mV_per_s")),
-        Feature("dvdt_max_V_per_s", "V/s", "maximum upstroke velocity (Savitzky-Golay derivative sized to the upstroke)",
-                _MS, _col("dvdt_max_V_per_s")),
-        Feature("peak_mV", "mV", "peak potential: maximum V after the upstroke, before the next diastole",
-                _MS, _col("peak_mV")),
-        Feature("apa_mV", "mV", "action-potential amplitude, peak - MDP", _MS, _apa),
+    name: Feature(column(name), compute)
+    for name, compute in (
+        ("t_upstroke_s", _col("t_upstroke_s")),
+        ("cl_ms", _cl),
+        ("rate_bpm", _rate),
+        ("mdp_mV", _col("mdp_mV")),
+        ("top_mV", _col("top_mV")),
+        ("ddr_mV_per_s", _col("ddr_mV_per_s")),
+        ("ddr100_mV_per_s", _col("ddr100_mV_per_s")),
+        ("dvdt_max_V_per_s", _col("dvdt_max_V_per_s")),
+        ("peak_mV", _col("peak_mV")),
+        ("apa_mV", _apa),
     )
 }
 
 
 def apd_features(percents) -> list[Feature]:
     """One APD feature per repolarisation percentage of the settings."""
-    return [
-        Feature(f"{apd_name(p)}_ms", "ms",
-                f"AP duration from the reference time to {p:g} % repolarisation (V <= peak - {p:g} % of APA)",
-                _MS, _apd(p))
-        for p in percents
-    ]
+    return [Feature(apd_column(p), _apd(p)) for p in percents]
 
 
 def marker_columns(percents) -> tuple[str, ...]:
     """The extra (non-CSV) columns measure adds to the beat table."""
     return (
         "i_upstroke", "t_mdp_s", "t_top_s", "t_peak_s",
-        *(f"t_{apd_name(p)}_s" for p in sorted(set(percents) | {20.0, 50.0, 90.0})),
+        *(f"t_{apd_name(p)}_s" for p in sorted(set(percents) | set(CSV_APD_PERCENTS))),
         "rise_ms", "dvdt_window_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
     )
 
@@ -153,7 +154,7 @@ def features_of_sweep(markers: BeatMarkers | Mapping[str, np.ndarray], settings:
     for f in apd_features(settings.apd_percent):
         out[f.name] = f.compute(m, settings)
     n = len(m["t_upstroke_s"])
-    for p in (20.0, 50.0, 90.0):
+    for p in CSV_APD_PERCENTS:
         out.setdefault(f"{apd_name(p)}_ms", np.full(n, np.nan))
     # APA and APDs need a diastole.
     nod = ~np.asarray(m["has_previous"], bool)

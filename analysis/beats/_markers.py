@@ -24,6 +24,7 @@ from typing import Sequence
 import numpy as np
 
 from analysis.beats._extrema import mdp_batch, peak_batch
+from analysis.columns import apd_name
 from analysis.beats._repolarisation import first_crossings, refine_crossings
 from analysis.beats._takeoff import TakeoffSteps
 from analysis.beats._upstroke import upstroke_velocity
@@ -111,12 +112,6 @@ def _quartic_max(coef: np.ndarray, u0: float, u1: float, n: int) -> tuple[float,
     if best < float(val[k]):
         return float(grid[k]), float(val[k])
     return u, best
-
-
-def apd_name(percent: float) -> str:
-    """``apd90`` for 90, ``apd12p5`` for 12.5."""
-    text = f"{percent:g}".replace(".", "p")
-    return f"apd{text}"
 
 
 @dataclass

@@ -31,6 +31,7 @@ from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
+from analysis.columns import summarised_columns
 from analysis.conditions import Condition, SteadyState
 from analysis.stats._ensemble import Ensemble, ensemble_average
 from analysis.table import BeatTable, format_value
@@ -47,13 +48,9 @@ __all__ = [
     "summary_csv",
 ]
 
-#: Per-beat parameters summarised: (beats column, name stem, unit).
-PARAMETERS: tuple[tuple[str, str, str], ...] = (
-    ("cl_ms", "cl", "ms"), ("rate_bpm", "rate", "bpm"), ("mdp_mV", "mdp", "mV"), ("top_mV", "top", "mV"),
-    ("ddr_mV_per_s", "ddr", "mV_per_s"), ("ddr100_mV_per_s", "ddr100", "mV_per_s"),
-    ("dvdt_max_V_per_s", "dvdt_max", "V_per_s"), ("peak_mV", "peak", "mV"), ("apa_mV", "apa", "mV"),
-    ("apd20_ms", "apd20", "ms"), ("apd50_ms", "apd50", "ms"), ("apd90_ms", "apd90", "ms"),
-)
+#: Per-beat parameters summarised: (beats column, name stem, unit as the name spells it), the
+#: catalogue's summarised columns in CSV order.
+PARAMETERS: tuple[tuple[str, str, str], ...] = tuple((c.name, c.stem, c.unit_in_name) for c in summarised_columns())
 _EXCLUDED_FLAGS = ("no_diastole", "truncated")
 
 #: The summary CSV's columns, in order, with their decimals (None: text or integers).

@@ -19,6 +19,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
+from analysis.columns import column
 from analysis.errors import InputError
 from analysis.settings import Settings
 
@@ -243,14 +244,16 @@ def summary_line(result) -> str:
     )
     n_sweeps = len(np.unique(b["sweep"]))
 
-    def fmt(name: str, unit: str, digits: int = 1) -> str:
+    def fmt(name: str, digits: int = 1) -> str:
         m = _mean(b[name][clean])
-        return f"{m:.{digits}f} {unit}" if math.isfinite(m) else "n/a"
+        return f"{m:.{digits}f} {column(name).unit}" if math.isfinite(m) else "n/a"
+
+    def said(name: str) -> str:
+        return f"{column(name).label} {fmt(name)}"
 
     return (
         f"{label}: {n} beats ({int(accepted.sum())} accepted) in {n_sweeps} sweep{'s' * (n_sweeps != 1)}; "
-        f"mean CL {fmt('cl_ms', 'ms')} ({fmt('rate_bpm', 'bpm')}), MDP {fmt('mdp_mV', 'mV')}, "
-        f"dV/dt max {fmt('dvdt_max_V_per_s', 'V/s')}"
+        f"mean {said('cl_ms')} ({fmt('rate_bpm')}), {said('mdp_mV')}, {said('dvdt_max_V_per_s')}"
     )
 
 

@@ -11,32 +11,27 @@ import math
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.table import COLUMNS, BeatTable
+from analysis.columns import column
+from analysis.table import BeatTable
 
 from . import palette
 
 __all__ = ["BeatTableModel", "BeatTableView", "SHOWN_COLUMNS", "header_label"]
 
-_BY_NAME = {c.name: c for c in COLUMNS}
 #: Columns shown, in order: where and whether, the measured values, then the words.
 SHOWN_COLUMNS = (
     "sweep", "beat", "t_upstroke_s", "accepted", "cl_ms", "rate_bpm", "mdp_mV", "top_mV",
     "ddr_mV_per_s", "ddr100_mV_per_s", "dvdt_max_V_per_s", "peak_mV", "apa_mV", "apd20_ms",
     "apd50_ms", "apd90_ms", "condition", "flags", "reject_reason",
 )
-_LABELS = {
-    "sweep": "sweep", "beat": "beat", "t_upstroke_s": "upstroke\n(s)", "accepted": "kept",
-    "reject_reason": "reason", "flags": "flags", "condition": "condition", "cl_ms": "CL\n(ms)",
-    "rate_bpm": "rate\n(bpm)", "mdp_mV": "MDP\n(mV)", "top_mV": "TOP\n(mV)",
-    "ddr_mV_per_s": "DDR\n(mV/s)", "ddr100_mV_per_s": "DDR100\n(mV/s)",
-    "dvdt_max_V_per_s": "dV/dt max\n(V/s)", "peak_mV": "peak\n(mV)", "apa_mV": "APA\n(mV)",
-    "apd20_ms": "APD20\n(ms)", "apd50_ms": "APD50\n(ms)", "apd90_ms": "APD90\n(ms)",
-}
 
 
 def header_label(name: str) -> str:
-    """The column's header text, its unit in brackets."""
-    return _LABELS.get(name, name)
+    """The column's header text, its unit in brackets: the catalogue's (:mod:`analysis.columns`)."""
+    try:
+        return column(name).header
+    except KeyError:
+        return name
 
 
 class BeatTableModel(QtCore.QAbstractTableModel):
@@ -99,8 +94,10 @@ class BeatTableModel(QtCore.QAbstractTableModel):
         if role == QtCore.Qt.DisplayRole:
             return header_label(name)
         if role == QtCore.Qt.ToolTipRole:
-            spec = _BY_NAME.get(name)
-            return f"{name}: {spec.description}" if spec else name
+            try:
+                return f"{name}: {column(name).description}"
+            except KeyError:
+                return name
         return None
 
     def data(self, index, role=QtCore.Qt.DisplayRole):

@@ -12,6 +12,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
+from analysis.columns import column
+
 from . import palette
 from .bands import BandLabels, SpanBands
 
@@ -87,7 +89,8 @@ class OverviewStrip(pg.GraphicsLayoutWidget):
         self.rate_plot.setXLink(self.trace_plot)
         self.ci.layout.setRowStretchFactor(0, 3)
         self.ci.layout.setRowStretchFactor(1, 2)
-        for plot, label, units in ((self.trace_plot, "V", "mV"), (self.rate_plot, "rate", "bpm")):
+        rate = column("rate_bpm")
+        for plot, label, units in ((self.trace_plot, "V", "mV"), (self.rate_plot, rate.label, rate.unit)):
             plot.setMenuEnabled(False)
             plot.hideButtons()
             plot.setLabel("left", f"{label} ({units})", **{"font-size": "8pt"})

@@ -7,6 +7,8 @@ of colour blindness), and faint washes for the phases so they never hide the tra
 
 from __future__ import annotations
 
+from analysis.columns import column
+
 #: Window and plot background, and the ink of axes and text.
 PAPER = "#fbfaf6"
 INK = "#26303b"
@@ -19,13 +21,14 @@ TRACE_WIDTH = 1  # a one-pixel cosmetic pen: wider pens cost Qt's raster engine 
 ENVELOPE = "#45617f"
 RATE = "#b5452b"
 
-#: Marker kinds drawn on every beat: (label, colour, pyqtgraph symbol, size in px).
+#: Marker kinds drawn on every beat: (label, colour, pyqtgraph symbol, size in px); the label is
+#: the catalogue's label of the column the marker belongs to.
 MARKERS = {
-    "upstroke": ("upstroke", "#d1495b", "t1", 11),
-    "mdp": ("MDP", "#0b7a75", "t", 10),
-    "top": ("TOP", "#e09f1f", "d", 10),
-    "peak": ("peak", "#6a4c93", "o", 9),
-    "apd90": ("APD90", "#2a9d3f", "s", 8),
+    "upstroke": (column("t_upstroke_s").label, "#d1495b", "t1", 11),
+    "mdp": (column("mdp_mV").label, "#0b7a75", "t", 10),
+    "top": (column("top_mV").label, "#e09f1f", "d", 10),
+    "peak": (column("peak_mV").label, "#6a4c93", "o", 9),
+    "apd90": (column("apd90_ms").label, "#2a9d3f", "s", 8),
 }
 
 #: Rejected beats: greyed markers and a hatched rose band behind the beat.

@@ -22,6 +22,7 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.readouts import _plotdata as plotdata
+from analysis.columns import column
 from analysis.errors import InputError
 from analysis.recording import Recording
 from analysis.table import BeatTable
@@ -264,7 +265,7 @@ class PhasePlaneFigure(_Figure):
 class TimeCourseFigure(_Figure):
     title = "Time course"
     #: (column, label, unit) of the three stacked plots.
-    ROWS = (("rate_bpm", "rate", "bpm"), ("apd90_ms", "APD90", "ms"), ("ddr_mV_per_s", "DDR", "mV/s"))
+    ROWS = tuple((name, column(name).label, column(name).unit) for name in ("rate_bpm", "apd90_ms", "ddr_mV_per_s"))
 
     #: Width of the plots' left axes, in pixels (the same for all, so their time axes align).
     AXIS_WIDTH_PX = 62
@@ -350,7 +351,7 @@ class PoincareFigure(_Figure):
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
-        _style(self.plot, ("CL n", "ms"), ("CL n+1", "ms"))
+        _style(self.plot, *((f"{column('cl_ms').label} {n}", column("cl_ms").unit) for n in ("n", "n+1")))
         self.plot.setAspectLocked(True)
         self.legend = _legend(self.plot, (10, 10))
         self.pairs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
@@ -374,12 +375,12 @@ class PoincareFigure(_Figure):
 
 
 class DdrClFigure(_Figure):
-    title = "DDR vs CL"
+    title = f"{column('ddr_mV_per_s').label} vs {column('cl_ms').label}"
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
-        _style(self.plot, ("CL", "ms"), ("DDR", "mV/s"))
+        _style(self.plot, *((column(n).label, column(n).unit) for n in ("cl_ms", "ddr_mV_per_s")))
         self.legend = _legend(self.plot, (-10, 10))
         self.fits: dict[str, plotdata.LineFit] = {}
 
@@ -403,7 +404,7 @@ class DdrClFigure(_Figure):
             label = f"{_group_label(name)}: n={fit.n}"
             if math.isfinite(fit.slope):
                 xs = np.array([x[ok].min(), x[ok].max()])
-                label += f", slope {fit.slope:.3g} mV/s per ms, r={fit.r:.2f}"
+                label += f", slope {fit.slope:.3g} {column('ddr_mV_per_s').unit} per {column('cl_ms').unit}, r={fit.r:.2f}"
                 self.plot.plot(xs, fit.at(xs), pen=pg.mkPen(colour, width=2.2), name=label)
             else:
                 self.plot.plot([], [], pen=pg.mkPen(colour, width=2.2), name=label + " (too few for a fit)")

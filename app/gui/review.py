@@ -10,6 +10,7 @@ import math
 
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from analysis.columns import column
 from analysis.table import BeatTable
 
 from . import palette
@@ -128,14 +129,14 @@ class BeatCard(QtWidgets.QFrame):
             text += f"<br>condition: <b>{r['condition']}</b>"
         self.verdict.setText(text)
 
-        def fmt(name: str, label: str, unit: str, d: int = 1) -> str:
+        def fmt(name: str, d: int = 1) -> str:
             v = r.get(name)
             s = f"{v:.{d}f}" if isinstance(v, float) and math.isfinite(v) else "—"
-            return f"{label:<10}{s:>9} {unit}"
+            col = column(name)
+            return f"{col.label:<10}{s:>9} {col.unit}"
 
         lines = [
-            fmt("cl_ms", "CL", "ms"), fmt("mdp_mV", "MDP", "mV"), fmt("top_mV", "TOP", "mV"),
-            fmt("ddr_mV_per_s", "DDR", "mV/s"), fmt("dvdt_max_V_per_s", "dV/dt max", "V/s", 2),
-            fmt("peak_mV", "peak", "mV"), fmt("apd50_ms", "APD50", "ms"), fmt("apd90_ms", "APD90", "ms"),
+            fmt("cl_ms"), fmt("mdp_mV"), fmt("top_mV"), fmt("ddr_mV_per_s"), fmt("dvdt_max_V_per_s", 2),
+            fmt("peak_mV"), fmt("apd50_ms"), fmt("apd90_ms"),
         ]
         self.values.setText("\n".join(lines))

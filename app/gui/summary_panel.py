@@ -13,17 +13,13 @@ from typing import Mapping, Sequence
 
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from analysis.columns import column
 from analysis.stats import PARAMETERS
 
 from . import palette
 
 __all__ = ["SummaryPanel", "summary_rows"]
 
-_LABELS = {
-    "cl": "CL", "rate": "rate", "mdp": "MDP", "top": "TOP", "ddr": "DDR", "ddr100": "DDR100",
-    "dvdt_max": "dV/dt max", "peak": "peak", "apa": "APA", "apd20": "APD20", "apd50": "APD50", "apd90": "APD90",
-}
-_UNITS = {"mV_per_s": "mV/s", "V_per_s": "V/s"}
 
 
 def _num(value, decimals: int = 1) -> str:
@@ -38,17 +34,18 @@ def summary_rows(values: Mapping[str, object]) -> list[tuple[str, str]]:
         ("beats used / all (✕)", f"{values.get('n_accepted', 0)} / {values.get('n_beats', 0)} ({values.get('n_rejected', 0)})"),
         ("window (s)", f"{_num(values.get('window_start_s'), 1)}–{_num(values.get('window_end_s'), 1)}"),
     ]
-    for _col, stem, unit in PARAMETERS:
+    for col, stem, unit in PARAMETERS:
         mean, sd = values.get(f"{stem}_mean_{unit}"), values.get(f"{stem}_sd_{unit}")
         d = 2 if stem == "dvdt_max" else 1
-        rows.append((f"{_LABELS.get(stem, stem)} ({_UNITS.get(unit, unit)})", f"{_num(mean, d)} ± {_num(sd, d)}"))
+        rows.append((column(col).axis_label, f"{_num(mean, d)} ± {_num(sd, d)}"))
+    cl, rate, apd90, ddr = (column(n) for n in ("cl_ms", "rate_bpm", "apd90_ms", "ddr_mV_per_s"))
     rows += [
-        ("mean rate (bpm)", _num(values.get("rate_mean_bpm"), 1)),
-        ("CL CV (%)", _num(values.get("cl_cv_pct"), 2)),
-        ("CL RMSSD (ms)", _num(values.get("cl_rmssd_ms"), 1)),
-        ("SD1 / SD2 (ms)", f"{_num(values.get('cl_sd1_ms'), 1)} / {_num(values.get('cl_sd2_ms'), 1)}"),
-        ("APD90 STV (ms)", _num(values.get("apd90_stv_ms"), 2)),
-        ("CL-DDR slope, r", f"{_num(values.get('ddr_cl_slope_ms_per_mV_per_s'), 3)}, {_num(values.get('ddr_cl_r'), 2)}"),
+        (f"mean {rate.axis_label}", _num(values.get("rate_mean_bpm"), 1)),
+        (f"{cl.label} CV (%)", _num(values.get("cl_cv_pct"), 2)),
+        (f"{cl.label} RMSSD ({cl.unit})", _num(values.get("cl_rmssd_ms"), 1)),
+        (f"SD1 / SD2 ({cl.unit})", f"{_num(values.get('cl_sd1_ms'), 1)} / {_num(values.get('cl_sd2_ms'), 1)}"),
+        (f"{apd90.label} STV ({apd90.unit})", _num(values.get("apd90_stv_ms"), 2)),
+        (f"{cl.label}-{ddr.label} slope, r", f"{_num(values.get('ddr_cl_slope_ms_per_mV_per_s'), 3)}, {_num(values.get('ddr_cl_r'), 2)}"),
         ("cell-type hint", str(values.get("cell_type_hint", "")) or "—"),
     ]
     return rows

@@ -14,6 +14,7 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.beats import phase_spans
+from analysis.columns import column
 from analysis.recording import Recording
 from analysis.table import BeatTable
 
@@ -456,11 +457,10 @@ class TraceView(pg.PlotWidget):
             reason = r.get("reject_reason") or "no reason given"
             head += f" — REJECTED: {reason}"
         parts = []
-        for name, label, unit in (("cl_ms", "CL", "ms"), ("mdp_mV", "MDP", "mV"), ("dvdt_max_V_per_s", "dV/dt max", "V/s"),
-                                  ("apd90_ms", "APD90", "ms")):
+        for name in ("cl_ms", "mdp_mV", "dvdt_max_V_per_s", "apd90_ms"):
             value = r.get(name)
             if isinstance(value, float) and np.isfinite(value):
-                parts.append(f"{label} {value:.1f} {unit}")
+                parts.append(f"{column(name).label} {value:.1f} {column(name).unit}")
         flags = r.get("flags")
         if flags:
             parts.append(f"flags: {flags}")

@@ -8,6 +8,7 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
+from analysis.columns import column
 from analysis.readouts import _plotdata as plotdata
 from analysis.session import Session
 from app import demo_data
@@ -109,3 +110,12 @@ def test_numbers_are_short_and_curves_keep_their_extremes():
         assert ys[kept].min() == y[inside].min() and ys[kept].max() == y[inside].max()
     loop = np.r_[x, x[::-1]]  # a curve that goes back in x is left whole
     assert thin_columns(loop, np.r_[y, y])[0].size == loop.size
+
+
+def test_panel_axes_are_labelled_by_the_catalogue(exported):
+    # The Qt-free writer names each panel's axis by the catalogue's label and unit (analysis.columns).
+    svg, _beats, _starts, _folder = exported
+    root = ET.parse(svg).getroot()
+    rotated = [el.text for el in root.iter(f"{NS}text") if "rotate(-90)" in (el.get("transform") or "")]
+    assert rotated == [column(name).axis_label for name, _label, _span in PANELS]
+    assert rotated[1] == "APD90 (ms)"
