@@ -1,0 +1,1 @@
+"""The main window and the controllers wired into it."""
