@@ -1,7 +1,7 @@
 """The reviews a crash or a kill left unsaved: which to reopen, which to drop.
 
 The journals themselves are the core's (:mod:`analysis.session._journal`); this is the question
-the window asks about them (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`), at start and
+the window asks about them (:meth:`~app.gui.window.files.Files.offer_recovery`), at start and
 from File > Recover unsaved review… (:func:`add_recover_action`).
 """
 
@@ -99,7 +99,7 @@ def update_recover_action(action: QtGui.QAction, window) -> int:
 
 def recover_unsaved(window) -> PendingReview | None:
     """File > Recover unsaved review…: the start-up question, asked now
-    (:meth:`~app.gui.loading.LoadingMixin.offer_recovery`)."""
+    (:meth:`~app.gui.window.files.Files.offer_recovery`)."""
     choice = window.offer_recovery(skip=_shown_origins(window))
     if choice is None and not window.recoverable_reviews(skip=_shown_origins(window)):
         window.status("no unsaved review left to recover")

@@ -42,7 +42,7 @@ def prepare_screenshot_view(window) -> None:
     beats = window.beats
     if beats is None or not len(beats):
         return
-    rows = window._sweep_rows()
+    rows = window.state.sweep_rows()
     rejected = [int(r) for r in rows if not beats["accepted"][r]]
     quiet = ("", "no_diastole", "truncated")
     flagged = [int(r) for r in rows if str(beats["flags"][r]) not in quiet] if "flags" in beats else []

@@ -11,21 +11,24 @@ progress shown, applied back here.
 from __future__ import annotations
 
 import os
-from pathlib import Path
-from typing import Sequence
+from typing import Callable, Sequence
 
-from analysis import open_recording
+from PySide6 import QtCore
+
 from analysis.conditions import Condition
 from analysis.errors import InputError
 from analysis.recording import Recording
 from analysis.session import Session
 
-from .autosave import Journal, PendingReview, pending_reviews
+from ..views.trace_data import recording_envelope
+from .autosave import Journal
+from .display import Display
+from .feedback import Feedback
 from .session_bridge import SessionBridge
-from ..views.trace_data import SweepLevels, recording_envelope
-from .workers import Job
+from .state import WindowState, WindowViews
+from .workers import Job, JobRunner
 
-__all__ = ["LoadingMixin", "RESULTS_EXTENSIONS"]
+__all__ = ["Loader", "RESULTS_EXTENSIONS"]
 
 RESULTS_EXTENSIONS = (".h5", ".hdf5")
 
@@ -39,43 +42,54 @@ def _analyze(recording: Recording, settings, channel, label, report, cancelled):
                    progress=lambda done, total: report(done / total if total else 1.0, "detecting and measuring beats"))
 
 
-class LoadingMixin:
-    """Opening, analysing and re-analysing for :class:`~app.gui.main_window.MainWindow`."""
+class Loader:
+    """Opening, analysing and re-analysing: what the window shows comes in here.
+
+    Parameters
+    ----------
+    state : WindowState
+    views : WindowViews
+    display : Display
+        Draws what is loaded.
+    runner : JobRunner
+        Runs the analyses, the envelopes and the settings jobs.
+    feedback : Feedback
+    parent : QObject
+        Owner of the session's Qt bridge (the window).
+    history_changed : callable
+        Called when the session's undo history changes (and with each new session).
+    set_title : callable
+        Called with the window's title when a recording is shown.
+    """
+
+    def __init__(self, state: WindowState, views: WindowViews, display: Display, runner: JobRunner,
+                 feedback: Feedback, parent: QtCore.QObject, *, history_changed: Callable[[], None],
+                 set_title: Callable[[str], None]) -> None:
+        self.state = state
+        self.views = views
+        self.display = display
+        self.runner = runner
+        self.feedback = feedback
+        self.parent = parent
+        self.history_changed = history_changed
+        self.set_title = set_title
 
     # -- sessions ------------------------------------------------------------------------------
-    def _set_session(self, session: Session) -> None:
-        if getattr(self, "bridge", None) is not None:
-            self.bridge.detach()
-        self.session = session
-        #: Recordings whose journal this window wrote or replayed: their review is the session's.
-        self.journaled_keys: set[str] = set()
-        self.bridge = SessionBridge(session, self)
-        self.bridge.decisions_changed.connect(self._on_decisions_changed)
-        self.bridge.conditions_changed.connect(self._on_conditions_changed)
-        self.bridge.results_changed.connect(self._on_results_changed)
-        self.bridge.history_changed.connect(self._update_history_actions)
-        self.bridge.warning.connect(lambda _k, text: self.status(f"warning: {text}"))
-        self.bridge.changed.connect(self._autosave)
-        self._update_history_actions()
+    def set_session(self, session: Session) -> None:
+        if self.state.bridge is not None:
+            self.state.bridge.detach()
+        self.state.session = session
+        self.state.journaled_keys = set()
+        self.state.bridge = SessionBridge(session, self.parent)
+        self.state.bridge.decisions_changed.connect(self.display.on_decisions_changed)
+        self.state.bridge.conditions_changed.connect(self.display.on_conditions_changed)
+        self.state.bridge.results_changed.connect(self.display.on_results_changed)
+        self.state.bridge.history_changed.connect(self.history_changed)
+        self.state.bridge.warning.connect(lambda _k, text: self.feedback.status(f"warning: {text}"))
+        self.state.bridge.changed.connect(self._autosave)
+        self.history_changed()
 
     # -- opening -------------------------------------------------------------------------------
-    def open_path(self, path: str | os.PathLike, *, conditions: Sequence[Condition] = ()) -> bool:
-        """Open a recording (analysed in the background) or a results file. False on bad input."""
-        path = os.fspath(path)
-        if not self._confirm_discard():
-            return False
-        try:
-            if Path(path).suffix.lower() in RESULTS_EXTENSIONS:
-                self.open_results(path)
-            else:
-                self.open_recording_file(open_recording(path), origin=path, conditions=conditions)
-        except InputError as exc:
-            self.show_error(exc.one_line())
-            return False
-        self.recent.add(path)
-        self._fill_recent_menu()
-        return True
-
     def open_recording_file(self, recording: Recording, *, origin: str | None = None, label: str | None = None,
                             conditions: Sequence[Condition] = (), result=None) -> None:
         """Show a recording at once and analyse it in the background.
@@ -84,24 +98,24 @@ class LoadingMixin:
         recording with the form's settings (for example by a batch); it is used instead.
         """
         self.runner.cancel_all()
-        self._set_session(Session(self.settings_form.settings))
-        self.key = None
-        self._forget_beats()
+        self.set_session(Session(self.views.settings_form.settings))
+        self.state.key = None
+        self.display.forget_beats()
         # A recording opened on its own has no results file yet: saving asks where (it must not
         # write over the results file shown before).
-        self.results_path = None
-        self.origin = origin or recording.source_path or label or "recording"
-        self.recording = recording
-        self._label = label
-        self._pending_conditions = tuple(conditions)
+        self.state.results_path = None
+        self.state.origin = origin or recording.source_path or label or "recording"
+        self.state.recording = recording
+        self.state.label = label
+        self.state.pending_conditions = tuple(conditions)
         cc = recording.current_clamp_channels()
-        self.channel = cc[0] if cc else 0
+        self.state.channel = cc[0] if cc else 0
         self._show_recording(recording)
         if result is not None:
-            self.channel = int(result.channel)
-            self._analysis_done(recording, result.settings, self.channel, result, busy=False)
+            self.state.channel = int(result.channel)
+            self._analysis_done(recording, result.settings, self.state.channel, result, busy=False)
         else:
-            self._start_analysis(recording, self.channel)
+            self._start_analysis(recording, self.state.channel)
 
     def open_results(self, path: str, *, session: Session | None = None) -> None:
         """Open a results file: its recordings, decisions, conditions and settings.
@@ -111,109 +125,53 @@ class LoadingMixin:
         """
         self.runner.cancel_all()
         session = Session.open(path) if session is None else session
-        self._set_session(session)
-        self.origin = path
-        self.results_path = path
+        self.set_session(session)
+        self.state.origin = path
+        self.state.results_path = path
         for w in session.open_warnings:
-            self.status(w)
+            self.feedback.status(w)
         if not session.recordings:
-            self.show_error(f"{path}: the results file holds no recordings; analyse one and save it")
+            self.feedback.show_error(f"{path}: the results file holds no recordings; analyse one and save it")
             return
-        self._fill_recording_combo()
+        self.display.fill_recording_combo()
         self.select_recording(session.recordings[0])
-
-    def recoverable_reviews(self, *, skip: Sequence[str | os.PathLike] = ()) -> list[PendingReview]:
-        """The unsaved reviews that can be reopened, newest first: every journal in the autosave
-        folder whose recording or results file is still there, less those of the ``skip`` origins."""
-        skipped = {os.path.abspath(os.fspath(p)) for p in skip}
-        return [p for p in pending_reviews() if p.origin not in skipped and os.path.exists(p.origin)]
-
-    def offer_recovery(self, *, choose=None, skip: Sequence[str | os.PathLike] = ()) -> PendingReview | None:
-        """Offer the reviews a crash or a kill left unsaved, and reopen the one chosen.
-
-        At start, and from File > Recover unsaved review… (:func:`~app.gui.recovery.add_recover_action`).
-
-        Parameters
-        ----------
-        choose : callable or None
-            ``choose(pending) -> PendingReview or None`` picks one; None asks the user in an
-            interactive window (:func:`~app.gui.recovery.ask_recovery`, where journals can also
-            be discarded) and keeps them all otherwise.
-        skip : sequence of paths
-            Origins not to offer: the file the app was started on, or the file shown now (its
-            journal is the review on screen); their reviews come back anyway.
-
-        Returns
-        -------
-        PendingReview or None
-            The review reopened. Its recording (or results file) is opened as usual and the
-            journal replayed once the analysis is done; journals whose origin is gone are kept.
-        """
-        pending = self.recoverable_reviews(skip=skip)
-        if not pending:
-            return None
-        if choose is not None:
-            choice = choose(pending)
-        elif self.interactive:
-            from ..dialogs.recovery import ask_recovery
-
-            choice = ask_recovery(self, pending)
-        else:
-            choice = None
-        if choice is None:
-            left = [p for p in pending if p.path.exists()]
-            if left:
-                self.status(f"{len(left)} unsaved review(s) kept; File > Recover unsaved review… (or opening "
-                            "the file again) recovers one")
-            return None
-        if not self.open_path(choice.origin):
-            return None
-        if choice.key in self.session.recordings and choice.key != self.key:
-            self.select_recording(choice.key)  # a results file: the recording the review was of
-        return choice
 
     def select_recording(self, key: str) -> None:
         """Show one recording of the session, its first measured beat selected."""
-        self._forget_beats()
-        self.key = key
-        info = self.session.info(key)
-        self.settings_form.show_settings(self.session.settings(key))
-        self.channel = info.channel
+        self.display.forget_beats()
+        self.state.key = key
+        info = self.state.session.info(key)
+        self.views.settings_form.show_settings(self.state.session.settings(key))
+        self.state.channel = info.channel
         try:
-            self.recording = self.session.recording(key)
+            self.state.recording = self.state.session.recording(key)
         except InputError as exc:
-            self.recording = None
-            self.show_error(exc.one_line() + " (the results are shown; traces need the recording)")
-        if self.recording is not None:
-            self._show_recording(self.recording)
+            self.state.recording = None
+            self.feedback.show_error(exc.one_line() + " (the results are shown; traces need the recording)")
+        if self.state.recording is not None:
+            self._show_recording(self.state.recording)
         self._after_results(restore=True)
 
     # -- showing samples -----------------------------------------------------------------------
     def _show_recording(self, recording: Recording) -> None:
-        self._levels: dict[int, SweepLevels] = {}
-        self._fill_channel_combo(recording)
-        self.sweep_spin.blockSignals(True)
-        self.sweep_spin.setRange(1, recording.n_sweeps)
-        self.sweep_spin.setValue(1)
-        self.sweep_spin.setSuffix(f" / {recording.n_sweeps}")
-        self.sweep_spin.blockSignals(False)
+        self.state.levels_cache = {}
+        self.display.fill_channel_combo(recording)
+        self.views.sweep_spin.blockSignals(True)
+        self.views.sweep_spin.setRange(1, recording.n_sweeps)
+        self.views.sweep_spin.setValue(1)
+        self.views.sweep_spin.setSuffix(f" / {recording.n_sweeps}")
+        self.views.sweep_spin.blockSignals(False)
         durations = [n / recording.sampling_rate_hz for n in recording.sweep_lengths]
-        self.overview.set_recording_geometry(recording.sweep_starts_s, durations)
-        self.sweep = -1
-        self.set_sweep(0)
-        name = self._label or (os.path.basename(recording.source_path) if recording.source_path else "recording")
-        self.setWindowTitle(f"{name}[*] — Upstroke")
+        self.views.overview.set_recording_geometry(recording.sweep_starts_s, durations)
+        self.state.sweep = -1
+        self.display.set_sweep(0)
+        name = self.state.label or (os.path.basename(recording.source_path) if recording.source_path else "recording")
+        self.set_title(f"{name}[*] — Upstroke")
         self._start_envelopes(recording)
 
-    def levels(self, sweep: int) -> SweepLevels:
-        """Drawable samples of a sweep of the shown channel (made on first use)."""
-        if sweep not in self._levels:
-            self._levels[sweep] = SweepLevels(self.recording, sweep, self.channel)
-        return self._levels[sweep]
-
     def _start_envelopes(self, recording: Recording) -> None:
-        channel = self.channel
-        levels = [self.levels(i) for i in range(recording.n_sweeps)]
+        channel = self.state.channel
+        levels = [self.state.levels(i) for i in range(recording.n_sweeps)]
 
         def build(report, cancelled):
             for i, lv in enumerate(levels):
@@ -227,53 +185,54 @@ class LoadingMixin:
         self.runner.start(job)
 
     def _envelope_ready(self, recording: Recording, channel: int, envelope) -> None:
-        if envelope is None or recording is not self.recording or channel != self.channel:
+        if envelope is None or recording is not self.state.recording or channel != self.state.channel:
             return
-        self.overview.set_envelope(*envelope)
-        self.trace_view.refresh_samples()
+        self.views.overview.set_envelope(*envelope)
+        self.views.trace_view.refresh_samples()
 
     # -- analysis ------------------------------------------------------------------------------
     def _start_analysis(self, recording: Recording, channel: int) -> None:
-        settings = self.settings_form.settings
-        label = self._label
+        settings = self.views.settings_form.settings
+        label = self.state.label
         job = Job(lambda report, cancelled: _analyze(recording, settings, channel, label, report, cancelled), "analysis")
-        job.signals.progress.connect(self._on_progress)
+        job.signals.progress.connect(self.feedback.on_progress)
         job.signals.finished.connect(lambda result, r=recording, s=settings, c=channel: self._analysis_done(r, s, c, result))
-        job.signals.failed.connect(self._job_failed)
-        self._busy("analysing", True)
+        job.signals.failed.connect(self.feedback.job_failed)
+        self.feedback.busy("analysing", True)
         self.runner.start(job)
 
     def _analysis_done(self, recording: Recording, settings, channel: int, result, busy: bool = True) -> None:
         if busy:
-            self._busy("analysing", False)
-        if recording is not self.recording or int(result.channel) != self.channel:
+            self.feedback.busy("analysing", False)
+        if recording is not self.state.recording or int(result.channel) != self.state.channel:
             return  # the user has moved on to another file or channel
-        key = self.session.add(recording, settings=settings, channel=channel, result=result, label=self._label,
-                               conditions=self._pending_conditions, keep_review=False)
-        self.key = key
-        self.channel = int(result.channel)
-        self._fill_recording_combo()
-        self.status(f"{len(self.session.beats(key))} beats found; " + (f"{len(result.warnings)} warning(s)" if result.warnings else "no warnings"))
+        key = self.state.session.add(recording, settings=settings, channel=channel, result=result,
+                                     label=self.state.label, conditions=self.state.pending_conditions, keep_review=False)
+        self.state.key = key
+        self.state.channel = int(result.channel)
+        self.display.fill_recording_combo()
+        self.feedback.status(f"{len(self.state.session.beats(key))} beats found; "
+                             + (f"{len(result.warnings)} warning(s)" if result.warnings else "no warnings"))
         self._after_results(restore=True)
-        pending, self._pending_settings = self._pending_settings, None
-        if pending is not None and pending != self.session.settings(key):
+        pending, self.state.pending_settings = self.state.pending_settings, None
+        if pending is not None and pending != self.state.session.settings(key):
             self.reanalyse(pending)
 
     def _after_results(self, *, restore: bool) -> None:
         """Everything that follows new results: autosave restore, tables, views."""
-        key = self.key
-        self.journal = Journal(self.origin or key, key)
-        if restore and self.journal.exists():
-            self._restore_review(self.journal)
-        self._refresh_all()
+        key = self.state.key
+        self.state.journal = Journal(self.state.origin or key, key)
+        if restore and self.state.journal.exists():
+            self._restore_review(self.state.journal)
+        self.display.refresh_all()
 
     # -- autosave restore ----------------------------------------------------------------------
-    def _journal_follows(self, results_path: str) -> None:
+    def journal_follows(self, results_path: str) -> None:
         """After a save, journal later changes under the results file: reopening that file (or
         recovering at start) then finds them."""
-        self.origin = results_path
-        if self.key is not None:
-            self.journal = Journal(results_path, self.key)
+        self.state.origin = results_path
+        if self.state.key is not None:
+            self.state.journal = Journal(results_path, self.state.key)
 
     def _restore_review(self, journal: Journal) -> None:
         """Replay an unsaved review onto the recording shown.
@@ -286,28 +245,28 @@ class LoadingMixin:
         try:
             review = journal.review()
         except InputError as exc:
-            self.status(exc.one_line())
+            self.feedback.status(exc.one_line())
             return
         if review is None:
             return
-        if review.settings == self.session.settings(journal.key):
-            self._replay_review(self.session, journal, review, settings_changed=False)
+        if review.settings == self.state.session.settings(journal.key):
+            self._replay_review(self.state.session, journal, review, settings_changed=False)
             return
-        self.status("restoring the unsaved review: re-analysing with its settings")
+        self.feedback.status("restoring the unsaved review: re-analysing with its settings")
         self._run_settings_job(review.settings, lambda session, change: self._restore_done(session, journal, review, change),
                                what="restoring")
 
     def _restore_done(self, session: Session, journal: Journal, review, change) -> None:
-        if session is not self.session or journal is not self.journal:
+        if session is not self.state.session or journal is not self.state.journal:
             return  # another file was opened meanwhile: the journal stays for next time
         with journal.replaying(session):
             if not session.apply_settings(change):
                 self._restore_review(journal)  # prepared from a state since left: again
                 return
             session.default_settings = change.settings
-            self.settings_form.show_settings(session.settings(journal.key))
+            self.views.settings_form.show_settings(session.settings(journal.key))
             self._replay_review(session, journal, review, settings_changed=True)
-        pending, self._pending_settings = self._pending_settings, None
+        pending, self.state.pending_settings = self.state.pending_settings, None
         if pending is not None and pending != session.settings(journal.key):
             self.reanalyse(pending)
 
@@ -315,12 +274,12 @@ class LoadingMixin:
         try:
             report = journal.replay(session, review, settings_changed=settings_changed)
         except InputError as exc:
-            self.status(f"the autosaved review could not be restored ({exc.one_line()}); it was kept")
+            self.feedback.status(f"the autosaved review could not be restored ({exc.one_line()}); it was kept")
             return
-        self.journaled_keys.add(journal.key)
+        self.state.journaled_keys.add(journal.key)
         if report is not None:
-            self.status(report.text())
-        self._refresh_all()
+            self.feedback.status(report.text())
+        self.display.refresh_all()
 
     def reanalyse(self, settings) -> None:
         """Re-analyse with new settings off the GUI thread; only what the change affects reruns.
@@ -331,47 +290,47 @@ class LoadingMixin:
         measurement change re-analyses the recording's analysed sweeps), with its progress in the
         status bar; the session applies the result back here, as one undo step.
         """
-        if self._busy_reasons & {"analysing", "re-analysing", "restoring"}:
+        if self.feedback.busy_reasons & {"analysing", "re-analysing", "restoring"}:
             # One analysis at a time: the newest settings run when the current one is done.
-            self._pending_settings = settings
-            self.status("settings noted: they apply when the analysis running now has finished")
+            self.state.pending_settings = settings
+            self.feedback.status("settings noted: they apply when the analysis running now has finished")
             return
-        if self.key is None:
-            self.session.default_settings = settings
+        if self.state.key is None:
+            self.state.session.default_settings = settings
             return
         self._run_settings_job(settings, self._reanalysis_done)
 
     def _run_settings_job(self, settings, done, what: str = "re-analysing") -> bool:
         """Start the session's settings job for the recording shown; ``done(session, change)``
         runs on the GUI thread with its result. False when the job cannot be made."""
-        session, key = self.session, self.key
+        session, key = self.state.session, self.state.key
         try:
             job = session.settings_job(settings, [key])
         except InputError as exc:  # the source has gone: the results stay as they are
-            self.show_error(exc.one_line() + " (re-analysis needs the recording)")
-            self.settings_form.show_settings(session.settings(key))
+            self.feedback.show_error(exc.one_line() + " (re-analysis needs the recording)")
+            self.views.settings_form.show_settings(session.settings(key))
             return False
         worker = Job(lambda report, cancelled: job(report), "reanalysis")
-        worker.signals.progress.connect(self._on_progress)
-        worker.signals.finished.connect(lambda change, s=session, w=what: (self._busy(w, False), done(s, change)))
-        worker.signals.failed.connect(self._job_failed)
-        self._busy(what, True)
+        worker.signals.progress.connect(self.feedback.on_progress)
+        worker.signals.finished.connect(lambda change, s=session, w=what: (self.feedback.busy(w, False), done(s, change)))
+        worker.signals.failed.connect(self.feedback.job_failed)
+        self.feedback.busy(what, True)
         self.runner.start(worker)
         return True
 
     def _reanalysis_done(self, session: Session, change) -> None:
-        if session is not self.session:
+        if session is not self.state.session:
             return
-        pending, self._pending_settings = self._pending_settings, None
+        pending, self.state.pending_settings = self.state.pending_settings, None
         if not session.apply_settings(change):
             # Prepared from a state the session has since left: prepare it again.
             self.reanalyse(pending if pending is not None else change.settings)
             return
         session.default_settings = change.settings
-        scope = change.scopes.get(self.key, "none")
-        self.status({"none": "settings unchanged", "summary": "summaries updated",
-                     "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
-        self._refresh_all()
+        scope = change.scopes.get(self.state.key, "none")
+        self.feedback.status({"none": "settings unchanged", "summary": "summaries updated",
+                              "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
+        self.display.refresh_all()
         if pending is not None and pending != change.settings:
             self.reanalyse(pending)
 
@@ -382,57 +341,32 @@ class LoadingMixin:
         channel is analysed (replacing the recording's results); any other channel (a command
         current, a temperature) is shown as a trace without beats.
         """
-        rec = self.recording
-        if rec is None or channel == self.channel:
+        rec = self.state.recording
+        if rec is None or channel == self.state.channel:
             return
-        self.channel = int(channel)
-        self._levels = {}
-        self.sweep = -1
-        self.set_sweep(0)
+        self.state.channel = int(channel)
+        self.state.levels_cache = {}
+        self.state.sweep = -1
+        self.display.set_sweep(0)
         self._start_envelopes(rec)
-        analysed = self.key is not None and self.session.info(self.key).channel == self.channel
+        analysed = self.state.key is not None and self.state.session.info(self.state.key).channel == self.state.channel
         if analysed:
-            self._refresh_all()
-        elif self.channel in rec.current_clamp_channels():
-            self._start_analysis(rec, self.channel)
+            self.display.refresh_all()
+        elif self.state.channel in rec.current_clamp_channels():
+            self._start_analysis(rec, self.state.channel)
         else:
-            self._beats_hidden()
-            ch = rec.channels[self.channel]
-            self.status(f"channel {ch.name} [{ch.units}] is not a membrane potential: shown without beats")
-        self.channel_combo.setCurrentIndex(self.channel)
+            self.display.beats_hidden()
+            ch = rec.channels[self.state.channel]
+            self.feedback.status(f"channel {ch.name} [{ch.units}] is not a membrane potential: shown without beats")
+        self.views.channel_combo.setCurrentIndex(self.state.channel)
 
-    # -- waiting (tests, screenshots) ---------------------------------------------------------
-    def settle(self, timeout_ms: int = 120_000) -> bool:
-        """Run pending delayed refreshes now and wait for every background job, until neither
-        is left (a finished analysis schedules a summary, which is a job of its own)."""
-        from PySide6 import QtCore
-
-        timer = QtCore.QElapsedTimer()
-        timer.start()
-        while True:
-            if self._summary_timer.isActive():
-                self._summary_timer.stop()
-                self._refresh_summary()
-            if not self.wait_idle(max(1, timeout_ms - timer.elapsed())):
-                return False
-            if self._overview_timer.isActive():
-                self._overview_timer.stop()
-                self._sync_overview_window()
-            if not self._summary_timer.isActive() and not self.runner.busy():
-                return True
-
-    def wait_idle(self, timeout_ms: int = 120_000) -> bool:
-        """Process events until no background job is left (or the timeout)."""
-        from PySide6 import QtCore, QtWidgets
-
-        timer = QtCore.QElapsedTimer()
-        timer.start()
-        app = QtWidgets.QApplication.instance()
-        while timer.elapsed() < timeout_ms:
-            app.processEvents(QtCore.QEventLoop.AllEvents, 50)
-            if not self.runner.busy():
-                app.processEvents()
-                if not self.runner.busy():
-                    return True
-            QtCore.QThread.msleep(5)
-        return False
+    # -- autosave ------------------------------------------------------------------------------
+    def _autosave(self, event: str, key: str, _rows: list) -> None:
+        st = self.state
+        if event in ("decisions_changed", "conditions_changed", "settings_changed") and key and key == st.key and st.journal:
+            try:
+                st.journal.write(st.session)
+            except OSError as exc:
+                self.feedback.status(f"autosave failed: {exc}")
+            else:
+                st.journaled_keys.add(key)

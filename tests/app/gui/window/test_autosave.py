@@ -70,8 +70,8 @@ def test_a_restore_with_other_settings_reanalyses_in_a_worker(window, qtbot, cel
 
     monkeypatch.setattr(pipeline, "analyze", spy)
     again = _window(qtbot)
-    shown = again._on_progress
-    again._on_progress = lambda f, text: (progress.append((f, text, set(again._busy_reasons))), shown(f, text))
+    shown = again.feedback.on_progress
+    again.feedback.on_progress = lambda f, text: (progress.append((f, text, set(again.feedback.busy_reasons))), shown(f, text))
     assert again.open_path(cell_abf)
     assert again.settle(60_000) and again.key == key
     assert threads == [False, False]  # the opening analysis, then the restore's: neither on the GUI thread

@@ -41,8 +41,8 @@ def watch(monkeypatch, window):
 
     monkeypatch.setattr(Session, "settings_job", settings_job)
     monkeypatch.setattr(pipeline, "analyze", spy_analyze)
-    shown = window._on_progress
-    window._on_progress = lambda fraction, text: (seen["progress"].append((fraction, text)), shown(fraction, text))
+    shown = window.feedback.on_progress
+    window.feedback.on_progress = lambda fraction, text: (seen["progress"].append((fraction, text)), shown(fraction, text))
     return seen
 
 
@@ -51,7 +51,7 @@ def test_a_detection_change_is_the_sessions_job_run_off_the_gui_thread_with_prog
     form = window.settings_form
     form.editors["measurement.upstroke_time_method"].set("voltage_level")
     form.apply()
-    assert "re-analysing" in window._busy_reasons and not window.progress.isHidden()  # shown while it runs
+    assert "re-analysing" in window.feedback.busy_reasons and not window.progress.isHidden()  # shown while it runs
     assert window.settle(60_000)
     assert watch["jobs"] == [[window.key]]  # the app asks the session, and only the session
     assert watch["analyses"] == [((), False)]  # every sweep analysed (all were), in a worker
@@ -87,7 +87,7 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     n0, rows0 = window.summaries[0].values["n_accepted"], window.summaries[0].beat_rows
     window.select_beat(3)
     window.reject_current("noise")
-    window._refresh_summary()  # a job for this state...
+    window.display.refresh_summary()  # a job for this state...
     window.select_beat(6)
     window.reject_current("noise")  # ...made stale before it is back
     assert window.settle(60_000)
