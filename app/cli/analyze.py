@@ -26,6 +26,7 @@ from analysis.settings import Settings
 from .options import (
     add_results_arguments, parse_channel, parse_sweeps, parse_units, parse_workers, settings_from_args,
 )
+from .review_outputs import prepare, review, write_results, write_summary
 
 __all__ = [
     "add_parser", "run", "analyse_files", "write_outputs", "summary_line", "OUTPUT_WRITERS",
@@ -115,14 +116,10 @@ def _write_csv(results: Sequence, path: str) -> None:
 
 #: ``(argument name, writer(results, path))`` for each output option, in the order written.
 def _write_summary(results: Sequence, path: str) -> None:
-    from .review_outputs import write_summary
-
     write_summary(results, path)
 
 
 def _write_results(results: Sequence, path: str) -> None:
-    from .review_outputs import write_results
-
     write_results(results, path)
 
 
@@ -212,8 +209,6 @@ def report(results: Sequence, written: Sequence[str], *, out=None, err=None) -> 
 
 def run(args: argparse.Namespace) -> int:
     """Analyse the files and write the outputs; 0 on success (bad input raises InputError)."""
-    from .review_outputs import prepare, review
-
     settings = settings_from_args(args)
     saved = prepare(args)  # checks the outputs and reads an existing --out file before analysing
     results = analyse_files(args, settings)

@@ -16,7 +16,9 @@ import sys
 from contextlib import contextmanager
 from typing import Iterator
 
-from .options import parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args
+from .options import (
+    parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
+)
 
 __all__ = ["add_parser", "run"]
 

@@ -20,8 +20,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from analysis.readouts import _plotdata as plotdata
 from analysis.errors import InputError
+from analysis.readouts import _plotdata as plotdata
 from analysis.table import BeatTable
 
 from .. import palette

@@ -6,9 +6,9 @@ and report what the user does with Qt signals; they never change the session the
 
 from .bands import BandLabels, SpanBands
 from .beat_table import SHOWN_COLUMNS, BeatTableModel, BeatTableView, header_label
+from .cursor_tags import CursorTags
 from .overview import MarkingViewBox, OverviewStrip
 from .trace_data import DrawData, SweepLevels, envelope_of, recording_envelope
-from .cursor_tags import CursorTags
 from .trace_view import DEFAULT_WINDOW_S, MARKER_COLUMNS, TraceView
 
 __all__ = [
