@@ -1,5 +1,5 @@
-"""Files from the main window: open by path, dialog or drop, save, save as and revert to saved, CSV and
-figure export, and the reviews a crash left unsaved.
+"""Files from the main window: open by path, dialog or drop, save, save as and revert to saved,
+CSV and figure export, and the reviews a crash left unsaved.
 
 Saving goes through the core's session (an atomic write of the results file); exports write a
 temporary file and move it over the target, so a failed export never leaves half a file.
