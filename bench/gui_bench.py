@@ -107,8 +107,8 @@ def _time_frames(app, widget, view_box, spans) -> list[float]:
 
 def run_upstroke(path: Path) -> dict:
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-    from app.gui.launch import application
-    from app.gui.main_window import MainWindow
+    from app.gui.window.launch import application
+    from app.gui.window.main_window import MainWindow
 
     app = application()
     window = MainWindow(interactive=False)

@@ -44,7 +44,7 @@ def test_the_guide_lists_every_keyboard_shortcut_of_the_app(qtbot):
     pytest.importorskip("pytestqt")
     from PySide6 import QtGui
 
-    from app.gui.main_window import MainWindow
+    from app.gui.window.main_window import MainWindow
 
     window = MainWindow(interactive=False)
     qtbot.addWidget(window)

@@ -33,7 +33,7 @@ def cell_window(qtbot, cell_abf, cell_result):
     """``cell_window(size=None)``: a new window with the module's cell open and its analysis
     settled (given the module's result, so nothing is analysed again); ``size`` shows it at that
     size (for tests that look at what is drawn)."""
-    from app.gui.main_window import MainWindow
+    from app.gui.window.main_window import MainWindow
 
     def make(*, size: tuple[int, int] | None = None):
         w = MainWindow(interactive=False)

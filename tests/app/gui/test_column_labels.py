@@ -12,12 +12,12 @@ from PySide6 import QtCore  # noqa: E402
 from analysis.columns import column  # noqa: E402
 from analysis.stats import PARAMETERS  # noqa: E402
 from app.gui import palette  # noqa: E402
-from app.gui.beat_table import SHOWN_COLUMNS, BeatTableView  # noqa: E402
-from app.gui.overview import OverviewStrip  # noqa: E402
-from app.gui.plots import DdrClFigure, PoincareFigure, TimeCourseFigure  # noqa: E402
-from app.gui.review import BeatCard  # noqa: E402
-from app.gui.summary_panel import summary_rows  # noqa: E402
-from app.gui.trace_view import MARKER_COLUMNS, TraceView  # noqa: E402
+from app.gui.views.beat_table import SHOWN_COLUMNS, BeatTableView  # noqa: E402
+from app.gui.views.overview import OverviewStrip  # noqa: E402
+from app.gui.figures.plots import DdrClFigure, PoincareFigure, TimeCourseFigure  # noqa: E402
+from app.gui.panels.beat_card import BeatCard  # noqa: E402
+from app.gui.panels.summary_panel import summary_rows  # noqa: E402
+from app.gui.views.trace_view import MARKER_COLUMNS, TraceView  # noqa: E402
 
 from .handmade import handmade  # noqa: E402
 

@@ -1,0 +1,163 @@
+"""``upstroke batch``: analyse many recordings in parallel into one results file.
+
+Recordings are found recursively in the folders and glob patterns given, analysed one task per
+file on local cores (a process pool) or on a running Dask distributed cluster (``--scheduler``),
+and written by this process alone, in input order, to the results file and the CSV tables. A file
+that fails is listed at the end with its reason and the exit status is 2; the good results are
+saved all the same. Ctrl-C stops the workers and writes nothing.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import signal
+import sys
+from contextlib import contextmanager
+from typing import Iterator
+
+from .options import (
+    parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
+)
+
+__all__ = ["add_parser", "run"]
+
+EPILOG = """\
+examples:
+  upstroke batch recordings/ --out study.h5 --csv beats.csv
+  upstroke batch 'day*/cell*.abf' --out study.h5 --workers 4
+  upstroke batch /shared/screen --out screen.h5 --scheduler tcp://10.0.0.5:8786
+
+Folders are searched recursively for files with a recording extension; quote glob patterns
+(use ** to reach into subfolders). With --scheduler every worker must see the files at the same
+absolute paths (a shared file system) and have Upstroke installed.
+"""
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "batch",
+        help="analyse many recordings in parallel (local cores or a Dask cluster)",
+        description="Analyse every recording found in folders or glob patterns, in parallel, "
+        "into one results file, with the same results as `upstroke analyze` on the same files.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("sources", nargs="+", metavar="FOLDER-or-GLOB", help="folders, glob patterns or files")
+    parser.add_argument("--out", required=True, metavar="RESULTS.h5", help="the results file to write (HDF5)")
+    parser.add_argument("--csv", metavar="BEATS.csv", help="also write every beat of every file as CSV")
+    parser.add_argument("--summary-csv", metavar="SUMMARY.csv", help="also write the per-file summaries as CSV")
+    parser.add_argument("--condition", dest="conditions", type=parse_condition_arg, action="append", default=[],
+                        metavar="NAME=START-END[,steady=RULE]",
+                        help="name a stretch of every file, as for `upstroke analyze` (repeatable)")
+    parser.add_argument("--settings", metavar="FILE.toml", help="analysis settings (default: the published defaults)")
+    parser.add_argument("--channel", type=parse_channel, metavar="NAME-or-INDEX",
+                        help="the membrane-potential channel in every file (default: each file's current-clamp channel)")
+    parser.add_argument("--sweeps", type=parse_sweeps, metavar="LIST", help="sweeps to analyse in every file, e.g. 0-3,5")
+    parser.add_argument("--ljp", type=float, metavar="MV",
+                        help="liquid-junction potential to subtract, in mV (V_true = V_measured - LJP)")
+    parser.add_argument("--units", type=parse_units, action="append", default=[], metavar="CHANNEL=UNITS",
+                        help="declare a channel's units when the files mislabel them, e.g. 0=mV (repeatable)")
+    where = parser.add_mutually_exclusive_group()  # local processes or a cluster's workers, not both
+    where.add_argument("--workers", type=parse_workers, metavar="N",
+                        help=f"local worker processes (default: every core, here {os.cpu_count()})")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                        help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
+                        '(needs pip install "upstroke[cluster]")')
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    parser.set_defaults(run=run)
+    return parser
+
+
+@contextmanager
+def _sigterm_as_interrupt() -> Iterator[None]:
+    # A cluster job killed by its queue gets SIGTERM: treat it as Ctrl-C so the workers stop and
+    # no partial output stays behind.
+    def handler(signum, frame):  # noqa: ARG001 - signal handler signature
+        raise KeyboardInterrupt
+
+    try:
+        previous = signal.signal(signal.SIGTERM, handler)
+    except ValueError:  # not the main thread
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Find, analyse and save; 0 when every file was analysed, 2 when some failed, 1 on a fault."""
+    from tqdm import tqdm
+
+    from analysis.batch import find_recordings, make_tasks, prepare_existing, run_batch, save_batch
+
+    settings = settings_from_args(args)
+    outputs = [p for p in (args.out, args.csv, args.summary_csv) if p]
+    _check_outputs(outputs)
+    paths = find_recordings(args.sources, exclude=outputs)
+    conditions = tuple(c.text() for c in args.conditions)
+    kept = prepare_existing(args.out, paths, conditions)  # a damaged results file stops here
+    tasks = make_tasks(
+        paths, settings=settings, channel=args.channel, sweeps=args.sweeps, units=args.units or None,
+        conditions=conditions, file_conditions=kept,
+    )
+    with _sigterm_as_interrupt():
+        with tqdm(total=len(tasks), unit="file", desc="upstroke batch", file=sys.stderr,
+                  disable=args.quiet, dynamic_ncols=True) as bar:
+            def on_done(outcome, done, total):
+                bar.set_postfix_str(os.path.basename(outcome.path), refresh=False)
+                bar.update(1)
+
+            result = run_batch(tasks, workers=args.workers, scheduler=args.scheduler, on_done=on_done)
+        saved = None
+        if result.succeeded:
+            saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
+    return _report(result, saved)
+
+
+def _check_outputs(outputs: list[str]) -> None:
+    from analysis.errors import InputError
+
+    for path in outputs:
+        folder = os.path.dirname(os.path.abspath(path))
+        if not os.path.isdir(folder):
+            raise InputError(path, "its folder does not exist", "create the folder or choose another output path")
+        if os.path.isdir(path):
+            raise InputError(path, "is a folder", "give a file name for the output")
+    if len(set(map(os.path.abspath, outputs))) != len(outputs):
+        raise InputError(None, "two outputs name the same file", "give --out, --csv and --summary-csv different names")
+
+
+#: At most this many analysis warnings are printed; all of them are in the results file.
+MAX_WARNINGS_SHOWN = 20
+
+
+def _report(result, saved) -> int:
+    n_ok, n_all = len(result.succeeded), len(result.outcomes)
+    warnings = [f"{o.path}: {w}" for o in result.succeeded for w in o.warnings]
+    for line in warnings[:MAX_WARNINGS_SHOWN]:
+        print(f"upstroke batch: warning: {line}", file=sys.stderr)
+    if len(warnings) > MAX_WARNINGS_SHOWN:
+        print(f"upstroke batch: {len(warnings) - MAX_WARNINGS_SHOWN} more warning(s) are stored with the results",
+              file=sys.stderr)
+    if saved is not None:
+        print(f"{n_ok} of {n_all} recording(s) analysed on {result.where}: {saved.n_beats} beats "
+              f"({saved.n_accepted} accepted) saved to {saved.out}"
+              + "".join(f", {p}" for p in saved.extra), file=sys.stdout)
+    failed = result.failed
+    if failed:
+        print(f"upstroke batch: {len(failed)} of {n_all} file(s) failed:", file=sys.stderr)
+        for outcome in failed:
+            reason = outcome.reason
+            print(f"  {reason if reason.startswith(outcome.path + ':') else f'{outcome.path}: {reason}'}", file=sys.stderr)
+        for outcome in result.faults:
+            print(f"--- {outcome.path}\n{outcome.fault.rstrip()}", file=sys.stderr)
+        if saved is None:
+            print("upstroke batch: no file could be analysed; nothing was written", file=sys.stderr)
+    if result.faults:
+        print("upstroke batch: internal error in the file(s) above; please report it with the lines above",
+              file=sys.stderr)
+        return 1
+    return 2 if failed else 0

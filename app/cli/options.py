@@ -1,0 +1,98 @@
+"""Option parsing shared by the commands: argparse types, the results-file options, settings.
+
+``analyze`` and ``batch`` read channels, sweeps, units, workers, conditions and settings the same
+way; each parses them here.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from analysis.settings import Settings
+
+__all__ = [
+    "add_results_arguments", "parse_channel", "parse_condition_arg", "parse_sweeps", "parse_units",
+    "parse_workers", "settings_from_args",
+]
+
+
+def parse_sweeps(text: str) -> list[int]:
+    """``"0-3,5"`` -> ``[0, 1, 2, 3, 5]`` (argparse type: bad text is a command-line error)."""
+    out: list[int] = []
+    try:
+        for part in text.split(","):
+            part = part.strip()
+            if not part:
+                continue
+            if "-" in part:
+                a, b = (int(x) for x in part.split("-", 1))
+                if b < a or a < 0:
+                    raise ValueError
+                out.extend(range(a, b + 1))
+            else:
+                i = int(part)
+                if i < 0:
+                    raise ValueError
+                out.append(i)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--sweeps {text!r} is not a list such as 0-3,5") from None
+    if not out:
+        raise argparse.ArgumentTypeError("--sweeps is empty; give a list such as 0-3,5")
+    return sorted(set(out))
+
+
+def parse_units(text: str) -> tuple[int | str, str]:
+    """``"0=mV"`` or ``"Vm=mV"`` -> ``(0, "mV")`` / ``("Vm", "mV")``."""
+    channel, sep, units = text.partition("=")
+    if not sep or not channel.strip() or not units.strip():
+        raise argparse.ArgumentTypeError(f"--units {text!r} is not CHANNEL=UNITS, e.g. 0=mV")
+    channel = channel.strip()
+    return (int(channel) if channel.isdigit() else channel), units.strip()
+
+
+def parse_workers(text: str) -> int:
+    """``"4"`` -> ``4`` (argparse type: at least 1)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError("give at least 1 worker")
+    return value
+
+
+def parse_channel(text: str) -> int | str:
+    """``"0"`` -> ``0``, ``"Vm"`` -> ``"Vm"`` (a channel index or name)."""
+    return int(text) if text.strip().isdigit() else text
+
+
+def parse_condition_arg(text: str):
+    """``baseline=0-60s`` -> a :class:`analysis.conditions.Condition` (argparse type)."""
+    from analysis.conditions import ConditionError, parse_condition
+
+    try:
+        return parse_condition(text)
+    except ConditionError as exc:
+        raise argparse.ArgumentTypeError(exc.one_line()) from None
+
+
+def add_results_arguments(parser: argparse.ArgumentParser) -> None:
+    """Add ``--out``, ``--summary-csv`` and ``--condition`` to a command's parser."""
+    parser.add_argument("--out", metavar="RESULTS.h5",
+                        help="write (or add to) a results file: settings, beats, decisions, conditions, summaries")
+    parser.add_argument("--summary-csv", dest="summary_csv", metavar="SUMMARY.csv",
+                        help="write the summaries (one row per file x sweep group x condition)")
+    parser.add_argument("--condition", dest="conditions", type=parse_condition_arg, action="append", default=[],
+                        metavar="NAME=START-END[,steady=RULE]",
+                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180-end, "
+                        "or sweeps:0-3; steady=auto|all|last30s|last20beats picks its summary window (repeatable)")
+
+
+def settings_from_args(args: argparse.Namespace) -> Settings:
+    """The defaults, then the ``--settings`` file, then ``--ljp``."""
+    from analysis.settings import load_settings
+
+    settings = load_settings(args.settings) if getattr(args, "settings", None) else Settings()
+    if getattr(args, "ljp", None) is not None:
+        settings = settings.replace("preprocess.ljp_mV", args.ljp)
+    return settings

@@ -1,1 +1,0 @@
-"""One module per ``upstroke`` subcommand: ``add_parser(subparsers)`` and ``run(args)``."""

@@ -1,0 +1,275 @@
+"""The window's views drawn from what it shows: the sweep, the beat under review, the beat table,
+the conditions, their summaries and the figures.
+
+Everything here reads the session (through :class:`~.state.WindowState`) and redraws; nothing
+changes it. The summaries are the session's own job, run in the background and shown when
+current; the overview follows the trace view a few times a second.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+from PySide6 import QtCore
+
+from analysis.readouts import recording_times_s
+
+from .. import palette
+from ..figures.figure_input import FigureInput, summary_beat_rows
+from .feedback import Feedback
+from .state import WindowState, WindowViews
+from .summary_job import start_summary
+from .workers import JobRunner
+
+__all__ = ["Display"]
+
+
+class Display:
+    """Draws the state in the views.
+
+    Parameters
+    ----------
+    state : WindowState
+    views : WindowViews
+    runner : JobRunner
+        Runs the summary jobs.
+    feedback : Feedback
+    parent : QObject
+        Owner of the refresh timers (the window).
+    """
+
+    def __init__(self, state: WindowState, views: WindowViews, runner: JobRunner, feedback: Feedback,
+                 parent: QtCore.QObject) -> None:
+        self.state = state
+        self.views = views
+        self.runner = runner
+        self.feedback = feedback
+        self.summary_timer = QtCore.QTimer(parent, singleShot=True, interval=250, timeout=self.refresh_summary)
+        # The overview follows the trace view a few times a second, not on every frame of a pan:
+        # redrawing both widgets each frame would halve the frame rate.
+        self.overview_timer = QtCore.QTimer(parent, singleShot=True, interval=60, timeout=self.sync_overview_window)
+
+    # -- sweeps --------------------------------------------------------------------------------
+    def set_sweep(self, sweep: int) -> None:
+        """Show a sweep of the recording."""
+        st, v = self.state, self.views
+        if st.recording is None:
+            return
+        sweep = int(np.clip(sweep, 0, st.recording.n_sweeps - 1))
+        if sweep == st.sweep:
+            return
+        st.sweep = sweep
+        ch = st.recording.channels[st.channel]
+        offset = st.ljp_mV() if st.beats is not None else 0.0
+        v.trace_view.set_sweep(st.levels(sweep), label=ch.name, units=ch.units, offset_mV=offset)
+        v.trace_view.set_beats(st.beats)
+        v.sweep_spin.blockSignals(True)
+        v.sweep_spin.setValue(sweep + 1)
+        v.sweep_spin.blockSignals(False)
+        self.sync_overview_window()
+
+    def next_sweep(self) -> None:
+        self.set_sweep(self.state.sweep + 1)
+
+    def previous_sweep(self) -> None:
+        self.set_sweep(self.state.sweep - 1)
+
+    def sync_overview_window(self, *_args) -> None:
+        st = self.state
+        if st.recording is None:
+            return
+        start = st.recording.sweep_starts_s[st.sweep]
+        x0, x1 = self.views.trace_view.x_range()
+        self.views.overview.set_window(start + max(0.0, x0), start + min(x1, st.levels(st.sweep).duration_s))
+
+    def follow_trace_view(self, *_args) -> None:
+        """The trace view moved: the overview follows shortly."""
+        self.overview_timer.isActive() or self.overview_timer.start()
+
+    def on_overview_navigated(self, a: float, b: float) -> None:
+        st = self.state
+        if st.recording is None:
+            return
+        sweep = st.sweep_at((a + b) / 2)
+        if sweep != st.sweep:
+            self.set_sweep(sweep)
+        start = st.recording.sweep_starts_s[st.sweep]
+        self.views.trace_view.show_span(a - start, b - start)
+
+    def on_overview_clicked(self, t: float) -> None:
+        st = self.state
+        if st.recording is None:
+            return
+        self.set_sweep(st.sweep_at(t))
+        start = st.recording.sweep_starts_s[st.sweep]
+        x0, x1 = self.views.trace_view.x_range()
+        half = (x1 - x0) / 2
+        self.views.trace_view.show_span(t - start - half, t - start + half)
+
+    def show_whole_sweep(self) -> None:
+        if self.state.recording is not None:
+            self.views.trace_view.show_span(0.0, self.state.levels(self.state.sweep).duration_s)
+
+    def zoom_to_beat(self) -> None:
+        st = self.state
+        if st.table is not None and st.current_row >= 0:
+            t = float(st.table["t_upstroke_s"][st.current_row])
+            cl = float(st.table["cl_ms"][st.current_row]) / 1e3
+            cl = cl if np.isfinite(cl) else 1.0
+            self.views.trace_view.show_span(t - 0.7 * cl, t + 0.7 * cl)
+
+    # -- the beat under review -------------------------------------------------------------------
+    def select_beat(self, row: int, *, follow: bool = True) -> None:
+        """Make a beat (row of the reviewed table) the one under review, in every view."""
+        st, v = self.state, self.views
+        b = st.beats
+        if b is None or not (0 <= row < len(b)):
+            return
+        st.current_row = int(row)
+        sweep = int(b["sweep"][row])
+        if sweep != st.sweep:
+            self.set_sweep(sweep)
+        v.trace_view.set_current_beat(row, follow=follow)
+        v.table.select_table_row(row)
+        rows = st.sweep_rows()
+        pos = int(np.flatnonzero(rows == row)[0]) if row in rows else 0
+        v.beat_card.show_beat(b, row, len(rows), pos)
+        v.figures.set_input(self.figure_input())
+
+    def beats_hidden(self) -> None:
+        """The trace without beats (a channel that is not the analysed one)."""
+        self.views.trace_view.set_beats(None)
+        self.views.beat_card.show_beat(None, -1)
+
+    def forget_beats(self) -> None:
+        """Another recording is about to be shown: no beat of the one before stays in the table,
+        selected, highlighted, in the beat card or in the figures; its own beats select one when
+        they come."""
+        v = self.views
+        self.state.current_row = -1
+        self.state.table = None
+        v.table.set_table(None)
+        v.trace_view.set_current_beat(-1)
+        v.beat_card.show_beat(None, -1)
+        v.figures.set_input(None)
+
+    # -- refreshing from the session -------------------------------------------------------------
+    def refresh_all(self) -> None:
+        self.refresh_beats()
+        self.refresh_conditions()
+
+    def refresh_beats(self) -> None:
+        st, v = self.state, self.views
+        if st.key is None or st.session.info(st.key).channel != st.channel:
+            return
+        st.table = st.session.beats(st.key)
+        v.trace_view.set_offset(st.ljp_mV())
+        v.trace_view.set_beats(st.table)
+        v.table.set_table(st.table)
+        b = st.table
+        if len(b):
+            starts = st.session.info(st.key).sweep_starts_s
+            v.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+        if not (0 <= st.current_row < len(b)):
+            st.current_row = -1
+            rows = st.sweep_rows()
+            if rows.size:
+                # The sweep's first beat measured whole: its very first has no diastole before it.
+                st.current_row = int(rows[min(1, rows.size - 1)])
+        if st.current_row >= 0:
+            self.select_beat(st.current_row, follow=False)
+        else:
+            v.table.clearSelection()
+            v.beat_card.show_beat(None, -1)
+        self.summary_timer.start()
+
+    def refresh_conditions(self) -> None:
+        st = self.state
+        if st.key is None:
+            return
+        conds = st.session.conditions(st.key)
+        colours = [palette.condition_colour(i) for i in range(len(conds))]
+        self.views.conditions_panel.show_conditions(conds, colours)
+        info = st.session.info(st.key)
+        spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, col in zip(conds, colours)]
+        self.views.overview.set_conditions(spans, [])
+        self.summary_timer.start()
+
+    def refresh_summary(self) -> None:
+        """Summarise the conditions with the session's own job in the background; the session
+        keeps only a current result, so the newest change wins."""
+        st = self.state
+        if st.key is None:
+            return
+        session = st.session
+        start_summary(self.runner, session, st.key,
+                      lambda key, summaries, s=session: s is st.session and self.show_summaries(key, summaries),
+                      lambda line, s=session: s is st.session and self.feedback.status(f"summaries failed: {line}"))
+
+    def show_summaries(self, key: str, summaries: list) -> None:
+        st, v = self.state, self.views
+        if key != st.key:
+            return  # another recording is shown now
+        st.summaries = summaries
+        st.summaries_of = (key, len(st.table)) if st.table is not None else None
+        conds = st.session.conditions(st.key)
+        colours = {c.name: palette.condition_colour(i) for i, c in enumerate(conds)}
+        values = [s.values for s in summaries]
+        v.summary_panel.show_summaries(values, colours)
+        info = st.session.info(st.key)
+        spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), colours[c.name]) for c in conds]
+        steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
+                  for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
+        v.overview.set_conditions(spans, steady)
+        v.figures.set_input(self.figure_input())
+
+    def figure_input(self) -> FigureInput | None:
+        st = self.state
+        if st.key is None or st.recording is None or st.table is None:
+            return None
+        conds = st.session.conditions(st.key)
+        groups = [(c.name, palette.condition_colour(i)) for i, c in enumerate(conds)]
+        if "condition" not in st.table or np.any(np.asarray(st.table["condition"]) == ""):
+            groups.append(("", palette.TRACE))
+        info = st.session.info(st.key)
+        spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, (_n, col) in zip(conds, groups)]
+        # The aligned beats are the summaries' (each condition's steady-state window). Between a
+        # change and its summary job's result, the summaries shown stand in if they are of this
+        # table; the result redraws the figures. Nothing is summarised here, on the GUI thread.
+        summaries = st.session.cached_summaries(st.key)
+        if summaries is None and st.summaries_of == (st.key, len(st.table)):
+            summaries = st.summaries
+        rows = None if summaries is None else summary_beat_rows(st.table, summaries, info.sweep_starts_s)
+        return FigureInput(st.recording, st.table, channel=st.channel, offset_mV=st.ljp_mV(),
+                           groups=groups, spans=spans, current_row=st.current_row,
+                           measurement=st.session.settings(st.key).measurement, summary_rows=rows)
+
+    def on_decisions_changed(self, key: str, rows: list) -> None:
+        if key == self.state.key:
+            self.refresh_beats()
+
+    def on_conditions_changed(self, key: str) -> None:
+        if key == self.state.key:
+            self.refresh_beats()
+            self.refresh_conditions()
+
+    def on_results_changed(self, key: str) -> None:
+        if key == self.state.key and self.state.table is not None:
+            self.refresh_all()
+
+    # -- toolbar lists ---------------------------------------------------------------------------
+    def fill_channel_combo(self, recording) -> None:
+        combo = self.views.channel_combo
+        combo.clear()
+        for i, ch in enumerate(recording.channels):
+            combo.addItem(f"{ch.name} [{ch.units}]", i)
+        combo.setCurrentIndex(self.state.channel)
+
+    def fill_recording_combo(self) -> None:
+        st, combo = self.state, self.views.recording_combo
+        combo.clear()
+        for key in st.session.recordings:
+            combo.addItem(os.path.basename(st.session.label(key)), key)
+        if st.key in st.session.recordings:
+            combo.setCurrentIndex(st.session.recordings.index(st.key))
