@@ -16,8 +16,7 @@ import numpy as np
 from analysis.conditions import Condition, assign_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
 from analysis import flags
-from analysis.pipeline import analyze
-from analysis.pipeline._analyze import MEASURING_QUALITY_FIELDS
+from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
 from analysis.recording import Recording
 from analysis.results import provenance_now
 from analysis.stats import measure_cycle
