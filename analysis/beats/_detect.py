@@ -204,6 +204,7 @@ def detect_sweep(
         return found, side
 
     ups, peaks, arts, reasons = [], [], [], []
+
     def advanced(i: int, _result) -> None:
         if progress is not None:
             progress(min(n, (i + 1) * chunk), n)

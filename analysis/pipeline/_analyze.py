@@ -75,7 +75,6 @@ class AnalysisResult:
     spikes: dict = field(default_factory=dict)
 
 
-
 def _sweep_list(recording: Recording, sweeps: Sequence[int] | None) -> list[int]:
     if sweeps is None:
         return list(range(recording.n_sweeps))

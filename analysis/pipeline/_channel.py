@@ -89,7 +89,6 @@ def _refuse_if_current(recording: Recording, idx: int) -> None:
     )
 
 
-
 #: The widest span a membrane potential plausibly takes (mV): beyond it a channel's values are not
 #: a membrane potential in mV (MEASUREMENTS.md: MDPs -50 to -90 mV, peaks up to about +40 mV).
 _PLAUSIBLE_MV = (-150.0, 100.0)
