@@ -11,6 +11,7 @@ from analysis.results._atomic import (
     temp_prefix,
     write_text_atomic,
 )
+from analysis.results._facts import RecordingFacts, facts_values
 from analysis.results._store import (
     FORMAT_NAME,
     SCHEMA_VERSION,
@@ -21,4 +22,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["FORMAT_NAME", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
