@@ -135,14 +135,7 @@ def _allowed(info: settings.FieldInfo) -> str:
         return "one of " + ", ".join(f"`{c}`" for c in info.choices)
     if info.kind == "bool":
         return "true or false"
-    lo, hi = info.min, info.max
-    if lo is not None and hi is not None:
-        return f"{lo:g} to {hi:g}"
-    if lo is not None:
-        return f">= {lo:g}"
-    if hi is not None:
-        return f"<= {hi:g}"
-    return ""
+    return settings.range_text(info.min, info.max)
 
 
 def _default(info: settings.FieldInfo) -> str:

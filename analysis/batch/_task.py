@@ -19,18 +19,17 @@ from analysis.conditions import parse_condition
 from analysis.decisions import DecisionLog
 from analysis.pipeline import analyze
 from analysis.readers import open_recording
-from analysis.results import StoredRecording
+from analysis.results import RecordingFacts, StoredRecording
 from analysis.session import Session, stored_recordings
 from analysis.settings import Settings
 from analysis.table import BeatTable
 
 __all__ = ["run_task", "stored_from_outcome"]
 
-# Fields of StoredRecording that travel as they are (plain values).
+# Fields of StoredRecording that travel as they are (plain values): the recording's facts and these.
 _PLAIN = (
-    "source_path", "label", "sha256", "reader", "channel", "channel_name", "units", "ljp_mV", "sweeps",
-    "sampling_rate_hz", "sweep_starts_s", "sweep_lengths", "settings_json", "settings_schema",
-    "settings_hash", "warnings", "provenance",
+    *(f.name for f in dataclasses.fields(RecordingFacts)),
+    "ljp_mV", "settings_json", "settings_schema", "settings_hash", "warnings",
 )
 
 

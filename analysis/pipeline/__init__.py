@@ -3,12 +3,11 @@
 The modules below are private to this package; import from here."""
 
 
-from analysis.pipeline._analyze import (
-    AnalysisResult,
-    analyze,
-    choose_channel,
-    flag_and_reject,
-    looks_like_membrane_potential,
-)
+from analysis.pipeline._analyze import AnalysisResult, analyze, flag_and_reject
+from analysis.pipeline._channel import choose_channel, looks_like_membrane_potential
+from analysis.pipeline._sweep import MEASURING_QUALITY_FIELDS
 
-__all__ = ["AnalysisResult", "analyze", "choose_channel", "flag_and_reject", "looks_like_membrane_potential"]
+__all__ = [
+    "AnalysisResult", "MEASURING_QUALITY_FIELDS", "analyze", "choose_channel", "flag_and_reject",
+    "looks_like_membrane_potential",
+]

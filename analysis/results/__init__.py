@@ -6,9 +6,12 @@ The modules below are private to this package; import from here."""
 from analysis.results._atomic import (
     WriteError,
     atomic_output,
+    fsync_folder,
+    remove_stale_temps,
     temp_prefix,
     write_text_atomic,
 )
+from analysis.results._facts import RecordingFacts, facts_values
 from analysis.results._store import (
     FORMAT_NAME,
     SCHEMA_VERSION,
@@ -19,4 +22,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["FORMAT_NAME", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "load_results", "provenance_now", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]

@@ -18,7 +18,7 @@ from typing import Iterator
 
 from analysis.errors import InputError
 
-__all__ = ["WriteError", "atomic_output", "write_text_atomic", "temp_prefix"]
+__all__ = ["WriteError", "atomic_output", "fsync_folder", "remove_stale_temps", "temp_prefix", "write_text_atomic"]
 
 
 def temp_prefix(path: str | os.PathLike) -> str:
@@ -26,7 +26,9 @@ def temp_prefix(path: str | os.PathLike) -> str:
     return f".{os.path.basename(os.fspath(path))}.tmp-"
 
 
-def _remove_stale(path: str) -> None:
+def remove_stale_temps(path: str | os.PathLike) -> None:
+    """Remove the temporary files that writers of ``path`` killed before they finished left behind
+    (those of a process still running are kept)."""
     folder = os.path.dirname(os.path.abspath(path))
     prefix = temp_prefix(path)
     try:
@@ -61,8 +63,8 @@ def _fsync_path(path: str) -> None:
         os.close(fd)
 
 
-def _fsync_folder(folder: str) -> None:
-    # Makes the rename itself durable; folders cannot be opened this way on Windows.
+def fsync_folder(folder: str | os.PathLike) -> None:
+    """Make a rename into ``folder`` durable (a folder cannot be opened this way on Windows: no-op)."""
     with contextlib.suppress(OSError):
         _fsync_path(folder)
 
@@ -111,7 +113,7 @@ def atomic_output(path: str | os.PathLike) -> Iterator[str]:
     """
     target = os.path.abspath(os.fspath(path))
     folder = os.path.dirname(target)
-    _remove_stale(target)
+    remove_stale_temps(target)
     try:
         fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=folder)
     except OSError as exc:
@@ -128,7 +130,7 @@ def atomic_output(path: str | os.PathLike) -> Iterator[str]:
         if isinstance(exc, OSError):  # a full disk, a read-only folder: the user's to fix
             raise WriteError.of(path, exc) from None
         raise
-    _fsync_folder(folder)
+    fsync_folder(folder)
 
 
 class WriteError(InputError):
@@ -172,7 +174,7 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
     current = None  # the target being flushed or moved, once the writers are done
     try:
         for target in targets:
-            _remove_stale(target)
+            remove_stale_temps(target)
             fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=os.path.dirname(target))
             os.close(fd)
             temps.append(tmp)
@@ -200,7 +202,7 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
             raise WriteError.of(target, exc) from None
         raise
     for folder in sorted({os.path.dirname(t) for t in targets}):
-        _fsync_folder(folder)
+        fsync_folder(folder)
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> None:

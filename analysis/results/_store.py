@@ -27,7 +27,6 @@ recording was analysed) and the decisions' own times carry a clock.
 from __future__ import annotations
 
 import contextlib
-import math
 import os
 import platform
 from dataclasses import dataclass, field
@@ -42,6 +41,7 @@ from analysis.decisions import DecisionLog, now_utc
 from analysis.errors import ResultsFileError
 from analysis.recording import file_sha256
 from analysis.results._atomic import atomic_output
+from analysis.results._facts import RecordingFacts
 from analysis.table import BeatTable
 
 __all__ = [
@@ -61,25 +61,16 @@ _OPEN_FIX = "open a results file written by upstroke analyze --out, or analyse t
 
 
 @dataclass
-class StoredRecording:
+class StoredRecording(RecordingFacts):
     """Everything the results file keeps about one analysed recording.
+
+    The recording's facts (:class:`RecordingFacts`: source, reader, channel, geometry,
+    provenance), and:
 
     Attributes
     ----------
-    source_path : str
-        The recording's path (absolute when saved from a file; a name for in-memory data).
-    label : str
-        The ``file`` column of the CSVs (as given on the command line).
-    sha256 : str
-        SHA-256 of the source when analysed ("" for in-memory data).
-    reader, channel, channel_name, units : str, int, str, str
-        How the samples were read.
     ljp_mV : float
         Liquid-junction-potential correction applied (V_true = V_measured - LJP).
-    sweeps : tuple of int or None
-        The sweeps analysed (None: all).
-    sampling_rate_hz, sweep_starts_s, sweep_lengths
-        The recording's geometry, so conditions and figures work without the source.
     settings_json : str
         The full settings as JSON text, ``settings_schema`` its schema version, ``settings_hash``
         the short hash.
@@ -94,21 +85,9 @@ class StoredRecording:
         Per summary row: the ensemble-averaged beat in mV, its sampling rate and the time of its
         first sample relative to the upstroke (s). An empty array when it could not be formed.
     warnings : tuple of str
-    provenance : dict of str to str
     """
 
-    source_path: str
-    label: str
-    sha256: str = ""
-    reader: str = ""
-    channel: int = 0
-    channel_name: str = ""
-    units: str = "mV"
     ljp_mV: float = 0.0
-    sweeps: tuple[int, ...] | None = None
-    sampling_rate_hz: float = math.nan
-    sweep_starts_s: tuple[float, ...] = ()
-    sweep_lengths: tuple[int, ...] = ()
     settings_json: str = "{}"
     settings_schema: int = 0
     settings_hash: str = ""
@@ -118,7 +97,6 @@ class StoredRecording:
     summary: dict[str, np.ndarray] = field(default_factory=dict)
     ensembles: list[tuple[np.ndarray, float, float]] = field(default_factory=list)
     warnings: tuple[str, ...] = ()
-    provenance: dict[str, str] = field(default_factory=dict)
 
 
 @dataclass

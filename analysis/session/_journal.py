@@ -43,7 +43,6 @@ import hashlib
 import json
 import math
 import os
-import re
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -54,6 +53,7 @@ import numpy as np
 from analysis.conditions import Condition, ConditionError, SteadyState
 from analysis.decisions import ACCEPT, CLEAR, DecisionLog, now_utc
 from analysis.errors import InputError
+from analysis.results import fsync_folder, remove_stale_temps, temp_prefix
 from analysis.session._session import Session
 from analysis.settings import Settings
 
@@ -132,26 +132,6 @@ def pending_reviews(folder: str | os.PathLike) -> list[PendingReview]:
     return sorted(found, key=lambda p: p.written_utc, reverse=True)
 
 
-def _fsync_folder(folder: str) -> None:
-    # Makes the rename itself durable; a folder cannot be opened like this on Windows.
-    with contextlib.suppress(OSError):
-        fd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-
-
-def _alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except OSError:
-        return True
-    return True
-
-
 def write_durably(path: str | os.PathLike, text: str) -> None:
     """Write a small text file so that, once this returns, it survives a kill or a crash.
 
@@ -165,13 +145,8 @@ def write_durably(path: str | os.PathLike, text: str) -> None:
     """
     target = Path(path)
     target.parent.mkdir(parents=True, exist_ok=True)
-    prefix = f".{target.name}.tmp-"
-    for old in target.parent.glob(f"{prefix}*"):  # left by a killed process
-        m = re.match(r"(\d+)-", old.name[len(prefix):])
-        if m and int(m.group(1)) != os.getpid() and not _alive(int(m.group(1))):
-            with contextlib.suppress(OSError):
-                old.unlink()
-    fd, tmp = tempfile.mkstemp(prefix=f"{prefix}{os.getpid()}-", dir=target.parent)
+    remove_stale_temps(target)  # left by a killed process
+    fd, tmp = tempfile.mkstemp(prefix=f"{temp_prefix(target)}{os.getpid()}-", dir=target.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
@@ -182,7 +157,7 @@ def write_durably(path: str | os.PathLike, text: str) -> None:
         with contextlib.suppress(OSError):
             os.remove(tmp)
         raise
-    _fsync_folder(str(target.parent))
+    fsync_folder(target.parent)
 
 
 def _finite(x: float) -> float | str:

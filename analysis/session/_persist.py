@@ -16,9 +16,9 @@ import numpy as np
 
 from analysis.conditions import ConditionError, check_conditions
 from analysis.errors import ResultsFileError, SettingsError
-from analysis.results import ResultsFile, StoredRecording, load_results, save_results
+from analysis.results import RecordingFacts, ResultsFile, StoredRecording, facts_values, load_results, save_results
 from analysis.session._types import Entry as _Entry
-from analysis.session._types import RecordingFacts, SessionCore
+from analysis.session._types import SessionCore
 from analysis.session._types import key_of as _key_of
 from analysis.settings import Settings
 from analysis.stats import (
@@ -53,16 +53,12 @@ def stored_recordings(session: SessionCore) -> list[StoredRecording]:
             (s.ensemble.v_mV, s.ensemble.fs_hz, s.ensemble.t0_s) if s.ensemble is not None else (np.empty(0), e.info.sampling_rate_hz, 0.0)
             for s in summaries
         ]
-        i = e.info
         out.append(StoredRecording(
-            source_path=i.source_path, label=i.label, sha256=i.sha256, reader=i.reader, channel=i.channel,
-            channel_name=i.channel_name, units=i.units, ljp_mV=e.ljp_mV, sweeps=i.sweeps,
-            sampling_rate_hz=i.sampling_rate_hz, sweep_starts_s=i.sweep_starts_s, sweep_lengths=i.sweep_lengths,
+            **facts_values(e.info), ljp_mV=e.ljp_mV,
             settings_json=json.dumps(e.settings.to_dict(), sort_keys=True, indent=1, allow_nan=False),
             settings_schema=int(e.settings.to_dict()["schema_version"]), settings_hash=e.settings.short_hash(),
             beats=stored, decisions=e.decisions.copy(), conditions=tuple(e.conditions),
             summary=summary_columns(summaries), ensembles=ensembles, warnings=tuple(e.warnings),
-            provenance=dict(i.provenance),
         ))
     return out
 
@@ -133,12 +129,7 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
         except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
             raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
         # The stored ljp_mV attribute is not read back: the settings hold the LJP (one home).
-        info = RecordingFacts(
-            source_path=r.source_path, label=r.label, sha256=r.sha256, reader=r.reader, channel=r.channel,
-            channel_name=r.channel_name, units=r.units, sweeps=r.sweeps,
-            sampling_rate_hz=r.sampling_rate_hz, sweep_starts_s=r.sweep_starts_s, sweep_lengths=r.sweep_lengths,
-            provenance=dict(r.provenance),
-        )
+        info = RecordingFacts(**facts_values(r))
         key = _key_of(r.source_path) if r.sha256 else r.label
         base, n = key, 2
         while key in session._entries:  # a file written elsewhere may hold a source twice

@@ -46,7 +46,7 @@ Examples
 from __future__ import annotations
 
 import os
-from typing import Any, Callable, Iterable, Sequence
+from typing import Any, Iterable, Sequence
 
 import numpy as np
 
@@ -57,15 +57,13 @@ from analysis.errors import RecordingError
 from analysis.readers import open_recording
 from analysis.recording import Recording
 from analysis.session._commands import (
-    Command,
     ConditionsCommand,
     DecideCommand,
     SweepsCommand,
 )
+from analysis.session._history import SessionHistory
 from analysis.session._persist import open_session, save_session
 from analysis.session._types import (
-    EVENTS,
-    Change,
     Entry,
     RecordingInfo,
     info_from,
@@ -81,7 +79,7 @@ from analysis.table import BeatTable
 __all__ = ["Session"]
 
 
-class Session(SessionWork):
+class Session(SessionHistory, SessionWork):
     """Recordings with their results, review decisions and conditions, with undo and redo.
 
     Parameters
@@ -95,40 +93,12 @@ class Session(SessionWork):
     """
 
     def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010) -> None:
+        super().__init__()
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
         self._entries: dict[str, Entry] = {}
-        self._undo: list[Command] = []
-        self._redo: list[Command] = []
-        self._listeners: dict[str, list[Callable[[Change], None]]] = {}
-        self._clean_depth: int | None = 0
         self.path: str | None = None
         self.open_warnings: list[str] = []
-
-    # -- notifications -----------------------------------------------------------------------
-    def subscribe(self, event: str, callback: Callable[[Change], None]) -> Callable[[], None]:
-        """Call ``callback(change)`` after every change of kind ``event`` (``"*"``: all).
-
-        Returns
-        -------
-        callable
-            Calling it unsubscribes.
-        """
-        if event != "*" and event not in EVENTS:
-            raise ValueError(f"unknown session event {event!r}; choose from {', '.join(EVENTS)} or '*'")
-        self._listeners.setdefault(event, []).append(callback)
-
-        def unsubscribe() -> None:
-            with_cb = self._listeners.get(event, [])
-            if callback in with_cb:
-                with_cb.remove(callback)
-
-        return unsubscribe
-
-    def _emit(self, event: str, recording: str | None = None, rows: Sequence[int] = (), detail: str = "") -> None:
-        change = Change(event, recording, tuple(int(r) for r in rows), detail)
-        for cb in list(self._listeners.get(event, ())) + list(self._listeners.get("*", ())):
-            cb(change)
 
     # -- recordings --------------------------------------------------------------------------
     @property
@@ -415,64 +385,6 @@ class Session(SessionWork):
         merged, more = pipeline.flag_and_reject(merged.take(order), rec, e.info.channel, e.settings, scale=mV_scale(e.info.units))
         selection = None if sweeps is None else tuple(wanted)
         self._run(SweepsCommand(self, key, selection, merged, tuple(warnings + more)))
-
-    # -- undo / redo -------------------------------------------------------------------------
-    @property
-    def can_undo(self) -> bool:
-        return bool(self._undo)
-
-    @property
-    def can_redo(self) -> bool:
-        return bool(self._redo)
-
-    @property
-    def undo_text(self) -> str:
-        """What :meth:`undo` would undo ("" when nothing)."""
-        return self._undo[-1].text if self._undo else ""
-
-    @property
-    def redo_text(self) -> str:
-        return self._redo[-1].text if self._redo else ""
-
-    @property
-    def modified(self) -> bool:
-        """True when the session differs from what was last saved or opened."""
-        return self._clean_depth != len(self._undo)
-
-    def undo(self) -> None:
-        """Undo the latest edit (decisions are undone by log entries that restore the state)."""
-        if not self._undo:
-            return
-        cmd = self._undo.pop()
-        cmd.undo()
-        self._redo.append(cmd)
-        self._emit("history_changed")
-
-    def redo(self) -> None:
-        """Redo the latest undone edit."""
-        if not self._redo:
-            return
-        cmd = self._redo.pop()
-        cmd.redo()
-        self._undo.append(cmd)
-        self._emit("history_changed")
-
-    def _run(self, cmd: Command) -> None:
-        cmd.do()
-        if self._clean_depth is not None and self._clean_depth > len(self._undo):
-            self._clean_depth = None  # the saved state can no longer be reached by undo
-        self._undo.append(cmd)
-        self._redo.clear()
-        self._emit("history_changed")
-
-    def _touch(self) -> None:
-        self._clean_depth = None
-        self._emit("history_changed")
-
-    def _drop_history(self, key: str) -> None:
-        self._undo = [c for c in self._undo if key not in c.keys]
-        self._redo = [c for c in self._redo if key not in c.keys]
-
     def _invalidate(self, key: str) -> None:
         e = self._entries[key]
         e.summaries = None

@@ -6,9 +6,8 @@ live here so that the session's modules stay small.
 
 from __future__ import annotations
 
-import math
 import os
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field
 from typing import Any, Callable, Protocol, Sequence
 
 import numpy as np
@@ -16,10 +15,9 @@ import numpy as np
 from analysis.conditions import Condition, assign_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
 from analysis import flags
-from analysis.pipeline import analyze
-from analysis.pipeline._analyze import MEASURING_QUALITY_FIELDS
+from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
 from analysis.recording import Recording
-from analysis.results import provenance_now
+from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
@@ -87,51 +85,22 @@ class Change:
 
 
 @dataclass
-class RecordingFacts:
-    """What the session keeps about one recording besides its beats and settings (internal).
-
-    Everything here is a fact of the source or of the analysis run; the liquid-junction potential
-    is not, because it is a setting (``preprocess.ljp_mV``) and has one home: the recording's
-    settings. :meth:`Session.info` adds it to a :class:`RecordingInfo` snapshot.
-    """
-
-    source_path: str
-    label: str
-    sha256: str = ""
-    reader: str = ""
-    channel: int = 0
-    channel_name: str = ""
-    units: str = "mV"
-    sweeps: tuple[int, ...] | None = None
-    sampling_rate_hz: float = math.nan
-    sweep_starts_s: tuple[float, ...] = ()
-    sweep_lengths: tuple[int, ...] = ()
-    provenance: dict[str, str] = field(default_factory=dict)
-
-    @property
-    def sweep_durations_s(self) -> tuple[float, ...]:
-        return tuple(n / self.sampling_rate_hz for n in self.sweep_lengths)
-
-
-@dataclass
 class RecordingInfo(RecordingFacts):
     """Source, reader, channel, LJP, geometry and provenance of a recording: a snapshot.
 
-    Attributes mirror :class:`analysis.results.StoredRecording`: ``source_path``, ``label``,
-    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``ljp_mV``,
-    ``sweeps`` (None: all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths`` and
-    ``provenance``. ``ljp_mV`` is read from the recording's settings when the snapshot is made
-    (:meth:`Session.info`), so it always equals ``session.settings(key).preprocess.ljp_mV``;
-    changing the snapshot changes nothing in the session.
+    The recording's facts (:class:`analysis.results.RecordingFacts`: ``source_path``, ``label``,
+    ``sha256``, ``reader``, ``channel`` (index), ``channel_name``, ``units``, ``sweeps`` (None:
+    all), ``sampling_rate_hz``, ``sweep_starts_s``, ``sweep_lengths``, ``provenance``) and
+    ``ljp_mV``, as :class:`analysis.results.StoredRecording` holds them. ``ljp_mV`` is read from
+    the recording's settings when the snapshot is made (:meth:`Session.info`), so it always equals
+    ``session.settings(key).preprocess.ljp_mV``; changing the snapshot changes nothing in the session.
     """
 
     ljp_mV: float = 0.0
 
     @classmethod
     def of(cls, facts: RecordingFacts, ljp_mV: float) -> "RecordingInfo":
-        values = {f.name: getattr(facts, f.name) for f in fields(RecordingFacts)}
-        values["provenance"] = dict(facts.provenance)
-        return cls(**values, ljp_mV=float(ljp_mV))
+        return cls(**facts_values(facts), ljp_mV=float(ljp_mV))
 
 
 @dataclass

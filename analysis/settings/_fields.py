@@ -15,7 +15,7 @@ from typing import Any, ClassVar, Mapping
 
 from analysis.errors import SettingsError
 
-__all__ = ["FieldInfo", "Section", "setting", "section"]
+__all__ = ["FieldInfo", "Section", "range_text", "setting", "section"]
 
 
 def setting(
@@ -87,8 +87,26 @@ def _kind(annotation: Any) -> str:
     raise TypeError(f"unsupported settings field type {annotation!r}")
 
 
-def _range_text(meta: Mapping[str, Any]) -> str:
-    lo, hi, unit = meta["min"], meta["max"], meta["unit"]
+def range_text(lo: float | None, hi: float | None, unit: str = "") -> str:
+    """A setting's allowed range in words, as every message, tooltip and page shows it.
+
+    Parameters
+    ----------
+    lo, hi : float or None
+        The bounds (None: none on that side).
+    unit : str
+        Written after the numbers ("" where the unit stands elsewhere, as in a table's column).
+
+    Returns
+    -------
+    str
+        "" when neither bound is set.
+
+    Examples
+    --------
+    >>> range_text(0.0, 1000.0, "ms"), range_text(1.0, None), range_text(None, None)
+    ('from 0 to 1000 ms', 'at least 1', '')
+    """
     unit = f" {unit}" if unit else ""
     if lo is not None and hi is not None:
         return f"from {lo:g} to {hi:g}{unit}"
@@ -96,7 +114,11 @@ def _range_text(meta: Mapping[str, Any]) -> str:
         return f"at least {lo:g}{unit}"
     if hi is not None:
         return f"at most {hi:g}{unit}"
-    return "any number"
+    return ""
+
+
+def _range_text(meta: Mapping[str, Any]) -> str:
+    return range_text(meta["min"], meta["max"], meta["unit"]) or "any number"
 
 
 def _check_value(path: str, kind: str, value: Any, meta: Mapping[str, Any], origin: str | None) -> Any:

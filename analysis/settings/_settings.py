@@ -47,7 +47,7 @@ from analysis.settings._fields import (  # noqa: F401
     Section,
     _check_value,
     _kind,
-    _range_text,
+    range_text,
     section,
     setting,
 )

@@ -3,7 +3,8 @@
 The modules below are private to this package; import from here."""
 
 
-from analysis.synthetic._cells import Artefact, CellParams, DAD, EAD, PRESETS, Pause, SealTrouble, Stretch, Synthetic, Truth, preset, synthesize
+from analysis.synthetic._cells import CellParams, PRESETS, Synthetic, Truth, preset, synthesize
+from analysis.synthetic._events import Artefact, DAD, EAD, Pause, SealTrouble, Stretch
 from analysis.synthetic._io import write_abf, write_nwb
 from analysis.synthetic._model import Bump, RepolarisationShape, BeatTrain, TOP_CRITERION_MV_PER_S, smooth_window
 from analysis.synthetic._truth import beat_truth, TRUTH_GRID_POINTS

@@ -17,7 +17,7 @@ from typing import Any
 from PySide6 import QtCore, QtWidgets
 
 from analysis.errors import SettingsError
-from analysis.settings import FieldInfo, Settings, describe
+from analysis.settings import FieldInfo, Settings, describe, range_text
 
 __all__ = ["SettingsForm", "field_label", "field_tooltip"]
 
@@ -31,16 +31,9 @@ def field_label(info: FieldInfo) -> str:
 
 
 def _bounds_text(info: FieldInfo) -> str:
-    unit = f" {info.unit}" if info.unit else ""
     if info.choices:
         return "one of: " + ", ".join(str(c) for c in info.choices)
-    if info.min is not None and info.max is not None:
-        return f"{info.min:g} to {info.max:g}{unit}"
-    if info.min is not None:
-        return f"at least {info.min:g}{unit}"
-    if info.max is not None:
-        return f"at most {info.max:g}{unit}"
-    return ""
+    return range_text(info.min, info.max, info.unit)
 
 
 def field_tooltip(info: FieldInfo) -> str:

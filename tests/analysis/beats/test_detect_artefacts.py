@@ -54,7 +54,7 @@ def test_a_spike_in_a_nodal_repolarisation_is_an_artefact_and_no_beat_is_lost(n_
 
 
 def test_a_spike_in_diastole_is_no_dad():
-    # Spikes of 1-1.5 ms (analysis.synthetic._cells's planted artefacts) in three diastoles; no DAD planted.
+    # Spikes of 1-1.5 ms (analysis.synthetic._events's planted artefacts) in three diastoles; no DAD planted.
     b = synthesize(preset("nodal-like"), duration_s=12.0, fs_hz=2000.0, seed=3).truth.beats
     times = [0.5 * (b["t_mdp_s"][k] + b["t_top_s"][k]) for k in (3, 6, 9)]
     spikes = [Artefact(t, a, n) for t, a, n in zip(times, (50.0, 40.0, 60.0), (10, 15, 12))]

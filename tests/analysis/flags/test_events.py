@@ -43,7 +43,7 @@ CELLS = ["nodal-like", "ventricular-like", "purkinje-like", "atrial-like"]
 
 @pytest.mark.parametrize("name", CELLS)
 def test_no_event_on_clean_traces(name):
-    # Planted-event truth of analysis.synthetic._cells: nothing planted, nothing found.
+    # Planted-event truth of analysis.synthetic._events: nothing planted, nothing found.
     syn = synthesize(preset(name), duration_s=12.0, fs_hz=10_000.0, seed=2, noise_mV=0.3, hum_mV=0.3)
     table, warnings = _run(syn)
     for flag in EVENT_FLAGS:
@@ -62,7 +62,7 @@ def test_every_planted_ead_dad_and_pause_is_found(name):
     syn = synthesize(cell, duration_s=cell.cl_ms * 14 / 1000.0, fs_hz=10_000.0, seed=5, noise_mV=0.2,
                      hum_mV=0.2, eads=eads, dads=dads, pauses=pauses)
     table, _ = _run(syn)
-    # Truth: the beats the events were planted at (analysis.synthetic._cells's event table).
+    # Truth: the beats the events were planted at (analysis.synthetic._events's event table).
     assert _flagged(table, "ead") == {3, 7}
     assert _flagged(table, "dad") == {4, 8}
     assert _flagged(table, "pause") == {6}

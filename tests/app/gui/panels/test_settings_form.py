@@ -48,3 +48,17 @@ def test_bad_value_is_refused_with_one_line(form, qtbot):
     with qtbot.assertNotEmitted(form.applied):
         assert form.apply() is None
     assert "not a list of numbers" in form.message.text()
+
+
+def test_a_range_is_worded_alike_in_the_tooltip_the_error_and_the_measurements_page(form):
+    # The bounds are detection.min_width_ms's declared ones (0 and 1000 ms, as the settings test
+    # names them); the wording is the project's own (common practice, no source).
+    from analysis import docs_measurements
+    from analysis.errors import SettingsError
+
+    with pytest.raises(SettingsError) as err:
+        Settings().replace("detection.min_width_ms", -1.0)
+    assert "allowed: from 0 to 1000 ms" in str(err.value)
+    assert "allowed: from 0 to 1000 ms" in form.editors["detection.min_width_ms"].widget.toolTip()
+    row = next(r for r in docs_measurements.render().splitlines() if r.startswith("| `detection.min_width_ms` |"))
+    assert "| ms | from 0 to 1000 |" in row
