@@ -24,22 +24,16 @@ import re
 import sys
 from types import ModuleType
 
-from analysis import columns
-
-from analysis.beats import _detect as detect
-
-from analysis.flags import _events as events
-
-from analysis.beats import _markers as markers
-
-from analysis.beats import _features as measure
-
-from analysis.settings import _settings as settings
-
-from analysis.signal import _filters as signal
-
-from analysis.stats import _variability as variability
+from analysis import columns, settings
+from analysis.beats import FLAG_WORDS
 from analysis.flags import EVENT_FLAGS, rejection_flags
+
+# The modules whose docstrings the page renders (the definitions live beside their code).
+from analysis.beats import _detect as detect
+from analysis.beats import _markers as markers
+from analysis.flags import _events as events
+from analysis.signal import _filters as signal
+from analysis.stats import _variability as variability
 
 __all__ = ["flag_vocabulary", "render"]
 
@@ -82,7 +76,7 @@ def flag_vocabulary() -> dict[str, str]:
     flags from the vocabulary in :mod:`analysis.flags._events`' docstring (a definition list: the word
     on its own line, its meaning indented below).
     """
-    out = dict(measure.FLAG_WORDS)
+    out = dict(FLAG_WORDS)
     vocab = _section(inspect.getdoc(events) or "", _vocabulary_title())
     word, meaning = None, []
     for line in vocab.splitlines():
@@ -100,7 +94,7 @@ def flag_vocabulary() -> dict[str, str]:
     missing = [w for w in EVENT_FLAGS if w not in out]
     if missing:
         raise LookupError(f"analysis.flags._events documents no meaning for {missing}")
-    return {w: out[w] for w in (*measure.FLAG_WORDS, *EVENT_FLAGS)}
+    return {w: out[w] for w in (*FLAG_WORDS, *EVENT_FLAGS)}
 
 
 def _vocabulary_title() -> str:
@@ -124,7 +118,7 @@ def _flags() -> list[str]:
     rows = ["| flag | meaning | rejected automatically by default |", "|---|---|---|"]
     for word, meaning in flag_vocabulary().items():
         rule = "yes" if word in auto else ("never" if word == "no_overshoot" else "no")
-        if word in measure.FLAG_WORDS:
+        if word in FLAG_WORDS:
             rule = "no (left out of summaries)"
         rows.append(f"| `{word}` | {_cell(_md(meaning))} | {rule} |")
     return rows

@@ -40,7 +40,7 @@ from analysis.signal import (
     window_samples,
 )
 
-__all__ = ["BeatMarkers", "measure_beats", "apd_name", "MARKER_FIELDS"]
+__all__ = ["BeatMarkers", "measure_beats", "MARKER_FIELDS"]
 
 #: Float marker arrays (one value per beat) that :func:`measure_beats` fills.
 MARKER_FIELDS = (

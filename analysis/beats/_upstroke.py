@@ -16,9 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from analysis.signal import parabolic_peak, top_fit_peak
-from analysis.signal._filters import _conv_coeffs
-from analysis.signal import central_difference, savgol_derivative, window_samples
+from analysis.signal import cached_savgol_coeffs, central_difference, parabolic_peak, savgol_derivative, top_fit_peak, window_samples
 
 __all__ = ["TOP_FIT_NOISE", "UpstrokeVelocity", "rise_time_10_90", "upstroke_velocity"]
 
@@ -229,5 +227,5 @@ def _search(lo: int, hi: int, a: int, d: np.ndarray) -> tuple[int, int]:
 @functools.lru_cache(maxsize=512)
 def _sg_noise(n: int, fs_hz: float) -> float:
     """V/s of derivative noise per mV of white noise, for the order-3 derivative over n samples."""
-    c = _conv_coeffs(n, 3, 1, 1.0 / fs_hz)
+    c = cached_savgol_coeffs(n, 3, 1, 1.0 / fs_hz)
     return float(np.sqrt(np.sum(c * c))) / 1000.0

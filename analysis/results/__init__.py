@@ -6,6 +6,7 @@ The modules below are private to this package; import from here."""
 from analysis.results._atomic import (
     WriteError,
     atomic_output,
+    atomic_outputs,
     fsync_folder,
     remove_stale_temps,
     temp_prefix,
@@ -22,4 +23,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]

@@ -18,7 +18,7 @@ from typing import Iterator
 
 from analysis.errors import InputError
 
-__all__ = ["WriteError", "atomic_output", "fsync_folder", "remove_stale_temps", "temp_prefix", "write_text_atomic"]
+__all__ = ["WriteError", "atomic_output", "atomic_outputs", "fsync_folder", "remove_stale_temps", "temp_prefix", "write_text_atomic"]
 
 
 def temp_prefix(path: str | os.PathLike) -> str:

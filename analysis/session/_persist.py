@@ -24,11 +24,11 @@ from analysis.settings import Settings
 from analysis.stats import (
     PARAMETERS,
     SUMMARY_COLUMNS,
+    SUMMARY_DECIMALS,
     Ensemble,
     Summary,
     summary_columns,
 )
-from analysis.stats._summary import _DECIMALS
 from analysis.table import BeatTable
 
 __all__ = ["AUTO_COLUMNS", "open_session", "save_session", "stored_recordings"]
@@ -97,7 +97,7 @@ def _stored_summaries(r: StoredRecording) -> list:
     if list(cols) != list(SUMMARY_COLUMNS):
         return None  # written by another version of the summaries: recompute when asked
     for c in SUMMARY_COLUMNS:  # numbers where the summary CSV writes numbers (a damaged file)
-        if _DECIMALS[c] is not None and np.asarray(cols[c]).dtype.kind not in "biuf":
+        if SUMMARY_DECIMALS[c] is not None and np.asarray(cols[c]).dtype.kind not in "biuf":
             raise TypeError(f"summary column {c} holds text, not numbers")
     n = len(cols[SUMMARY_COLUMNS[0]])
     out = []

@@ -28,7 +28,7 @@ Events
 
 Examples
 --------
->>> from analysis.synthetic._cells import preset, synthesize
+>>> from analysis.synthetic import preset, synthesize
 >>> from analysis.conditions import parse_condition
 >>> syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=5_000.0, seed=3)
 >>> s = Session()

@@ -21,10 +21,7 @@ from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
-__all__ = [
-    "EVENTS", "SessionCore", "Change", "Entry", "RecordingFacts", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS",
-    "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope",
-]
+__all__ = ["EVENTS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
 
 EVENTS = (
     "recording_added", "recording_removed", "results_changed", "decisions_changed",

@@ -28,7 +28,7 @@ import numpy as np
 
 from analysis.errors import SettingsError
 
-__all__ = ["window_samples", "savgol_coeffs", "savgol_smooth", "savgol_smooth_interior", "least_squares_slope", "moving_mean", "savgol_derivative", "central_difference", "lowpass", "notch", "correct_ljp", "noise_rms_mV", "slope_noise_V_per_s", "noise_matched_window_ms"]
+__all__ = ["window_samples", "savgol_coeffs", "cached_savgol_coeffs", "savgol_smooth", "savgol_smooth_interior", "least_squares_slope", "moving_mean", "savgol_derivative", "central_difference", "lowpass", "notch", "correct_ljp", "noise_rms_mV", "slope_noise_V_per_s", "noise_matched_window_ms"]
 
 
 def window_samples(window_ms: float, fs_hz: float, *, polyorder: int = 2, minimum: int = 3) -> int:
@@ -46,7 +46,7 @@ def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float, edg
         if n <= polyorder:
             # Too short for the fit: fall back on a plain gradient (or nothing to smooth).
             return np.gradient(x, delta) if deriv == 1 and x.size > 1 else (x.copy() if deriv == 0 else np.zeros_like(x))
-    coeffs = _conv_coeffs(n, polyorder, deriv, delta)
+    coeffs = cached_savgol_coeffs(n, polyorder, deriv, delta)
     # Direct convolution unless the work is large enough for FFT overlap-add to pay off.
     out = np.convolve(x, coeffs, mode="same") if n <= 64 or x.size * n < 4_000_000 else _fft_convolve(x, coeffs)
     h = n // 2
@@ -61,7 +61,8 @@ def _savgol(v: np.ndarray, n: int, polyorder: int, deriv: int, delta: float, edg
 
 
 @functools.lru_cache(maxsize=256)
-def _conv_coeffs(n: int, polyorder: int, deriv: int, delta: float) -> np.ndarray:
+def cached_savgol_coeffs(n: int, polyorder: int, deriv: int, delta: float) -> np.ndarray:
+    """:func:`savgol_coeffs`, remembered for the last 256 windows (the same few recur per sweep)."""
     return savgol_coeffs(n, polyorder, deriv=deriv, delta=delta)
 
 

@@ -40,6 +40,7 @@ from analysis.stats._variability import CellTypeRule, cell_type_hint, coefficien
 __all__ = [
     "PARAMETERS",
     "SUMMARY_COLUMNS",
+    "SUMMARY_DECIMALS",
     "Summary",
     "eligible_mask",
     "suggest_steady_state",
@@ -66,7 +67,8 @@ _COLUMN_SPECS: tuple[tuple[str, int | None], ...] = (
     ("settings_hash", None),
 )
 SUMMARY_COLUMNS: tuple[str, ...] = tuple(name for name, _ in _COLUMN_SPECS)
-_DECIMALS = dict(_COLUMN_SPECS)
+#: Digits after the decimal point of each summary column in CSV (None: not a number).
+SUMMARY_DECIMALS = dict(_COLUMN_SPECS)
 
 
 @dataclass
@@ -347,7 +349,7 @@ def summary_columns(summaries: Sequence[Summary]) -> dict[str, np.ndarray]:
     out: dict[str, np.ndarray] = {}
     for name in SUMMARY_COLUMNS:
         vals = [s.values[name] for s in summaries]
-        if _DECIMALS[name] is not None:
+        if SUMMARY_DECIMALS[name] is not None:
             out[name] = np.array(vals, dtype=np.float64)
         elif name.startswith("n_") or name == "ensemble_n":
             out[name] = np.array(vals, dtype=np.int64)
@@ -366,7 +368,7 @@ def summary_csv(columns: Mapping[str, Sequence] | Sequence[Mapping[str, Sequence
     for cols in sets:
         n = len(cols[SUMMARY_COLUMNS[0]]) if cols else 0
         for i in range(n):
-            writer.writerow([format_value(_scalar(cols[c][i]), _DECIMALS[c]) for c in SUMMARY_COLUMNS])
+            writer.writerow([format_value(_scalar(cols[c][i]), SUMMARY_DECIMALS[c]) for c in SUMMARY_COLUMNS])
     return out.getvalue()
 
 

@@ -135,7 +135,7 @@ def write_outputs(args: argparse.Namespace, results: Sequence) -> list[str]:
     Each writer writes to a temporary file beside its target; the targets are replaced only
     once every output is complete, so a failure in any (a full disk) leaves all as they were.
     """
-    from analysis.results._atomic import atomic_outputs
+    from analysis.results import atomic_outputs
 
     targets = []
     inputs = {os.path.abspath(f) for f in getattr(args, "files", ())}

@@ -111,7 +111,7 @@ def _describe(session, results: str) -> list[str]:
 
 def run(args: argparse.Namespace) -> int:
     """Export what the options ask for; 0 on success (bad input raises InputError, exit 2)."""
-    from analysis.results._atomic import atomic_outputs
+    from analysis.results import atomic_outputs
     from analysis.session import Session
 
     session = Session.open(args.results)

@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from analysis.readouts import _plotdata as plotdata
+from analysis import readouts
 from analysis.recording import Recording
 from analysis.table import BeatTable
 
@@ -69,7 +69,7 @@ def summary_beat_rows(beats: BeatTable, summaries, sweep_starts_s) -> dict[str, 
     from analysis.stats import eligible_mask
 
     n = len(beats)
-    t_rec = plotdata.recording_times_s(beats, sweep_starts_s) if n else np.empty(0)
+    t_rec = readouts.recording_times_s(beats, sweep_starts_s) if n else np.empty(0)
     condition = np.asarray(beats["condition"], dtype=object) if "condition" in beats else np.full(n, "", dtype=object)
     sweep = np.asarray(beats["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
     eligible = eligible_mask(beats) if n else np.zeros(0, bool)

@@ -22,7 +22,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
 from analysis.columns import column
-from analysis.readouts import _plotdata as plotdata
+from analysis import readouts
 from analysis.table import BeatTable
 
 from .. import palette
@@ -105,7 +105,7 @@ class AlignedBeatsFigure(_Figure):
         self.plot = self.addPlot()
         _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
         self.legend = _legend(self.plot, (-10, 10))
-        self.averages: dict[str, plotdata.AlignedBeats] = {}
+        self.averages: dict[str, readouts.AlignedBeats] = {}
 
     def blank(self) -> None:
         super().blank()
@@ -124,7 +124,7 @@ class AlignedBeatsFigure(_Figure):
         for name, colour, rows, which in groups:
             if not rows.size:
                 continue
-            aligned = plotdata.aligned_beats(
+            aligned = readouts.aligned_beats(
                 data.recording, data.beats, rows, channel=data.channel, offset_mV=data.offset_mV,
                 before_ms=0.3 * cl, after_ms=0.65 * cl, max_beats=self.MAX_AVERAGED,
             )
@@ -153,7 +153,7 @@ class AlignedBeatsFigure(_Figure):
 
 
 def _window(v: np.ndarray, fs: float, data: FigureInput) -> float | None:
-    return None if data.measurement is None else plotdata.take_off_window_ms(v, fs, data.measurement)
+    return None if data.measurement is None else readouts.take_off_window_ms(v, fs, data.measurement)
 
 
 class PhasePlaneFigure(_Figure):
@@ -165,20 +165,20 @@ class PhasePlaneFigure(_Figure):
         _style(self.plot, ("V", "mV"), ("dV/dt", "V/s"))
         self.legend = _legend(self.plot, (-10, 10))
 
-    def draw(self, data: FigureInput, averages: dict[str, plotdata.AlignedBeats] | None = None) -> None:
+    def draw(self, data: FigureInput, averages: dict[str, readouts.AlignedBeats] | None = None) -> None:
         self.plot.clear()
         self.legend.clear()
         fs = data.recording.sampling_rate_hz
         colours = dict(data.groups)
         for name, aligned in (averages or {}).items():
-            v, dvdt = plotdata.phase_plane(aligned.mean, fs, window_ms=_window(aligned.mean, fs, data))
+            v, dvdt = readouts.phase_plane(aligned.mean, fs, window_ms=_window(aligned.mean, fs, data))
             self.plot.plot(v, dvdt, pen=pg.mkPen(colours.get(name, palette.TRACE), width=2.2),
                            name=f"{_group_label(name)}: average beat")
         r = data.current_row
         if 0 <= r < len(data.beats):
-            one = plotdata.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
+            one = readouts.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
                                          offset_mV=data.offset_mV, before_ms=250, after_ms=500)
-            v, dvdt = plotdata.phase_plane(one.traces[0], fs, window_ms=_window(one.traces[0], fs, data))
+            v, dvdt = readouts.phase_plane(one.traces[0], fs, window_ms=_window(one.traces[0], fs, data))
             self.plot.plot(v, dvdt, pen=pg.mkPen(palette.rgba(palette.INK, 150), width=1),
                            name=f"selected beat (sweep {int(data.beats['sweep'][r])}, beat {int(data.beats['beat'][r])})")
 
@@ -244,7 +244,7 @@ class TimeCourseFigure(_Figure):
 
     def draw(self, data: FigureInput) -> None:
         rows = _accepted_rows(data.beats)
-        t = plotdata.recording_times_s(data.beats, data.recording.sweep_starts_s)[rows] if rows.size else np.empty(0)
+        t = readouts.recording_times_s(data.beats, data.recording.sweep_starts_s)[rows] if rows.size else np.empty(0)
         names = np.asarray(data.beats["condition"])[rows] if "condition" in data.beats else np.full(rows.size, "", dtype=object)
         rec = data.recording
         rec_end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
@@ -283,7 +283,7 @@ class PoincareFigure(_Figure):
         self.pairs = {}
         lo, hi = math.inf, -math.inf
         for name, colour in data.groups:
-            x, y = plotdata.poincare_pairs(data.beats, _accepted_rows(data.beats, name))
+            x, y = readouts.poincare_pairs(data.beats, _accepted_rows(data.beats, name))
             if not x.size:
                 continue
             self.pairs[name] = (x, y)
@@ -303,7 +303,7 @@ class DdrClFigure(_Figure):
         self.plot = self.addPlot()
         _style(self.plot, *((column(n).label, column(n).unit) for n in ("cl_ms", "ddr_mV_per_s")))
         self.legend = _legend(self.plot, (-10, 10))
-        self.fits: dict[str, plotdata.LineFit] = {}
+        self.fits: dict[str, readouts.LineFit] = {}
 
     def draw(self, data: FigureInput) -> None:
         self.plot.clear()
@@ -320,7 +320,7 @@ class DdrClFigure(_Figure):
                 continue
             self.plot.plot(x[ok], y[ok], pen=None, symbol="o", symbolSize=5, symbolPen=None,
                            symbolBrush=palette.rgba(colour, 160))
-            fit = plotdata.fit_line(x, y)
+            fit = readouts.fit_line(x, y)
             self.fits[name] = fit
             label = f"{_group_label(name)}: n={fit.n}"
             if math.isfinite(fit.slope):
