@@ -24,7 +24,8 @@ import re
 import sys
 from types import ModuleType
 
-from analysis import columns, settings
+import analysis.columns as columns
+import analysis.settings as settings
 from analysis.beats import FLAG_WORDS
 from analysis.flags import EVENT_FLAGS, rejection_flags
 

@@ -19,7 +19,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from analysis import flags
+import analysis.flags as flags
 from analysis.beats import ARTEFACT_REASONS, apd_name, marker_columns
 from analysis.chunkpool import use_workers
 from analysis.errors import RecordingError, SettingsError

@@ -24,7 +24,7 @@ import os
 from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
-from analysis import pipeline
+import analysis.pipeline as pipeline
 from analysis.conditions import Condition
 from analysis.decisions import DecisionLog
 from analysis.flags import RecordingSweeps

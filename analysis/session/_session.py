@@ -50,7 +50,7 @@ from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-from analysis import pipeline
+import analysis.pipeline as pipeline
 from analysis.conditions import Condition, check_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
 from analysis.errors import RecordingError

@@ -14,7 +14,7 @@ import numpy as np
 
 from analysis.conditions import Condition, assign_conditions
 from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
-from analysis import flags
+import analysis.flags as flags
 from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
 from analysis.recording import Recording
 from analysis.results import RecordingFacts, facts_values, provenance_now

@@ -30,7 +30,8 @@ from ..panels.summary_panel import SummaryPanel
 from ..views.beat_table import BeatTableView
 from ..views.overview import OverviewStrip
 from ..views.trace_view import TraceView
-from . import waiting
+from .waiting import settle as _settle
+from .waiting import wait_idle as _wait_idle
 from .display import Display
 from .feedback import Feedback
 from .files import Files
@@ -352,11 +353,11 @@ class MainWindow(QtWidgets.QMainWindow):
     def settle(self, timeout_ms: int = 120_000) -> bool:
         """Run pending delayed refreshes now and wait for every background job, until neither
         is left (a finished analysis schedules a summary, which is a job of its own)."""
-        return waiting.settle(self.display, self.runner, timeout_ms)
+        return _settle(self.display, self.runner, timeout_ms)
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""
-        return waiting.wait_idle(self.runner, timeout_ms)
+        return _wait_idle(self.runner, timeout_ms)
 
     # -- screenshots ----------------------------------------------------------------------------
     def render_png(self, path: str | os.PathLike, *, size: tuple[int, int] = (1600, 1000)) -> str:
