@@ -109,9 +109,9 @@ def _stored_summaries(r: StoredRecording) -> list:
             v, fs, t0 = r.ensembles[i]
             params = {col: float(values[f"ensemble_{col}"]) for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")}
             ens = Ensemble(np.asarray(v), fs, t0, int(values["ensemble_n"]), params)
-        lo, hi = float(values["steady_start_s"]), float(values["steady_end_s"])
+        lo, hi = float(values["suggested_window_start_s"]), float(values["suggested_window_end_s"])
         suggestion = (lo, hi) if math.isfinite(lo) and math.isfinite(hi) else None
-        out.append(Summary(values, suggestion, str(values["steady_note"]), ens))
+        out.append(Summary(values, suggestion, str(values["suggested_window_note"]), ens))
     return out
 
 
