@@ -157,7 +157,7 @@ def test_summary_leaves_out_rejected_and_unmeasurable_beats():
     assert len(s) == 1
     row = s[0].values
     used = eligible
-    assert row["n_beats"] == 40 and row["n_rejected"] == 1 and row["n_accepted"] == int(used.sum())
+    assert row["n_beats"] == 40 and row["n_rejected"] == 1 and row["n_used"] == int(used.sum())
     assert row["mdp_mean_mV"] == pytest.approx(np.mean(t["mdp_mV"][used]))  # numpy reference
     assert row["apd90_sd_ms"] == pytest.approx(np.std(t["apd90_ms"][used], ddof=1))
     # RMSSD over consecutive eligible beats only (beats 4-5 and 5-6 break at the rejected beat).
@@ -182,11 +182,11 @@ def test_summary_per_condition_and_window_rules():
     s = summarize(t, label="c1", sweep_starts_s=[0.0], sweep_durations_s=[60.0], conditions=conds, settings=Settings().summary)
     by = {x.values["condition"]: x for x in s}
     assert set(by) == {"baseline", "drug"}
-    assert by["baseline"].values["n_accepted"] == 10
+    assert by["baseline"].values["n_used"] == 10
     drug = by["drug"].values
     last = t_up[eligible_mask(t) & (t["condition"] == "drug")].max()
     inside = eligible_mask(t) & (t["condition"] == "drug") & (t_up > last - 10.0 - 1e-12)
-    assert drug["n_accepted"] == int(inside.sum())
+    assert drug["n_used"] == int(inside.sum())
     assert drug["window"] == "last10s"
 
 
@@ -217,7 +217,7 @@ def test_ensemble_beat_matches_the_synthetic_truth():
     ens = summary.ensemble
     truth = syn.truth.beats
     ok = np.array([f == "" for f in truth["flags"]])
-    assert ens is not None and ens.n_beats == summary.values["n_accepted"] >= 20
+    assert ens is not None and ens.n_beats == summary.values["n_used"] >= 20
     assert ens.t0_s < 0 and ens.v_mV.size == round(np.median(truth["cl_ms"][ok]) * 20)
     p = ens.parameters
     assert p["mdp_mV"] == pytest.approx(np.mean(truth["mdp_mV"][ok]), abs=0.5)

@@ -43,7 +43,7 @@ def test_export_reproduces_analyze_byte_for_byte(recordings, tmp_path, capsys, m
     monkeypatch.chdir(recordings)
     code, out, err = _run(
         ["analyze", "cell07.abf", "cell08.abf", "--condition", "baseline=0-8s",
-         "--condition", "drug=8-end,steady=last5s", "--csv", tmp_path / "beats.csv",
+         "--condition", "drug=8s-end,steady=last5s", "--csv", tmp_path / "beats.csv",
          "--summary-csv", tmp_path / "summary.csv", "--out", tmp_path / "results.h5"], capsys)
     assert code == 0, err
     assert "wrote" in out
