@@ -154,7 +154,7 @@ def test_bad_conditions_and_outputs_are_command_line_errors(recordings, tmp_path
         main(["analyze", "cell08.abf", "--condition", "drug=60-20s", "--out", str(tmp_path / "r.h5")])
     assert exit_info.value.code == 2
     assert "ends" in capsys.readouterr().err
-    code, out, err = _run(["analyze", "cell08.abf", "--condition", "a=0-10s", "--condition", "b=5-15s",
+    code, out, err = _run(["analyze", "cell08.abf", "--condition", "a=0-10s", "--condition", "b=5-11s",
                            "--out", tmp_path / "r.h5"], capsys)
     assert code == 2 and "overlap" in err and not (tmp_path / "r.h5").exists()
     code, out, err = _run(["export", tmp_path / "none.h5", "--csv", tmp_path / "b.csv"], capsys)
