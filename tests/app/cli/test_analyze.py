@@ -277,3 +277,19 @@ def test_a_condition_outside_the_recording_exits_2_and_writes_nothing(tmp_path, 
     assert code == 2, err
     assert words in err and str(path) in err and len(err.strip().splitlines()) == 1
     assert not out_csv.exists() and not out_h5.exists() and os.listdir(tmp_path) == [path.name]
+
+
+def test_every_front_end_writes_the_same_review_columns(tmp_path, capsys):
+    # The beats CSV straight from the analysis, through a results file, from export, and as the app
+    # writes it (the session's table, File > Export beats CSV): the same bytes, the same recording id.
+    from analysis.session import Session
+
+    path, _ = _noisy_cell(tmp_path)
+    plain, via, exported = tmp_path / "plain.csv", tmp_path / "via.csv", tmp_path / "export.csv"
+    assert _analyze(capsys, path, "--csv", plain)[0] == 0
+    assert _analyze(capsys, path, "--csv", via, "--out", tmp_path / "r.h5")[0] == 0
+    assert main(["export", str(tmp_path / "r.h5"), "--csv", str(exported)]) == 0
+    session = Session.open(tmp_path / "r.h5")
+    app_text = session.beats(session.recordings[0]).to_csv()
+    assert plain.read_text() == via.read_text() == exported.read_text() == app_text
+    assert "to_review" in app_text
