@@ -51,8 +51,23 @@ from typing import Iterable, Sequence
 import numpy as np
 
 __all__ = [
-    "ACCEPT", "ACCEPTED", "AUTO", "BeatStatus", "CLEAR", "MATCH_TOLERANCE_S", "REJECT", "REJECTED", "STATUSES",
-    "TO_REVIEW", "USER", "Decision", "DecisionLog", "apply_status", "beat_status", "held_for_review", "now_utc",
+    "ACCEPT",
+    "ACCEPTED",
+    "AUTO",
+    "CLEAR",
+    "MATCH_TOLERANCE_S",
+    "REJECT",
+    "REJECTED",
+    "STATUSES",
+    "TO_REVIEW",
+    "USER",
+    "BeatStatus",
+    "Decision",
+    "DecisionLog",
+    "apply_status",
+    "beat_status",
+    "held_for_review",
+    "now_utc",
 ]
 
 ACCEPT, REJECT, CLEAR = 1, 0, -1

@@ -20,9 +20,9 @@ from typing import Callable, Sequence
 import numpy as np
 
 import analysis.flags as flags
-from analysis.decisions import TO_REVIEW, apply_status
 from analysis.beats import ARTEFACT_REASONS, apd_name, marker_columns
 from analysis.chunkpool import use_workers
+from analysis.decisions import TO_REVIEW, apply_status
 from analysis.errors import RecordingError, SettingsError
 from analysis.pipeline._channel import choose_channel, implausible_range_note
 from analysis.pipeline._sweep import analyse_sweep

@@ -55,7 +55,16 @@ import numpy as np
 
 import analysis.pipeline as pipeline
 from analysis.conditions import Condition, check_conditions
-from analysis.decisions import ACCEPT, CLEAR, REJECT, BeatStatus, Decision, DecisionLog, beat_status, now_utc
+from analysis.decisions import (
+    ACCEPT,
+    CLEAR,
+    REJECT,
+    BeatStatus,
+    Decision,
+    DecisionLog,
+    beat_status,
+    now_utc,
+)
 from analysis.errors import RecordingError
 from analysis.readers import open_recording
 from analysis.recording import Recording

@@ -230,7 +230,7 @@ def _noisy_cell(tmp_path):
 
 
 def test_beats_waiting_for_review_are_counted_and_left_out_of_the_summary(tmp_path, capsys):
-    path, centres = _noisy_cell(tmp_path)
+    path, _ = _noisy_cell(tmp_path)
     beats, summary = tmp_path / "beats.csv", tmp_path / "summary.csv"
     code, out, err = _analyze(capsys, path, "--condition", "all=0s-end,steady=all", "--csv", beats,
                               "--summary-csv", summary)
@@ -273,7 +273,7 @@ def test_a_condition_without_a_unit_is_refused_with_the_right_form(tmp_path, cap
 def test_a_condition_outside_the_recording_exits_2_and_writes_nothing(tmp_path, capsys, condition, words):
     path, _ = _cell(tmp_path)  # 3 s, one sweep
     out_csv, out_h5 = tmp_path / "beats.csv", tmp_path / "results.h5"
-    code, out, err = _analyze(capsys, path, "--condition", condition, "--csv", out_csv, "--out", out_h5)
+    code, _, err = _analyze(capsys, path, "--condition", condition, "--csv", out_csv, "--out", out_h5)
     assert code == 2, err
     assert words in err and str(path) in err and len(err.strip().splitlines()) == 1
     assert not out_csv.exists() and not out_h5.exists() and os.listdir(tmp_path) == [path.name]
