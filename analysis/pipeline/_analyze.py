@@ -262,8 +262,9 @@ def flag_and_reject(
 
     Runs :func:`analysis.flags.apply_events` when the settings carry a ``quality`` section, then
     writes each beat's automatic status (:func:`analysis.decisions.apply_status`: accepted,
-    rejected by a rule, or held for review by a flag of ``quality.review_flags``). The events module reads each sweep's preprocessed
-    samples in windows of beats (:class:`analysis.flags.RecordingSweeps`), never a whole sweep.
+    rejected by a rule, or held for review by a flag of ``quality.review_flags``). The events
+    module reads each sweep's preprocessed samples in windows of beats
+    (:class:`analysis.flags.RecordingSweeps`), never a whole sweep.
     ``hum`` says whether any sweep carries hum, or gives each sweep's
     :class:`analysis.signal.HumSurvey` (False where none) as the analysis judged it; ``spikes`` (per
     sweep, the spike spans detection bridged, :attr:`AnalysisResult.spikes`) spares the events

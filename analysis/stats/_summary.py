@@ -10,7 +10,8 @@ The window
 ----------
 One concept, named ``window`` everywhere in a summary: the stretch of the condition its means are
 taken over, chosen by the condition's steady-state rule (``window`` holds the rule;
-``window_start_s`` and ``window_end_s`` the times of its first and last used beat). The
+``window_start_s`` and ``window_end_s`` its start and end, seconds from the start of the
+recording). The
 automatic rule's proposal is ``suggested_window_*``.
 
 What a summary holds
