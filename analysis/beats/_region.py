@@ -156,7 +156,13 @@ def detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total
         # Still above half amplitude where the sweep ends: an upstroke the sweep cuts off, whose
         # width cannot be judged (a beat; the measurement flags it truncated).
         cut_by_end = not right.size and offset + end >= n_total
-        if amp < s.min_amplitude_mV:
+        # The rise counts from the preceding minimum (the diastole since the previous fall below
+        # the low level), not from the low level's crossing: a slow diastolic depolarisation
+        # from a low MDP is a beat even when the adaptive levels sit high (common practice: a
+        # beat's amplitude is peak minus the MDP before it).
+        since = int(falls_all[k - 1]) if k > 0 else 0
+        rise = float(vs[ip]) - float(np.min(vs[since:cross + 1]))
+        if max(amp, rise) < s.min_amplitude_mV:
             continue  # a sub-threshold depolarisation (or noise), not a beat and not an artefact
         if t_right - t_left < width_min and not cut_by_end:
             arts.append(iu + offset)
