@@ -28,7 +28,6 @@ import numpy as np
 from analysis.results import ResultsFile
 from analysis.stats import PARAMETERS
 from analysis.study_layout import StudyEntry, StudyLayout
-from analysis.table import format_value
 
 __all__ = ["VARIABILITY", "cell_condition_table", "parameter_columns", "table_csv"]
 
@@ -210,21 +209,21 @@ def _row(layout: StudyLayout, entries: list[StudyEntry], summaries, cell: str, c
     return row
 
 
-def table_csv(columns: Mapping[str, Sequence], *, decimals: int = 4) -> str:
-    """A table of columns as CSV text (``\\n`` line ends, undefined values empty)."""
+def table_csv(columns: Mapping[str, Sequence], *, digits: int = 8) -> str:
+    """A table of columns as CSV text (``\n`` line ends, numbers to ``digits`` significant
+    digits, undefined values empty)."""
     names = list(columns)
     n = len(columns[names[0]]) if names else 0
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(names)
     for i in range(n):
-        writer.writerow([_cell(columns[c][i], decimals) for c in names])
+        writer.writerow([_cell(columns[c][i], digits) for c in names])
     return out.getvalue()
 
 
-def _cell(value: Any, decimals: int) -> str:
+def _cell(value: Any, digits: int) -> str:
     value = value.item() if hasattr(value, "item") else value
-    if isinstance(value, float | np.floating):
-        return format_value(float(value), decimals)
+    if isinstance(value, float):
+        return f"{value:.{digits}g}" if math.isfinite(value) else ""
     return str(value)
-

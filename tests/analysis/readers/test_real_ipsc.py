@@ -45,7 +45,6 @@ def analysed(real_ipsc_dir):
 
 def test_every_file_reads_unmodified_with_the_current_density_kept_aside(analysed, real_ipsc_dir):
     for row, _, rec, _ in analysed:
-        path = real_ipsc_dir / row["cell"] / row["file"]
         # The README: columns Time (s), Voltage (V), Current (pA/pF); 10 kHz.
         assert [(c.name, c.units, c.clamp_mode) for c in rec.channels] == [
             ("Voltage", "mV", CURRENT_CLAMP), ("Current", "pA/pF", VOLTAGE_CLAMP)]
