@@ -110,3 +110,13 @@ def test_the_results_file_reopens_as_the_same_study(study, tmp_path):
     write_study(out, layout.with_root(study / "elsewhere"))
     assert read_study(out).root == str(study / "elsewhere") or read_study(out).root == str(study)
     np.testing.assert_equal(len(read_study(out).entries), 5)
+
+
+def test_saving_the_results_again_keeps_the_study(study, tmp_path):
+    # The app and `upstroke analyze --out` rewrite the whole file: the layout must survive.
+    layout = StudyLayout.from_pattern(study, "{cell}_*/{condition}.csv")
+    out = tmp_path / "study.h5"
+    save_results(out, [])
+    write_study(out, layout)
+    save_results(out, [])
+    assert read_study(out) == layout
