@@ -104,6 +104,8 @@ def run(args: argparse.Namespace) -> int:
     settings = settings_from_args(args)
     outputs = [p for p in (args.out, args.csv, args.summary_csv, args.study_csv, args.compare) if p]
     _check_outputs(outputs)
+    if not (args.layout or args.sheet):
+        check_request(None, args, None)  # study outputs without a study: before any search
     paths = find_recordings(args.sources, exclude=outputs)
     layout = layout_from_args(args, paths)
     conditions = tuple(c.text() for c in args.conditions)
