@@ -21,6 +21,7 @@ from .options import (
 )
 from .study_outputs import (
     add_layout_options, add_table_options, check_request, layout_from_args, report_layout, study_tables, tasks_conditions,
+    with_study_columns,
 )
 
 __all__ = ["add_parser", "run"]
@@ -145,6 +146,9 @@ def _save_study(layout, args: argparse.Namespace) -> None:
 
     write_study(args.out, layout)
     tables = study_tables(layout, load_results(args.out, verify_sources=False), args)
+    if args.csv:  # the beats CSV gains the study's columns
+        with open(args.csv, encoding="utf-8", newline="") as fh:
+            tables.insert(0, (args.csv, with_study_columns(fh.read(), layout)))
     if tables:
         with atomic_outputs([path for path, _ in tables]) as temps:
             for (_, text), tmp in zip(tables, temps):

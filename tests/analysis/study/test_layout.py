@@ -76,7 +76,8 @@ def test_a_sheet_carries_its_own_columns(study):
     found = [study / "NL-S01_up113/baseline.csv", study / "NL-S01_up113/washout.csv"]
     layout = StudyLayout.from_sheet(sheet, condition_order=["baseline", "drug"], files=found)
     assert layout.extra_columns == ("concentration_uM", "date")
-    assert [e.value("concentration_uM") for e in layout.entries] == ["1", "0", "0"]
+    assert [e.value("concentration_uM") for e in layout.entries] == ["0", "1", "0"]  # the sheet's order
+    assert StudyLayout.from_sheet(sheet).conditions == ("baseline", "drug")
     assert layout.group_column == "group" and layout.groups == ("UP-113", "vehicle")
     assert layout.unmatched == ("NL-S01_up113/washout.csv",)
 
