@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
@@ -344,6 +345,9 @@ FIGURES = (
 class FiguresPanel(QtWidgets.QWidget):
     """The figures as tabs, each with an export button; redrawn only when shown."""
 
+    #: After a verdict, the figures wait this long for the next key before they redraw (ms).
+    SETTLE_MS = 900
+
     def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
         super().__init__(parent)
         self.setObjectName("figures")
@@ -365,19 +369,63 @@ class FiguresPanel(QtWidgets.QWidget):
         layout.addWidget(self.tabs)
         self._input: FigureInput | None = None
         self._dirty: set[str] = set()
+        self._updating = QtWidgets.QLabel("updating…", self)
+        self._updating.setObjectName("figures_updating")
+        self._updating.setStyleSheet(f"background: {palette.PAPER}; color: {palette.INK}; padding: 2px 6px;"
+                                     "border: 1px solid #999; font-style: italic;")
+        self._updating.move(8, 30)
+        self._updating.hide()
+        self._later = QtCore.QTimer(self, singleShot=True, interval=self.SETTLE_MS, timeout=self._redraw_if_needed)
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
-    def set_input(self, data: FigureInput | None) -> None:
+    def set_input(self, data: FigureInput | None, *, defer: bool = False) -> None:
         """New data: the figure shown is redrawn now, the others when their tab is opened;
-        None blanks every figure."""
+        None blanks every figure.
+
+        With ``defer`` (a verdict during a review), the figure shown says it is updating and
+        redraws once the review pauses for :attr:`SETTLE_MS`: keys pressed in a row cost one
+        redraw, not one each.
+        """
         self._input = data
         if data is None:
             for figure in self.figures.values():
                 figure.blank()
             self._dirty = set()
+            self._later.stop()
+            self._updating.hide()
             return
         self._dirty = {key for key, _cls in FIGURES}
+        if defer:
+            self._updating.show()
+            self._updating.raise_()
+            self._later.start()
+            return
+        self._later.stop()
         self._redraw_if_needed()
+
+    def pending(self) -> bool:
+        """Whether a deferred redraw is waiting."""
+        return self._later.isActive()
+
+    def flush(self) -> None:
+        """Run a deferred redraw now."""
+        if self._later.isActive():
+            self._later.stop()
+            self._redraw_if_needed()
+
+    @property
+    def input(self) -> FigureInput | None:
+        """What the figures are drawn from (None: blank)."""
+        return self._input
+
+    def set_current_row(self, row: int) -> None:
+        """Another beat under review: only the figures that draw it (the phase plane) redraw."""
+        if self._input is None or self._input.current_row == row:
+            return
+        self._input = replace(self._input, current_row=int(row))
+        self._dirty.add("phase_plane")
+        if not self._later.isActive():  # else the deferred redraw draws it
+            self._redraw_if_needed()
 
     def current_key(self) -> str:
         return FIGURES[self.tabs.currentIndex()][0]
@@ -402,6 +450,8 @@ class FiguresPanel(QtWidgets.QWidget):
         key = self.current_key()
         if key in self._dirty and self.isVisible():
             self.redraw({key})
+        if key not in self._dirty:
+            self._updating.hide()
 
     def showEvent(self, event) -> None:  # noqa: N802
         super().showEvent(event)

@@ -135,7 +135,7 @@ class Display:
         rows = st.sweep_rows()
         pos = int(np.flatnonzero(rows == row)[0]) if row in rows else 0
         v.beat_card.show_beat(b, row, len(rows), pos)
-        v.figures.set_input(self.figure_input())
+        v.figures.set_current_row(row)
 
     def beats_hidden(self) -> None:
         """The trace without beats (a channel that is not the analysed one)."""
@@ -177,6 +177,9 @@ class Display:
             if rows.size:
                 # The sweep's first beat measured whole: its very first has no diastole before it.
                 st.current_row = int(rows[min(1, rows.size - 1)])
+        if v.figures.input is None:
+            # The first beats of a recording; afterwards the figures follow the summaries.
+            v.figures.set_input(self.figure_input())
         if st.current_row >= 0:
             self.select_beat(st.current_row, follow=False)
         else:
@@ -222,7 +225,11 @@ class Display:
         steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
                   for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
         v.overview.set_conditions(spans, steady)
-        v.figures.set_input(self.figure_input())
+        before, data = v.figures.input, self.figure_input()
+        # The same beats with new verdicts (a review in progress): one redraw when it pauses.
+        reviewing = (before is not None and data is not None and before.recording is data.recording
+                     and len(before.beats) == len(data.beats))
+        v.figures.set_input(data, defer=reviewing)
 
     def figure_input(self) -> FigureInput | None:
         st = self.state
