@@ -12,6 +12,7 @@ import numpy as np
 
 from analysis.batch._task import stored_from_outcome
 from analysis.batch._types import BatchResult
+from analysis.decisions import REJECTED, TO_REVIEW
 from analysis.errors import ResultsFileError
 from analysis.results import ResultsFile, atomic_output, load_results, save_results
 from analysis.settings import Settings
@@ -23,13 +24,19 @@ __all__ = ["SavedBatch", "prepare_existing", "save_batch"]
 
 @dataclass(frozen=True)
 class SavedBatch:
-    """What :func:`save_batch` wrote: the results file, the other outputs, and counts."""
+    """What :func:`save_batch` wrote: the results file, the other outputs, and counts.
+
+    ``n_accepted`` beats are used by the summaries, ``n_rejected`` were rejected and
+    ``n_to_review`` wait for review (of ``n_beats``).
+    """
 
     out: str
     extra: tuple[str, ...]
     n_files: int
     n_beats: int
     n_accepted: int
+    n_rejected: int = 0
+    n_to_review: int = 0
 
 
 def save_batch(
@@ -98,7 +105,9 @@ def save_batch(
         # targets only after it succeeded.
         save_results(out, ResultsFile(recordings, default_json))
     n_acc = int(np.sum(beats["accepted"])) if len(beats) else 0
-    return SavedBatch(os.fspath(out), tuple(extra), len(stored), len(beats), n_acc)
+    verdict = np.asarray(beats["verdict"], dtype=object) if "verdict" in beats else np.empty(0, dtype=object)
+    n_rej, n_wait = (int(np.count_nonzero(verdict == v)) for v in (REJECTED, TO_REVIEW))
+    return SavedBatch(os.fspath(out), tuple(extra), len(stored), len(beats), n_acc, n_rej, n_wait)
 
 
 def _source_key(path: str) -> str:

@@ -193,7 +193,7 @@ def strip_events(beats: BeatTable) -> BeatTable:
         kept = []
         for i, r in enumerate(reasons):
             parts = [p for p in str(r).split("; ") if p and not p.startswith(AUTO_PREFIX)]
-            if str(r) and not parts:
+            if not parts:  # neither a rule's rejection nor a hold for review survives the strip
                 accepted[i] = 1
             kept.append("; ".join(parts))
         reasons = np.array(kept, dtype=object)

@@ -20,6 +20,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 import analysis.flags as flags
+from analysis.decisions import apply_status
 from analysis.beats import ARTEFACT_REASONS, apd_name, marker_columns
 from analysis.chunkpool import use_workers
 from analysis.errors import RecordingError, SettingsError
@@ -189,6 +190,12 @@ def analyze(
         parts.append(cols)
         rise.extend(rise_sw)
     beats = _table(parts, s)
+    # The status columns take their place before the events add theirs (flag_and_reject fills them).
+    k = len(beats)
+    beats = beats.with_columns(
+        recording_id=np.full(k, recording.recording_id, dtype=object), verdict=np.full(k, "", dtype=object),
+        decided_by=np.full(k, "", dtype=object), reviewed=np.zeros(k, np.int64),
+    )
     _sampling_warning(rise, fs, s, warnings)
     if hum_sweeps:
         warnings.append(f"mains hum found and subtracted in sweep(s) {_ranges(hum_sweeps)} (preprocess.hum_removal)")
@@ -253,8 +260,9 @@ def flag_and_reject(
 ) -> tuple[BeatTable, list[str]]:
     """The hook where events and quality rules flag and automatically reject measured beats.
 
-    Runs :func:`analysis.flags.apply_events` when the settings carry a ``quality`` section;
-    otherwise returns the table unchanged. The events module reads each sweep's preprocessed
+    Runs :func:`analysis.flags.apply_events` when the settings carry a ``quality`` section, then
+    writes each beat's automatic status (:func:`analysis.decisions.apply_status`: accepted,
+    rejected by a rule, or held for review by a flag of ``quality.review_flags``). The events module reads each sweep's preprocessed
     samples in windows of beats (:class:`analysis.flags.RecordingSweeps`), never a whole sweep.
     ``hum`` says whether any sweep carries hum, or gives each sweep's
     :class:`analysis.signal.HumSurvey` (False where none) as the analysis judged it; ``spikes`` (per
@@ -262,8 +270,9 @@ def flag_and_reject(
     finding them again; None finds them.
     """
     quality = getattr(settings, "quality", None)
+    review_flags = getattr(quality, "review_flags", ())
     if quality is None or len(beats) == 0:
-        return beats, []
+        return apply_status(beats, None, review_flags), []
 
     # Read in windows (with filter context), so memory stays bounded by a chunk of beats. Without
     # hum in any sweep, the windows need not look for it again.
@@ -272,5 +281,13 @@ def flag_and_reject(
     sweeps_v = flags.RecordingSweeps(recording, channel, scale=scale, preprocess=pre,
                                       hum_surveys=hum if isinstance(hum, dict) else None)
     sweeps_raw = flags.RecordingSweeps(recording, channel, scale=scale)
-    return flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
-                               detection=settings.detection, spikes=spikes)
+    table, warnings = flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
+                                         detection=settings.detection, spikes=spikes)
+    table = apply_status(table, None, review_flags)
+    held = int(np.count_nonzero(table["verdict"] == "to_review"))
+    if held:
+        warnings.append(
+            f"{held} beat(s) wait for review: flagged {', '.join(review_flags)} (quality.review_flags); "
+            "the summaries leave them out until they are accepted or rejected"
+        )
+    return table, warnings

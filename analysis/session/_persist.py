@@ -15,6 +15,7 @@ import os
 import numpy as np
 
 from analysis.conditions import ConditionError, check_conditions
+from analysis.decisions import apply_status
 from analysis.errors import ResultsFileError, SettingsError
 from analysis.results import RecordingFacts, ResultsFile, StoredRecording, facts_values, load_results, save_results
 from analysis.session._types import Entry as _Entry
@@ -77,16 +78,16 @@ def _settings(text: str, path: str, label: str):
         raise ResultsFileError(path, f"the settings of {label} cannot be read: {problem}", "update Upstroke, or analyse the recording again") from None
 
 
-def _auto_table(stored: BeatTable) -> BeatTable:
+def _auto_table(stored: BeatTable, review_flags) -> BeatTable:
     cols = stored.columns()
     for c in AUTO_COLUMNS:
         if c not in cols:
             raise KeyError(c)
     cols["accepted"] = cols.pop("auto_accepted")
     cols["reject_reason"] = cols.pop("auto_reject_reason")
-    cols.pop("reviewed", None)
     cols["condition"] = np.full(len(stored), "", dtype=object)
-    return BeatTable(cols)
+    # The stored status is the reviewed one; the automatic table holds the rules' own.
+    return apply_status(BeatTable(cols), None, review_flags)
 
 
 def _stored_summaries(r: StoredRecording) -> list:
@@ -108,9 +109,9 @@ def _stored_summaries(r: StoredRecording) -> list:
             v, fs, t0 = r.ensembles[i]
             params = {col: float(values[f"ensemble_{col}"]) for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")}
             ens = Ensemble(np.asarray(v), fs, t0, int(values["ensemble_n"]), params)
-        lo, hi = float(values["steady_start_s"]), float(values["steady_end_s"])
+        lo, hi = float(values["suggested_window_start_s"]), float(values["suggested_window_end_s"])
         suggestion = (lo, hi) if math.isfinite(lo) and math.isfinite(hi) else None
-        out.append(Summary(values, suggestion, str(values["steady_note"]), ens))
+        out.append(Summary(values, suggestion, str(values["suggested_window_note"]), ens))
     return out
 
 
@@ -122,8 +123,9 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
     default = _settings(content.default_settings_json, text, "the session") if content.default_settings_json else None
     session = cls(default, match_tolerance_s=match_tolerance_s)
     for r in content.recordings:
+        settings = _settings(r.settings_json, text, r.label)
         try:
-            table = _auto_table(r.beats)
+            table = _auto_table(r.beats, settings.quality.review_flags)
             conditions = check_conditions(r.conditions)
             summaries = _stored_summaries(r)
         except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
@@ -135,7 +137,7 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
         while key in session._entries:  # a file written elsewhere may hold a source twice
             key, n = f"{base}#{n}", n + 1
         session._entries[key] = _Entry(
-            info=info, settings=_settings(r.settings_json, text, r.label), table=table,
+            info=info, settings=settings, table=table,
             warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,
             requested_channel=r.channel, summaries=summaries,
         )

@@ -13,10 +13,10 @@ from typing import Any, Callable, Protocol, Sequence
 import numpy as np
 
 from analysis.conditions import Condition, assign_conditions
-from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
+from analysis.decisions import DecisionLog, apply_status
 import analysis.flags as flags
 from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
-from analysis.recording import Recording
+from analysis.recording import Recording, recording_id
 from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
@@ -27,8 +27,8 @@ EVENTS = (
     "recording_added", "recording_removed", "results_changed", "decisions_changed",
     "conditions_changed", "settings_changed", "history_changed", "saved", "warning",
 )
-#: Columns the session adds to the automatic table in its view.
-VIEW_COLUMNS = ("reviewed",)
+#: Columns the session writes anew in its view of the automatic table.
+VIEW_COLUMNS = ("reviewed", "verdict", "decided_by")
 
 
 class SessionCore(Protocol):
@@ -181,20 +181,12 @@ def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:
     n = len(t)
     sweep = np.asarray(t["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
     t_up = np.asarray(t["t_upstroke_s"], dtype=np.float64) if n else np.empty(0)
-    verdict, reason = e.decisions.state(sweep, t_up, tolerance_s=tolerance_s)
-    accepted = np.asarray(t["accepted"]).copy() if n else np.empty(0, np.int64)
-    reasons = np.array(t["reject_reason"], dtype=object) if "reject_reason" in t else np.full(n, "", dtype=object)
-    decided = verdict != CLEAR
-    accepted[decided] = verdict[decided]
-    reasons[decided & (verdict == ACCEPT)] = ""
-    rejected = decided & (verdict == REJECT)
-    reasons[rejected] = reason[rejected]
     starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
     t_rec = starts[sweep] + t_up if n else np.empty(0)
     condition = assign_conditions(sweep, t_rec, e.conditions)
-    return t.with_columns(
-        accepted=accepted, reject_reason=reasons, condition=condition, reviewed=decided.astype(np.int64),
-    )
+    review_flags = getattr(getattr(e.settings, "quality", None), "review_flags", ())
+    view = apply_status(t, e.decisions, review_flags, tolerance_s=tolerance_s)
+    return view.with_columns(condition=condition, recording_id=np.full(n, recording_id(e.info.sha256), dtype=object))
 
 
 def key_of(source: str) -> str:

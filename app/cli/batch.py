@@ -19,6 +19,7 @@ from typing import Iterator
 from .options import (
     parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
 )
+from .result_line import counts_text
 
 __all__ = ["add_parser", "run"]
 
@@ -143,8 +144,10 @@ def _report(result, saved) -> int:
         print(f"upstroke batch: {len(warnings) - MAX_WARNINGS_SHOWN} more warning(s) are stored with the results",
               file=sys.stderr)
     if saved is not None:
-        print(f"{n_ok} of {n_all} recording(s) analysed on {result.where}: {saved.n_beats} beats "
-              f"({saved.n_accepted} accepted) saved to {saved.out}"
+        counts = {"beats": saved.n_beats, "used": saved.n_accepted, "rejected": saved.n_rejected,
+                  "to_review": saved.n_to_review}
+        print(f"{n_ok} of {n_all} recording(s) analysed on {result.where}: {counts_text(counts)} "
+              f"saved to {saved.out}"
               + "".join(f", {p}" for p in saved.extra), file=sys.stdout)
     failed = result.failed
     if failed:

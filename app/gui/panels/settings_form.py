@@ -85,6 +85,9 @@ class _Editor:
         elif kind == "float list":
             self.widget = QtWidgets.QLineEdit()
             self.widget.setPlaceholderText("e.g. 20, 50, 90")
+        elif kind == "text list":
+            self.widget = QtWidgets.QLineEdit()
+            self.widget.setPlaceholderText("e.g. " + ", ".join((info.choices or ("word",))[:2]))
         else:  # pragma: no cover - the core declares only the kinds above
             raise TypeError(kind)
         self.widget.setObjectName(f"setting_{info.path}")
@@ -98,6 +101,8 @@ class _Editor:
             w.setCurrentIndex(max(0, w.findData(value)))
         elif kind == "float list":
             w.setText(", ".join(f"{v:g}" for v in value))
+        elif kind == "text list":
+            w.setText(", ".join(value))
         elif kind == "optional float":
             w.setValue(w.minimum() if value is None else float(value))
         else:
@@ -115,6 +120,8 @@ class _Editor:
                 return tuple(float(p) for p in text.split(",") if p.strip())
             except ValueError:
                 raise SettingsError(None, f"setting {self.info.path} = {text!r} is not a list of numbers", "write numbers separated by commas, e.g. 20, 50, 90") from None
+        if kind == "text list":
+            return tuple(p.strip() for p in w.text().replace(";", ",").split(",") if p.strip())
         if kind == "optional float":
             return None if w.value() == w.minimum() else float(w.value())
         return w.value()

@@ -31,7 +31,8 @@ def _num(value, decimals: int = 1) -> str:
 def summary_rows(values: Mapping[str, object]) -> list[tuple[str, str]]:
     """The panel's rows for one summary: ``(label, text)``."""
     rows: list[tuple[str, str]] = [
-        ("beats used / all (✕)", f"{values.get('n_accepted', 0)} / {values.get('n_beats', 0)} ({values.get('n_rejected', 0)})"),
+        ("beats used / in window / all", f"{values.get('n_used', 0)} / {values.get('n_in_window', 0)} / {values.get('n_beats', 0)}"),
+        ("rejected, to review", f"{values.get('n_rejected', 0)}, {values.get('n_to_review', 0)}"),
         ("window (s)", f"{_num(values.get('window_start_s'), 1)}–{_num(values.get('window_end_s'), 1)}"),
     ]
     for col, stem, unit in PARAMETERS:
