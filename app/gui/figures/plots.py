@@ -342,6 +342,28 @@ FIGURES = (
 )
 
 
+class _TabNote:
+    """"updating…" after the title of the tab shown, while its figure waits for a redraw."""
+
+    def __init__(self, tabs: QtWidgets.QTabWidget, titles: list[str]) -> None:
+        self.tabs, self.titles, self.shown = tabs, titles, False
+
+    def show(self) -> None:
+        self.shown = True
+        i = self.tabs.currentIndex()
+        self.tabs.setTabText(i, f"{self.titles[i]} (updating…)")
+
+    def hide(self) -> None:
+        if self.shown:
+            self.shown = False
+            for i, title in enumerate(self.titles):
+                if self.tabs.tabText(i) != title:
+                    self.tabs.setTabText(i, title)
+
+    def isVisible(self) -> bool:  # noqa: N802 (as a widget's)
+        return self.shown
+
+
 class FiguresPanel(QtWidgets.QWidget):
     """The figures as tabs, each with an export button; redrawn only when shown."""
 
@@ -369,12 +391,8 @@ class FiguresPanel(QtWidgets.QWidget):
         layout.addWidget(self.tabs)
         self._input: FigureInput | None = None
         self._dirty: set[str] = set()
-        self._updating = QtWidgets.QLabel("updating…", self)
-        self._updating.setObjectName("figures_updating")
-        self._updating.setStyleSheet(f"background: {palette.PAPER}; color: {palette.INK}; padding: 2px 6px;"
-                                     "border: 1px solid #999; font-style: italic;")
-        self._updating.move(8, 30)
-        self._updating.hide()
+        # Said in the tab's title: a label over the figure would have it all repainted.
+        self._updating = _TabNote(self.tabs, [cls.title for _key, cls in FIGURES])
         self._later = QtCore.QTimer(self, singleShot=True, interval=self.SETTLE_MS, timeout=self._redraw_if_needed)
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
@@ -397,11 +415,15 @@ class FiguresPanel(QtWidgets.QWidget):
         self._dirty = {key for key, _cls in FIGURES}
         if defer:
             self._updating.show()
-            self._updating.raise_()
             self._later.start()
             return
         self._later.stop()
         self._redraw_if_needed()
+
+    def mark_updating(self) -> None:
+        """The data behind the figures is changing (new data follows): say so on the figure shown."""
+        if self._input is not None:
+            self._updating.show()
 
     def pending(self) -> bool:
         """Whether a deferred redraw is waiting."""

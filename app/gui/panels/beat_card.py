@@ -74,6 +74,9 @@ class ReasonPicker(QtWidgets.QMenu):
             if not reason:
                 return
         self.last_reason = reason
+        window = self.parentWidget().window() if self.parentWidget() is not None else None
+        if window is not None:
+            window.activateWindow()  # the keys go back to the window's shortcuts
         self.picked.emit(reason)
 
 

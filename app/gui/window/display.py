@@ -19,6 +19,7 @@ from .. import palette
 from ..figures.figure_input import FigureInput, summary_beat_rows
 from .feedback import Feedback
 from .state import WindowState, WindowViews
+from .quick_summary import quick_summaries
 from .summary_job import start_summary
 from .workers import JobRunner
 
@@ -27,6 +28,9 @@ __all__ = ["Display"]
 
 class Display:
     """Draws the state in the views.
+
+    After a review key the full summaries (ensemble beats included, off the GUI thread) wait
+    :attr:`ENSEMBLE_DELAY_MS` for the next key; after any other change, :attr:`SUMMARY_DELAY_MS`.
 
     Parameters
     ----------
@@ -39,13 +43,17 @@ class Display:
         Owner of the refresh timers (the window).
     """
 
+    SUMMARY_DELAY_MS = 250
+    ENSEMBLE_DELAY_MS = 1200
+
     def __init__(self, state: WindowState, views: WindowViews, runner: JobRunner, feedback: Feedback,
                  parent: QtCore.QObject) -> None:
         self.state = state
         self.views = views
         self.runner = runner
         self.feedback = feedback
-        self.summary_timer = QtCore.QTimer(parent, singleShot=True, interval=250, timeout=self.refresh_summary)
+        self.summary_timer = QtCore.QTimer(parent, singleShot=True, interval=self.SUMMARY_DELAY_MS,
+                                           timeout=self.refresh_summary)
         # The overview follows the trace view a few times a second, not on every frame of a pan:
         # redrawing both widgets each frame would halve the frame rate.
         self.overview_timer = QtCore.QTimer(parent, singleShot=True, interval=60, timeout=self.sync_overview_window)
@@ -185,7 +193,7 @@ class Display:
         else:
             v.table.clearSelection()
             v.beat_card.show_beat(None, -1)
-        self.summary_timer.start()
+        self.schedule_summary()
 
     def refresh_conditions(self) -> None:
         st = self.state
@@ -197,7 +205,11 @@ class Display:
         info = st.session.info(st.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, col in zip(conds, colours)]
         self.views.overview.set_conditions(spans, [])
-        self.summary_timer.start()
+        self.schedule_summary()
+
+    def schedule_summary(self, delay_ms: int | None = None) -> None:
+        """Summarise (in the background) once nothing else has changed for a while."""
+        self.summary_timer.start(self.SUMMARY_DELAY_MS if delay_ms is None else int(delay_ms))
 
     def refresh_summary(self) -> None:
         """Summarise the conditions with the session's own job in the background; the session
@@ -214,13 +226,10 @@ class Display:
         st, v = self.state, self.views
         if key != st.key:
             return  # another recording is shown now
-        st.summaries = summaries
         st.summaries_of = (key, len(st.table)) if st.table is not None else None
-        conds = st.session.conditions(st.key)
-        colours = {c.name: palette.condition_colour(i) for i, c in enumerate(conds)}
-        values = [s.values for s in summaries]
-        v.summary_panel.show_summaries(values, colours)
+        values, colours = self._show_summary_values(summaries, set())
         info = st.session.info(st.key)
+        conds = st.session.conditions(st.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), colours[c.name]) for c in conds]
         steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
                   for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
@@ -230,6 +239,14 @@ class Display:
         reviewing = (before is not None and data is not None and before.recording is data.recording
                      and len(before.beats) == len(data.beats))
         v.figures.set_input(data, defer=reviewing)
+
+    def _show_summary_values(self, summaries: list, updating: set[str]) -> tuple[list, dict]:
+        st = self.state
+        st.summaries = summaries
+        colours = {c.name: palette.condition_colour(i) for i, c in enumerate(st.session.conditions(st.key))}
+        values = [s.values for s in summaries]
+        self.views.summary_panel.show_summaries(values, colours, updating=updating)
+        return values, colours
 
     def figure_input(self) -> FigureInput | None:
         st = self.state
@@ -254,7 +271,30 @@ class Display:
 
     def on_decisions_changed(self, key: str, rows: list) -> None:
         if key == self.state.key:
-            self.refresh_beats()
+            self.refresh_verdicts(rows)
+
+    def refresh_verdicts(self, rows: list) -> None:
+        """Verdicts changed on some beats (a review key): their rows in the table, their marks
+        on the trace, the beat card and the summary of their conditions change now; the
+        ensemble beats and the figures follow once the review pauses, saying they are updating."""
+        st, v = self.state, self.views
+        if st.key is None or st.session.info(st.key).channel != st.channel or st.table is None:
+            return
+        st.table = b = st.session.beats(st.key)
+        v.trace_view.set_beats(b)
+        v.table.set_table(b, changed=rows)
+        starts = st.session.info(st.key).sweep_starts_s
+        v.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+        if 0 <= st.current_row < len(b):
+            where = st.sweep_rows()
+            v.beat_card.show_beat(b, st.current_row, len(where), int(np.searchsorted(
+                np.asarray(b["t_upstroke_s"])[where], b["t_upstroke_s"][st.current_row])))
+        if st.summaries and st.summaries_of == (st.key, len(b)):
+            summaries, updating = quick_summaries(st.session, st.key, b, st.summaries, rows)
+            if updating:
+                self._show_summary_values(summaries, updating)
+        v.figures.mark_updating()
+        self.schedule_summary(self.ENSEMBLE_DELAY_MS)
 
     def on_conditions_changed(self, key: str) -> None:
         if key == self.state.key:

@@ -142,9 +142,13 @@ class Reviewer:
             self._after_history_step()
 
     def _after_history_step(self) -> None:
-        # An undone settings change puts the old definitions back: show them in the form too.
-        self.views.settings_form.show_settings(self.state.session.settings(self.state.key))
-        self.display.refresh_all()
+        # A verdict or a condition undone has redrawn what it changed through the session's own
+        # notice. An undone settings change puts the old definitions back: the form shows them,
+        # and everything is drawn again.
+        settings = self.state.session.settings(self.state.key)
+        if settings != self.views.settings_form.settings:
+            self.views.settings_form.show_settings(settings)
+            self.display.refresh_all()
 
     def _can_edit(self) -> bool:
         if self.state.key is None or self.state.beats is None:
