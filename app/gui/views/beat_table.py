@@ -53,6 +53,12 @@ def filter_mask(table: BeatTable, name: str) -> np.ndarray | None:
         return np.array([bool(f) for f in flags], dtype=bool)
     return np.array([name in str(f).split(";") for f in flags], dtype=bool)
 
+_WORD_COLUMNS = ("reject_reason", "flags", "condition", "verdict", "decided_by")
+_DISPLAY, _ALIGN, _USER = QtCore.Qt.DisplayRole, QtCore.Qt.TextAlignmentRole, QtCore.Qt.UserRole
+_BACKGROUND, _FOREGROUND = QtCore.Qt.BackgroundRole, QtCore.Qt.ForegroundRole
+_ROLES = (_DISPLAY, _ALIGN, _USER, _BACKGROUND, _FOREGROUND, QtCore.Qt.ToolTipRole)
+_RIGHT = int(QtCore.Qt.AlignRight | QtCore.Qt.AlignVCenter)
+_LEFT = int(QtCore.Qt.AlignLeft | QtCore.Qt.AlignVCenter)
 #: What the ``accepted`` column shows for each verdict.
 _VERDICT_MARK = {"accepted": "✓", "rejected": "✕", "to_review": "?"}
 
@@ -75,6 +81,9 @@ class BeatTableModel(QtCore.QAbstractTableModel):
         self._order = np.empty(0, dtype=np.int64)
         self._sort: tuple[int, QtCore.Qt.SortOrder] | None = None
         self._filter = "all"
+        self._arrays: list[np.ndarray] = []
+        self._numeric: list[bool] = []
+        self._verdicts: np.ndarray | None = None
         self._rejected_bg = QtGui.QBrush(QtGui.QColor(*palette.REJECTED_BAND[:3], 40))
         self._rejected_fg = QtGui.QBrush(QtGui.QColor(palette.REJECTED_LABEL))
         self._waiting_bg = QtGui.QBrush(QtGui.QColor(*palette.REVIEW_BAND[:3], 50))
@@ -95,6 +104,7 @@ class BeatTableModel(QtCore.QAbstractTableModel):
         names = [n for n in SHOWN_COLUMNS if n in table]
         if len(table) == len(self._table) and names == self._names and len(table):
             self._table = table
+            self._columns_changed()
             if changed is not None:
                 last = len(names) - 1
                 for row in changed:
@@ -109,6 +119,7 @@ class BeatTableModel(QtCore.QAbstractTableModel):
             return
         self.beginResetModel()
         self._table, self._names = table, names
+        self._columns_changed()
         self._make_order()
         self.endResetModel()
 
@@ -164,37 +175,45 @@ class BeatTableModel(QtCore.QAbstractTableModel):
         return None
 
     def _verdict(self, row: int) -> str:
-        if "verdict" in self._table:
-            return str(self._table["verdict"][row])
-        return "accepted" if "accepted" not in self._table or self._table["accepted"][row] else "rejected"
+        return str(self._verdicts[row]) if self._verdicts is not None else "accepted"
+
+    def _columns_changed(self) -> None:
+        """Arrays looked up once per table, not once per cell painted."""
+        t = self._table
+        self._arrays = [t[name] for name in self._names]
+        self._numeric = [name not in _WORD_COLUMNS for name in self._names]
+        if "verdict" in t:
+            self._verdicts = np.asarray(t["verdict"], dtype=object)
+        elif "accepted" in t:
+            self._verdicts = np.where(np.asarray(t["accepted"]) != 0, "accepted", "rejected").astype(object)
+        else:
+            self._verdicts = None
 
     def data(self, index, role=QtCore.Qt.DisplayRole):
-        if not index.isValid():
+        if role not in _ROLES or not index.isValid():
             return None
         row = int(self._order[index.row()])
-        name = self._names[index.column()]
-        if role == QtCore.Qt.DisplayRole:
+        col = index.column()
+        if role == _DISPLAY:
+            name = self._names[col]
             if name == "accepted":
                 return _VERDICT_MARK[self._verdict(row)]
-            return self._text(name, self._table[name][row])
-        if role == QtCore.Qt.TextAlignmentRole:
-            numeric = name not in ("reject_reason", "flags", "condition", "verdict", "decided_by")
-            return int((QtCore.Qt.AlignRight if numeric else QtCore.Qt.AlignLeft) | QtCore.Qt.AlignVCenter)
-        if role in (QtCore.Qt.BackgroundRole, QtCore.Qt.ForegroundRole, QtCore.Qt.ToolTipRole):
-            verdict = self._verdict(row)
-            if verdict == "accepted":
-                return None
-            if role == QtCore.Qt.BackgroundRole:
-                return self._rejected_bg if verdict == "rejected" else self._waiting_bg
-            if role == QtCore.Qt.ForegroundRole:
-                return self._rejected_fg if verdict == "rejected" else None
-            if verdict == "rejected":
-                reason = self._table["reject_reason"][row] if "reject_reason" in self._table else ""
-                return f"rejected: {reason or 'no reason given'}"
-            return f"waiting for a look (flags: {self._table['flags'][row]}); left out of the summaries until reviewed"
-        if role == QtCore.Qt.UserRole:
+            return self._text(name, self._arrays[col][row])
+        if role == _ALIGN:
+            return _RIGHT if self._numeric[col] else _LEFT
+        if role == _USER:
             return row
-        return None
+        verdict = self._verdict(row)
+        if verdict == "accepted":
+            return None
+        if role == _BACKGROUND:
+            return self._rejected_bg if verdict == "rejected" else self._waiting_bg
+        if role == _FOREGROUND:
+            return self._rejected_fg if verdict == "rejected" else None
+        if verdict == "rejected":
+            reason = self._table["reject_reason"][row] if "reject_reason" in self._table else ""
+            return f"rejected: {reason or 'no reason given'}"
+        return f"waiting for a look (flags: {self._table['flags'][row]}); left out of the summaries until reviewed"
 
     @staticmethod
     def _text(name: str, value) -> str:

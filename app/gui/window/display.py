@@ -56,6 +56,7 @@ class Display:
                                            timeout=self.refresh_summary)
         # The overview follows the trace view a few times a second, not on every frame of a pan:
         # redrawing both widgets each frame would halve the frame rate.
+        self._rate_stale = False
         self.overview_timer = QtCore.QTimer(parent, singleShot=True, interval=60, timeout=self.sync_overview_window)
 
     # -- sweeps --------------------------------------------------------------------------------
@@ -177,8 +178,7 @@ class Display:
         v.table.set_table(st.table)
         b = st.table
         if len(b):
-            starts = st.session.info(st.key).sweep_starts_s
-            v.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+            self._show_rate(b)
         if not (0 <= st.current_row < len(b)):
             st.current_row = -1
             rows = st.sweep_rows()
@@ -234,11 +234,18 @@ class Display:
         steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
                   for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
         v.overview.set_conditions(spans, steady)
+        if self._rate_stale and st.table is not None:
+            self._rate_stale = False
+            self._show_rate(st.table)
         before, data = v.figures.input, self.figure_input()
         # The same beats with new verdicts (a review in progress): one redraw when it pauses.
         reviewing = (before is not None and data is not None and before.recording is data.recording
                      and len(before.beats) == len(data.beats))
         v.figures.set_input(data, defer=reviewing)
+
+    def _show_rate(self, b) -> None:
+        starts = self.state.session.info(self.state.key).sweep_starts_s
+        self.views.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
 
     def _show_summary_values(self, summaries: list, updating: set[str]) -> tuple[list, dict]:
         st = self.state
@@ -283,8 +290,7 @@ class Display:
         st.table = b = st.session.beats(st.key)
         v.trace_view.set_beats(b)
         v.table.set_table(b, changed=rows)
-        starts = st.session.info(st.key).sweep_starts_s
-        v.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+        self._rate_stale = True  # the overview's rate strip follows with the summaries
         if 0 <= st.current_row < len(b):
             where = st.sweep_rows()
             v.beat_card.show_beat(b, st.current_row, len(where), int(np.searchsorted(

@@ -161,7 +161,7 @@ def test_save_then_reopen_restores_decisions_conditions_and_settings(window, qtb
 def test_autosave_brings_back_an_unsaved_review(window, qtbot, cell_abf):
     window.select_beat(4)
     window.reject_current("noise")
-    window.add_condition(Condition("drug", 12.0, 20.0))
+    window.add_condition(Condition("drug", 12.0, 16.0))
     assert window.journal.exists()  # written at once, not at exit
     # a crash: the window goes without saving; the same file opened again
     again = MainWindow(interactive=False)
