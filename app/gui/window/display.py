@@ -13,6 +13,7 @@ import os
 import numpy as np
 from PySide6 import QtCore
 
+from analysis import readouts
 from analysis.readouts import recording_times_s
 
 from .. import palette
@@ -144,7 +145,26 @@ class Display:
         rows = st.sweep_rows()
         pos = int(np.flatnonzero(rows == row)[0]) if row in rows else 0
         v.beat_card.show_beat(b, row, len(rows), pos)
+        self.show_overlay(row)
         v.figures.set_current_row(row)
+
+    def show_overlay(self, row: int) -> None:
+        """The beat under review over its condition's mean beat (its summary's ensemble)."""
+        st = self.state
+        b = st.table
+        if b is None or st.recording is None or not (0 <= row < len(b)):
+            self.views.beat_card.overlay.clear()
+            return
+        name = str(b["condition"][row]) if "condition" in b else ""
+        ens = next((s.ensemble for s in st.summaries
+                    if str(s.values["condition"]) == name and s.ensemble is not None and s.ensemble.v_mV.size), None)
+        before_ms, after_ms = (-1e3 * ens.t0_s, 1e3 * float(ens.t_s[-1])) if ens is not None else (250.0, 500.0)
+        one = readouts.aligned_beats(st.recording, b, np.array([row]), channel=st.channel, offset_mV=st.ljp_mV(),
+                                     before_ms=before_ms, after_ms=after_ms)
+        beat = (one.t_ms, one.traces[0]) if one.rows.size else None
+        mean = (1e3 * ens.t_s, ens.v_mV) if ens is not None else None
+        note = f"mean of {ens.n_beats}: {name or 'outside conditions'}" if ens is not None else "mean beat: after the summary"
+        self.views.beat_card.overlay.draw(beat, mean, note)
 
     def beats_hidden(self) -> None:
         """The trace without beats (a channel that is not the analysed one)."""
@@ -234,6 +254,8 @@ class Display:
         steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
                   for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
         v.overview.set_conditions(spans, steady)
+        if 0 <= st.current_row < len(st.table if st.table is not None else ()):
+            self.show_overlay(st.current_row)
         if self._rate_stale and st.table is not None:
             self._rate_stale = False
             self._show_rate(st.table)

@@ -22,7 +22,7 @@ from analysis.session import Session
 from .. import palette
 from ..dialogs.about import CAUTION, AboutDialog
 from ..figures.plots import FiguresPanel
-from ..panels.beat_card import BeatCard, ReasonPicker
+from ..panels.beat_card import BeatCard, ReasonBook, ReasonPicker
 from ..panels.conditions import ConditionsPanel
 from ..panels.cursors import CursorPanel
 from ..panels.settings_form import SettingsForm
@@ -36,7 +36,7 @@ from .display import Display
 from .feedback import Feedback
 from .files import Files
 from .loading import Loader
-from .recent import RecentFiles
+from .recent import RecentFiles, config_dir
 from .reviewing import Reviewer
 from .state import WindowState, WindowViews
 from .workers import JobRunner
@@ -109,7 +109,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.conditions_panel = ConditionsPanel()
         self.summary_panel = SummaryPanel()
         self.settings_form = SettingsForm()
-        self.reason_picker = ReasonPicker(self)
+        self.reason_picker = ReasonPicker(self, book=ReasonBook(config_dir()))
         self.recording_combo = QtWidgets.QComboBox()
         self.recording_combo.setMinimumContentsLength(18)
         self.recording_combo.setToolTip("Recordings of the results file")

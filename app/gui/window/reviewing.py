@@ -14,6 +14,7 @@ from analysis.errors import InputError
 from analysis.readouts import readout
 
 from ..panels.conditions import ConditionDialog
+from ..views.beat_marks import beat_extent
 from .display import Display
 from .feedback import Feedback
 from .state import WindowState, WindowViews
@@ -73,7 +74,8 @@ class Reviewer:
         """Open the reason picker beside the beat under review."""
         if self._can_edit() and self.state.current_row >= 0:
             self._picker_target = ("beat", [self.state.current_row])
-            self.views.reason_picker.open_at(self._beat_global_pos(self.state.current_row), "Reject this beat because…")
+            avoid = self._beat_global_rect(self.state.current_row)
+            self.views.reason_picker.open_at(avoid.topRight(), "Reject this beat because…", avoid=avoid)
 
     def reject_current(self, reason: str) -> None:
         """Reject the beat under review with a reason and move on."""
@@ -124,12 +126,15 @@ class Reviewer:
         if self.state.current_row == row:
             self.next_beat()
 
-    def _beat_global_pos(self, row: int) -> QtCore.QPoint:
-        t = float(self.state.table["t_upstroke_s"][row])
-        vb = self.views.trace_view.vb
+    def _beat_global_rect(self, row: int) -> QtCore.QRect:
+        """The beat on screen, from its MDP to its APD90 marker, the plot's whole height."""
+        view = self.views.trace_view
+        a, e = beat_extent(self.state.table, np.array([row]))
+        vb = view.vb
         (_x0, _x1), (y0, y1) = vb.viewRange()
-        scene = vb.mapViewToScene(QtCore.QPointF(t, y0 + 0.75 * (y1 - y0)))
-        return self.views.trace_view.mapToGlobal(self.views.trace_view.mapFromScene(scene))
+        corners = [view.mapToGlobal(view.mapFromScene(vb.mapViewToScene(QtCore.QPointF(float(x), float(y)))))
+                   for x, y in ((a[0], y1), (e[0], y0))]
+        return QtCore.QRect(corners[0], corners[1]).normalized()
 
     def undo(self) -> None:
         if self._can_edit():

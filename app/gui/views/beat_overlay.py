@@ -1,0 +1,61 @@
+"""The beat under review drawn over its condition's mean beat, aligned at the upstroke.
+
+A small plot for the beat card: the condition's ensemble-averaged beat (from its summary, made
+by the core) as a thick pale line, the beat under review as a thin dark one on the same time
+base, so that a beat that differs from its neighbours shows at a glance.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore
+
+from .. import palette
+
+__all__ = ["BeatOverlay"]
+
+
+class BeatOverlay(pg.PlotWidget):
+    """One beat over a mean beat, both in mV against ms from the upstroke."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent, background=palette.PAPER)
+        self.setObjectName("beat_overlay")
+        self.setMinimumSize(150, 110)
+        plot = self.getPlotItem()
+        plot.setMenuEnabled(False)
+        plot.hideButtons()
+        plot.setMouseEnabled(x=False, y=False)
+        for axis in ("left", "bottom"):
+            plot.getAxis(axis).setPen(palette.INK)
+            plot.getAxis(axis).setTextPen(palette.INK)
+            plot.getAxis(axis).setStyle(tickFont=self.font(), tickTextOffset=2)
+        plot.getAxis("left").setWidth(30)
+        plot.getAxis("bottom").setHeight(18)
+        self.mean = pg.PlotDataItem(pen=pg.mkPen(palette.rgba(palette.RATE, 150), width=4))
+        self.beat = pg.PlotDataItem(pen=pg.mkPen(palette.TRACE, width=1))
+        plot.addItem(self.mean)
+        plot.addItem(self.beat)
+        self.note = pg.TextItem("", color=palette.INK, anchor=(0, 0))
+        self.note.setParentItem(plot.getViewBox())
+        self.note.setPos(QtCore.QPointF(2, 0))
+        self.setToolTip("The beat under review (thin) over its condition's mean beat (thick), aligned at the upstroke")
+
+    def draw(self, beat: tuple[np.ndarray, np.ndarray] | None, mean: tuple[np.ndarray, np.ndarray] | None,
+             note: str = "") -> None:
+        """Draw ``(t_ms, v_mV)`` of the beat and of the mean (either may be None)."""
+        self.beat.setData(*(beat if beat is not None else ([], [])))
+        self.mean.setData(*(mean if mean is not None else ([], [])))
+        self.note.setText(note)
+        if beat is not None or mean is not None:
+            self.getPlotItem().enableAutoRange()
+
+    def clear(self) -> None:
+        self.draw(None, None, "")
+
+    def drawn(self) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+        """What is drawn: ``{"beat": (t_ms, v_mV), "mean": (t_ms, v_mV)}``."""
+        return {name: (np.asarray(item.xData if item.xData is not None else []),
+                       np.asarray(item.yData if item.yData is not None else []))
+                for name, item in (("beat", self.beat), ("mean", self.mean))}
