@@ -16,7 +16,7 @@ from analysis.table import BeatTable
 
 from .. import palette
 
-__all__ = ["BeatTableModel", "BeatTableView", "FILTERS", "SHOWN_COLUMNS", "filter_mask", "header_label"]
+__all__ = ["BeatFilterBar", "BeatTableModel", "BeatTableView", "FILTERS", "SHOWN_COLUMNS", "filter_mask", "header_label"]
 
 #: Columns shown, in order: where and whether, the measured values, then the words.
 SHOWN_COLUMNS = (
@@ -308,3 +308,34 @@ class BeatTableView(QtWidgets.QTableView):
         for i in range(self.beat_model.columnCount()):
             wide = self.beat_model.column_names()[i] in ("reject_reason", "flags")
             header.resizeSection(i, max(44, header.sectionSizeFromContents(i).width() + 4, 110 if wide else 0))
+
+
+class BeatFilterBar(QtWidgets.QWidget):
+    """"show: [which beats]" above the beat table. ``filter_chosen(str)`` gives a key of
+    :data:`FILTERS` or a flag's word."""
+
+    filter_chosen = QtCore.Signal(str)
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
+        super().__init__(parent)
+        from analysis.columns import FLAG_VOCABULARY
+
+        layout = QtWidgets.QHBoxLayout(self)
+        layout.setContentsMargins(2, 0, 2, 0)
+        layout.addWidget(QtWidgets.QLabel("show"))
+        self.combo = QtWidgets.QComboBox()
+        self.combo.setObjectName("beat_filter")
+        self.combo.setToolTip("Which beats the table lists (a verdict given while a filter is on leaves the row in place)")
+        for key, text in FILTERS.items():
+            self.combo.addItem(text, key)
+        self.combo.insertSeparator(self.combo.count())
+        for word in FLAG_VOCABULARY:
+            self.combo.addItem(f"flagged {word}", word)
+        self.combo.activated.connect(lambda i: self.filter_chosen.emit(self.combo.itemData(i)))
+        layout.addWidget(self.combo)
+        layout.addStretch(1)
+
+    def choose(self, key: str) -> None:
+        """Pick a filter as the user would."""
+        self.combo.setCurrentIndex(self.combo.findData(key))
+        self.filter_chosen.emit(key)

@@ -121,6 +121,9 @@ class TraceView(pg.PlotWidget):
             plot.addItem(line, ignoreBounds=True)
             self.cursor_lines.append(line)
         self.cursor_tags = CursorTags(self.cursor_lines)
+        self.gate_line = pg.LabelItem(" ", justify="left")
+        plot.layout.addItem(self.gate_line, 5, 1)
+        self.gate_line.setVisible(False)
         plot.addItem(self.cursor_tags, ignoreBounds=True)
 
         self.vb.sigXRangeChanged.connect(self._on_x_range)
@@ -244,12 +247,13 @@ class TraceView(pg.PlotWidget):
             self._emit_cursors()
 
     def set_readout_text(self, text: str) -> None:
-        """A one-line cursor readout in the title row, left of the legend ("" clears it), so the
-        numbers sit beside the trace without covering it."""
-        self.getPlotItem().titleLabel.setText(text or " ", justify="left", size="9pt", color=palette.INK)
+        """The gates' one-line readout in its own row under the time axis ("" clears it), so it
+        covers neither the trace nor the legend."""
+        self.gate_line.setText(text or " ", justify="left", size="9pt", color=palette.INK)
+        self.gate_line.setVisible(bool(text))
 
     def readout_line(self) -> str:
-        return self.getPlotItem().titleLabel.text
+        return self.gate_line.text if self.gate_line.isVisible() else ""
 
     def _emit_cursors(self, *_args) -> None:
         self.cursors_finished.emit(*self.cursor_times())
@@ -391,7 +395,7 @@ class TraceView(pg.PlotWidget):
         phases.setCheckable(True)
         phases.setChecked(self.phases_visible())
         phases.toggled.connect(self.phases_toggled)
-        cursors = menu.addAction("Two cursors")
+        cursors = menu.addAction("Gates")
         cursors.setCheckable(True)
         cursors.setChecked(self.cursors_visible())
         cursors.toggled.connect(self.cursors_toggled)

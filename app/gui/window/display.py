@@ -73,6 +73,7 @@ class Display:
         ch = st.recording.channels[st.channel]
         offset = st.ljp_mV() if st.beats is not None else 0.0
         v.trace_view.set_sweep(st.levels(sweep), label=ch.name, units=ch.units, offset_mV=offset)
+        v.dvdt_strip.set_sweep(st.levels(sweep), units=ch.units)
         v.trace_view.set_beats(st.beats)
         v.sweep_spin.blockSignals(True)
         v.sweep_spin.setValue(sweep + 1)
