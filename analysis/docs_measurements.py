@@ -123,7 +123,7 @@ def _flags() -> list[str]:
         rule = "yes" if word in auto else ("never" if word == "no_overshoot" else "no")
         if word in FLAG_WORDS:
             rule = "no (left out of summaries)"
-        review = "yes" if word in held and word not in auto else ("(rejected)" if word in held else "no")
+        review = ("yes" if word not in auto else "yes, when not rejected") if word in held else "no"
         rows.append(f"| `{word}` | {_cell(_md(meaning))} | {rule} | {review} |")
     return rows
 

@@ -90,7 +90,7 @@ def test_analyze_gives_identical_outputs_on_every_run(recordings):
     outputs = []
     for run, hash_seed in (("1", "1"), ("2", "4242")):
         args = ["analyze", "cell-a.abf", "cell-b.nwb", "--settings", "settings.toml",
-                "--condition", "baseline=0-2.5s", "--condition", "drug=2.5-end",
+                "--condition", "baseline=0-2.5s", "--condition", "drug=2.5s-end",
                 "--out", f"run{run}.h5", "--csv", f"run{run}.csv", "--summary-csv", f"run{run}-summary.csv"]
         _run(args, recordings, hash_seed)
         outputs.append(run)

@@ -167,7 +167,9 @@ def table_events(beats: BeatTable, quality) -> tuple[dict[str, np.ndarray], list
     return flags, warnings
 
 
-_WARNING_MARKS = ("beat(s) rejected automatically by the quality rules", "beat(s) flagged mdp_drift")
+_WARNING_MARKS = (
+    "beat(s) rejected automatically by the quality rules", "beat(s) flagged mdp_drift", "beat(s) wait for review",
+)
 
 
 def is_event_warning(text: str) -> bool:

@@ -20,7 +20,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 import analysis.flags as flags
-from analysis.decisions import apply_status
+from analysis.decisions import TO_REVIEW, apply_status
 from analysis.beats import ARTEFACT_REASONS, apd_name, marker_columns
 from analysis.chunkpool import use_workers
 from analysis.errors import RecordingError, SettingsError
@@ -284,10 +284,12 @@ def flag_and_reject(
     table, warnings = flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
                                          detection=settings.detection, spikes=spikes)
     table = apply_status(table, None, review_flags)
-    held = int(np.count_nonzero(table["verdict"] == "to_review"))
-    if held:
+    held = np.flatnonzero(table["verdict"] == TO_REVIEW)
+    if held.size:
+        found = {w for f in table["flags"][held] for w in str(f).split(";")}
+        words = ", ".join(w for w in review_flags if w in found)
         warnings.append(
-            f"{held} beat(s) wait for review: flagged {', '.join(review_flags)} (quality.review_flags); "
+            f"{held.size} beat(s) wait for review, flagged {words} (quality.review_flags): "
             "the summaries leave them out until they are accepted or rejected"
         )
     return table, warnings

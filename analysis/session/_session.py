@@ -4,8 +4,11 @@ A :class:`Session` is the model the desktop app and the command line share. It h
 of analysed recordings, keyed by their source path, each with its own settings, its automatic
 beat table (measurement, events and quality rules), the user's review decisions (an append-only
 :class:`~analysis.decisions.DecisionLog`) and its conditions. :meth:`Session.beats` gives the
-table as the user sees it: decisions applied to ``accepted`` and ``reject_reason``, the
-``condition`` column filled in, and a ``reviewed`` column (1 where a review decision applies).
+table as the user sees it: each beat's status (:func:`analysis.decisions.beat_status`: accepted,
+rejected, or held for review by a flag of ``quality.review_flags``) in ``verdict``, ``accepted``,
+``reject_reason``, ``decided_by`` and ``reviewed`` (1 where a review decision applies), the
+``condition`` column filled in, and the ``recording_id``; :meth:`Session.review_status` gives the
+status alone.
 
 Every edit is a command on an undo stack. Change notifications are plain Python callbacks
 (:meth:`Session.subscribe`), so the app can forward them as Qt signals and the core stays
@@ -52,7 +55,7 @@ import numpy as np
 
 import analysis.pipeline as pipeline
 from analysis.conditions import Condition, check_conditions
-from analysis.decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
+from analysis.decisions import ACCEPT, CLEAR, REJECT, BeatStatus, Decision, DecisionLog, beat_status, now_utc
 from analysis.errors import RecordingError
 from analysis.readers import open_recording
 from analysis.recording import Recording
@@ -249,10 +252,10 @@ class Session(SessionHistory, SessionWork):
         Returns
         -------
         BeatTable
-            The automatic table's columns in their order, with ``accepted`` and
-            ``reject_reason`` after the latest applying decision, ``condition`` filled in, and
-            ``reviewed`` (1 where a review decision applies, 0 where the automatic verdict
-            stands).
+            The automatic table's columns in their order, with the status after the latest
+            applying decision (``verdict``, ``accepted``, ``reject_reason``, ``decided_by``,
+            ``reviewed``: 1 where a review decision applies, 0 where the automatic status
+            stands), ``condition`` filled in, and ``recording_id``.
         """
         e = self._entry(key)
         # Kept while nothing it is made of has changed: a review key asks for it more than once.
@@ -274,6 +277,19 @@ class Session(SessionHistory, SessionWork):
         return BeatTable.concat([BeatTable({c: t[c] for c in common}) for t in tables])
 
     # -- decisions ---------------------------------------------------------------------------
+    def review_flags(self, key: str) -> tuple[str, ...]:
+        """The flags that hold a recording's beats for review (its ``quality.review_flags``)."""
+        return tuple(getattr(getattr(self._entry(key).settings, "quality", None), "review_flags", ()))
+
+    def review_status(self, key: str) -> BeatStatus:
+        """Every beat's status, reason and who decided, by row of :meth:`beats`.
+
+        The same :func:`analysis.decisions.beat_status` the beats CSV, the summaries and the
+        command line use: ``status`` is ``accepted``, ``rejected`` or ``to_review``.
+        """
+        e = self._entry(key)
+        return beat_status(e.table, e.decisions, self.review_flags(key), tolerance_s=self.match_tolerance_s)
+
     def decisions(self, key: str) -> DecisionLog:
         """A copy of a recording's decision log (every entry ever made, oldest first)."""
         return self._entry(key).decisions.copy()

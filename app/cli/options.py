@@ -84,7 +84,7 @@ def add_results_arguments(parser: argparse.ArgumentParser) -> None:
                         help="write the summaries (one row per file x sweep group x condition)")
     parser.add_argument("--condition", dest="conditions", type=parse_condition_arg, action="append", default=[],
                         metavar="NAME=START-END[,steady=RULE]",
-                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180-end, "
+                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180s-end, "
                         "or sweeps:0-3; steady=auto|all|last30s|last20beats picks its summary window (repeatable)")
 
 

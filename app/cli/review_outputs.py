@@ -12,8 +12,9 @@ Conditions on the command line
 ------------------------------
 ``--condition NAME=START-END[,steady=RULE]``, repeatable, applies to every file given:
 
-* ``--condition baseline=0-60s --condition drug=60-180s --condition washout=180-end``
-  (seconds from the start of the recording; ``s`` is optional, ``min`` works too: ``1min-3min``);
+* ``--condition baseline=0-60s --condition drug=60-180s --condition washout=180s-end``
+  (seconds from the start of the recording; every range needs a unit, ``s`` or ``min``:
+  ``1min-3min``; ``0-60`` without one is refused);
 * ``--condition drug=sweeps:4-7`` (inclusive sweep numbers, for episodic files);
 * ``,steady=RULE`` chooses the condition's steady-state window for its summary: ``auto`` (the
   suggested steady state, the default), ``all``, ``last30s``, ``last2min`` or ``last20beats``.

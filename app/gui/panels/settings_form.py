@@ -38,7 +38,7 @@ def _bounds_text(info: FieldInfo) -> str:
 
 def field_tooltip(info: FieldInfo) -> str:
     """Rich-text tooltip: what the field means, allowed values, default, published source."""
-    default = (", ".join(f"{v:g}" if isinstance(v, (int, float)) else str(v) for v in info.default)
+    default = (", ".join(v if isinstance(v, str) else f"{v:g}" for v in info.default)
                if isinstance(info.default, tuple) else info.default)
     parts = [f"<b>{html.escape(info.path)}</b>", html.escape(info.doc)]
     bounds = _bounds_text(info)

@@ -38,7 +38,7 @@ def _record(tmp_path, n=50, name="cell.abf") -> StoredRecording:
         settings_hash="abc123", beats=beats,
         decisions=DecisionLog([Decision(0, 3, 2.4, 0, "bump", "2024-02-03T10:00:00.000Z"), Decision(0, 3, 2.4, -1, "", "t2", "undo")]),
         conditions=(parse_condition("baseline=0-60s"), parse_condition("drug=sweeps:2-end,steady=last20beats")),
-        summary={"file": np.array([name], dtype=object), "n_accepted": np.array([49]), "cl_mean_ms": np.array([np.nan])},
+        summary={"file": np.array([name], dtype=object), "n_used": np.array([49]), "cl_mean_ms": np.array([np.nan])},
         ensembles=[(np.linspace(-60, 20, 100), 10_000.0, -0.3)], warnings=("one", "two"), provenance=provenance_now(),
     )
 

@@ -99,7 +99,7 @@ def test_notifications_are_plain_callbacks(session):
 
 def test_conditions_are_checked_and_fill_the_column(session, syn):
     key = session.recordings[0]
-    session.set_conditions(key, [parse_condition("drug=10-end,steady=last5beats"), parse_condition("baseline=0-10s")])
+    session.set_conditions(key, [parse_condition("drug=10s-end,steady=last5beats"), parse_condition("baseline=0-10s")])
     conds = session.conditions(key)
     assert [c.name for c in conds] == ["baseline", "drug"]  # sorted by start
     b = session.beats(key)
@@ -108,11 +108,11 @@ def test_conditions_are_checked_and_fill_the_column(session, syn):
     with pytest.raises(ConditionError, match="overlap"):
         session.add_condition(key, parse_condition("washout=9-12s"))
     with pytest.raises(ConditionError, match="two conditions"):
-        session.add_condition(key, parse_condition("drug=30-40s"))
+        session.add_condition(key, parse_condition("drug=15-18s"))
     session.replace_condition(key, "drug", Condition("drug", 10.0, math.inf, steady=SteadyState("all")))
     rows = {s.values["condition"]: s.values for s in session.summaries(key)}
     assert rows["drug"]["window"] == "all"
-    assert rows["drug"]["n_accepted"] == int(((b["condition"] == "drug") & (b["accepted"] == 1)).sum())
+    assert rows["drug"]["n_used"] == int(((b["condition"] == "drug") & (b["accepted"] == 1)).sum())
 
 
 @pytest.mark.parametrize(
@@ -120,7 +120,7 @@ def test_conditions_are_checked_and_fill_the_column(session, syn):
     [
         ("baseline=0-60s", ("baseline", 0.0, 60.0, "s", "auto")),
         ("drug=1min-3.5min,steady=last30s", ("drug", 60.0, 210.0, "s", "last30s")),
-        ("washout=180-end", ("washout", 180.0, math.inf, "s", "auto")),
+        ("washout=180s-end", ("washout", 180.0, math.inf, "s", "auto")),
         ("episodic=sweeps:2-5,steady=last20beats", ("episodic", 2.0, 5.0, "sweeps", "last20beats")),
         ("one=sweep:4,steady=all", ("one", 4.0, 4.0, "sweeps", "all")),
     ],
@@ -208,7 +208,7 @@ def test_save_and_open_restore_the_session_exactly(session, syn, tmp_path):
     session.reject(key, [2, 3], "bump")
     session.accept(key, [4])
     session.undo()
-    session.set_conditions(key, [parse_condition("baseline=0-9.5s,steady=last5beats"), parse_condition("drug=9.5-end")])
+    session.set_conditions(key, [parse_condition("baseline=0-9.5s,steady=last5beats"), parse_condition("drug=9.5s-end")])
     session.set_settings(Settings().replace("quality.noise_max_mV_rms", 0.5))
     assert session.modified
     path = tmp_path / "study.h5"
@@ -257,7 +257,7 @@ def test_summary_jobs_are_kept_only_while_current(session):
     assert not session.set_summaries(stale, stale())
     now = session.summaries(key)
     assert now is not fresh
-    assert now[0].values["n_accepted"] == fresh[0].values["n_accepted"] - 1
+    assert now[0].values["n_used"] == fresh[0].values["n_used"] - 1
 
 
 def test_saving_twice_gives_identical_datasets(session, tmp_path):
@@ -409,5 +409,5 @@ def test_summaries_prepared_before_a_decision_are_not_kept(episodic):
     s.reject(key, [1], "bump")  # the user goes on reviewing while the job runs
     change = job()
     assert s.apply_settings(change) and s.cached_summaries(key) is None
-    n = change.summaries[key][0].values["n_accepted"]
-    assert s.summaries(key)[0].values["n_accepted"] == n - 1
+    n = change.summaries[key][0].values["n_used"]
+    assert s.summaries(key)[0].values["n_used"] == n - 1

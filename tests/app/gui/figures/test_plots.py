@@ -115,7 +115,7 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
     w = steady_window
     beats = w.session.beats(w.key)
     (summary,) = [s for s in w.session.summaries(w.key) if s.values["condition"] == "baseline"]
-    n = int(summary.values["n_accepted"])
+    n = int(summary.values["n_used"])
     in_condition = int(np.sum((beats["condition"] == "baseline") & (beats["accepted"] == 1)))
     by_hand = _last_5_s(beats, w.recording.sweep_starts_s)
     assert n == by_hand.size and 4 <= n < in_condition - 5  # the window is shorter than the condition
@@ -161,7 +161,7 @@ def test_summary_rows_read_back_match_the_rows_the_summary_listed(steady_window)
     assert listed.keys() == again.keys() and len(listed) >= 1
     for name, (rows, rule) in listed.items():
         assert np.array_equal(again[name][0], rows) and again[name][1] == rule
-        assert rows.size == sum(int(s.values["n_accepted"]) for s in summaries if s.values["condition"] == name)
+        assert rows.size == sum(int(s.values["n_used"]) for s in summaries if s.values["condition"] == name)
 
 
 def test_without_summaries_the_legend_says_every_accepted_beat(panel):

@@ -82,7 +82,7 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     keep = Session.set_summaries
     monkeypatch.setattr(Session, "set_summaries", lambda s, job, result: applied.append(keep(s, job, result)) or applied[-1])
     key = window.key
-    n0, rows0 = window.summaries[0].values["n_accepted"], window.summaries[0].beat_rows
+    n0, rows0 = window.summaries[0].values["n_used"], window.summaries[0].beat_rows
     window.select_beat(3)
     window.reject_current("noise")
     window.display.refresh_summary()  # a job for this state...
@@ -93,6 +93,6 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     assert sorted(applied) == [False, True]
     assert window.summaries is window.session.cached_summaries(key)
     # A rejected beat leaves the pooled summary if it was in it (common practice, no source).
-    assert window.summaries[0].values["n_accepted"] == n0 - int(3 in rows0) - int(6 in rows0)
+    assert window.summaries[0].values["n_used"] == n0 - int(3 in rows0) - int(6 in rows0)
     values = window.summary_panel.summaries[0]
-    assert values["n_accepted"] == window.summaries[0].values["n_accepted"]
+    assert values["n_used"] == window.summaries[0].values["n_used"]
