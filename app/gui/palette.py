@@ -42,7 +42,7 @@ FLAG_BAND = (224, 159, 31, 34)
 FLAG_LABEL = "#8a5a00"
 QUIET_FLAGS = ("no_diastole", "truncated")
 #: Beats waiting for a look (a flag that holds them out of the summaries until reviewed).
-REVIEW_BAND = (230, 126, 20, 60)
+REVIEW_BAND = (230, 126, 20, 38)
 
 #: The beat under review.
 CURRENT_BAND = (29, 53, 87, 28)

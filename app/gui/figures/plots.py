@@ -377,6 +377,9 @@ class FiguresPanel(QtWidgets.QWidget):
         layout.setContentsMargins(0, 0, 0, 0)
         self.tabs = QtWidgets.QTabWidget()
         self.tabs.setDocumentMode(True)
+        # Every tab reachable without scroll arrows: narrow windows shorten the titles instead.
+        self.tabs.setUsesScrollButtons(False)
+        self.tabs.setElideMode(QtCore.Qt.ElideRight)
         self.figures: dict[str, _Figure] = {}
         for key, cls in FIGURES:
             fig = cls()
@@ -384,7 +387,7 @@ class FiguresPanel(QtWidgets.QWidget):
             self.figures[key] = fig
             self.tabs.addTab(fig, cls.title)
         export = QtWidgets.QToolButton()
-        export.setText("Export figure…")
+        export.setText("Export…")
         export.setToolTip("Save the figure shown as PNG or SVG")
         export.clicked.connect(self._export_dialog)
         self.tabs.setCornerWidget(export, QtCore.Qt.TopRightCorner)

@@ -254,7 +254,7 @@ class BeatCard(QtWidgets.QFrame):
             self.verdict.setText("")
             for label in self.value_labels.values():
                 label.setText("—")
-            self.overlay.clear()
+            self.overlay.blank()
             return
         r = beats.row(row)
         self.title.setText(f"sweep {r['sweep']} · beat {r['beat']}" + (f"  ({position + 1} of {n_in_sweep})" if n_in_sweep else ""))

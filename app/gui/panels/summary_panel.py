@@ -65,9 +65,11 @@ class SummaryPanel(QtWidgets.QTableWidget):
         self.setFont(font)
         self.verticalHeader().setFont(font)
         self.horizontalHeader().setFont(font)
-        self.verticalHeader().setDefaultSectionSize(19)
+        self.verticalHeader().setDefaultSectionSize(18)
+        self.verticalHeader().setMinimumSectionSize(16)
         self.horizontalHeader().setStretchLastSection(False)
-        self.horizontalHeader().setSectionResizeMode(QtWidgets.QHeaderView.ResizeToContents)
+        # The conditions share the width (no sideways scrolling in a narrow window).
+        self.horizontalHeader().setSectionResizeMode(QtWidgets.QHeaderView.Stretch)
         self.summaries: list[Mapping[str, object]] = []
         self.show_summaries([])
 

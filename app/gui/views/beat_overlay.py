@@ -48,10 +48,19 @@ class BeatOverlay(pg.PlotWidget):
         self.beat.setData(*(beat if beat is not None else ([], [])))
         self.mean.setData(*(mean if mean is not None else ([], [])))
         self.note.setText(note)
-        if beat is not None or mean is not None:
-            self.getPlotItem().enableAutoRange()
+        parts = [p for p in (beat, mean) if p is not None and len(p[0])]
+        if parts:
+            x = np.concatenate([np.asarray(p[0], float) for p in parts])
+            y = np.concatenate([np.asarray(p[1], float) for p in parts])
+            ok = np.isfinite(x) & np.isfinite(y)
+            if ok.any():
+                plot = self.getPlotItem()
+                plot.setXRange(float(x[ok].min()), float(x[ok].max()), padding=0.02)
+                plot.setYRange(float(y[ok].min()), float(y[ok].max()), padding=0.06)
 
-    def clear(self) -> None:
+    def blank(self) -> None:
+        """Nothing drawn (no beat under review). Not ``clear``: a plot widget's ``clear``
+        removes its items."""
         self.draw(None, None, "")
 
     def drawn(self) -> dict[str, tuple[np.ndarray, np.ndarray]]:

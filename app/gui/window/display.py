@@ -154,7 +154,7 @@ class Display:
         st = self.state
         b = st.table
         if b is None or st.recording is None or not (0 <= row < len(b)):
-            self.views.beat_card.overlay.clear()
+            self.views.beat_card.overlay.blank()
             return
         name = str(b["condition"][row]) if "condition" in b else ""
         ens = next((s.ensemble for s in st.summaries
@@ -164,7 +164,7 @@ class Display:
                                      before_ms=before_ms, after_ms=after_ms)
         beat = (one.t_ms, one.traces[0]) if one.rows.size else None
         mean = (1e3 * ens.t_s, ens.v_mV) if ens is not None else None
-        note = f"mean of {ens.n_beats}: {name or 'outside conditions'}" if ens is not None else "mean beat: after the summary"
+        note = f"mean of {ens.n_beats}" if ens is not None else "mean: after the summary"
         self.views.beat_card.overlay.draw(beat, mean, note)
 
     def beats_hidden(self) -> None:
