@@ -36,7 +36,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from gui_bench import REPO, write_long_abf  # noqa: E402  (the same long recording)
+from gui_bench import REPO, write_long_abf
 
 WIDTH, HEIGHT = 1366, 768
 PRESSES = 20
@@ -65,9 +65,9 @@ def _press(window, app, sequence: str) -> None:
 
 def _window_run(path: Path, minutes: float, profile: str | None) -> dict:
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    from analysis.conditions import Condition
     from app.gui.window.launch import application
     from app.gui.window.main_window import MainWindow
-    from analysis.conditions import Condition
 
     app = application()
     window = MainWindow(interactive=False)

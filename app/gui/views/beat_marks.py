@@ -21,7 +21,7 @@ from analysis.table import BeatTable
 from .. import palette
 from .bands import SpanBands
 
-__all__ = ["BeatMarks", "MARKER_COLUMNS", "column_of", "beat_extent", "verdicts"]
+__all__ = ["MARKER_COLUMNS", "BeatMarks", "beat_extent", "column_of", "verdicts"]
 
 #: The marker kinds and the beat-table columns giving each marker's time and potential.
 MARKER_COLUMNS = {

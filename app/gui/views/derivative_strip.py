@@ -18,7 +18,7 @@ from analysis.signal import savgol_derivative
 from .. import palette
 from .trace_data import SweepLevels
 
-__all__ = ["DerivativeStrip", "MAX_SAMPLES", "WINDOW_MS"]
+__all__ = ["MAX_SAMPLES", "WINDOW_MS", "DerivativeStrip"]
 
 #: The derivative's window (ms): narrow enough to keep a nodal upstroke's peak rate.
 WINDOW_MS = 1.0

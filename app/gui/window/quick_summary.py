@@ -10,8 +10,8 @@ off the GUI thread) replaces them; :func:`merge_quick` says which conditions wai
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from dataclasses import replace
-from typing import Iterable
 
 import numpy as np
 

@@ -7,10 +7,10 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
-from PySide6 import QtCore  # noqa: E402
-from PySide6.QtTest import QTest  # noqa: E402
+from PySide6 import QtCore
+from PySide6.QtTest import QTest
 
-from app.gui.panels.beat_card import REASONS, ReasonBook, ReasonPicker  # noqa: E402
+from app.gui.panels.beat_card import REASONS, ReasonBook, ReasonPicker
 
 
 def _numbers(picker: ReasonPicker) -> dict[str, int]:

@@ -9,13 +9,13 @@ import pytest
 
 pytest.importorskip("pytestqt")
 
-from PySide6 import QtCore  # noqa: E402
-from PySide6.QtTest import QTest  # noqa: E402
+from PySide6 import QtCore
+from PySide6.QtTest import QTest
 
-from analysis import open_recording  # noqa: E402
-from analysis.pipeline import analyze  # noqa: E402
-from app.demo_data import demo_paths  # noqa: E402
-from app.gui.window.main_window import MainWindow  # noqa: E402
+from analysis import open_recording
+from analysis.pipeline import analyze
+from app.demo_data import demo_paths
+from app.gui.window.main_window import MainWindow
 
 
 @pytest.fixture(scope="module")
