@@ -99,6 +99,8 @@ class AlignedBeatsFigure(_Figure):
 
     title = "Aligned beats"
     MAX_DRAWN = 30
+    #: Points per faint beat, at most.
+    FAINT_POINTS = 700
     MAX_AVERAGED = 400
 
     def __init__(self, parent=None) -> None:
@@ -132,8 +134,15 @@ class AlignedBeatsFigure(_Figure):
             self.averages[name] = aligned
             faint = pg.mkPen(palette.rgba(colour, 30), width=1)
             drawn = np.unique(np.linspace(0, aligned.rows.size - 1, min(aligned.rows.size, self.MAX_DRAWN)).round().astype(int))
-            for trace in aligned.traces[drawn]:
-                self.plot.plot(aligned.t_ms, trace, pen=faint)
+            # The faint beats as one item, each ending where the next begins unjoined: one path
+            # to draw (and to repaint when a window over the figure closes) instead of thirty.
+            # Each faint beat is thinned to about a point per pixel (their average is not).
+            step = max(1, aligned.t_ms.size // self.FAINT_POINTS)
+            t_ms, traces = aligned.t_ms[::step], aligned.traces[drawn][:, ::step]
+            x = np.tile(t_ms, len(traces))
+            join = np.ones(x.size, dtype=np.int32)
+            join[t_ms.size - 1::t_ms.size] = 0
+            self.plot.plot(x, traces.reshape(-1), pen=faint, connect=join)
             label = f"{_group_label(name)}: n = {rows.size} ({which}"
             if aligned.rows.size < rows.size:
                 label += f"; mean of {aligned.rows.size} spread evenly"

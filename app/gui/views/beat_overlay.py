@@ -33,8 +33,12 @@ class BeatOverlay(pg.PlotWidget):
             plot.getAxis(axis).setStyle(tickFont=self.font(), tickTextOffset=2)
         plot.getAxis("left").setWidth(30)
         plot.getAxis("bottom").setHeight(18)
-        self.mean = pg.PlotDataItem(pen=pg.mkPen(palette.rgba(palette.RATE, 150), width=4))
-        self.beat = pg.PlotDataItem(pen=pg.mkPen(palette.TRACE, width=1))
+        # A few hundred pixels wide: the beats' thousands of samples are drawn peak-decimated,
+        # and the mean with a two-pixel pen (wider pens cost the raster engine a stroke each).
+        plot.setDownsampling(auto=True, mode="peak")
+        plot.setClipToView(True)
+        self.mean = pg.PlotDataItem(pen=pg.mkPen(palette.rgba(palette.RATE, 170), width=2.5), skipFiniteCheck=True)
+        self.beat = pg.PlotDataItem(pen=pg.mkPen(palette.TRACE, width=1), skipFiniteCheck=True)
         plot.addItem(self.mean)
         plot.addItem(self.beat)
         self.note = pg.TextItem("", color=palette.INK, anchor=(0, 0))

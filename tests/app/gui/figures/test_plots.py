@@ -91,7 +91,8 @@ def steady_window(cell_window, cell_result):
     w = cell_window(size=(1400, 900))
     rec, _ = cell_result
     assert w.key is not None
-    assert w.add_condition(Condition("baseline", 0.0, 17.0, "s", SteadyState("last_s", 5.0)))
+    end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
+    assert w.add_condition(Condition("baseline", 0.0, end, "s", SteadyState("last_s", 5.0)))  # the whole recording
     t = plotdata.recording_times_s(w.session.beats(w.key), rec.sweep_starts_s)
     w.select_beat(int(np.flatnonzero(t > t.max() - 3.0)[0]))
     w.reject_current("noise")
@@ -119,7 +120,7 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
     in_condition = int(np.sum((beats["condition"] == "baseline") & (beats["accepted"] == 1)))
     by_hand = _last_5_s(beats, w.recording.sweep_starts_s)
     assert n == by_hand.size and 4 <= n < in_condition - 5  # the window is shorter than the condition
-    assert w.summary_panel.cell_text("beats used / all (✕)").startswith(f"{n} / ")
+    assert w.summary_panel.cell_text("beats used / in window / all").startswith(f"{n} / ")
     figure = w.figures.figures["aligned"]
     assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
     avg = figure.averages["baseline"]
