@@ -103,6 +103,8 @@ class BeatMarks:
         self._span = (np.inf, -np.inf)
         self._drawn: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self._rejected_rows = np.empty(0, dtype=np.int64)
+        self._points: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+        self._band_keys: dict[int, tuple] = {}
 
     def set_beats(self, beats: BeatTable | None, rows: np.ndarray, v_up: np.ndarray, view: tuple[float, float]) -> None:
         """A sweep's beats (``rows`` in upstroke order, ``v_up`` the trace at each upstroke);
@@ -145,6 +147,7 @@ class BeatMarks:
                 item.setData([], [])
             for bands in (self.reject_bands, self.flag_bands):
                 bands.set_bands([], [], [])
+            self._points, self._band_keys = {}, {}
             self._rejected_rows = np.empty(0, np.int64)
             return
         verdict = verdicts(b, rows)
@@ -155,15 +158,15 @@ class BeatMarks:
             t = column_of(b, t_name, rows)
             v = v_up if kind == "upstroke" else apd90_v if kind == "apd90" else column_of(b, v_name, rows)
             ok = shown & np.isfinite(t) & np.isfinite(v)
-            self._drawn[kind] = (t[ok], v[ok], rows[ok])
-            self.markers[kind].setData(t[ok], v[ok], data=rows[ok])
+            self._set_points(kind, self.markers[kind], t[ok], v[ok], rows[ok])
         rej = rows[~shown]
         self._rejected_rows = rej
-        self.rejected_markers.setData(column_of(b, "t_upstroke_s", rej), v_up[~shown], data=rej)
+        self._set_points("rejected", self.rejected_markers, column_of(b, "t_upstroke_s", rej), v_up[~shown], rej)
+        self._drawn.pop("rejected")
         start, end = beat_extent(b, rej)
         reasons = b.get("reject_reason")
         labels = [f"✕ {reasons[r]}" if reasons is not None and reasons[r] else "✕ rejected" for r in rej]
-        self.reject_bands.set_bands(start, end, [palette.REJECTED_BAND] * len(rej), labels)
+        self._set_bands(self.reject_bands, start, end, [palette.REJECTED_BAND] * len(rej), labels)
         # Beats waiting for a look, and accepted beats with flags the review should see.
         flags = np.asarray(b["flags"], dtype=object)[rows] if "flags" in b else np.full(rows.size, "", dtype=object)
         words = [_flag_words(f) for f in flags]
@@ -173,4 +176,19 @@ class BeatMarks:
         labels = [("? to review: " if wait else "⚑ ") + (w or "flagged")
                   for w, wait, m in zip(words, waiting, marked) if m]
         colours = [palette.REVIEW_BAND if wait else palette.FLAG_BAND for wait, m in zip(waiting, marked) if m]
-        self.flag_bands.set_bands(fa, fe, colours, labels)
+        self._set_bands(self.flag_bands, fa, fe, colours, labels)
+
+    def _set_points(self, kind: str, item: pg.ScatterPlotItem, t: np.ndarray, v: np.ndarray, rows: np.ndarray) -> None:
+        """Give a marker item its points, unless it has them already (a verdict changes one
+        beat: the other kinds keep theirs, and pyqtgraph builds nothing again)."""
+        before = self._points.get(kind)
+        if before is None or not all(np.array_equal(a, b, equal_nan=True) for a, b in zip(before, (t, v, rows))):
+            item.setData(t, v, data=rows)
+            self._points[kind] = (t, v, rows)
+        self._drawn[kind] = (t, v, rows)
+
+    def _set_bands(self, bands: SpanBands, t0, t1, colours, labels) -> None:
+        key = (np.asarray(t0).tobytes(), np.asarray(t1).tobytes(), [tuple(c) for c in colours], list(labels))
+        if self._band_keys.get(id(bands)) != key:
+            bands.set_bands(t0, t1, colours, labels)
+            self._band_keys[id(bands)] = key
