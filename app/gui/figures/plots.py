@@ -107,6 +107,10 @@ class AlignedBeatsFigure(_Figure):
         super().__init__(parent)
         self.plot = self.addPlot()
         _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
+        # The averages are drawn peak-decimated to the plot's width: thick pens over thousands of
+        # samples made every repaint (a menu closing over the figure) cost tens of ms.
+        self.plot.setDownsampling(auto=True, mode="peak")
+        self.plot.setClipToView(True)
         self.legend = _legend(self.plot, (-10, 10))
         self.averages: dict[str, readouts.AlignedBeats] = {}
 
@@ -142,7 +146,9 @@ class AlignedBeatsFigure(_Figure):
             x = np.tile(t_ms, len(traces))
             join = np.ones(x.size, dtype=np.int32)
             join[t_ms.size - 1::t_ms.size] = 0
-            self.plot.plot(x, traces.reshape(-1), pen=faint, connect=join)
+            background = self.plot.plot(x, traces.reshape(-1), pen=faint, connect=join)
+            background.setDownsampling(ds=1, auto=False)  # x runs back at each beat: thinned above
+            background.setClipToView(False)
             label = f"{_group_label(name)}: n = {rows.size} ({which}"
             if aligned.rows.size < rows.size:
                 label += f"; mean of {aligned.rows.size} spread evenly"

@@ -93,6 +93,8 @@ class ReasonPicker(QtWidgets.QMenu):
         self.book = book if book is not None else ReasonBook()
         self.last_reason: str | None = None
         self._typed = ""
+        self._built: list[tuple[int, str]] | None = None
+        self._head: QtGui.QAction | None = None
         self.triggered.connect(self._on_triggered)
 
     def open_at(self, global_pos: QtCore.QPoint, title: str = "Reject because…", *,
@@ -102,17 +104,26 @@ class ReasonPicker(QtWidgets.QMenu):
         ``avoid`` (global coordinates) is the beat and its markers: the picker opens beside it,
         right of it if there is room on its screen, else left of it.
         """
-        self.clear()
         self._typed = ""
-        head = self.addAction(title)
-        head.setEnabled(False)
-        for number, reason in self.book.numbered():
-            mark = "  ◂ last" if reason == self.last_reason else ""
-            action = self.addAction(f"{number}  {reason}{mark}")
-            action.setData(reason)
-        self.addSeparator()
-        other = self.addAction("0  other…")
-        other.setData("")
+        numbered = self.book.numbered()
+        if self._built != numbered:
+            # Built once per list of reasons: opening the picker on every R costs no widgets.
+            self.clear()
+            self._head = self.addAction(title)
+            self._head.setEnabled(False)
+            for number, reason in numbered:
+                self.addAction(f"{number}  {reason}").setData(reason)
+            self.addSeparator()
+            self.addAction("0  other…").setData("")
+            self._built = numbered
+        self._head.setText(title)
+        for action in self.reason_actions():
+            reason = action.data()
+            if reason:
+                number = self.book.number_of(reason)
+                text = f"{number}  {reason}" + ("  ◂ last" if reason == self.last_reason else "")
+                if action.text() != text:
+                    action.setText(text)
         self.popup(self.place(global_pos, avoid))
 
     def place(self, global_pos: QtCore.QPoint, avoid: QtCore.QRect | None) -> QtCore.QPoint:
