@@ -30,6 +30,7 @@ from .. import palette
 from ..views.bands import BandLabels, SpanBands
 from .figure_export import export_figure
 from .figure_input import _WHOLE_RULES, FigureInput, summary_beat_rows
+from .tab_note import TabNote
 
 __all__ = ["FigureInput", "FiguresPanel", "export_figure", "summary_beat_rows", "FIGURES"]
 
@@ -357,28 +358,6 @@ FIGURES = (
 )
 
 
-class _TabNote:
-    """"updating…" after the title of the tab shown, while its figure waits for a redraw."""
-
-    def __init__(self, tabs: QtWidgets.QTabWidget, titles: list[str]) -> None:
-        self.tabs, self.titles, self.shown = tabs, titles, False
-
-    def show(self) -> None:
-        self.shown = True
-        i = self.tabs.currentIndex()
-        self.tabs.setTabText(i, f"{self.titles[i]} (updating…)")
-
-    def hide(self) -> None:
-        if self.shown:
-            self.shown = False
-            for i, title in enumerate(self.titles):
-                if self.tabs.tabText(i) != title:
-                    self.tabs.setTabText(i, title)
-
-    def isVisible(self) -> bool:  # noqa: N802 (as a widget's)
-        return self.shown
-
-
 class FiguresPanel(QtWidgets.QWidget):
     """The figures as tabs, each with an export button; redrawn only when shown."""
 
@@ -410,7 +389,7 @@ class FiguresPanel(QtWidgets.QWidget):
         self._input: FigureInput | None = None
         self._dirty: set[str] = set()
         # Said in the tab's title: a label over the figure would have it all repainted.
-        self._updating = _TabNote(self.tabs, [cls.title for _key, cls in FIGURES])
+        self._updating = TabNote(self.tabs, [cls.title for _key, cls in FIGURES])
         self._later = QtCore.QTimer(self, singleShot=True, interval=self.SETTLE_MS, timeout=self._redraw_if_needed)
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
