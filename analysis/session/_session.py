@@ -109,6 +109,7 @@ class Session(SessionHistory, SessionWork):
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
         self._entries: dict[str, Entry] = {}
+        self._views: dict[str, tuple[tuple, BeatTable]] = {}  # key -> (what it is made of, reviewed table)
         self.path: str | None = None
         self.open_warnings: list[str] = []
 
@@ -265,7 +266,14 @@ class Session(SessionHistory, SessionWork):
             ``reviewed``: 1 where a review decision applies, 0 where the automatic status
             stands), ``condition`` filled in, and ``recording_id``.
         """
-        return reviewed_table(self._entry(key), self.match_tolerance_s)
+        e = self._entry(key)
+        # Kept while nothing it is made of has changed: a review key asks for it more than once.
+        stamp = (e.version, id(e.table), id(e.decisions), len(e.decisions), e.conditions, id(e.settings),
+                 self.match_tolerance_s)
+        cached = self._views.get(key)
+        if cached is None or cached[0] != stamp:
+            cached = self._views[key] = (stamp, reviewed_table(e, self.match_tolerance_s))
+        return cached[1]
 
     def all_beats(self, keys: Sequence[str] | None = None) -> BeatTable:
         """The reviewed tables of several recordings (all by default), one after another."""

@@ -91,7 +91,8 @@ def steady_window(cell_window, cell_result):
     w = cell_window(size=(1400, 900))
     rec, _ = cell_result
     assert w.key is not None
-    assert w.add_condition(Condition("baseline", 0.0, float("inf"), "s", SteadyState("last_s", 5.0)))
+    end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
+    assert w.add_condition(Condition("baseline", 0.0, end, "s", SteadyState("last_s", 5.0)))  # the whole recording
     t = plotdata.recording_times_s(w.session.beats(w.key), rec.sweep_starts_s)
     w.select_beat(int(np.flatnonzero(t > t.max() - 3.0)[0]))
     w.reject_current("noise")

@@ -111,7 +111,7 @@ def test_cursor_readout_equals_numpy_over_the_same_samples(window, cell_abf):
     assert (r.min_value, r.max_value) == (np.min(v), np.max(v))  # numpy reference
     assert r.delta_value == pytest.approx(v[-1] - v[0])  # numpy reference
     assert window.cursor_panel.value_text("mean_value") == f"{np.mean(v):.2f}"
-    assert "Δt 2098.8 ms" in window.trace_view.readout_line()
+    assert "gated 2098.8 ms" in window.trace_view.readout_line()  # 3.3333 s - 1.2345 s
 
 
 def test_changing_a_setting_reanalyses(window, qtbot):
