@@ -1,0 +1,11 @@
+"""A study: cells x conditions (and groups), its per cell x condition table and the comparison.
+
+The layout (which file is which cell, condition and group) is :class:`StudyLayout`; the table
+with one row per cell x condition is :func:`cell_condition_table`; each condition against the
+baseline, cell by cell and per group with paired tests, is :func:`compare`.
+
+The modules below are private to this package; import from here."""
+
+from analysis.study_layout import StudyEntry, StudyError, StudyLayout
+
+__all__ = ["StudyEntry", "StudyError", "StudyLayout"]
