@@ -74,7 +74,7 @@ class GridEntry:
         """The square's two lines of text."""
         state = self.state
         if state == "missing":
-            return "—", "no recording"
+            return "—", "not analysed" if self.label else "no recording"
         if state == "quiet":
             return "0", "no beats"
         second = f"{self.n_to_review} to review" if state == "waiting" else "reviewed"
@@ -82,6 +82,8 @@ class GridEntry:
 
     def tooltip(self) -> str:
         if self.key is None:
+            if self.label:
+                return f"{self.cell}, {self.condition}: {self.label} is not in the results file; analyse it with the study"
             return f"{self.cell}, {self.condition}: no recording in the study"
         rows = [f"<b>{self.cell}</b>, {self.condition}" + (f" ({self.group})" if self.group else ""),
                 self.label or self.key,

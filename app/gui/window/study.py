@@ -1,0 +1,321 @@
+"""The study in the main window: its grid of recordings and the comparison across its cells.
+
+A results file that holds a study layout (``upstroke batch ... --out`` with a pattern or a
+sheet) opens as a study: beside the trace, a dock shows the grid of cells x conditions, and a
+second dock (a tab behind it, or wherever the user drags it) the comparison figure. Choosing a
+square opens its recording in the trace view; the window stays on the study, and the review
+goes into the session, saved to the same results file (the layout is written back with it).
+
+Keyboard (Study menu): Ctrl+PgDown / Ctrl+PgUp the next / previous recording of the study,
+Ctrl+Shift+PgDown the next one with beats waiting for review, G the grid (arrows move, Return
+opens). These leave the review's own keys alone (sweeps are PgDown / PgUp).
+
+After every change to the review, the grid's counts and the figure follow: the changed
+recordings' summaries are the session's own jobs, run in the background
+(:func:`~.summary_job.start_summary`), and the tables are the core's
+(:mod:`analysis.study`), computed once every summary is current.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable
+
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from analysis.errors import InputError
+from analysis.results import read_study, write_study
+from analysis.session import Session
+from analysis.study import StudyLayout
+
+from .. import palette
+from ..panels.study_panel import ComparisonPanel, StudyPanel
+from .feedback import Feedback
+from .state import WindowState
+from .study_data import (
+    StudyTables,
+    comparison_panels,
+    grid_entries,
+    missing_summaries,
+    recording_keys,
+    study_tables,
+)
+from .summary_job import start_summary
+from .workers import JobRunner
+
+__all__ = ["REFRESH_MS", "StudyController"]
+
+#: How long after a change the study's tables are brought up to date (the summary of the
+#: recording shown, started by the window after the same change, is usually done by then).
+REFRESH_MS = 600
+
+#: Events of the session after which the study's counts and figure change.
+_CHANGES = ("decisions_changed", "conditions_changed", "results_changed", "recording_added", "settings_changed")
+
+
+class StudyController:
+    """The study's docks, their data and their keyboard.
+
+    Parameters
+    ----------
+    window : QMainWindow
+        Where the docks and the Study menu go.
+    state : WindowState
+    runner : JobRunner
+        Runs the summary jobs.
+    feedback : Feedback
+    select_recording : callable
+        ``select_recording(key)`` shows a recording of the session (the loader's).
+    """
+
+    def __init__(self, window: QtWidgets.QMainWindow, state: WindowState, runner: JobRunner, feedback: Feedback,
+                 *, select_recording: Callable[[str], None]) -> None:
+        self.window = window
+        self.state = state
+        self.runner = runner
+        self.feedback = feedback
+        self.select_recording = select_recording
+        self.layout: StudyLayout | None = None
+        self.tables: StudyTables | None = None
+        self.name = ""
+        self._session: Session | None = None
+        self._waiting: set[str] = set()  # recordings whose summary job runs
+        self._connections: list = []
+        self.panel = StudyPanel()
+        self.comparison = ComparisonPanel()
+        self.grid_dock = self._dock("study_dock", "Study", self.panel)
+        self.comparison_dock = self._dock("comparison_dock", "Comparison across cells", self.comparison)
+        window.addDockWidget(QtCore.Qt.LeftDockWidgetArea, self.grid_dock)
+        window.tabifyDockWidget(self.grid_dock, self.comparison_dock)
+        self.grid_dock.raise_()
+        self.timer = QtCore.QTimer(window, singleShot=True, interval=REFRESH_MS, timeout=self.refresh)
+        self.panel.recording_chosen.connect(self.choose)
+        self.panel.step_requested.connect(self.step)
+        self.comparison.parameters_changed.connect(lambda _names: self.redraw_comparison())
+        self._build_menu()
+        self._show_docks(False)
+
+    def _dock(self, name: str, title: str, widget: QtWidgets.QWidget) -> QtWidgets.QDockWidget:
+        dock = QtWidgets.QDockWidget(title, self.window)
+        dock.setObjectName(name)
+        dock.setWidget(widget)
+        dock.setAllowedAreas(QtCore.Qt.AllDockWidgetAreas)
+        dock.setStyleSheet(f"QDockWidget {{ color: {palette.INK}; }}")
+        return dock
+
+    def _build_menu(self) -> None:
+        bar = self.window.menuBar()
+        menu = QtWidgets.QMenu("&Study", self.window)
+        help_menu = next((a for a in bar.actions() if a.text().replace("&", "") == "Help"), None)
+        if help_menu is not None:
+            bar.insertMenu(help_menu, menu)
+        else:
+            bar.addMenu(menu)
+        self.menu = menu
+        K = QtGui.QKeySequence
+
+        def action(text: str, slot, shortcut: str | None = None, tip: str = "") -> QtGui.QAction:
+            act = QtGui.QAction(text, self.window)
+            if shortcut:
+                act.setShortcut(K(shortcut))
+                act.setShortcutContext(QtCore.Qt.WindowShortcut)
+            if tip:
+                act.setToolTip(tip)
+                act.setStatusTip(tip)
+            act.triggered.connect(slot)
+            menu.addAction(act)
+            return act
+
+        self.act_next = action("&Next recording of the study", lambda: self.step(+1), "Ctrl+PgDown",
+                               "The next square of the grid (cell by cell, each through its conditions)")
+        self.act_previous = action("&Previous recording of the study", lambda: self.step(-1), "Ctrl+PgUp")
+        self.act_waiting = action("Next recording &waiting for review", lambda: self.step(+2), "Ctrl+Shift+PgDown",
+                                  "The next recording with beats waiting for review")
+        self.act_grid = action("&Go to the grid", self.focus_grid, "G", "Show the study's grid and move the keyboard to it")
+        menu.addSeparator()
+        self.act_compare = action("Show the &comparison across cells", self.show_comparison)
+        self.act_export = action("&Export the comparison figure…", self.comparison._export_dialog)
+        menu.addSeparator()
+        menu.addAction(self.grid_dock.toggleViewAction())
+        menu.addAction(self.comparison_dock.toggleViewAction())
+        self._study_actions = (self.act_next, self.act_previous, self.act_waiting, self.act_grid, self.act_compare, self.act_export)
+
+    def _show_docks(self, on: bool) -> None:
+        self.grid_dock.setVisible(on)
+        self.comparison_dock.setVisible(on)
+        for act in self._study_actions:
+            act.setEnabled(on)
+        self.menu.menuAction().setVisible(on)
+        if on:
+            self.grid_dock.raise_()
+            width = max(300, min(400, self.window.width() // 4))
+            self.window.resizeDocks([self.grid_dock], [width], QtCore.Qt.Horizontal)
+
+    # -- following the window's session -----------------------------------------------------------
+    def session_changed(self, session: Session) -> None:
+        """A new session in the window: a results file with a study layout opens the study."""
+        for signal, slot in self._connections:
+            signal.disconnect(slot)
+        self._connections = []
+        self._session = session
+        self._waiting = set()
+        bridge = self.state.bridge
+        if bridge is not None:
+            self._connections = [(bridge.changed, self._on_change), (bridge.saved, self._on_saved)]
+            for signal, slot in self._connections:
+                signal.connect(slot)
+        layout = None
+        if session.path:
+            try:
+                layout = read_study(session.path)
+            except InputError as exc:
+                self.feedback.status(f"{exc.one_line()} (opened as plain recordings)")
+        if layout is None:
+            self.close_study()
+        else:
+            self.open_study(layout, name=os.path.basename(session.path))
+
+    def recording_shown(self, key: str | None) -> None:
+        """The window shows another recording: outline its square, draw its cell darker."""
+        if self.layout is None:
+            return
+        self.panel.set_current(key)
+        self.redraw_comparison()
+
+    # -- the study -----------------------------------------------------------------------------
+    def open_study(self, layout: StudyLayout, *, name: str = "") -> None:
+        """Show a study of the session's recordings."""
+        self.layout = layout
+        self.name = name or "study"
+        self.tables = None
+        self.panel.show_study(f"{self.name}: {layout.describe()}", [], conditions=layout.conditions, cells=layout.cells)
+        self._show_docks(True)
+        self.refresh()
+
+    def close_study(self) -> None:
+        self.layout = None
+        self.tables = None
+        self.timer.stop()
+        self._show_docks(False)
+
+    def refresh(self) -> None:
+        """Bring the grid and the figure up to date: start the summaries that are not current,
+        and once all are, take the core's tables."""
+        session = self._session
+        if self.layout is None or session is None or session is not self.state.session:
+            return
+        study_keys = list(dict.fromkeys(self._keys().values()))
+        missing = [k for k in missing_summaries(session, study_keys) if k not in self._waiting]
+        for key in missing:
+            self._waiting.add(key)
+            start_summary(self.runner, session, key, lambda k, _s, s=session: self._summary_done(s, k),
+                          lambda line, k=key, s=session: self._summary_failed(s, k, line))
+        if missing_summaries(session, study_keys):
+            return  # the last summary to arrive refreshes again
+        first = self.tables is None
+        self.tables = study_tables(session, self.layout)
+        entries = grid_entries(self.tables)
+        if first:
+            self.panel.show_study(f"{self.name}: {self.layout.describe()}", entries,
+                                  conditions=self.layout.conditions, cells=self.layout.cells)
+        else:
+            self.panel.update_counts(entries)
+        self.panel.set_current(self.state.key)
+        self.redraw_comparison()
+
+    def _keys(self) -> dict[str, str]:
+        return recording_keys(self._session, self.layout) if self._session is not None and self.layout else {}
+
+    def _summary_done(self, session: Session, key: str) -> None:
+        self._waiting.discard(key)
+        if session is self._session:
+            self.timer.start()
+
+    def _summary_failed(self, session: Session, key: str, line: str) -> None:
+        self._waiting.discard(key)
+        if session is self._session:
+            self.feedback.status(f"the study's summary of {session.label(key)} failed: {line}")
+
+    def _on_change(self, event: str, _key: str, _rows: list) -> None:
+        if self.layout is not None and event in _CHANGES:
+            self.timer.start()
+
+    def _on_saved(self, path: str) -> None:
+        """The session was saved: the results file keeps the study's layout too."""
+        if self.layout is None:
+            return
+        try:
+            if read_study(path) is None:
+                write_study(path, self.layout)
+        except InputError as exc:
+            self.feedback.show_error(f"{exc.one_line()} (the review is saved; the study's layout is not)")
+
+    def redraw_comparison(self) -> None:
+        if self.tables is None:
+            return
+        cell = self._cell_of(self.state.key)
+        groups = [g for g in self.layout.groups]
+        colours = {g: palette.condition_colour(i) for i, g in enumerate(groups)} if len(groups) > 1 else {}
+        panels = comparison_panels(self.tables, self.comparison.parameters, current_cell=cell, colours=colours)
+        n_cells = len(self.layout.cells)
+        note = (f"{n_cells} cells; each condition paired with {self.layout.baseline} cell by cell. "
+                "Descriptive: mean ± SEM over cells.")
+        self.comparison.show_panels(panels, note)
+
+    def _cell_of(self, key: str | None) -> str:
+        if key is None or self.tables is None:
+            return ""
+        file = next((f for f, k in self.tables.keys.items() if k == key), None)
+        entry = next((e for e in self.layout.entries if e.file == file), None) if file else None
+        return entry.cell if entry is not None else ""
+
+    # -- moving through the study ----------------------------------------------------------------
+    def order(self) -> list[str]:
+        """The study's recordings in the grid's order: cell by cell, each through its conditions."""
+        if self.layout is None:
+            return []
+        keys = self._keys()
+        out = []
+        for cell in self.panel.grid.grid_model.cells or self.layout.cells:
+            for condition in self.layout.conditions:
+                for entry in self.layout.entries_of(cell, condition):
+                    if entry.file in keys and keys[entry.file] not in out:
+                        out.append(keys[entry.file])
+        return out
+
+    def choose(self, key: str) -> None:
+        """Show a recording of the study (the grid stays)."""
+        if key == self.state.key or key not in self.state.session.recordings:
+            self.panel.set_current(self.state.key)
+            return
+        self.select_recording(key)
+
+    def step(self, how: int) -> None:
+        """+1 / -1: the next or previous recording; +2: the next one with beats waiting for review."""
+        order = self.order()
+        if not order:
+            return
+        here = order.index(self.state.key) if self.state.key in order else -1
+        if how == 2:
+            waiting = {e.key for e in self.panel.grid.grid_model.entries_in_order() if e.n_to_review > 0}
+            ahead = order[here + 1:] + order[:here + 1]
+            target = next((k for k in ahead if k in waiting), None)
+            if target is None:
+                self.feedback.status("no recording of the study has beats waiting for review")
+                return
+        else:
+            target = order[(here + how) % len(order)] if here >= 0 else order[0]
+        self.choose(target)
+
+    def focus_grid(self) -> None:
+        if self.layout is None:
+            return
+        self.grid_dock.show()
+        self.grid_dock.raise_()
+        self.panel.grid.setFocus(QtCore.Qt.ShortcutFocusReason)
+
+    def show_comparison(self) -> None:
+        if self.layout is None:
+            return
+        self.comparison_dock.show()
+        self.comparison_dock.raise_()
