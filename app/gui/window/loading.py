@@ -11,7 +11,7 @@ progress shown, applied back here.
 from __future__ import annotations
 
 import os
-from collections.abc import Callable, Sequence
+from typing import Callable, Sequence
 
 from PySide6 import QtCore
 
@@ -28,7 +28,7 @@ from .session_bridge import SessionBridge
 from .state import WindowState, WindowViews
 from .workers import Job, JobRunner
 
-__all__ = ["RESULTS_EXTENSIONS", "Loader"]
+__all__ = ["Loader", "RESULTS_EXTENSIONS"]
 
 RESULTS_EXTENSIONS = (".h5", ".hdf5")
 

@@ -39,6 +39,7 @@ from .loading import Loader
 from .recent import RecentFiles
 from .reviewing import Reviewer
 from .state import WindowState, WindowViews
+from .study import StudyController
 from .workers import JobRunner
 
 __all__ = ["MainWindow"]
@@ -93,6 +94,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self._build_layout()
         self._build_actions()
         self._wire()
+        self.study = StudyController(self, self.state, self.runner, self.feedback, select_recording=self._show_study_recording)
+        self.loader.session_listeners.append(self.study.session_changed)
+        self.loader.recording_listeners.append(self.study.recording_shown)
         self.loader.set_session(self.state.session)
         self.resize(1600, 1000)
         self.status(CAUTION)
@@ -276,6 +280,10 @@ class MainWindow(QtWidgets.QMainWindow):
         self._action(help_menu, "&About Upstroke", lambda: AboutDialog(self).exec())
         self._toolbar()
         self._fill_recent_menu()
+
+    def _show_study_recording(self, key: str) -> None:
+        self.loader.select_recording(key)
+        self.display.fill_recording_combo()
 
     # -- status, errors, history ------------------------------------------------------------------
     def status(self, text: str) -> None:
