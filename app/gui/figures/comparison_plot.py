@@ -26,6 +26,9 @@ __all__ = ["DEFAULT_PARAMETERS", "CellLine", "ComparisonFigure", "ComparisonPane
 #: Parameters shown when the user has not chosen: rate, the diastolic ones, the upstroke, APD90.
 DEFAULT_PARAMETERS = ("rate_bpm", "mdp_mV", "ddr_mV_per_s", "top_mV", "dvdt_max_V_per_s", "apd90_ms")
 
+#: The cell under review: a hue no group takes.
+CURRENT = palette.RATE
+
 #: How far apart (in condition steps) the groups' means are drawn, so that error bars never overlap.
 _GROUP_STEP = 0.08
 
@@ -83,7 +86,6 @@ def _axis_style(plot: pg.PlotItem, conditions: Sequence[str], label: str, unit: 
         axis.setTextPen(palette.INK)
         axis.enableAutoSIPrefix(False)
     plot.getAxis("bottom").setTicks([[(i, c) for i, c in enumerate(conditions)], []])
-    plot.getAxis("left").setWidth(48)
     plot.setXRange(-0.4, len(conditions) - 0.6, padding=0.0)
 
 
@@ -177,8 +179,8 @@ class ComparisonFigure(pg.GraphicsLayoutWidget):
                 self.legend.addItem(item, name)
         if current is not None:
             line, y = current
-            item = plot.plot(x, y, pen=pg.mkPen(palette.INK, width=1.8, style=QtCore.Qt.DashLine), connect="finite",
-                             symbol="o", symbolSize=6, symbolPen=None, symbolBrush=palette.INK)
+            item = plot.plot(x, y, pen=pg.mkPen(CURRENT, width=1.8, style=QtCore.Qt.DashLine), connect="finite",
+                             symbol="o", symbolSize=6, symbolPen=None, symbolBrush=CURRENT)
             if with_legend:
                 self.legend.addItem(item, f"{line.cell} (under review)")
         if with_legend and panel.cells:

@@ -63,6 +63,7 @@ class StudyPanel(QtWidgets.QWidget):
         layout.setContentsMargins(4, 4, 4, 4)
         layout.setSpacing(4)
         self.title = QtWidgets.QLabel("")
+        self.title.setWordWrap(True)
         self.title.setStyleSheet(f"color: {palette.INK}; font-weight: bold;")
         self.title.setTextInteractionFlags(QtCore.Qt.TextSelectableByMouse)
         self.progress = QtWidgets.QLabel("")
@@ -97,10 +98,10 @@ class StudyPanel(QtWidgets.QWidget):
         return b
 
     def show_study(self, name: str, entries: Sequence[GridEntry], *, conditions: Sequence[str] = (),
-                   cells: Sequence[str] = ()) -> None:
-        """A study's squares, newly opened."""
+                   cells: Sequence[str] = (), about: str = "") -> None:
+        """A study's squares, newly opened; ``about`` is the title's tooltip."""
         self.title.setText(name)
-        self.title.setToolTip(name)
+        self.title.setToolTip(about or name)
         self.grid.set_entries(entries, conditions=conditions, cells=cells)
         self.progress.setText(progress_text(entries))
 
@@ -143,6 +144,7 @@ class ComparisonPanel(QtWidgets.QWidget):
         self.export_button.setToolTip("Save the comparison figure as PNG or SVG")
         self.export_button.clicked.connect(self._export_dialog)
         self.note = QtWidgets.QLabel("")
+        self.note.setMinimumWidth(10)
         self.note.setStyleSheet(f"color: {palette.ENVELOPE}; font-size: 8.5pt;")
         bar.addWidget(self.choose_button)
         bar.addWidget(self.note, 1)

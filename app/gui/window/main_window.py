@@ -360,8 +360,12 @@ class MainWindow(QtWidgets.QMainWindow):
     # -- waiting (tests, screenshots) ---------------------------------------------------------
     def settle(self, timeout_ms: int = 120_000) -> bool:
         """Run pending delayed refreshes now and wait for every background job, until neither
-        is left (a finished analysis schedules a summary, which is a job of its own)."""
-        return _settle(self.display, self.runner, timeout_ms)
+        is left (a finished analysis schedules a summary, which is a job of its own; a change
+        to a study's review, the study's tables)."""
+        settled = _settle(self.display, self.runner, timeout_ms)
+        while settled and self.study.flush():
+            settled = _settle(self.display, self.runner, timeout_ms)
+        return settled
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""

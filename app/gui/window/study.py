@@ -38,10 +38,11 @@ from .study_data import (
     grid_entries,
     missing_summaries,
     recording_keys,
+    study_inputs,
     study_tables,
 )
 from .summary_job import start_summary
-from .workers import JobRunner
+from .workers import Job, JobRunner
 
 __all__ = ["REFRESH_MS", "StudyController"]
 
@@ -79,6 +80,8 @@ class StudyController:
         self.tables: StudyTables | None = None
         self.name = ""
         self._session: Session | None = None
+        self._first_shown = False
+        self._version = 0  # of the tables asked for; an older result is dropped
         self._waiting: set[str] = set()  # recordings whose summary job runs
         self._connections: list = []
         self.panel = StudyPanel()
@@ -88,6 +91,8 @@ class StudyController:
         window.addDockWidget(QtCore.Qt.LeftDockWidgetArea, self.grid_dock)
         window.tabifyDockWidget(self.grid_dock, self.comparison_dock)
         self.grid_dock.raise_()
+        for dock in (self.grid_dock, self.comparison_dock):
+            dock.visibilityChanged.connect(lambda on, d=dock: on and QtCore.QTimer.singleShot(0, self.window, lambda: self._fit_docks(d)))
         self.timer = QtCore.QTimer(window, singleShot=True, interval=REFRESH_MS, timeout=self.refresh)
         self.panel.recording_chosen.connect(self.choose)
         self.panel.step_requested.connect(self.step)
@@ -148,8 +153,16 @@ class StudyController:
         self.menu.menuAction().setVisible(on)
         if on:
             self.grid_dock.raise_()
-            width = max(300, min(400, self.window.width() // 4))
-            self.window.resizeDocks([self.grid_dock], [width], QtCore.Qt.Horizontal)
+            QtCore.QTimer.singleShot(0, self.window, lambda: self._fit_docks(self.grid_dock))
+
+    def _fit_docks(self, shown: QtWidgets.QDockWidget) -> None:
+        """The grid takes a quarter of the window; the comparison, when its tab is raised, half
+        of it (its panels need the room; the trace stays beside it)."""
+        if self.layout is None or shown.isFloating():
+            return
+        w = self.window.width()
+        width = max(300, min(380, w // 4)) if shown is self.grid_dock else max(520, w // 2)
+        self.window.resizeDocks([shown], [width], QtCore.Qt.Horizontal)
 
     # -- following the window's session -----------------------------------------------------------
     def session_changed(self, session: Session) -> None:
@@ -179,6 +192,12 @@ class StudyController:
         """The window shows another recording: outline its square, draw its cell darker."""
         if self.layout is None:
             return
+        if self._first_shown:
+            # A study opens on its first square (the results file's first recording may be another).
+            self._first_shown = False
+            order = self.order()
+            if order and key != order[0]:
+                QtCore.QTimer.singleShot(0, self.window, lambda k=order[0]: self.choose(k))
         self.panel.set_current(key)
         self.redraw_comparison()
 
@@ -188,9 +207,13 @@ class StudyController:
         self.layout = layout
         self.name = name or "study"
         self.tables = None
-        self.panel.show_study(f"{self.name}: {layout.describe()}", [], conditions=layout.conditions, cells=layout.cells)
+        self._first_shown = True
+        self.panel.show_study(self.name, [], conditions=layout.conditions, cells=layout.cells, about=self._about())
         self._show_docks(True)
         self.refresh()
+
+    def _about(self) -> str:
+        return f"{self.layout.describe()}\n{self.layout.source}\nfolder: {self.layout.root}"
 
     def close_study(self) -> None:
         self.layout = None
@@ -212,16 +235,39 @@ class StudyController:
                           lambda line, k=key, s=session: self._summary_failed(s, k, line))
         if missing_summaries(session, study_keys):
             return  # the last summary to arrive refreshes again
+        # The core's tables in a worker: the first comparison imports scipy.stats, which takes
+        # seconds, and a large study's tables take a moment too.
+        self._version += 1
+        version, layout = self._version, self.layout
+        keys, summaries = study_inputs(session, layout)
+        job = Job(lambda _report, _cancelled: study_tables(layout, keys, summaries), "study tables")
+        job.signals.finished.connect(lambda tables, v=version: self._tables_done(v, tables))
+        job.signals.failed.connect(lambda message, _user: self.feedback.status(
+            f"the study's tables failed: {message.splitlines()[0]}"))
+        self.runner.start(job)
+
+    def _tables_done(self, version: int, tables: StudyTables) -> None:
+        if version != self._version or self.layout is None:
+            return  # a newer change has asked for newer tables
         first = self.tables is None
-        self.tables = study_tables(session, self.layout)
-        entries = grid_entries(self.tables)
+        self.tables = tables
+        entries = grid_entries(tables)
         if first:
-            self.panel.show_study(f"{self.name}: {self.layout.describe()}", entries,
-                                  conditions=self.layout.conditions, cells=self.layout.cells)
+            self.panel.show_study(self.name, entries, conditions=self.layout.conditions, cells=self.layout.cells,
+                                  about=self._about())
         else:
             self.panel.update_counts(entries)
         self.panel.set_current(self.state.key)
         self.redraw_comparison()
+
+    def flush(self) -> bool:
+        """Bring the tables up to date now if a refresh is pending; True when one was (tests,
+        screenshots: the window's ``settle`` waits for what it started)."""
+        if not self.timer.isActive():
+            return False
+        self.timer.stop()
+        self.refresh()
+        return True
 
     def _keys(self) -> dict[str, str]:
         return recording_keys(self._session, self.layout) if self._session is not None and self.layout else {}
@@ -258,8 +304,7 @@ class StudyController:
         colours = {g: palette.condition_colour(i) for i, g in enumerate(groups)} if len(groups) > 1 else {}
         panels = comparison_panels(self.tables, self.comparison.parameters, current_cell=cell, colours=colours)
         n_cells = len(self.layout.cells)
-        note = (f"{n_cells} cells; each condition paired with {self.layout.baseline} cell by cell. "
-                "Descriptive: mean ± SEM over cells.")
+        note = f"{n_cells} cells, each paired with its own {self.layout.baseline}"
         self.comparison.show_panels(panels, note)
 
     def _cell_of(self, key: str | None) -> str:

@@ -21,7 +21,7 @@ from analysis.study import StudyLayout, cell_condition_table, compare
 from ..figures.comparison_plot import CellLine, ComparisonPanel, GroupMean
 from ..views.study_grid import GridEntry
 
-__all__ = ["StudyTables", "comparison_panels", "grid_entries", "recording_keys", "study_tables"]
+__all__ = ["StudyTables", "comparison_panels", "grid_entries", "missing_summaries", "recording_keys", "study_inputs", "study_tables"]
 
 _STEM_OF = {col: stem for col, stem, _unit in PARAMETERS}
 
@@ -72,16 +72,22 @@ def missing_summaries(session: Session, keys: Sequence[str]) -> list[str]:
     return [k for k in keys if session.cached_summaries(k) is None]
 
 
-def study_tables(session: Session, layout: StudyLayout) -> StudyTables:
-    """The study's tables from the session's current summaries (never computed here: run the
-    summary jobs of :func:`missing_summaries` first; a recording without them counts as not
-    analysed)."""
+def study_inputs(session: Session, layout: StudyLayout) -> tuple[dict[str, str], dict[str, dict]]:
+    """What the study's tables are made from, read from the session on its thread: the key of
+    each file, and the current summary columns of each file's path (a recording without current
+    summaries counts as not analysed: run the summary jobs of :func:`missing_summaries` first)."""
     keys = recording_keys(session, layout)
     summaries = {}
-    for file, key in keys.items():
-        cached = session.cached_summaries(key)
+    for entry in layout.entries:
+        key = keys.get(entry.file)
+        cached = session.cached_summaries(key) if key is not None else None
         if cached is not None:
-            summaries[layout.path_of(next(e for e in layout.entries if e.file == file))] = summary_columns(cached)
+            summaries[layout.path_of(entry)] = summary_columns(cached)
+    return keys, summaries
+
+
+def study_tables(layout: StudyLayout, keys: Mapping[str, str], summaries: Mapping[str, Mapping]) -> StudyTables:
+    """The core's per cell x condition table and comparison (pure: safe in a worker thread)."""
     table = cell_condition_table(layout, summaries)
     comparison = compare(table, baseline=layout.baseline, conditions=layout.conditions)
     return StudyTables(layout, table, comparison, keys)
