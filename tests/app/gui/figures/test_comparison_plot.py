@@ -53,13 +53,13 @@ def test_lines_means_and_error_bars_are_drawn_where_the_numbers_say(figure):
     drawn = figure.drawn["rate_bpm"]
     assert np.allclose(drawn["cells"]["NL-0701"], RATES["NL-0701"])
     assert np.isnan(drawn["cells"]["NL-0704"][2])  # a missing condition stays a gap
-    x, m, s, n = drawn["means"][""]
+    _x, m, s, n = drawn["means"][""]
     assert np.allclose(m, mean) and np.allclose(s, sem) and n == (4, 4, 3)
     # The error bars are the curve of line pairs from mean - SEM to mean + SEM at each condition.
     plot = figure.plots["rate_bpm"]
     bars = [c for c in plot.listDataItems() if getattr(c, "opts", {}).get("connect") == "pairs"]
     assert len(bars) == 1
-    xs, ys = bars[0].getData()
+    _xs, ys = bars[0].getData()
     assert np.allclose(ys[0::6], mean - sem) and np.allclose(ys[1::6], mean + sem)  # numpy / scipy.stats.sem above
     assert list(figure.plots) == ["rate_bpm", "apd90_ms"]
     texts = figure.legend_texts()
