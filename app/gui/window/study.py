@@ -24,9 +24,9 @@ from collections.abc import Callable
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.errors import InputError
-from analysis.results import read_study, write_study
+from analysis.results import atomic_output, read_study, write_study
 from analysis.session import Session
-from analysis.study import StudyLayout
+from analysis.study import StudyLayout, table_csv
 
 from .. import palette
 from ..panels.study_panel import ComparisonPanel, StudyPanel
@@ -140,10 +140,15 @@ class StudyController:
         menu.addSeparator()
         self.act_compare = action("Show the &comparison across cells", self.show_comparison)
         self.act_export = action("&Export the comparison figure…", self.comparison._export_dialog)
+        self.act_table_csv = action("Export the cell × condition &table CSV…", lambda: self._export_csv_dialog("table"),
+                                    tip="One row per cell and condition: the tidy table for statistics software")
+        self.act_compare_csv = action("Export the c&omparison CSV…", lambda: self._export_csv_dialog("comparison"),
+                                      tip="Each condition against the baseline, per cell and per group, with paired tests")
         menu.addSeparator()
         menu.addAction(self.grid_dock.toggleViewAction())
         menu.addAction(self.comparison_dock.toggleViewAction())
-        self._study_actions = (self.act_next, self.act_previous, self.act_waiting, self.act_grid, self.act_compare, self.act_export)
+        self._study_actions = (self.act_next, self.act_previous, self.act_waiting, self.act_grid, self.act_compare,
+                               self.act_export, self.act_table_csv, self.act_compare_csv)
 
     def _show_docks(self, on: bool) -> None:
         self.grid_dock.setVisible(on)
@@ -199,6 +204,9 @@ class StudyController:
             if order and key != order[0]:
                 QtCore.QTimer.singleShot(0, self.window, lambda k=order[0]: self.choose(k))
         self.panel.set_current(key)
+        entry = self._entry_of(key)
+        if entry is not None:
+            self.window.setWindowTitle(f"{entry.cell} · {entry.condition} ({entry.file}) — {self.name}[*] — Upstroke")
         self.redraw_comparison()
 
     # -- the study -----------------------------------------------------------------------------
@@ -307,12 +315,36 @@ class StudyController:
         note = f"{n_cells} cells, each paired with its own {self.layout.baseline}"
         self.comparison.show_panels(panels, note)
 
+    def _entry_of(self, key: str | None):
+        """The layout's entry of a recording of the session (None when not in the study)."""
+        if key is None or self.layout is None:
+            return None
+        file = next((f for f, k in self._keys().items() if k == key), None)
+        return next((e for e in self.layout.entries if e.file == file), None) if file else None
+
     def _cell_of(self, key: str | None) -> str:
-        if key is None or self.tables is None:
-            return ""
-        file = next((f for f, k in self.tables.keys.items() if k == key), None)
-        entry = next((e for e in self.layout.entries if e.file == file), None) if file else None
+        entry = self._entry_of(key)
         return entry.cell if entry is not None else ""
+
+    def export_csv(self, what: str, path: str | os.PathLike) -> str:
+        """Write the study's ``"table"`` (one row per cell x condition) or ``"comparison"`` as CSV,
+        as the review stands (the core's :func:`analysis.study.table_csv`; all or nothing)."""
+        if self.tables is None:
+            raise InputError(os.fspath(path), "the study's tables are not ready yet", "wait for the summaries, then export")
+        columns = self.tables.table if what == "table" else self.tables.comparison
+        with atomic_output(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(table_csv(columns))
+        return os.fspath(path)
+
+    def _export_csv_dialog(self, what: str) -> None:
+        stem = os.path.splitext(self.name)[0]
+        path, _ = QtWidgets.QFileDialog.getSaveFileName(self.window, f"Export the study's {what} CSV",
+                                                        f"{stem}_{what}.csv", "CSV (*.csv)")
+        if path:
+            try:
+                self.feedback.status(f"wrote {self.export_csv(what, path)}")
+            except (OSError, InputError) as exc:
+                self.feedback.show_error(str(exc))
 
     # -- moving through the study ----------------------------------------------------------------
     def order(self) -> list[str]:

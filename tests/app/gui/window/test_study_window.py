@@ -3,6 +3,8 @@ recordings from the keyboard, follows the review, and the review is saved into t
 
 from __future__ import annotations
 
+import csv
+
 import numpy as np
 import pytest
 import scipy.stats
@@ -58,7 +60,7 @@ def test_a_study_opens_as_a_grid_of_cells_by_conditions(window):
     assert _where(w, w.key) == (CELLS[0], CONDITIONS[0]) and model.current == w.key
 
 
-def test_the_comparison_draws_each_cell_and_the_mean_and_sem_over_cells(window):
+def test_the_comparison_draws_each_cell_and_the_mean_and_sem_over_cells(window, tmp_path):
     w = window
     w.study.show_comparison()
     w.study.comparison.redraw()
@@ -75,6 +77,14 @@ def test_the_comparison_draws_each_cell_and_the_mean_and_sem_over_cells(window):
         assert n[j] == len(CELLS)
     # Every cell slows under UP-113 (the synthetic cells' cycle lengths, tests/app/gui/window/study_files.py).
     assert all(v[1] < v[0] for v in drawn["cells"].values())
+    # The comparison CSV of the Study menu: its paired t-test is scipy's on the cells' values.
+    path = w.study.export_csv("comparison", tmp_path / "comparison.csv")
+    with open(path, encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    group = next(r for r in rows if r["row"] == "group" and r["parameter"] == "rate")
+    base, drug = (np.array([drawn["cells"][c][j] for c in CELLS]) for j in (0, 1))
+    assert float(group["paired_t_p"]) == pytest.approx(scipy.stats.ttest_rel(drug, base).pvalue, abs=1e-4)  # scipy.stats
+    assert int(group["n"]) == len(CELLS)
 
 
 def test_keys_move_through_the_study_in_grid_order(window, qtbot):
