@@ -152,6 +152,8 @@ class ComparisonFigure(pg.GraphicsLayoutWidget):
         for line in panel.cells:
             y = np.asarray(line.values, dtype=float)
             cells[line.cell] = y
+            if not np.isfinite(y).any():
+                continue  # a cell with no value here (no beats under any condition) draws nothing
             if line.cell == panel.current_cell:
                 current = (line, y)
                 continue
@@ -168,6 +170,8 @@ class ComparisonFigure(pg.GraphicsLayoutWidget):
             sem = np.asarray(g.sem, dtype=float)
             colour = panel.colour(g.group)
             means[g.group] = (gx, mean, sem, tuple(int(n) for n in g.n))
+            if not np.isfinite(mean).any():
+                continue
             self._error_bars(plot, gx, mean, sem, colour)
             name = None
             if with_legend:

@@ -38,7 +38,7 @@ def progress_text(entries: Sequence[GridEntry]) -> str:
     if not shown:
         return head
     if not waiting:
-        return f"{head}; every beat reviewed"
+        return f"{head}; no beat waiting for review"
     return f"{head}; {to_review} beats to review in {len(waiting)} recording{'s' if len(waiting) != 1 else ''}"
 
 

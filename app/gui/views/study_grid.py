@@ -77,7 +77,7 @@ class GridEntry:
             return "—", "not analysed" if self.label else "no recording"
         if state == "quiet":
             return "0", "no beats"
-        second = f"{self.n_to_review} to review" if state == "waiting" else "none to review"
+        second = f"{self.n_to_review} to review"
         return f"{self.n_used} used", second
 
     def tooltip(self) -> str:

@@ -166,7 +166,12 @@ class StudyController:
         if self.layout is None or shown.isFloating():
             return
         w = self.window.width()
-        width = max(300, min(380, w // 4)) if shown is self.grid_dock else max(520, w // 2)
+        if shown is self.grid_dock:
+            grid = self.panel.grid
+            wanted = grid.verticalHeader().sizeHint().width() + grid.horizontalHeader().length() + 30
+            width = max(300, min(wanted, w // 3))
+        else:
+            width = max(520, w // 2)
         self.window.resizeDocks([shown], [width], QtCore.Qt.Horizontal)
 
     # -- following the window's session -----------------------------------------------------------
@@ -263,6 +268,8 @@ class StudyController:
         if first:
             self.panel.show_study(self.name, entries, conditions=self.layout.conditions, cells=self.layout.cells,
                                   about=self._about())
+            if not self.grid_dock.visibleRegion().isEmpty():  # the grid's tab is the one raised
+                QtCore.QTimer.singleShot(0, self.window, lambda: self._fit_docks(self.grid_dock))
         else:
             self.panel.update_counts(entries)
         self.panel.set_current(self.state.key)

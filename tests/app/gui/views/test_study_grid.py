@@ -45,7 +45,7 @@ def test_rows_are_cells_grouped_and_columns_the_conditions_in_order(grid):
 
 def test_each_square_says_beats_used_and_waiting(grid):
     model = grid.grid_model
-    assert model.data(model.index(0, 1)) == "31 used\nnone to review"
+    assert model.data(model.index(0, 1)) == "31 used\n0 to review"
     assert model.data(model.index(1, 0)) == "30 used\n2 to review"
     assert model.data(model.index(2, 2)) == "—\nno recording"
     assert model.data(model.index(2, 2), ENTRY_ROLE) is None
@@ -80,7 +80,7 @@ def test_counts_update_in_place_and_the_current_square_is_marked(grid):
     assert model.current == "NL-0417|washout"
     assert grid.currentIndex() == model.index(0, 2)
     model.update_entries([GridEntry("NL-0423", "baseline", "UP-113", key="NL-0423|baseline", n_used=32, n_to_review=0)])
-    assert model.data(model.index(1, 0)) == "32 used\nnone to review"
+    assert model.data(model.index(1, 0)) == "32 used\n0 to review"
     assert grid.currentIndex() == model.index(0, 2)  # the focus stays
     order = [e.key for e in model.entries_in_order()]
     assert order[:4] == ["NL-0417|baseline", "NL-0417|UP-113 1 uM", "NL-0417|washout", "NL-0423|baseline"]
