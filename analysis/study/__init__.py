@@ -7,7 +7,12 @@ baseline, cell by cell and per group with paired tests, is :func:`compare`.
 The modules below are private to this package; import from here."""
 
 from analysis.study._compare import COMPARISON_COLUMNS, compare
-from analysis.study._table import VARIABILITY, cell_condition_table, parameter_columns, table_csv
+from analysis.study._table import (
+    VARIABILITY,
+    cell_condition_table,
+    parameter_columns,
+    table_csv,
+)
 from analysis.study_layout import StudyEntry, StudyError, StudyLayout
 
-__all__ = ["COMPARISON_COLUMNS", "StudyEntry", "StudyError", "StudyLayout", "VARIABILITY", "cell_condition_table", "compare", "parameter_columns", "table_csv"]
+__all__ = ["COMPARISON_COLUMNS", "VARIABILITY", "StudyEntry", "StudyError", "StudyLayout", "cell_condition_table", "compare", "parameter_columns", "table_csv"]

@@ -209,7 +209,7 @@ def _row(layout: StudyLayout, entries: list[StudyEntry], summaries, cell: str, c
     return row
 
 
-def table_csv(columns: Mapping[str, Sequence], *, digits: int = 8) -> str:
+def table_csv(columns: Mapping[str, Sequence], *, digits: int = 10) -> str:
     """A table of columns as CSV text (``\n`` line ends, numbers to ``digits`` significant
     digits, undefined values empty)."""
     names = list(columns)
