@@ -120,7 +120,9 @@ class StudyGridModel(QtCore.QAbstractTableModel):
         cell_order.sort(key=lambda c: group_rank[groups.get(c, "")])  # stable: the study's order within a group
         self.beginResetModel()
         self._conditions = order
-        self._cells = [(c, groups.get(c, "")) for c in cell_order]
+        # The group beside each cell only when there is more than one to tell apart.
+        several = len(group_rank) > 1
+        self._cells = [(c, groups.get(c, "") if several else "") for c in cell_order]
         self._entries = {(e.cell, e.condition): e for e in entries}
         self.endResetModel()
 

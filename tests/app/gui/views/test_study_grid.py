@@ -85,3 +85,10 @@ def test_counts_update_in_place_and_the_current_square_is_marked(grid):
     order = [e.key for e in model.entries_in_order()]
     assert order[:4] == ["NL-0417|baseline", "NL-0417|UP-113 1 uM", "NL-0417|washout", "NL-0423|baseline"]
     assert len(order) == 8
+
+
+def test_one_group_is_not_repeated_beside_every_cell(qtbot):
+    view = StudyGridView()
+    qtbot.addWidget(view)
+    view.set_entries([GridEntry("NL-S01", "baseline", "UP-113", key="a"), GridEntry("NL-S02", "baseline", "UP-113", key="b")])
+    assert view.grid_model.headerData(1, QtCore.Qt.Vertical) == "NL-S02"
