@@ -187,12 +187,29 @@ class ComparisonFigure(pg.GraphicsLayoutWidget):
                              symbol="o", symbolSize=6, symbolPen=None, symbolBrush=CURRENT)
             if with_legend:
                 self.legend.addItem(item, f"{line.cell} (under review)")
+        self._honest_range(plot, [*cells.values(), *(m[1] - m[2] for m in means.values()), *(m[1] + m[2] for m in means.values())])
         if with_legend and panel.cells:
             self.legend.addItem(pg.PlotDataItem([], [], pen=pg.mkPen(palette.rgba(panel.colour(panel.cells[0].group), 120))),
                                 "one line per cell")
             # As many entries side by side as the figure's width holds (about 270 px each).
             self.legend.setColumnCount(max(1, min(len(self.legend.items), self.width() // 270)))
         return {"cells": cells, "means": means}
+
+    @staticmethod
+    def _honest_range(plot: pg.PlotItem, arrays) -> None:
+        """A y range at least a tenth of the values' size wide, so that a change of a few tenths
+        of a per cent does not fill the panel as if it were large (common practice, no source)."""
+        values = np.concatenate([np.ravel(np.asarray(a, dtype=float)) for a in arrays]) if arrays else np.empty(0)
+        values = values[np.isfinite(values)]
+        if not values.size:
+            return
+        lo, hi = float(values.min()), float(values.max())
+        least = 0.1 * max(abs(lo), abs(hi))
+        if hi - lo < least:
+            mid = (hi + lo) / 2
+            lo, hi = mid - least / 2, mid + least / 2
+        pad = 0.08 * (hi - lo) if hi > lo else 1.0
+        plot.setYRange(lo - pad, hi + pad, padding=0.0)
 
     @staticmethod
     def _error_bars(plot: pg.PlotItem, x: np.ndarray, mean: np.ndarray, sem: np.ndarray, colour: str) -> None:
