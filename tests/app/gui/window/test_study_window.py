@@ -4,6 +4,7 @@ recordings from the keyboard, follows the review, and the review is saved into t
 from __future__ import annotations
 
 import csv
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -101,6 +102,16 @@ def test_keys_move_through_the_study_in_grid_order(window, qtbot):
     assert w.settle(60_000)
     assert _where(w, w.key) == expected[-2]
     assert w.study.grid_dock.isVisible()  # the study stays while recordings change
+    # Ctrl+Shift+PgDown: the next square with beats waiting for review, wrapping round the study.
+    model = w.study.panel.grid.grid_model
+    waiting = next(e for e in model.entries_in_order() if (e.cell, e.condition) == expected[1])
+    model.update_entries([replace(waiting, n_to_review=3)])
+    qtbot.keyClick(w, QtCore.Qt.Key_PageDown, QtCore.Qt.ControlModifier | QtCore.Qt.ShiftModifier)
+    assert w.settle(60_000)
+    assert _where(w, w.key) == expected[1]
+    model.update_entries([replace(waiting, n_to_review=0)])
+    qtbot.keyClick(w, QtCore.Qt.Key_PageDown, QtCore.Qt.ControlModifier | QtCore.Qt.ShiftModifier)
+    assert _where(w, w.key) == expected[1] and "no recording" in w.statusBar().currentMessage()
 
 
 def test_the_grid_opens_a_recording_from_the_keyboard(window, qtbot):
