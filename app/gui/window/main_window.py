@@ -94,7 +94,8 @@ class MainWindow(QtWidgets.QMainWindow):
         self._build_layout()
         self._build_actions()
         self._wire()
-        self.study = StudyController(self, self.state, self.runner, self.feedback, select_recording=self._show_study_recording)
+        self.study = StudyController(self, self.state, self.runner, self.feedback, select_recording=self._show_study_recording,
+                                     make_action=self._action)
         self.loader.session_listeners.append(self.study.session_changed)
         self.loader.recording_listeners.append(self.study.recording_shown)
         self.loader.set_session(self.state.session)

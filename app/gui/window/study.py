@@ -67,11 +67,15 @@ class StudyController:
     feedback : Feedback
     select_recording : callable
         ``select_recording(key)`` shows a recording of the session (the loader's).
+    make_action : callable
+        ``make_action(menu, text, slot, shortcut, tip=...)`` adds an action to a menu, as the
+        window makes its own (shortcuts for the whole window).
     """
 
     def __init__(self, window: QtWidgets.QMainWindow, state: WindowState, runner: JobRunner, feedback: Feedback,
-                 *, select_recording: Callable[[str], None]) -> None:
+                 *, select_recording: Callable[[str], None], make_action: Callable[..., QtGui.QAction]) -> None:
         self.window = window
+        self.make_action = make_action
         self.state = state
         self.runner = runner
         self.feedback = feedback
@@ -117,19 +121,8 @@ class StudyController:
         else:
             bar.addMenu(menu)
         self.menu = menu
-        K = QtGui.QKeySequence
-
         def action(text: str, slot, shortcut: str | None = None, tip: str = "") -> QtGui.QAction:
-            act = QtGui.QAction(text, self.window)
-            if shortcut:
-                act.setShortcut(K(shortcut))
-                act.setShortcutContext(QtCore.Qt.WindowShortcut)
-            if tip:
-                act.setToolTip(tip)
-                act.setStatusTip(tip)
-            act.triggered.connect(slot)
-            menu.addAction(act)
-            return act
+            return self.make_action(menu, text, slot, shortcut, tip=tip)
 
         self.act_next = action("&Next recording of the study", lambda: self.step(+1), "Ctrl+PgDown",
                                "The next square of the grid (cell by cell, each through its conditions)")
