@@ -83,7 +83,7 @@ class StudyLayout:
     root : str
         The study's folder (absolute); entries' relative paths start there.
     entries : tuple of StudyEntry
-        One per file, in path order.
+        One per file: in path order from a pattern, in the sheet's order from a sheet.
     conditions : tuple of str
         Every condition in order; the first is the baseline.
     extra_columns : tuple of str
@@ -126,7 +126,7 @@ class StudyLayout:
             See the module docstring, e.g. ``"{cell}/{condition}.abf"``.
         condition_order : sequence of str or None
             The conditions in order, baseline first; None keeps the order of first appearance
-            (files in path order).
+            (files in path order; a sheet's rows in order).
         group_from : str or None
             The pattern field that names the group; None uses ``{group}`` when the pattern has
             one, else no groups.
@@ -222,12 +222,13 @@ class StudyLayout:
                              "correct the 'file' column (relative to the sheet's folder) or remove those rows")
         unmatched = []
         if files is not None:
-            unmatched = [r for r in (_relative(os.path.abspath(os.fspath(f)), top) for f in files) if r not in seen]
+            itself = _relative(os.path.abspath(sheet), top)  # the sheet may sit among the recordings
+            unmatched = [r for r in (_relative(os.path.abspath(os.fspath(f)), top) for f in files)
+                         if r not in seen and r != itself]
         return cls._build(top, entries, condition_order, extras, group_column, f"sheet: {sheet}", unmatched)
 
     @classmethod
     def _build(cls, top, entries, order, extras, group_column, source, unmatched) -> StudyLayout:
-        entries = sorted(entries, key=lambda e: e.file)
         present = list(dict.fromkeys(e.condition for e in entries))
         if order:
             order = [c.strip() for c in order if c.strip()]

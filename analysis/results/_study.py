@@ -24,7 +24,7 @@ from analysis.errors import ResultsFileError
 from analysis.results._atomic import atomic_output
 from analysis.study_layout import StudyEntry, StudyLayout
 
-__all__ = ["read_study", "write_study"]
+__all__ = ["carry_study", "read_study", "write_study"]
 
 _GROUP = "study"
 
@@ -76,6 +76,27 @@ def write_study(path: str | os.PathLike, layout: StudyLayout, *, atomic: bool = 
             extra = g.create_group("extra")
             for column in layout.extra_columns:
                 extra.create_dataset(column, data=_strings(e.value(column) for e in layout.entries), dtype=text)
+
+
+def carry_study(old: str | os.PathLike, new: str | os.PathLike) -> None:
+    """Copy the ``/study`` group of a results file about to be replaced into its new version.
+
+    Nothing happens when ``old`` does not exist, is the same file, holds no study or cannot be
+    read (a damaged file is the caller's to report), or when ``new`` already has a study.
+    """
+    import h5py  # heavy; only the results file needs it
+
+    if not os.path.isfile(old) or os.path.abspath(old) == os.path.abspath(new):
+        return
+    try:
+        with h5py.File(old, "r") as src:
+            if _GROUP not in src:
+                return
+            with h5py.File(new, "r+") as dst:
+                if _GROUP not in dst:
+                    src.copy(src[_GROUP], dst, name=_GROUP)
+    except OSError:
+        return
 
 
 def read_study(path: str | os.PathLike) -> StudyLayout | None:

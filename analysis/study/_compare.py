@@ -121,7 +121,7 @@ def compare(
             if cond == base_name:
                 continue
             for group in dict.fromkeys(groups):
-                common = dict(parameter=stem, unit=unit, group=str(group), condition=str(cond), baseline=base_name)
+                common = {"parameter": stem, "unit": unit, "group": str(group), "condition": str(cond), "baseline": base_name}
                 members = [i for i in range(len(cells)) if conds[i] == cond and groups[i] == group]
                 pairs = [(str(cells[i]), base_of.get(str(cells[i]), math.nan), values[i]) for i in members]
                 pairs = [(c, b, v) for c, b, v in pairs if math.isfinite(b) and math.isfinite(v)]

@@ -21,6 +21,7 @@ from .options import (
 )
 from .study_outputs import (
     add_layout_options, add_table_options, check_request, layout_from_args, report_layout, study_tables, tasks_conditions,
+    with_study_columns,
 )
 
 __all__ = ["add_parser", "run"]
@@ -104,6 +105,8 @@ def run(args: argparse.Namespace) -> int:
     settings = settings_from_args(args)
     outputs = [p for p in (args.out, args.csv, args.summary_csv, args.study_csv, args.compare) if p]
     _check_outputs(outputs)
+    if not (args.layout or args.sheet):
+        check_request(None, args, None)  # study outputs without a study: before any search
     paths = find_recordings(args.sources, exclude=outputs)
     layout = layout_from_args(args, paths)
     conditions = tuple(c.text() for c in args.conditions)
@@ -143,6 +146,9 @@ def _save_study(layout, args: argparse.Namespace) -> None:
 
     write_study(args.out, layout)
     tables = study_tables(layout, load_results(args.out, verify_sources=False), args)
+    if args.csv:  # the beats CSV gains the study's columns
+        with open(args.csv, encoding="utf-8", newline="") as fh:
+            tables.insert(0, (args.csv, with_study_columns(fh.read(), layout)))
     if tables:
         with atomic_outputs([path for path, _ in tables]) as temps:
             for (_, text), tmp in zip(tables, temps):

@@ -28,7 +28,7 @@ import numpy as np
 
 from analysis.errors import InputError
 
-from .study_outputs import add_table_options, check_request, comparison_figures, study_tables
+from .study_outputs import add_table_options, check_request, comparison_figures, study_tables, with_study_columns
 
 __all__ = ["add_parser", "run", "figure_name", "beats_csv", "summary_text"]
 
@@ -143,7 +143,8 @@ def run(args: argparse.Namespace) -> int:
             raise ExportError(folder, "its parent folder does not exist", "create it or write elsewhere")
     # Build everything before writing anything.
     if args.csv:
-        outputs.append((args.csv, beats_csv(session)))
+        text = beats_csv(session)
+        outputs.append((args.csv, with_study_columns(text, layout) if layout is not None else text))
     if args.summary_csv:
         outputs.append((args.summary_csv, summary_text(session)))
     if args.figures:

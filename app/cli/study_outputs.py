@@ -18,7 +18,7 @@ from typing import Any
 
 __all__ = [
     "add_layout_options", "add_table_options", "check_request", "comparison_figures", "layout_from_args",
-    "report_layout", "study_tables", "tasks_conditions",
+    "report_layout", "study_tables", "tasks_conditions", "with_study_columns",
 ]
 
 
@@ -154,3 +154,42 @@ def comparison_figures(layout, recordings: Any, folder: str) -> list[tuple[str, 
         stem = os.path.join(folder, f"compare-{_safe(group)}")
         out += [(stem + ".svg", svg), (stem + ".png", svg_to_png(svg))]
     return out
+
+
+def with_study_columns(text: str, layout) -> str:
+    """A beats CSV with the study's columns after its own: ``cell``, ``group`` when the study has
+    groups, and the user's own columns (CONTRACT.md: the beats CSV in a study)."""
+    import csv
+    import io
+
+    rows = list(csv.reader(io.StringIO(text)))
+    if not rows:
+        return text
+    extras = [c for c in layout.extra_columns if c != layout.group_column]
+    added = ["cell"] + (["group"] if layout.group_column else []) + extras
+    taken = [c for c in added if c in rows[0]]
+    if taken:
+        return text  # already there (or a column of the same name): leave the table as it is
+    at = rows[0].index("file")
+    found: dict[str, object] = {}
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(rows[0] + added)
+    for row in rows[1:]:
+        name = row[at]
+        if name not in found:
+            found[name] = _entry_of(layout, name)
+        entry = found[name]
+        values = [""] * len(added) if entry is None else (
+            [entry.cell] + ([entry.group] if layout.group_column else []) + [entry.value(c) for c in extras])
+        writer.writerow(row + values)
+    return out.getvalue()
+
+
+def _entry_of(layout, name: str):
+    entry = layout.entry_for(name)
+    if entry is not None:
+        return entry
+    tail = name.replace("\\", "/")
+    matches = [e for e in layout.entries if tail.endswith("/" + e.file) or tail == e.file]
+    return matches[0] if len(matches) == 1 else None

@@ -79,9 +79,9 @@ def comparison_svg(
     width = _LEFT + _COLS * _PANEL_W + (_COLS - 1) * _GAP_X + 20
     height = _TOP + rows * _PANEL_H + (rows - 1) * _GAP_Y + _BOTTOM
     n_cond = len(conditions)
+    legend = "grey: each cell; dark: mean &#177; SEM over cells"
     out = [f'<text x="{_LEFT}" y="22" font-size="14">{escape(title)}</text>',
-           f'<text x="{width - 20}" y="22" text-anchor="end" fill="#555">grey: each cell; dark: mean '
-           '&#177; SEM over cells</text>']
+           f'<text x="{width - 20}" y="22" text-anchor="end" fill="#555">{legend}</text>']
     for p, (column, label) in enumerate(panels):
         left = _LEFT + (p % _COLS) * (_PANEL_W + _GAP_X)
         top = _TOP + (p // _COLS) * (_PANEL_H + _GAP_Y)

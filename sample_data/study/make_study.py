@@ -15,7 +15,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent.parent))
 
-from app.demo_study import write_demo_study  # noqa: E402  (the checkout on the path first)
+from app.demo_study import write_demo_study  # the checkout on the path first
 
 
 def main(argv: list[str]) -> int:

@@ -20,8 +20,8 @@ from analysis.recording import CURRENT_CLAMP, VOLTAGE_CLAMP
 pytestmark = pytest.mark.realdata
 
 _ROW = re.compile(r"^\| (?P<cell>\S+) \| (?P<file>\S+\.csv) \| (?P<beats>\d+) \| (?P<borderline>\d+) \| "
-                  r"(?P<cl>[\d.]*) \| (?P<mdp>[-\d.]*) \|", re.M)
-_TIMES = re.compile(r"^- `(?P<path>[^`]+)`: (?P<times>[\d. ]+)", re.M)
+                  r"(?P<cl>[\d.]*) \| (?P<mdp>[-\d.]*) \|", re.MULTILINE)
+_TIMES = re.compile(r"^- `(?P<path>[^`]+)`: (?P<times>[\d. ]+)", re.MULTILINE)
 
 
 def _readme(folder: Path) -> tuple[list[dict], dict[str, list[float]]]:

@@ -76,7 +76,8 @@ def test_a_sheet_carries_its_own_columns(study):
     found = [study / "NL-S01_up113/baseline.csv", study / "NL-S01_up113/washout.csv"]
     layout = StudyLayout.from_sheet(sheet, condition_order=["baseline", "drug"], files=found)
     assert layout.extra_columns == ("concentration_uM", "date")
-    assert [e.value("concentration_uM") for e in layout.entries] == ["1", "0", "0"]
+    assert [e.value("concentration_uM") for e in layout.entries] == ["0", "1", "0"]  # the sheet's order
+    assert StudyLayout.from_sheet(sheet).conditions == ("baseline", "drug")
     assert layout.group_column == "group" and layout.groups == ("UP-113", "vehicle")
     assert layout.unmatched == ("NL-S01_up113/washout.csv",)
 
@@ -110,3 +111,13 @@ def test_the_results_file_reopens_as_the_same_study(study, tmp_path):
     write_study(out, layout.with_root(study / "elsewhere"))
     assert read_study(out).root == str(study / "elsewhere") or read_study(out).root == str(study)
     np.testing.assert_equal(len(read_study(out).entries), 5)
+
+
+def test_saving_the_results_again_keeps_the_study(study, tmp_path):
+    # The app and `upstroke analyze --out` rewrite the whole file: the layout must survive.
+    layout = StudyLayout.from_pattern(study, "{cell}_*/{condition}.csv")
+    out = tmp_path / "study.h5"
+    save_results(out, [])
+    write_study(out, layout)
+    save_results(out, [])
+    assert read_study(out) == layout
