@@ -126,6 +126,10 @@ def test_the_grid_opens_a_recording_from_the_keyboard(window, qtbot):
     assert w.settle(60_000)
     assert _where(w, w.key) == (CELLS[1], CONDITIONS[1])
     assert w.recording_combo.currentData() == w.key
+    # The review keys work while the keyboard is on the grid.
+    row = w.current_row
+    qtbot.keyClick(grid, QtCore.Qt.Key_N)
+    assert w.current_row != row and w.current_row >= 0
 
 
 def test_the_grid_and_figure_follow_the_review_and_it_is_saved_in_the_study(window):
