@@ -58,12 +58,17 @@ class GridEntry:
     n_to_review: int = 0
     n_rejected: int = 0
     window: str = ""
+    #: False while the counts are being worked out (the study just opened).
+    ready: bool = True
 
     @property
     def state(self) -> str:
-        """``missing``, ``waiting`` (beats to review), ``quiet`` (no beat at all) or ``done``."""
+        """``missing``, ``pending`` (counts not known yet), ``waiting`` (beats to review),
+        ``quiet`` (no beat at all) or ``done``."""
         if self.key is None:
             return "missing"
+        if not self.ready:
+            return "pending"
         if self.n_to_review > 0:
             return "waiting"
         if self.n_used + self.n_rejected == 0:
@@ -77,6 +82,8 @@ class GridEntry:
             return "—", "not analysed" if self.label else "no recording"
         if state == "quiet":
             return "0", "no beats"
+        if state == "pending":
+            return "…", "summarising"
         second = f"{self.n_to_review} to review"
         return f"{self.n_used} used", second
 

@@ -30,6 +30,7 @@ from analysis.study import StudyLayout, table_csv
 
 from .. import palette
 from ..panels.study_panel import ComparisonPanel, StudyPanel
+from ..views.study_grid import GridEntry
 from .feedback import Feedback
 from .state import WindowState
 from .study_data import (
@@ -214,7 +215,12 @@ class StudyController:
         self.name = name or "study"
         self.tables = None
         self._first_shown = True
-        self.panel.show_study(self.name, [], conditions=layout.conditions, cells=layout.cells, about=self._about())
+        # Until the core's tables come (they wait for every summary), each square says so.
+        keys = self._keys()
+        waiting = [GridEntry(e.cell, e.condition, e.group, key=keys.get(e.file), label=e.file, ready=False)
+                   for e in layout.entries]
+        self.panel.show_study(self.name, waiting, conditions=layout.conditions, cells=layout.cells, about=self._about())
+        self.panel.progress.setText("summarising the study's recordings…")
         self._show_docks(True)
         self.refresh()
 

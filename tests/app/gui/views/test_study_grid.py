@@ -92,3 +92,7 @@ def test_one_group_is_not_repeated_beside_every_cell(qtbot):
     qtbot.addWidget(view)
     view.set_entries([GridEntry("NL-S01", "baseline", "UP-113", key="a"), GridEntry("NL-S02", "baseline", "UP-113", key="b")])
     assert view.grid_model.headerData(1, QtCore.Qt.Vertical) == "NL-S02"
+
+
+def test_a_square_whose_counts_are_not_known_yet_says_so():
+    assert GridEntry("NL-S01", "baseline", key="k", ready=False).lines() == ("…", "summarising")
