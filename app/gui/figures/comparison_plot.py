@@ -64,6 +64,8 @@ class ComparisonPanel:
     current_cell: str = ""
     #: Group colours by name; groups not named get the conditions' palette in order.
     colours: dict[str, str] = field(default_factory=dict)
+    #: Lines of the comparison's numbers (change, paired tests) shown as the panel's tooltip.
+    notes: tuple[str, ...] = ()
 
     def colour(self, group: str) -> str:
         if group in self.colours:
@@ -142,6 +144,8 @@ class ComparisonFigure(pg.GraphicsLayoutWidget):
             col = column(panel.parameter)
             _axis_style(plot, panel.conditions, col.label, col.unit)
             self.plots[panel.parameter] = plot
+            if panel.notes:
+                plot.setToolTip("\n".join(panel.notes))
             self.drawn[panel.parameter] = self._draw_panel(plot, panel, with_legend=(i == 0))
 
     def _draw_panel(self, plot: pg.PlotItem, panel: ComparisonPanel, *, with_legend: bool) -> dict:

@@ -14,6 +14,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
+from analysis.columns import column
 from analysis.session import Session, key_of
 from analysis.stats import PARAMETERS, summary_columns
 from analysis.study import StudyLayout, cell_condition_table, compare
@@ -109,6 +110,27 @@ def grid_entries(tables: StudyTables) -> list[GridEntry]:
     return out
 
 
+def _number(value: float, digits: int = 3) -> str:
+    return f"{value:.{digits}g}" if math.isfinite(value) else "—"
+
+
+def _notes(c: Mapping[str, np.ndarray], sel: np.ndarray, rows: np.ndarray, unit: str) -> tuple[str, ...]:
+    """One line per group row of the comparison: the change from the baseline and both paired
+    tests, as the comparison table gives them (descriptive: no correction for multiple tests)."""
+    out = []
+    several = len({str(c["group"][i]) for i in sel}) > 1
+    for i in sel:
+        if rows[i] != "group":
+            continue
+        group = f" ({c['group'][i]})" if several else ""
+        out.append(
+            f"{c['condition'][i]} vs {c['baseline'][i]}{group}: change {_number(float(c['difference'][i]))} "
+            f"{unit} ({_number(float(c['percent_change'][i]), 2)} %), n = {int(c['n'][i])}; "
+            f"paired t p = {_number(float(c['paired_t_p'][i]), 2)}, Wilcoxon p = {_number(float(c['wilcoxon_p'][i]), 2)}"
+        )
+    return tuple(out)
+
+
 def comparison_panels(tables: StudyTables, parameters: Sequence[str], *, current_cell: str = "",
                       colours: Mapping[str, str] | None = None) -> list[ComparisonPanel]:
     """The figure's panels (one per beats column in ``parameters``) from the core's comparison.
@@ -146,7 +168,7 @@ def comparison_panels(tables: StudyTables, parameters: Sequence[str], *, current
                     g["n"][0] = int(c["n"][i])
                 g["mean"][j], g["sem"][j], g["n"][j] = float(c["value"][i]), float(c["value_sem"][i]), int(c["n"][i])
         panels.append(ComparisonPanel(
-            parameter=name, conditions=conditions,
+            parameter=name, conditions=conditions, notes=_notes(c, sel, rows, column(name).unit),
             cells=tuple(CellLine(cell, group_of[cell], tuple(v)) for cell, v in cells.items()),
             groups=tuple(GroupMean(g, tuple(m["mean"]), tuple(m["sem"]), tuple(m["n"])) for g, m in means.items()),
             current_cell=current_cell, colours=dict(colours or {}),

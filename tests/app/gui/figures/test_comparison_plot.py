@@ -89,6 +89,11 @@ def test_means_from_the_cores_comparison_match_numpy_and_scipy(figure):
     assert group.mean[2] == pytest.approx(washout.mean()) and group.sem[2] == pytest.approx(scipy.stats.sem(washout))
     assert group.n == (4, 4, 3)
     assert {c.cell: c.values for c in panel.cells}["NL-0704"][:2] == RATES["NL-0704"][:2]
+    # The panel's tooltip gives each condition's paired tests: scipy.stats on the same pairs.
+    washout_pairs = [(v[0], v[2]) for v in RATES.values() if math.isfinite(v[2])]
+    p = scipy.stats.ttest_rel([w for _b, w in washout_pairs], [b for b, _w in washout_pairs]).pvalue
+    assert f"washout vs baseline: change {np.mean([w - b for b, w in washout_pairs]):.3g} bpm" in panel.notes[1]
+    assert f"n = 3; paired t p = {p:.2g}" in panel.notes[1]
 
 
 def test_exports_png_and_svg_with_every_item(figure, tmp_path):
