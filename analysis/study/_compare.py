@@ -93,7 +93,8 @@ def compare(
         parameter's unit) and ``percent_change`` (difference / |baseline| x 100). Group rows
         (one per group, ``cell`` empty): the means over the group's complete pairs of those
         four, their SEMs (SD / sqrt(n)), ``n``, and the paired t statistic, its p, the
-        Wilcoxon W and its p (NaN when undefined: fewer than two pairs, or no change at all).
+        Wilcoxon W and its p (NaN when undefined: the t-test needs two pairs whose differences
+        are not all equal, the Wilcoxon test one difference that is not zero).
         Parameters in catalogue order, then conditions in order, then groups in order of first
         appearance; cells within a group in table order.
 

@@ -26,7 +26,7 @@ from typing import Any
 import numpy as np
 
 from analysis.results import ResultsFile
-from analysis.stats import PARAMETERS
+from analysis.stats import PARAMETERS, summary_columns
 from analysis.study_layout import StudyEntry, StudyLayout
 
 __all__ = ["VARIABILITY", "cell_condition_table", "parameter_columns", "table_csv"]
@@ -53,6 +53,8 @@ def _summaries_by_entry(layout: StudyLayout, recordings: Any) -> dict[str, Mappi
         items = [(str(path), summary) for path, summary in recordings.items()]
     else:
         items = [(r.source_path, r.summary) for r in recordings]
+    # A session gives its summaries as Summary objects: the same columns as the file keeps.
+    items = [(p, summary_columns(v) if isinstance(v, list | tuple) else v) for p, v in items]
     by_path = {_key(path): summary for path, summary in items}
     out: dict[str, Mapping[str, np.ndarray]] = {}
     for entry in layout.entries:
@@ -137,9 +139,12 @@ def cell_condition_table(layout: StudyLayout, recordings: Any) -> dict[str, np.n
     Parameters
     ----------
     layout : StudyLayout
-    recordings : ResultsFile, iterable of StoredRecording, or mapping of path to summary columns
+    recordings : ResultsFile, iterable of StoredRecording, or mapping of path to summaries
         The analysed files with their saved (reviewed) summaries; anything with
-        ``source_path`` and ``summary`` (the summary columns, as the results file keeps them).
+        ``source_path`` and ``summary`` (the summary columns, as the results file keeps them);
+        or a mapping of source path to summary columns or to a list of
+        :class:`analysis.stats.Summary` (as a live session gives them:
+        ``{session.info(k).source_path: session.summaries(k) for k in session.recordings}``).
 
     Returns
     -------

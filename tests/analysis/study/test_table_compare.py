@@ -24,7 +24,7 @@ def _summary(path, rows):
         vals = []
         for r in rows:
             default = {"file": path, "sweep_group": "all", "condition": "", "window": "all"}.get(name, math.nan)
-            if name.startswith("n_"):
+            if name.startswith("n_") or name == "ensemble_n":
                 default = r.get("n_accepted", 0)
             vals.append(r.get(name, default))
         out[name] = np.array(vals, dtype=object if isinstance(vals[0], str) else float)
@@ -125,3 +125,15 @@ def test_another_baseline_can_be_chosen(study):
     comp = compare(cell_condition_table(layout, recordings), baseline="UP-113", conditions=layout.conditions)
     assert set(comp["condition"]) == {"baseline", "washout"} and set(comp["baseline"]) == {"UP-113"}
     assert set(comp["parameter"]) == {stem for _, stem, _ in PARAMETERS}
+
+
+def test_a_live_sessions_summaries_give_the_same_table(study):
+    from analysis.stats import Summary
+
+    layout, recordings = study
+    as_objects = {}
+    for r in recordings:
+        n = len(r.summary.get("file", ()))
+        as_objects[r.source_path] = [Summary({k: v[i] for k, v in r.summary.items()}) for i in range(n)]
+    one, other = cell_condition_table(layout, recordings), cell_condition_table(layout, as_objects)
+    assert table_csv(one) == table_csv(other)
