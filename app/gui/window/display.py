@@ -27,6 +27,21 @@ from .workers import JobRunner
 __all__ = ["Display"]
 
 
+def _short_names(paths: list[str]) -> list[str]:
+    """File names, with as many of their folders as tell apart files of the same name (a study's
+    ``NL-0417/baseline.abf`` and ``NL-0423/baseline.abf``)."""
+    parts = [os.path.normpath(p).replace(os.sep, "/").split("/") for p in paths]
+    depth = [1] * len(parts)
+    while True:
+        names = ["/".join(p[-d:]) for p, d in zip(parts, depth)]
+        clash = {n for n in names if names.count(n) > 1}
+        grow = [i for i, n in enumerate(names) if n in clash and depth[i] < len(parts[i])]
+        if not grow:
+            return names
+        for i in grow:
+            depth[i] += 1
+
+
 class Display:
     """Draws the state in the views.
 
@@ -345,7 +360,8 @@ class Display:
     def fill_recording_combo(self) -> None:
         st, combo = self.state, self.views.recording_combo
         combo.clear()
-        for key in st.session.recordings:
-            combo.addItem(os.path.basename(st.session.label(key)), key)
+        labels = [st.session.label(key) for key in st.session.recordings]
+        for key, name in zip(st.session.recordings, _short_names(labels)):
+            combo.addItem(name, key)
         if st.key in st.session.recordings:
             combo.setCurrentIndex(st.session.recordings.index(st.key))

@@ -73,6 +73,10 @@ class Loader:
         self.parent = parent
         self.history_changed = history_changed
         self.set_title = set_title
+        #: Called with each new session, and with the key of each recording shown (the study's
+        #: grid follows both).
+        self.session_listeners: list[Callable[[Session], None]] = []
+        self.recording_listeners: list[Callable[[str | None], None]] = []
 
     # -- sessions ------------------------------------------------------------------------------
     def set_session(self, session: Session) -> None:
@@ -88,6 +92,8 @@ class Loader:
         self.state.bridge.warning.connect(lambda _k, text: self.feedback.status(f"warning: {text}"))
         self.state.bridge.changed.connect(self._autosave)
         self.history_changed()
+        for listener in self.session_listeners:
+            listener(session)
 
     # -- opening -------------------------------------------------------------------------------
     def open_recording_file(self, recording: Recording, *, origin: str | None = None, label: str | None = None,
@@ -225,6 +231,8 @@ class Loader:
         if restore and self.state.journal.exists():
             self._restore_review(self.state.journal)
         self.display.refresh_all()
+        for listener in self.recording_listeners:
+            listener(key)
 
     # -- autosave restore ----------------------------------------------------------------------
     def journal_follows(self, results_path: str) -> None:

@@ -40,6 +40,7 @@ from .loading import Loader
 from .recent import RecentFiles, config_dir
 from .reviewing import Reviewer
 from .state import WindowState, WindowViews
+from .study import StudyController
 from .workers import JobRunner
 
 __all__ = ["MainWindow"]
@@ -105,6 +106,10 @@ class MainWindow(QtWidgets.QMainWindow):
         self._build_layout()
         self._build_actions()
         self._wire()
+        self.study = StudyController(self, self.state, self.runner, self.feedback, select_recording=self._show_study_recording,
+                                     make_action=self._action)
+        self.loader.session_listeners.append(self.study.session_changed)
+        self.loader.recording_listeners.append(self.study.recording_shown)
         self.loader.set_session(self.state.session)
         self.resize(1600, 1000)
         self.status(CAUTION)
@@ -294,6 +299,10 @@ class MainWindow(QtWidgets.QMainWindow):
         self._toolbar()
         self._fill_recent_menu()
 
+    def _show_study_recording(self, key: str) -> None:
+        self.loader.select_recording(key)
+        self.display.fill_recording_combo()
+
     # -- status, errors, history ------------------------------------------------------------------
     def status(self, text: str) -> None:
         self.feedback.status(text)
@@ -369,8 +378,12 @@ class MainWindow(QtWidgets.QMainWindow):
     # -- waiting (tests, screenshots) ---------------------------------------------------------
     def settle(self, timeout_ms: int = 120_000) -> bool:
         """Run pending delayed refreshes now and wait for every background job, until neither
-        is left (a finished analysis schedules a summary, which is a job of its own)."""
-        return _settle(self.display, self.runner, timeout_ms)
+        is left (a finished analysis schedules a summary, which is a job of its own; a change
+        to a study's review, the study's tables)."""
+        settled = _settle(self.display, self.runner, timeout_ms)
+        while settled and self.study.flush():
+            settled = _settle(self.display, self.runner, timeout_ms)
+        return settled
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""
