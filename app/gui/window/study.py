@@ -130,7 +130,7 @@ class StudyController:
         self.act_previous = action("&Previous recording of the study", lambda: self.step(-1), "Ctrl+PgUp")
         self.act_waiting = action("Next recording &waiting for review", lambda: self.step(+2), "Ctrl+Shift+PgDown",
                                   "The next recording with beats waiting for review")
-        self.act_grid = action("&Go to the grid", self.focus_grid, "G", "Show the study's grid and move the keyboard to it")
+        self.act_grid = action("&Go to the grid", self.focus_grid, "Ctrl+G", "Show the study's grid and move the keyboard to it")
         menu.addSeparator()
         self.act_compare = action("Show the &comparison across cells", self.show_comparison)
         self.act_export = action("&Export the comparison figure…", self.comparison._export_dialog)

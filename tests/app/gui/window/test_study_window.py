@@ -116,7 +116,7 @@ def test_keys_move_through_the_study_in_grid_order(window, qtbot):
 
 def test_the_grid_opens_a_recording_from_the_keyboard(window, qtbot):
     w = window
-    qtbot.keyClick(w, QtCore.Qt.Key_G)
+    qtbot.keyClick(w, QtCore.Qt.Key_G, QtCore.Qt.ControlModifier)
     grid = w.study.panel.grid
     assert grid.hasFocus()
     qtbot.keyClick(grid, QtCore.Qt.Key_Down)
