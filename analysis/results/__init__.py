@@ -13,14 +13,7 @@ from analysis.results._atomic import (
     write_text_atomic,
 )
 from analysis.results._facts import RecordingFacts, facts_values
-from analysis.results._store import (
-    FORMAT_NAME,
-    SCHEMA_VERSION,
-    ResultsFile,
-    StoredRecording,
-    load_results,
-    provenance_now,
-    save_results,
-)
+from analysis.results._records import LAZY_FIELDS, ResultsFile, StoredRecording, provenance_now
+from analysis.results._store import FORMAT_NAME, SCHEMA_VERSION, load_results, save_results
 
-__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "LAZY_FIELDS", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
