@@ -10,6 +10,7 @@ recordings and a pass over all of them reads in large slices. See docs/results-f
 
 from __future__ import annotations
 
+import weakref
 from typing import Mapping, Sequence
 
 import numpy as np
@@ -288,7 +289,7 @@ def read_v2(f, path: str) -> list[tuple[StoredRecording, str]]:
             _loader=loader, _row=i,
         )
         out.append((r, str(cols["source_relpath"][i])))
-    loader.recordings = [r for r, _ in out]
+    loader.recordings = [weakref.ref(r) for r, _ in out]
     if not n:
         loader.close()
     return out
@@ -308,7 +309,7 @@ class LazyTables:
         self._summary_columns = index.get("summary_columns", np.empty(0, dtype=object))
         self._spans = spans
         self._pending = set(range(len(self._beat_columns)))
-        self.recordings: list[StoredRecording] = []
+        self.recordings: list = []  # weak references: a recording no one holds is not filled
 
     def close(self) -> None:
         """Read every recording not read yet, then close the file."""
@@ -328,7 +329,10 @@ class LazyTables:
         from analysis.results._h5 import damaged
 
         lo = row - row % READ_BLOCK
-        rows = [i for i in range(lo, min(lo + READ_BLOCK, len(self.recordings))) if i in self._pending]
+        rows = [
+            i for i in range(lo, min(lo + READ_BLOCK, len(self.recordings)))
+            if i in self._pending and (i == row or self.recordings[i]() is not None)
+        ]
         try:
             tables = {name: self._read_span(name, rows) for name in LAZY_FIELDS}
             samples = self._samples(tables["ensembles"])
@@ -336,7 +340,9 @@ class LazyTables:
         except (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexError) as exc:
             raise damaged(self.path, exc) from None
         for i, values in filled.items():
-            self.recordings[i].__dict__.update(values)
+            r = self.recordings[i]()
+            if r is not None:
+                r.__dict__.update(values)
             self._pending.discard(i)
         if not self._pending:
             self._release()

@@ -21,7 +21,7 @@ from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
-__all__ = ["EVENTS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
+__all__ = ["EVENTS", "LAZY_ENTRY_FIELDS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
 
 EVENTS = (
     "recording_added", "recording_removed", "results_changed", "decisions_changed",
@@ -100,9 +100,19 @@ class RecordingInfo(RecordingFacts):
         return cls(**facts_values(facts), ljp_mV=float(ljp_mV))
 
 
+#: Fields of an :class:`Entry` opened from a results file that are read when first used.
+LAZY_ENTRY_FIELDS = ("table", "warnings", "decisions", "conditions", "summaries")
+
+
 @dataclass
 class Entry:
-    """A recording's state inside a session (internal to the session modules)."""
+    """A recording's state inside a session (internal to the session modules).
+
+    An entry opened from a results file may be *lazy*: it holds a ``_load`` callable in place of
+    the fields in :data:`LAZY_ENTRY_FIELDS`, which the first access to any of them calls to read
+    them all (:func:`analysis.session.open_session`). None of those fields has a class-level
+    default, so that the access reaches :meth:`__getattr__`.
+    """
 
     info: RecordingFacts
     settings: Any
@@ -112,8 +122,21 @@ class Entry:
     conditions: tuple[Condition, ...]
     recording: Recording | None = None
     requested_channel: int | str | None = None
-    summaries: list | None = None
+    summaries: list | None = field(default_factory=lambda: None)
     version: int = 0
+
+    def __getattr__(self, name: str) -> Any:
+        load = self.__dict__.get("_load")
+        if load is None or name not in LAZY_ENTRY_FIELDS:
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        self.__dict__.update(load())
+        del self.__dict__["_load"]
+        return self.__dict__[name]
+
+    @property
+    def loaded(self) -> bool:
+        """False while an entry opened from a results file has not read its tables yet."""
+        return "_load" not in self.__dict__
 
     @property
     def ljp_mV(self) -> float:
