@@ -102,8 +102,12 @@ def read_columns(group, start: int = 0, stop: int | None = None, *, names=None) 
     """Rows ``start:stop`` of a table's columns (all its columns, or ``names`` in that order)."""
     names = [text(n) for n in group.attrs["columns"]] if names is None else list(names)
     out: dict[str, np.ndarray] = {}
+    shape = None
     for name in names:
         ds = checked(group[name])
+        shape = ds.shape if shape is None else shape
+        if ds.shape != shape or len(shape) > 1:
+            raise ValueError(f"{ds.name} is not a column as long as the others of its table")
         out[name] = _column(ds, start, stop)
         if np.ndim(out[name]) != 1 or len(out[name]) != len(next(iter(out.values()))):
             raise ValueError(f"{ds.name} is not a column as long as the others of its table")
