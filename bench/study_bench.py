@@ -131,7 +131,7 @@ def measure(folder: Path, n: int) -> dict:
     summary = run_rss(["-m", "app", "export", str(out), "--summary-csv", str(folder / f"s{n}.csv")])
     beats = run_rss(["-m", "app", "export", str(out), "--csv", str(folder / f"b{n}.csv")])
     size_mb = out.stat().st_size / 2**20
-    shutil.rmtree(rec)
+    shutil.rmtree(rec)  # after the reopen, which checks each source's SHA-256 as the app does
     print(f"N = {n}: recordings made in {made:.0f} s; results file {size_mb:.2f} MB; exits "
           f"{batch['code']}/{opened['code']}/{summary['code']}/{beats['code']}", flush=True)
     return {
