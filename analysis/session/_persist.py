@@ -66,7 +66,8 @@ def stored_recordings(session: SessionCore) -> list[StoredRecording]:
 def save_session(session: SessionCore, path: str | os.PathLike, *, atomic: bool = True) -> None:
     """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
-    save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
+    # The file the session came from lends the new file any groups of other modules it holds.
+    save_results(path, ResultsFile(stored_recordings(session), default, path=session.path), atomic=atomic)
 
 
 def _settings(text: str, path: str, label: str):
