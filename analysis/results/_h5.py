@@ -12,8 +12,10 @@ from typing import Mapping
 
 import numpy as np
 
+from analysis.errors import ResultsFileError
+
 __all__ = [
-    "MAX_TEXT_CHARS", "checked", "h5_is_string", "read_columns", "read_text_column", "set_text_attr",
+    "MAX_TEXT_CHARS", "checked", "damaged", "h5_is_string", "read_columns", "read_text_column", "set_text_attr",
     "str_dtype", "text", "text_array", "write_column", "write_columns",
 ]
 
@@ -116,8 +118,6 @@ def read_columns(group, start: int = 0, stop: int | None = None, *, names=None) 
 
 def damaged(path: str, exc: BaseException):
     """The one-line error for a results file whose content cannot be read."""
-    from analysis.errors import ResultsFileError
-
     return ResultsFileError(
         path, f"is damaged and cannot be read ({type(exc).__name__}: {' '.join(str(exc).split())[:120]})",
         "restore it from a backup or analyse the recordings again",

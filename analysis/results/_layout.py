@@ -10,6 +10,7 @@ recordings and a pass over all of them reads in large slices. See docs/results-f
 
 from __future__ import annotations
 
+import os
 import weakref
 from typing import Mapping, Sequence
 
@@ -18,7 +19,7 @@ import numpy as np
 from analysis.decisions import FIELDS as DECISION_FIELDS
 from analysis.decisions import DecisionLog
 from analysis.recording import recording_id
-from analysis.results._h5 import checked, read_columns, str_dtype, text, text_array
+from analysis.results._h5 import checked, damaged, read_columns, str_dtype, text, text_array
 from analysis.results._legacy import conditions_from_columns
 from analysis.results._records import LAZY_FIELDS, StoredRecording
 from analysis.table import BeatTable
@@ -176,8 +177,6 @@ class _Writer:
 
 
 def _relpath(r: StoredRecording, folder: str) -> str:
-    import os
-
     if not (r.sha256 and os.path.isabs(r.source_path)):
         return ""
     try:
@@ -326,8 +325,6 @@ class LazyTables:
             f.close()
 
     def fill(self, row: int) -> None:
-        from analysis.results._h5 import damaged
-
         lo = row - row % READ_BLOCK
         rows = [
             i for i in range(lo, min(lo + READ_BLOCK, len(self.recordings)))
