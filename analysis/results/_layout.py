@@ -162,7 +162,8 @@ class _Writer:
             }], [1])
         out = {
             "id": recording_id(r.sha256), "label": r.label, "source_path": r.source_path,
-            "source_relpath": _relpath(r, self.folder), "sha256": r.sha256, "reader": r.reader,
+            "source_relpath": _relpath(r, self.folder), "sha256": r.sha256,
+            "source_bytes": np.int64(r.source_bytes), "reader": r.reader,
             "channel": np.int64(r.channel), "channel_name": r.channel_name, "units": r.units,
             "ljp_mV": np.float64(r.ljp_mV), "sampling_rate_hz": np.float64(r.sampling_rate_hz),
             "all_sweeps": np.int64(r.sweeps is None), "settings_row": np.int64(row),
@@ -276,6 +277,7 @@ def read_v2(f, path: str) -> list[tuple[StoredRecording, str]]:
         r = StoredRecording.__new__(StoredRecording)
         r.__dict__.update(
             source_path=str(cols["source_path"][i]), label=str(cols["label"][i]), sha256=str(cols["sha256"][i]),
+            source_bytes=int(cols["source_bytes"][i]) if "source_bytes" in cols else -1,
             reader=str(cols["reader"][i]), channel=int(cols["channel"][i]), channel_name=str(cols["channel_name"][i]),
             units=str(cols["units"][i]),
             sweeps=None if int(cols["all_sweeps"][i]) else tuple(int(x) for x in sweeps[s:s + c]),

@@ -36,7 +36,7 @@ from analysis.results._layout import OWNED, read_v2, write_v2
 from analysis.results._legacy import read_v1
 from analysis.results._records import ResultsFile, StoredRecording
 
-__all__ = ["FORMAT_NAME", "SCHEMA_VERSION", "load_results", "save_results"]
+__all__ = ["FORMAT_NAME", "SCHEMA_VERSION", "changed_source_warning", "load_results", "save_results"]
 
 FORMAT_NAME = "upstroke-results"
 #: Version of the layout above. Readers refuse files with a newer version.
@@ -129,7 +129,15 @@ def save_results(
 
 
 # -- reading ----------------------------------------------------------------------------------
-def _check_source(rec: StoredRecording, relpath: str, folder: str, warnings: list[str]) -> None:
+def changed_source_warning(label: str, path: str, how: str) -> str:
+    """The warning for a source recording that differs from the one analysed (``how``: the test)."""
+    return (
+        f"{label}: the source recording ({path}) has changed since it was analysed "
+        f"({how}); the saved results may not match it"
+    )
+
+
+def _check_source(rec: StoredRecording, relpath: str, folder: str, warnings: list[str], full: bool) -> None:
     # A results file moved together with its recordings finds them through the relative path.
     candidates = []
     if relpath:
@@ -144,26 +152,28 @@ def _check_source(rec: StoredRecording, relpath: str, folder: str, warnings: lis
         return
     rec.source_path = os.path.abspath(found)
     try:
-        digest = file_sha256(found)
+        size = os.path.getsize(found)
+        digest = file_sha256(found) if full else None
     except OSError as exc:
         warnings.append(f"{rec.label}: the source recording cannot be read ({exc.strerror}); the results open")
         return
-    if digest != rec.sha256:
-        warnings.append(
-            f"{rec.label}: the source recording ({found}) has changed since it was analysed "
-            "(SHA-256 differs); the saved results may not match it"
-        )
+    if rec.source_bytes >= 0 and size != rec.source_bytes:
+        warnings.append(changed_source_warning(rec.label, found, "its size differs"))
+    elif digest is not None and digest != rec.sha256:
+        warnings.append(changed_source_warning(rec.label, found, "SHA-256 differs"))
 
 
-def load_results(path: str | os.PathLike, *, verify_sources: bool = True) -> ResultsFile:
+def load_results(path: str | os.PathLike, *, verify_sources: bool | str = True) -> ResultsFile:
     """Read a results file.
 
     Parameters
     ----------
     path : str or path
-    verify_sources : bool
-        Compare each source recording's SHA-256 with the one saved; a changed or missing source
-        adds a line to ``open_warnings`` (the results still open).
+    verify_sources : bool or "quick"
+        True: compare each source recording's size and SHA-256 with those saved; a changed or
+        missing source adds a line to ``open_warnings`` (the results still open). ``"quick"``:
+        only find each source and compare its size, which reads no recording (the session
+        compares the SHA-256 when it first opens a recording). False: neither.
 
     Returns
     -------
@@ -209,7 +219,7 @@ def load_results(path: str | os.PathLike, *, verify_sources: bool = True) -> Res
     if verify_sources:
         for rec, relpath in found:
             if rec.sha256:
-                _check_source(rec, relpath, folder, warnings)
+                _check_source(rec, relpath, folder, warnings, full=verify_sources != "quick")
     return ResultsFile([r for r, _ in found], default, warnings, os.path.abspath(name))
 
 

@@ -124,7 +124,9 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
     """
 
     text = os.fspath(path)
-    content: ResultsFile = load_results(text, verify_sources=verify_sources)
+    # Opening finds each source and compares its size; the SHA-256, which reads the whole
+    # recording, is compared when the session first opens it (Session.recording).
+    content: ResultsFile = load_results(text, verify_sources="quick" if verify_sources else False)
     default = _settings(content.default_settings_json, text, "the session") if content.default_settings_json else None
     session = cls(default, match_tolerance_s=match_tolerance_s)
     parsed: dict[str, object] = {}  # the distinct settings of the file, each parsed once
@@ -141,7 +143,7 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
         entry = _Entry.__new__(_Entry)
         entry.__dict__.update(
             info=info, settings=settings, recording=None, requested_channel=r.channel, version=0,
-            _load=_loader(r, text),
+            unverified=bool(verify_sources and r.sha256), _load=_loader(r, text),
         )
         session._entries[key] = entry
     session.path = os.path.abspath(text)

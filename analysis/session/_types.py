@@ -124,6 +124,9 @@ class Entry:
     requested_channel: int | str | None = None
     summaries: list | None = field(default_factory=lambda: None)
     version: int = 0
+    #: True for a recording opened from a results file whose source's SHA-256 is still to be
+    #: compared with the one analysed (done when the source is first opened).
+    unverified: bool = False
 
     def __getattr__(self, name: str) -> Any:
         load = self.__dict__.get("_load")
@@ -186,6 +189,7 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
         label=label,
         sha256=(rec.sha256 or "") if rec.source_path else "",
+        source_bytes=_size(rec.source_path),
         reader=rec.format,
         channel=int(result.channel),
         channel_name=str(result.channel_name),
@@ -196,6 +200,13 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         sweep_lengths=tuple(rec.sweep_lengths),
         provenance=provenance_now(),
     )
+
+
+def _size(path: str | None) -> int:
+    try:
+        return os.path.getsize(path) if path else -1
+    except OSError:
+        return -1
 
 
 def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:

@@ -47,3 +47,26 @@ def test_saving_elsewhere_keeps_another_module_s_groups(tmp_path):
     opened.save(tmp_path / "copy.h5")
     with h5py.File(tmp_path / "copy.h5", "r") as f:
         assert f["study"].attrs["cells"] == 3
+
+
+def test_a_changed_source_is_noticed_by_size_at_open_and_by_sha256_when_opened(tmp_path):
+    from analysis.synthetic import write_abf
+
+    src = tmp_path / "NL-0417.abf"
+    write_abf(synthesize(preset("nodal-like"), duration_s=3.0, fs_hz=5_000.0, seed=5).recording, src)
+    s = Session()
+    s.add(src)
+    s.save(tmp_path / "study.h5")
+    assert Session.open(tmp_path / "study.h5").open_warnings == []
+    data = bytearray(src.read_bytes())
+    data[-2:] = bytes([data[-2] ^ 0xFF, data[-1] ^ 0xFF])  # the last sample changed, same size
+    src.write_bytes(bytes(data))
+    opened = Session.open(tmp_path / "study.h5")
+    assert opened.open_warnings == []  # the size alone cannot tell; nothing read yet
+    heard = []
+    opened.subscribe("warning", heard.append)
+    opened.recording(opened.recordings[0])
+    assert any("SHA-256 differs" in w for w in opened.open_warnings)
+    assert any(c.event == "warning" and "has changed" in c.detail for c in heard)
+    src.write_bytes(bytes(data) + b"\0\0")
+    assert any("its size differs" in w for w in Session.open(tmp_path / "study.h5").open_warnings)
