@@ -15,5 +15,6 @@ from analysis.results._atomic import (
 from analysis.results._facts import RecordingFacts, facts_values
 from analysis.results._records import LAZY_FIELDS, ResultsFile, StoredRecording, provenance_now
 from analysis.results._store import FORMAT_NAME, SCHEMA_VERSION, changed_source_warning, load_results, save_results
+from analysis.results._study import read_study, write_study
 
-__all__ = ["FORMAT_NAME", "LAZY_FIELDS", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "changed_source_warning", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "LAZY_FIELDS", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "changed_source_warning", "facts_values", "fsync_folder", "load_results", "provenance_now", "read_study", "remove_stale_temps", "save_results", "temp_prefix", "write_study", "write_text_atomic"]

@@ -35,6 +35,7 @@ from analysis.results._h5 import checked, damaged, set_text_attr, str_dtype, tex
 from analysis.results._layout import OWNED, read_v2, write_v2
 from analysis.results._legacy import read_v1
 from analysis.results._records import ResultsFile, StoredRecording
+from analysis.results._study import carry_study
 
 __all__ = ["FORMAT_NAME", "SCHEMA_VERSION", "changed_source_warning", "load_results", "save_results"]
 
@@ -124,6 +125,7 @@ def save_results(
                 _copy_foreign(carry, f)
                 f.flush()
             _release(recordings)
+            carry_study(target, tmp)  # a study's layout stays with the file it describes
     except PermissionError as exc:
         raise ResultsFileError(path, f"cannot be written ({exc.strerror})", "choose a folder you can write to") from None
 
