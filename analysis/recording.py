@@ -28,6 +28,8 @@ __all__ = [
     "VOLTAGE_CLAMP",
     "UNKNOWN_CLAMP",
     "MIN_SAMPLES_PER_SWEEP",
+    "RECORDING_ID_DIGITS",
+    "recording_id",
 ]
 
 CURRENT_CLAMP = "current clamp"
@@ -425,6 +427,25 @@ def file_sha256(path: str | os.PathLike, chunk_bytes: int = 1 << 20) -> str:
         while block := fh.read(chunk_bytes):
             digest.update(block)
     return digest.hexdigest()
+
+
+#: Hex digits of the SHA-256 that make a recording's identifier.
+RECORDING_ID_DIGITS = 16
+
+
+def recording_id(sha256_hex: str | None) -> str:
+    """The stable identifier of a recording: the first 16 hex digits of its file's SHA-256.
+
+    The same file gives the same identifier from the command line, a batch and the app, wherever
+    the file lies; the results file's index and the tables carry it. In-memory data (no file,
+    no SHA-256) has none: "".
+
+    Examples
+    --------
+    >>> recording_id("9f86d081884c7d659a2feaa0c55ad015a3bf4f1b2b0b822cd15d6c15b0f00a08")
+    '9f86d081884c7d65'
+    """
+    return (sha256_hex or "")[:RECORDING_ID_DIGITS].lower()
 
 
 def check_finite(samples: np.ndarray, origin: str | None, where: str = "") -> None:

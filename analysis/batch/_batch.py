@@ -23,6 +23,7 @@ from __future__ import annotations
 import contextlib
 import multiprocessing
 import os
+import queue
 import signal
 import sys
 import time
@@ -275,18 +276,27 @@ def _worker_environment() -> Iterator[None]:
 def _run_pool(tasks: Sequence[FileTask], n_workers: int, cancel: Any) -> Iterator[FileOutcome]:
     pool = _cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=_pool_context(), initializer=_worker_init)
     finished = False
+    # Each future puts itself on this queue when done: collecting costs the same per file
+    # whatever the number of files still pending (waiting on all pending futures would not).
+    done: queue.SimpleQueue = queue.SimpleQueue()
     try:
         with _worker_environment():
-            pending = {pool.submit(analyze_file, t): t for t in tasks}
+            pending = {}
+            for t in tasks:
+                fut = pool.submit(analyze_file, t)
+                pending[fut] = t
+                fut.add_done_callback(done.put)
         done_count = 0
         while pending:
             if _cancelled(cancel):
                 raise BatchCancelled(done_count, len(tasks))
-            ready, _ = _cf.wait(pending, timeout=_POLL_S, return_when=_cf.FIRST_COMPLETED)
-            for fut in ready:
-                task = pending.pop(fut)
-                done_count += 1
-                yield _pool_outcome(fut, task)
+            try:
+                fut = done.get(timeout=_POLL_S)
+            except queue.Empty:
+                continue
+            task = pending.pop(fut)
+            done_count += 1
+            yield _pool_outcome(fut, task)
         finished = True
     finally:
         if finished:

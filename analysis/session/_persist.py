@@ -67,7 +67,8 @@ def stored_recordings(session: SessionCore) -> list[StoredRecording]:
 def save_session(session: SessionCore, path: str | os.PathLike, *, atomic: bool = True) -> None:
     """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
-    save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
+    # The file the session came from lends the new file any groups of other modules it holds.
+    save_results(path, ResultsFile(stored_recordings(session), default, path=session.path), atomic=atomic)
 
 
 def _settings(text: str, path: str, label: str):
@@ -116,32 +117,52 @@ def _stored_summaries(r: StoredRecording) -> list:
 
 
 def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> SessionCore:
-    """Rebuild a session from a results file (recordings are opened lazily)."""
+    """Rebuild a session from a results file (recordings are opened lazily).
+
+    Only the file's index is read now: each recording's facts and settings. Its beat table,
+    decisions, conditions, summaries and warnings are read the first time the session uses them
+    (schema-2 files; a schema-1 file is read whole but converted on first use all the same).
+    """
 
     text = os.fspath(path)
-    content: ResultsFile = load_results(text, verify_sources=verify_sources)
+    # Opening finds each source and compares its size; the SHA-256, which reads the whole
+    # recording, is compared when the session first opens it (Session.recording).
+    content: ResultsFile = load_results(text, verify_sources="quick" if verify_sources else False)
     default = _settings(content.default_settings_json, text, "the session") if content.default_settings_json else None
     session = cls(default, match_tolerance_s=match_tolerance_s)
+    parsed: dict[str, object] = {}  # the distinct settings of the file, each parsed once
     for r in content.recordings:
-        settings = _settings(r.settings_json, text, r.label)
-        try:
-            table = _auto_table(r.beats, settings.quality.review_flags)
-            conditions = check_conditions(r.conditions)
-            summaries = _stored_summaries(r)
-        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
-            raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
+        settings = parsed.get(r.settings_json)
+        if settings is None:
+            settings = parsed[r.settings_json] = _settings(r.settings_json, text, r.label)
         # The stored ljp_mV attribute is not read back: the settings hold the LJP (one home).
         info = RecordingFacts(**facts_values(r))
         key = _key_of(r.source_path) if r.sha256 else r.label
         base, n = key, 2
         while key in session._entries:  # a file written elsewhere may hold a source twice
             key, n = f"{base}#{n}", n + 1
-        session._entries[key] = _Entry(
-            info=info, settings=settings, table=table,
-            warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,
-            requested_channel=r.channel, summaries=summaries,
+        entry = _Entry.__new__(_Entry)
+        entry.__dict__.update(
+            info=info, settings=settings, recording=None, requested_channel=r.channel, version=0,
+            unverified=bool(verify_sources and r.sha256), _load=_loader(r, text, settings.quality.review_flags),
         )
+        session._entries[key] = entry
     session.path = os.path.abspath(text)
     session.open_warnings = list(content.open_warnings)
     session._clean_depth = 0
     return session
+
+
+def _loader(r: StoredRecording, path: str, review_flags):
+    """Reads a stored recording's tables into the session's terms, once, when first needed."""
+
+    def load() -> dict:
+        try:
+            return {
+                "table": _auto_table(r.beats, review_flags), "warnings": tuple(r.warnings), "decisions": r.decisions,
+                "conditions": check_conditions(r.conditions), "summaries": _stored_summaries(r),
+            }
+        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
+            raise ResultsFileError(path, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
+
+    return load

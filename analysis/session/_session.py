@@ -68,6 +68,7 @@ from analysis.decisions import (
 from analysis.errors import RecordingError
 from analysis.readers import open_recording
 from analysis.recording import Recording
+from analysis.results import changed_source_warning
 from analysis.session._commands import (
     ConditionsCommand,
     DecideCommand,
@@ -238,6 +239,12 @@ class Session(SessionHistory, SessionWork):
             if not os.path.isfile(path):
                 raise RecordingError(path, "the source recording is not there", "put it back or re-link it, then try again")
             rec = open_recording(path)
+            if e.unverified:
+                e.unverified = False
+                if rec.sha256 != e.info.sha256:
+                    warning = changed_source_warning(e.info.label, path, "SHA-256 differs")
+                    self.open_warnings.append(warning)
+                    self._emit("warning", key, detail=warning)
             if rec.units(e.info.channel) != e.info.units:
                 # The units were declared anew when it was analysed (a mislabelled channel).
                 rec = rec.with_units(e.info.channel, e.info.units)
@@ -437,8 +444,11 @@ class Session(SessionHistory, SessionWork):
     def open(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
         """A session restored from a results file.
 
-        Recordings are opened from their sources only when needed (traces, re-analysis);
-        a changed or missing source adds a line to :attr:`open_warnings` and the results open.
+        Only the file's index is read now; each recording's tables are read when first used,
+        and its source is opened only when needed (traces, re-analysis). A missing source, or
+        one whose size differs from the one analysed, adds a line to :attr:`open_warnings` at
+        once; a source whose SHA-256 differs adds one (and a ``warning`` event) when it is first
+        opened. The results open either way.
 
         Raises
         ------

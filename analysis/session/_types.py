@@ -21,7 +21,7 @@ from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
-__all__ = ["EVENTS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
+__all__ = ["EVENTS", "LAZY_ENTRY_FIELDS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
 
 EVENTS = (
     "recording_added", "recording_removed", "results_changed", "decisions_changed",
@@ -100,9 +100,19 @@ class RecordingInfo(RecordingFacts):
         return cls(**facts_values(facts), ljp_mV=float(ljp_mV))
 
 
+#: Fields of an :class:`Entry` opened from a results file that are read when first used.
+LAZY_ENTRY_FIELDS = ("table", "warnings", "decisions", "conditions", "summaries")
+
+
 @dataclass
 class Entry:
-    """A recording's state inside a session (internal to the session modules)."""
+    """A recording's state inside a session (internal to the session modules).
+
+    An entry opened from a results file may be *lazy*: it holds a ``_load`` callable in place of
+    the fields in :data:`LAZY_ENTRY_FIELDS`, which the first access to any of them calls to read
+    them all (:func:`analysis.session.open_session`). None of those fields has a class-level
+    default, so that the access reaches :meth:`__getattr__`.
+    """
 
     info: RecordingFacts
     settings: Any
@@ -112,8 +122,24 @@ class Entry:
     conditions: tuple[Condition, ...]
     recording: Recording | None = None
     requested_channel: int | str | None = None
-    summaries: list | None = None
+    summaries: list | None = field(default_factory=lambda: None)
     version: int = 0
+    #: True for a recording opened from a results file whose source's SHA-256 is still to be
+    #: compared with the one analysed (done when the source is first opened).
+    unverified: bool = False
+
+    def __getattr__(self, name: str) -> Any:
+        load = self.__dict__.get("_load")
+        if load is None or name not in LAZY_ENTRY_FIELDS:
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        self.__dict__.update(load())
+        del self.__dict__["_load"]
+        return self.__dict__[name]
+
+    @property
+    def loaded(self) -> bool:
+        """False while an entry opened from a results file has not read its tables yet."""
+        return "_load" not in self.__dict__
 
     @property
     def ljp_mV(self) -> float:
@@ -163,6 +189,7 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
         label=label,
         sha256=(rec.sha256 or "") if rec.source_path else "",
+        source_bytes=_size(rec.source_path),
         reader=rec.format,
         channel=int(result.channel),
         channel_name=str(result.channel_name),
@@ -173,6 +200,13 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         sweep_lengths=tuple(rec.sweep_lengths),
         provenance=provenance_now(),
     )
+
+
+def _size(path: str | None) -> int:
+    try:
+        return os.path.getsize(path) if path else -1
+    except OSError:
+        return -1
 
 
 def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:

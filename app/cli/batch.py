@@ -126,8 +126,11 @@ def run(args: argparse.Namespace) -> int:
     with _sigterm_as_interrupt():
         with tqdm(total=len(tasks), unit="file", desc="upstroke batch", file=sys.stderr,
                   disable=args.quiet, dynamic_ncols=True) as bar:
+            found = [0]  # beats so far, counted as each file arrives
+
             def on_done(outcome, done, total):
-                bar.set_postfix_str(os.path.basename(outcome.path), refresh=False)
+                found[0] += len(next(iter(outcome.columns.values()), ()))
+                bar.set_postfix_str(f"{os.path.basename(outcome.path)}, {found[0]} beats", refresh=False)
                 bar.update(1)
 
             result = run_batch(tasks, workers=args.workers, scheduler=args.scheduler, on_done=on_done)
