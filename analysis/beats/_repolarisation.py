@@ -22,7 +22,7 @@ import math
 
 import numpy as np
 
-from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth
+from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth, savgol_smooth_interior
 
 __all__ = ["first_crossings", "first_crossings_one", "refine_crossings", "refine_crossing_one"]
 
@@ -69,6 +69,23 @@ def _smooth_rows_sums(x: np.ndarray, w: int) -> np.ndarray:
     s2k = h * (h + 1) * (2 * h + 1) / 3.0
     s4k = s2k * (3 * h * h + 3 * h - 1) / 5.0
     return (s4k * s0 - s2k * k2y) / (w * s4k - s2k * s2k) + ref
+
+
+def _smoothed(v: np.ndarray, w: int, lo: int, hi: int) -> np.ndarray:
+    """Savitzky-Golay smoothing (order 3) of ``v`` at the samples ``lo:hi`` (``w // 2`` inside each end).
+
+    One pass over the stretch, however many beats' repolarisations it holds: a short window by
+    direct convolution, a long one by running sums (the same cost for any window; they agree
+    with the convolution to well under a microvolt).
+    """
+    h = w // 2
+    x = v[lo - h:hi + h]
+    if w <= 1:
+        return np.array(x, dtype=np.float64)
+    if w >= 31:
+        return savgol_smooth_interior(x, w)
+    # The coefficients are symmetric: convolution and correlation agree.
+    return np.convolve(x, savgol_coeffs(w, 3), mode="valid")
 
 
 def first_crossings_one(v: np.ndarray, w_rep: int, ip: int, limit: int, levels: list[float]) -> list[float]:
@@ -124,8 +141,10 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     """:func:`first_crossings_one` for every beat: ``levels`` has one row per beat (NaN: skip).
 
     Returns fractional indices, shape ``levels.shape`` (NaN where a level is not crossed). The
-    repolarisations are gathered in stages (the first 0.1 s after each peak, then up to 0.25 s,
-    then up to :data:`_GATHER_S`), each beat only as far as its deepest level needs.
+    stretch the repolarisations cover is smoothed once; the smoothed repolarisations are then
+    gathered in stages (the first 0.1 s after each peak, then up to 0.25 s, then up to
+    :data:`_GATHER_S`), each beat only as far as its deepest level needs, so that a beat costs
+    no more than its own samples whatever the length of its action potential.
     """
     k, n_lv = levels.shape
     out = np.full((k, n_lv), np.nan)
@@ -137,6 +156,10 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     cur = np.zeros(k, np.int64)  # the level each beat is looking for
     start = np.zeros(k, np.int64)  # from this sample after the peak
     stages = sorted({int(round(0.1 * fs_hz)), int(round(0.25 * fs_hz)), cap})
+    if inside.any():
+        s_lo = int(ip[inside].min()) - 1
+        s_hi = int((ip + span)[inside].max()) + 1
+        smooth = _smoothed(v, w_rep, s_lo, s_hi)  # smooth[j - s_lo]: the smoothed sample j
     c_lo = 0
     for c_hi in stages:
         if c_hi <= c_lo:
@@ -144,10 +167,9 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
         rows = np.flatnonzero(inside & (cur < n_lv) & (span > c_lo))
         if rows.size:
             # columns c_lo - 1 .. c_hi - 1 of the smoothed trace (one before, for interpolation)
-            cols = np.arange(c_lo - 1 - h, c_hi + h)
-            idx = np.clip(ip[rows, None] + cols[None, :], 0, n - 1)
-            sm = _smooth_rows(v[idx], w_rep)
             c = np.arange(c_lo - 1, c_hi)
+            idx = np.clip(ip[rows, None] - s_lo + c[None, :], 0, smooth.size - 1)
+            sm = smooth[idx]
             valid = c[None, :] < span[rows, None]
             valid[:, 0] = False  # the column before the stage only serves the interpolation
             at = np.arange(rows.size)
