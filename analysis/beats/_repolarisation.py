@@ -142,9 +142,8 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
 
     Returns fractional indices, shape ``levels.shape`` (NaN where a level is not crossed). The
     stretch the repolarisations cover is smoothed once; the smoothed repolarisations are then
-    gathered in stages (the first 0.1 s after each peak, then up to 0.25 s, then up to
-    :data:`_GATHER_S`), each beat only as far as its deepest level needs, so that a beat costs
-    no more than its own samples whatever the length of its action potential.
+    gathered in stages of 50 ms after each peak, up to :data:`_GATHER_S`, each beat only about as
+    far as its deepest level lies.
     """
     k, n_lv = levels.shape
     out = np.full((k, n_lv), np.nan)
@@ -155,7 +154,8 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     inside = (ip - 2 * h - 1 > 0) & (ip + span + 2 * h < n) & (span > 1)
     cur = np.zeros(k, np.int64)  # the level each beat is looking for
     start = np.zeros(k, np.int64)  # from this sample after the peak
-    stages = sorted({int(round(0.1 * fs_hz)), int(round(0.25 * fs_hz)), cap})
+    # Stages of 50 ms: a beat is gathered only about as far as its deepest level lies.
+    stages = sorted({int(round(t * fs_hz)) for t in np.arange(0.05, _GATHER_S, 0.05)} | {cap})
     if inside.any():
         s_lo = int(ip[inside].min()) - 1
         s_hi = int((ip + span)[inside].max()) + 1
