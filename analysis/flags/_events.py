@@ -60,7 +60,7 @@ import numpy as np
 from analysis.flags._trace import as_sweeps, sweep_trace_events
 from analysis.table import BeatTable
 
-__all__ = ["AUTO_PREFIX", "EVENT_FLAGS", "REJECTABLE_FLAGS", "TRACE_FLAGS", "apply_events", "reapply_rules", "artefact_like", "is_event_warning", "rejection_flags", "strip_events", "table_events"]
+__all__ = ["AUTO_PREFIX", "EVENT_FLAGS", "REJECTABLE_FLAGS", "TRACE_FLAGS", "apply_events", "artefact_like", "is_event_warning", "reapply_rules", "rejection_flags", "strip_events", "table_events"]
 
 #: The flag words this module writes, in the order they appear in the ``flags`` column.
 EVENT_FLAGS: tuple[str, ...] = (

@@ -32,7 +32,7 @@ class SessionWork:
     """Settings changes and summaries for :class:`~analysis.session.Session` (a mixin)."""
 
     # -- settings ----------------------------------------------------------------------------
-    def settings_job(self, settings: Any, keys: Sequence[str] | None = None) -> SettingsJob:
+    def settings_job(self, settings: Any, keys: Sequence[str] | None = None, *, summaries: bool = True) -> SettingsJob:
         """A snapshot that computes what new settings give, for running in a worker thread.
 
         Per recording (``keys``, default all) the settings' scope says what is recomputed; the
@@ -60,7 +60,7 @@ class SessionWork:
             e = self._entry(key)
             scope = change_scope(e.settings, settings)
             rec = None
-            if scope in ("analysis", "events"):
+            if scope in ("detect", "measure", "events", "rules"):
                 rec = self.recording(key)
             elif scope == "summary":
                 try:
@@ -68,7 +68,7 @@ class SessionWork:
                 except RecordingError:
                     rec = None  # summaries without their ensemble beat
             items.append(snapshot_settings_item(e, key, scope, rec))
-        return SettingsJob(settings, tuple(items), self.match_tolerance_s)
+        return SettingsJob(settings, tuple(items), self.match_tolerance_s, getattr(self, "workers", None), summaries)
 
     def prepare_settings(
         self, settings: Any, keys: Sequence[str] | None = None, *, progress: Progress | None = None,
