@@ -15,6 +15,7 @@ from typing import Callable, Sequence
 
 from PySide6 import QtCore
 
+from analysis.chunkpool import default_workers
 from analysis.conditions import Condition
 from analysis.errors import InputError
 from analysis.recording import Recording
@@ -98,7 +99,7 @@ class Loader:
         recording with the form's settings (for example by a batch); it is used instead.
         """
         self.runner.cancel_all()
-        self.set_session(Session(self.views.settings_form.settings))
+        self.set_session(Session(self.views.settings_form.settings, workers=default_workers()))
         self.state.key = None
         self.display.forget_beats()
         # A recording opened on its own has no results file yet: saving asks where (it must not
@@ -329,7 +330,8 @@ class Loader:
         session.default_settings = change.settings
         scope = change.scopes.get(self.state.key, "none")
         self.feedback.status({"none": "settings unchanged", "summary": "summaries updated",
-                              "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
+                              "rules": "quality rules applied again", "events": "events and quality rules re-run",
+                              "measure": "beats measured again", "detect": "beats detected and measured again"}.get(scope, scope))
         self.display.refresh_all()
         if pending is not None and pending != change.settings:
             self.reanalyse(pending)
