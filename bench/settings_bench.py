@@ -32,22 +32,25 @@ from analyze_bench import measure
 
 SESSION = textwrap.dedent(
     """
-    import sys, time
+    import resource, sys, time
+    def cpu():
+        a, b = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+        return a.ru_utime + a.ru_stime + b.ru_utime + b.ru_stime
     from analysis.chunkpool import default_workers
     from analysis.session import Session
     from analysis.settings import Settings
     s = Session(Settings(), workers=default_workers())
-    t = time.perf_counter(); key = s.add(sys.argv[1]); print(f"@@add={time.perf_counter() - t:.3f}")
+    t, c = time.perf_counter(), cpu(); key = s.add(sys.argv[1]); print(f"@@add={time.perf_counter() - t:.3f} - {cpu() - c:.3f}")
     changes = [("rule", "quality.reject_low_apa", True, False), ("rule+summaries", "quality.reject_low_apa", False, True),
                ("events", "quality.ead_min_mV", 4.0, True), ("measure", "measurement.mdp_smoothing_ms", 3.0, True),
                ("detect", "detection.min_interval_ms", 120.0, True)]
     for label, name, value, summaries in changes:
         new = s.settings(key).replace(name, value)
-        t = time.perf_counter()
+        t, c = time.perf_counter(), cpu()
         job = s.settings_job(new, [key], summaries=summaries)
         change = job()
         assert s.apply_settings(change)
-        print(f"@@{label}={time.perf_counter() - t:.3f} {change.scopes[key]}")
+        print(f"@@{label}={time.perf_counter() - t:.3f} {change.scopes[key]} {cpu() - c:.3f}")
     """
 )
 
@@ -74,13 +77,14 @@ def main() -> int:
         print()
         print(f"upstroke analyze                 {a_wall:7.2f} s wall {a_cpu:7.2f} s CPU {a_mb:6.0f} MB")
         print(f"session process (add + changes)  {s_wall:7.2f} s wall {s_cpu:7.2f} s CPU {s_mb:6.0f} MB")
-        print(f"session add (first analysis)     {float(figures['add'][0]):7.2f} s")
+        print(f"session add (first analysis)     {float(figures['add'][0]):7.2f} s wall {float(figures['add'][2]):7.2f} s CPU")
         for name, what in (("rule", "quality rule, re-flag"), ("rule+summaries", "quality rule + summaries"),
                            ("events", "trace event setting"), ("measure", "measurement setting"),
                            ("detect", "detection setting")):
-            t, stage = float(figures[name][0]), figures[name][1]
+            t, stage, c = float(figures[name][0]), figures[name][1], float(figures[name][2])
             target = " (target < 0.2 s)" if name == "rule" else ""
-            print(f"{what:32s} {t:7.3f} s  = {t / a_wall:5.2f}x analyze wall  [stage {stage}]{target}")
+            print(f"{what:32s} {t:7.3f} s wall = {t / a_wall:5.2f}x analyze; {c:7.3f} s CPU = {c / a_cpu:5.2f}x"
+                  f"  [stage {stage}]{target}")
         print("target: every change within 1.5x of upstroke analyze")
     finally:
         if not args.keep:

@@ -306,7 +306,9 @@ class Loader:
         runs on the GUI thread with its result. False when the job cannot be made."""
         session, key = self.state.session, self.state.key
         try:
-            job = session.settings_job(settings, [key])
+            # The summaries follow in their own background job (summary_job): the beats, flags
+            # and rejections show as soon as the stage the change reran is done.
+            job = session.settings_job(settings, [key], summaries=False)
         except InputError as exc:  # the source has gone: the results stay as they are
             self.feedback.show_error(exc.one_line() + " (re-analysis needs the recording)")
             self.views.settings_form.show_settings(session.settings(key))
