@@ -40,11 +40,15 @@ class SessionWork:
         :class:`~analysis.session.SettingsJob`):
 
         * a summary-only change recomputes the summaries;
-        * a quality change (perhaps with summary) re-runs the events and quality rules on the
-          beats already measured, then the summaries;
-        * a preprocess, detection or measurement change re-runs detection and measurement of the
-          recording's analysed sweeps (its selection, see :meth:`set_sweeps`), then the rules
-          and summaries.
+        * a change of the table's quality rules re-flags the table without reading samples;
+        * a change of the trace's event settings re-runs the events and quality rules on the
+          beats already measured;
+        * a measurement change (or the artefact rule's) measures the beats again from their
+          detections (:func:`analysis.pipeline.stage_of_change` names the stage of each field);
+        * a preprocess or detection change re-runs detection and measurement of the recording's
+          analysed sweeps (its selection, see :meth:`set_sweeps`);
+        each followed by the later stages, the summaries last (unless ``summaries`` is False:
+        the session then computes them when next asked, see :meth:`summary_job`).
 
         Call it on the session's thread; the job holds immutable inputs only, so the session may
         go on changing while it runs. Hand its result to :meth:`apply_settings`.
