@@ -173,26 +173,31 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
             c = np.arange(c_lo - 1, c_hi)
             idx = np.clip(ip[rows, None] - s_lo + c[None, :], 0, smooth.size - 1)
             sm = smooth[idx]
-            valid = c[None, :] < span[rows, None]
-            valid[:, 0] = False  # the column before the stage only serves the interpolation
-            at = np.arange(rows.size)
+            col = np.arange(c.size)[None, :]
             for p in range(n_lv):
                 mine = cur[rows] == p
                 lv = levels[rows, p]
                 skip = mine & ~np.isfinite(lv)
                 cur[rows[skip]] += 1
-                mine &= ~skip
-                if not mine.any():
+                sel = np.flatnonzero(mine & ~skip)
+                if sel.size == 0:
                     continue
-                below = valid & (sm <= lv[:, None]) & (c[None, :] >= start[rows, None]) & mine[:, None]
+                r, lv = rows[sel], lv[sel]
+                smr = sm[sel]
+                # Columns searched: from the beat's start (never the column before the stage,
+                # which only serves the interpolation) to the end of its span.
+                first = np.maximum(start[r] - (c_lo - 1), 1)
+                stop = span[r] - (c_lo - 1)
+                below = (smr <= lv[:, None]) & (col >= first[:, None]) & (col < stop[:, None])
                 has = below.any(axis=1)
                 j = np.argmax(below, axis=1)  # column of sm
-                y0, y1 = sm[at, np.maximum(j - 1, 0)], sm[at, j]
+                at = np.arange(sel.size)
+                y0, y1 = smr[at, np.maximum(j - 1, 0)], smr[at, j]
                 jc = c[j]  # samples after the peak
-                interp = (jc > start[rows]) & (y0 != y1)
+                interp = (jc > start[r]) & (y0 != y1)
                 with np.errstate(divide="ignore", invalid="ignore"):
                     x = np.where(interp, jc - 1 + (y0 - lv) / (y0 - y1), jc.astype(np.float64))
-                got = rows[has]
+                got = r[has]
                 out[got, p] = ip[got] + x[has]
                 start[got] = np.floor(x[has]).astype(np.int64)
                 cur[got] += 1
