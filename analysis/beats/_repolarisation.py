@@ -22,7 +22,7 @@ import math
 
 import numpy as np
 
-from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth, savgol_smooth_interior
+from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth
 
 __all__ = ["first_crossings", "first_crossings_one", "refine_crossings", "refine_crossing_one"]
 
@@ -75,20 +75,22 @@ def _smoothed(v: np.ndarray, w: int, lo: int, hi: int) -> np.ndarray:
     """Savitzky-Golay smoothing (order 3) of ``v`` at the samples ``lo:hi`` (``w // 2`` inside each end).
 
     One pass over the stretch, however many beats' repolarisations it holds: a short window by
-    direct convolution, a long one by running sums (the same cost for any window; they agree
-    with the convolution to well under a microvolt).
+    direct correlation, a long one by FFT convolution (running sums over a whole stretch would
+    lose digits to their long index weights).
     """
     h = w // 2
-    x = v[lo - h:hi + h]
+    x = np.asarray(v[lo - h:hi + h], dtype=np.float64)
     if w <= 1:
-        return np.array(x, dtype=np.float64)
+        return x.copy()
+    coeffs = savgol_coeffs(w, 3)  # symmetric: correlation and convolution agree
     if w >= 31:
-        return savgol_smooth_interior(x, w)
+        from scipy.signal import oaconvolve  # scipy.signal is slow to import; only long windows need it
+
+        return oaconvolve(x, coeffs, mode="valid")
     from scipy.ndimage import correlate1d  # scipy.ndimage is slow to import; only measuring needs it
 
-    # The coefficients are symmetric: correlation and convolution agree. scipy's correlation
-    # runs in about half the time of numpy's convolution over a chunk.
-    return correlate1d(np.asarray(x, dtype=np.float64), savgol_coeffs(w, 3), mode="nearest")[h:x.size - h]
+    # About half the time of numpy's convolution over a chunk.
+    return correlate1d(x, coeffs, mode="nearest")[h:x.size - h]
 
 
 def first_crossings_one(v: np.ndarray, w_rep: int, ip: int, limit: int, levels: list[float]) -> list[float]:
