@@ -28,9 +28,9 @@ def watch(monkeypatch, window):
     seen = {"jobs": [], "analyses": [], "progress": []}
     make, core = Session.settings_job, pipeline.analyze
 
-    def settings_job(session, settings, keys=None):
+    def settings_job(session, settings, keys=None, **kwargs):
         seen["jobs"].append(list(keys or ()))
-        return make(session, settings, keys)
+        return make(session, settings, keys, **kwargs)
 
     def spy_analyze(rec, *args, **kwargs):
         if rec is window.recording:
