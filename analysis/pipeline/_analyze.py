@@ -62,6 +62,10 @@ class AnalysisResult:
     spikes : dict of int to ndarray
         Per sweep, the ``(start, stop)`` sample spans of short electrical spikes (guards
         included) that were bridged before measuring (:func:`analysis.beats.find_spikes`).
+    detections : dict of int to Detection
+        Per sweep, what detection found (:func:`analysis.beats.detect_sweep`): hand it back to
+        :func:`analyze` (``detections=``) to measure again under new measurement or quality
+        settings without detecting again.
     """
 
     beats: BeatTable
@@ -74,6 +78,7 @@ class AnalysisResult:
     artefacts: dict = field(default_factory=dict)
     hum_sweeps: list = field(default_factory=list)
     spikes: dict = field(default_factory=dict)
+    detections: dict = field(default_factory=dict)
 
 
 def _sweep_list(recording: Recording, sweeps: Sequence[int] | None) -> list[int]:
@@ -100,6 +105,7 @@ def analyze(
     *,
     label: str | None = None,
     workers: int | None = None,
+    detections: dict | None = None,
 ) -> AnalysisResult:
     """Detect and measure every beat of a current-clamp recording.
 
@@ -121,6 +127,10 @@ def analyze(
         Processes that share the chunks of a long sweep (:mod:`analysis.chunkpool`; the
         results are the same bytes whatever the number). None: the caller's context (one
         unless :func:`analysis.chunkpool.use_workers` says otherwise).
+    detections : dict or None
+        An earlier result's :attr:`AnalysisResult.detections`, found with the same preprocess
+        and detection settings: the sweeps it holds are measured from those detections without
+        detecting again (a change of measurement or quality settings). None detects every sweep.
 
     Returns
     -------
@@ -144,7 +154,7 @@ def analyze(
     """
     if workers is not None:
         with use_workers(workers):
-            return analyze(recording, settings, channel, sweeps, progress, label=label)
+            return analyze(recording, settings, channel, sweeps, progress, label=label, detections=detections)
     s = settings or Settings()
     idx, note = choose_channel(recording, channel)
     ch = recording.channels[idx]
@@ -170,10 +180,11 @@ def analyze(
         if progress is not None:
             progress(min(done[0], total), total)
 
-    parts, artefacts, rise, hum_sweeps, spikes, surveys = [], {}, [], [], {}, {}
+    parts, artefacts, rise, hum_sweeps, spikes, surveys, found = [], {}, [], [], {}, {}, {}
     for sw in sweep_ids:
         try:
-            cols, art, rise_sw, surveys[sw], spikes[sw] = analyse_sweep(recording, sw, idx, scale, s, tick)
+            cols, art, rise_sw, surveys[sw], spikes[sw], found[sw] = analyse_sweep(
+                recording, sw, idx, scale, s, tick, (detections or {}).get(sw))
         except SettingsError as exc:
             if exc.path is not None:
                 raise
@@ -203,7 +214,7 @@ def analyze(
     warnings.extend(more)
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
-        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes,
+        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes, detections=found,
     )
 
 

@@ -105,10 +105,14 @@ class Session(SessionHistory, SessionWork):
         (for example a change of the upstroke-time definition).
     """
 
-    def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010) -> None:
+    def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010,
+                 workers: int | None = None) -> None:
         super().__init__()
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
+        #: Processes a re-analysis shares a long sweep's chunks with (:mod:`analysis.chunkpool`;
+        #: None: the caller's context, one unless it says otherwise).
+        self.workers = workers
         self._entries: dict[str, Entry] = {}
         self._views: dict[str, tuple[tuple, BeatTable]] = {}  # key -> (what it is made of, reviewed table)
         self.path: str | None = None
@@ -175,6 +179,7 @@ class Session(SessionHistory, SessionWork):
         entry = Entry(
             info=info, settings=settings, table=result.beats, warnings=tuple(result.warnings),
             decisions=DecisionLog(), conditions=(), recording=rec, requested_channel=channel,
+            detected=(result.beats, getattr(result, "detections", None) or None),
         )
         old = self._entries.get(key)
         if old is not None and keep_review:

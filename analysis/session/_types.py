@@ -15,7 +15,7 @@ import numpy as np
 from analysis.conditions import Condition, assign_conditions
 from analysis.decisions import DecisionLog, apply_status
 import analysis.flags as flags
-from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
+from analysis.pipeline import analyze, stage_of_change
 from analysis.recording import Recording, recording_id
 from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
@@ -124,6 +124,10 @@ class Entry:
     requested_channel: int | str | None = None
     summaries: list | None = field(default_factory=lambda: None)
     version: int = 0
+    #: (table, detections): what detection found for that automatic table
+    #: (:attr:`analysis.pipeline.AnalysisResult.detections`), so that a measurement change
+    #: measures again without detecting; None when unknown (reopened from a results file).
+    detected: tuple | None = None
     #: True for a recording opened from a results file whose source's SHA-256 is still to be
     #: compared with the one analysed (done when the source is first opened).
     unverified: bool = False
@@ -155,9 +159,10 @@ class SettingsChange:
     ----------
     settings : Settings
     scopes : dict of str to str
-        Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
-        ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
-        (detection and measurement re-run on the analysed sweeps).
+        Per recording key, the earliest stage the change reran (:data:`analysis.pipeline.STAGES`):
+        ``"none"`` (nothing changed), ``"summary"``, ``"rules"`` (the table re-flagged),
+        ``"events"`` (the trace's events and the rules), ``"measure"`` (measured again from the
+        detections) or ``"detect"`` (detected and measured again on the analysed sweeps).
     tables, warnings, provenance : dict
         The new results of the recordings that were re-analysed (scopes ``events`` and
         ``analysis``).
@@ -180,6 +185,7 @@ class SettingsChange:
     summaries: dict[str, list] = field(default_factory=dict)
     versions: dict[str, int] = field(default_factory=dict)
     bases: dict[str, tuple[Any, BeatTable]] = field(default_factory=dict)
+    detections: dict[str, dict] = field(default_factory=dict)
 
 
 def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingFacts:
@@ -230,19 +236,7 @@ def key_of(source: str) -> str:
 
 def scope(old: Any, new: Any) -> str:
     """What a change of settings from ``old`` to ``new`` recomputes (see :class:`SettingsChange`)."""
-    if old == new:
-        return "none"
-    changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
-    if changed <= {"summary"}:
-        return "summary"
-    if changed <= {"summary", "quality"}:
-        # The artefact rule also decides which beats the others' cycle lengths and MDPs skip.
-        if "quality" in changed and any(
-            getattr(old.quality, f, None) != getattr(new.quality, f, None) for f in MEASURING_QUALITY_FIELDS
-        ):
-            return "analysis"
-        return "events"
-    return "analysis"
+    return stage_of_change(old, new)
 
 
 def cycle_measurer(settings: Any, ljp_mV: float, fs_hz: float) -> Callable[[np.ndarray], dict | None]:

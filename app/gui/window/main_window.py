@@ -17,6 +17,7 @@ import os
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from analysis.chunkpool import default_workers
 from analysis.session import Session
 
 from .. import palette
@@ -96,7 +97,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.feedback = Feedback(self, interactive=interactive)
         self.progress = self.feedback.progress
         self.views = self._build_views()
-        self.state = WindowState(Session(self.settings_form.settings))
+        self.state = WindowState(Session(self.settings_form.settings, workers=default_workers()))
         self.display = Display(self.state, self.views, self.runner, self.feedback, self)
         self.loader = Loader(self.state, self.views, self.display, self.runner, self.feedback, self,
                              history_changed=self.update_history_actions, set_title=self.setWindowTitle)

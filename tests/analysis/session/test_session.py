@@ -144,7 +144,7 @@ def test_settings_changes_recompute_only_what_they_affect(session):
     assert session.set_settings(Settings().replace("summary.steady_window_s", 30.0)) == {key: "summary"}
     assert session.auto_beats(key) is auto
     scopes = session.set_settings(session.settings(key).replace("quality.reject_ead", True))
-    assert scopes == {key: "events"}
+    assert scopes == {key: "rules"}
     after = session.auto_beats(key)
     assert np.array_equal(after["t_upstroke_s"], auto["t_upstroke_s"])  # nothing re-detected
     ead = np.array(["ead" in f for f in after["flags"]])
@@ -167,7 +167,7 @@ def test_an_artefact_rule_change_measures_the_neighbours_again(change):
     key = s.add(rec, label="cell-31")
     assert any(r.startswith("auto: artefact") for r in s.auto_beats(key)["reject_reason"])
     new = Settings().replace(*change)
-    assert s.set_settings(new) == {key: "analysis"}
+    assert s.set_settings(new) == {key: "measure"}
     fresh = analyze(rec, new, label="cell-31").beats
     got = s.auto_beats(key)
     for name in ("t_upstroke_s", "cl_ms", "mdp_mV", "apd90_ms", "accepted"):
@@ -182,7 +182,7 @@ def test_decisions_survive_a_reanalysis_matched_by_time(session):
     before = session.beats(key)["t_upstroke_s"].copy()
     t3 = before[3]
     new = Settings().replace("measurement.upstroke_time_method", "voltage_level")
-    assert session.set_settings(new) == {key: "analysis"}
+    assert session.set_settings(new) == {key: "measure"}
     b = session.beats(key)
     shifted = b["t_upstroke_s"]
     assert shifted.size == before.size
@@ -370,9 +370,11 @@ def _check_progress(seen):
 
 @pytest.mark.parametrize("name, value, scope, analysed, rules", [
     ("summary.steady_window_s", 20.0, "summary", [], 0),
-    ("quality.noise_max_mV_rms", 0.4, "events", [], 1),
-    ("detection.min_amplitude_mV", 25.0, "analysis", [(0, 2)], 1),
-    ("preprocess.ljp_mV", 4.0, "analysis", [(0, 2)], 1),
+    ("quality.noise_max_mV_rms", 0.4, "rules", [], 0),
+    ("quality.ead_min_mV", 4.0, "events", [], 1),
+    ("measurement.mdp_smoothing_ms", 3.0, "measure", [(0, 2)], 1),
+    ("detection.min_amplitude_mV", 25.0, "detect", [(0, 2)], 1),
+    ("preprocess.ljp_mV", 4.0, "detect", [(0, 2)], 1),
 ])
 def test_prepare_settings_computes_only_what_the_change_needs_with_progress(
         episodic, monkeypatch, name, value, scope, analysed, rules):
@@ -385,8 +387,10 @@ def test_prepare_settings_computes_only_what_the_change_needs_with_progress(
     assert calls["analyze"] == analysed  # only the analysed sweeps, and only for detection-level changes
     assert calls["rules"] == rules
     _check_progress(seen)
-    if scope == "analysis":
+    if scope == "detect":
         assert len({f for f, _ in seen}) > 4 and any("detecting" in m for _, m in seen)
+    if scope == "measure":
+        assert not any("detecting" in m for _, m in seen) and any("measuring" in m for _, m in seen)
     assert s.settings(key) != new  # preparing changes nothing
     assert s.apply_settings(change) and s.settings(key) == new
     # The summaries came with the change: the session does not summarise again.

@@ -28,9 +28,9 @@ def watch(monkeypatch, window):
     seen = {"jobs": [], "analyses": [], "progress": []}
     make, core = Session.settings_job, pipeline.analyze
 
-    def settings_job(session, settings, keys=None):
+    def settings_job(session, settings, keys=None, **kwargs):
         seen["jobs"].append(list(keys or ()))
-        return make(session, settings, keys)
+        return make(session, settings, keys, **kwargs)
 
     def spy_analyze(rec, *args, **kwargs):
         if rec is window.recording:
@@ -55,7 +55,9 @@ def test_a_detection_change_is_the_sessions_job_run_off_the_gui_thread_with_prog
     assert watch["analyses"] == [((), False)]  # every sweep analysed (all were), in a worker
     fractions = [f for f, _ in watch["progress"]]
     assert len(fractions) > 3 and fractions == sorted(fractions) and fractions[-1] == 1.0
-    assert any("detecting" in text for _, text in watch["progress"])
+    # A measurement setting measures again from the detections the table was made from.
+    assert any("measuring" in text for _, text in watch["progress"])
+    assert not any("detecting" in text for _, text in watch["progress"])
     after = window.session.beats(window.key)
     assert window.session.settings(window.key).measurement.upstroke_time_method == "voltage_level"
     moved = np.abs(after["t_upstroke_s"] - before["t_upstroke_s"])
