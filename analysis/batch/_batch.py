@@ -39,6 +39,7 @@ from analysis.batch._types import (
     FileTask,
 )
 from analysis.errors import InputError
+from analysis.sweeps import SweepSelection
 
 __all__ = ["analyze_file", "make_tasks", "run_batch"]
 
@@ -55,7 +56,7 @@ def make_tasks(
     *,
     settings: Any = None,
     channel: int | str | None = None,
-    sweeps: Sequence[int] | None = None,
+    sweeps: Sequence[int] | SweepSelection | None = None,
     units: Mapping[int | str, str] | Sequence[tuple[int | str, str]] | None = None,
     conditions: Sequence[Any] = (),
     file_conditions: Mapping[str, Sequence[Any]] | None = None,
@@ -86,7 +87,8 @@ def make_tasks(
     unit_pairs = None
     if units:
         unit_pairs = tuple(units.items() if isinstance(units, Mapping) else units)
-    sweep_tuple = None if sweeps is None else tuple(int(s) for s in sweeps)
+    # A selection of ranges stays ranges: each file checks it against its own sweep count.
+    sweep_tuple = sweeps if sweeps is None or isinstance(sweeps, SweepSelection) else tuple(int(s) for s in sweeps)
     return [
         FileTask(
             index=i, path=os.fspath(p), open_path=os.path.abspath(os.fspath(p)), settings=settings_dict,

@@ -16,29 +16,17 @@ __all__ = [
 ]
 
 
-def parse_sweeps(text: str) -> list[int]:
-    """``"0-3,5"`` -> ``[0, 1, 2, 3, 5]`` (argparse type: bad text is a command-line error)."""
-    out: list[int] = []
+def parse_sweeps(text: str):
+    """``"0-3,5"`` -> an :class:`analysis.sweeps.SweepSelection` (argparse type: bad text is a
+    command-line error). The ranges stay ranges: each recording checks them against its own
+    sweep count before any list of sweeps is made."""
+    from analysis.sweeps import SweepSelection
+
     try:
-        for part in text.split(","):
-            part = part.strip()
-            if not part:
-                continue
-            if "-" in part:
-                a, b = (int(x) for x in part.split("-", 1))
-                if b < a or a < 0:
-                    raise ValueError
-                out.extend(range(a, b + 1))
-            else:
-                i = int(part)
-                if i < 0:
-                    raise ValueError
-                out.append(i)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"--sweeps {text!r} is not a list such as 0-3,5") from None
-    if not out:
-        raise argparse.ArgumentTypeError("--sweeps is empty; give a list such as 0-3,5")
-    return sorted(set(out))
+        return SweepSelection.parse(text)
+    except ValueError as exc:
+        shown = text if len(text) <= 60 else text[:57] + "..."
+        raise argparse.ArgumentTypeError(f"--sweeps {shown!r} is not a list such as 0-3,5 ({exc})") from None
 
 
 def parse_units(text: str) -> tuple[int | str, str]:
