@@ -8,8 +8,8 @@ only a selection that fits the recording (at most that many sweeps) is ever expa
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Iterator
 
 from analysis.errors import InputError
 
@@ -38,7 +38,7 @@ class SweepSelection:
     ranges: tuple[tuple[int, int], ...]
 
     @classmethod
-    def parse(cls, text: str) -> "SweepSelection":
+    def parse(cls, text: str) -> SweepSelection:
         """``"0-3,5"`` -> the ranges ``((0, 3), (5, 5))``.
 
         Raises

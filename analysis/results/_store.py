@@ -42,6 +42,7 @@ from analysis.errors import ResultsFileError
 from analysis.recording import file_sha256
 from analysis.results._atomic import atomic_output
 from analysis.results._facts import RecordingFacts
+from analysis.results._lock import results_lock
 from analysis.table import BeatTable
 
 __all__ = [
@@ -227,7 +228,9 @@ def save_results(
         raise ResultsFileError(path, "its folder does not exist", "create the folder or choose another place")
     content = results if isinstance(results, ResultsFile) else ResultsFile(list(results))
     try:
-        with atomic_output(target) if atomic else contextlib.nullcontext(target) as tmp:
+        # One writer at a time (a caller that read the file first holds the lock already).
+        with results_lock(target) if atomic else contextlib.nullcontext(), \
+                atomic_output(target) if atomic else contextlib.nullcontext(target) as tmp:
             with h5py.File(tmp, "w", libver=("earliest", "v110"), track_order=False) as f:
                 _set_text_attr(f, "format", FORMAT_NAME)
                 f.attrs["schema_version"] = np.int64(SCHEMA_VERSION)
