@@ -333,8 +333,8 @@ class _NwbSamples:
             values = np.asarray(raw, dtype=np.float64).reshape(-1)
         except _H5_READ_ERRORS as exc:  # damage that only reading the samples meets
             raise RecordingError(
-                self._origin, f"series {s.name!r} (sweep {sweep}) cannot be read: the HDF5 file is "
-                f"damaged (h5py: {type(exc).__name__}: {_first_line(exc)})", _CORRUPT_FIX,
+                self._origin, f"the samples of series {s.name!r} (sweep {sweep}) cannot be read "
+                f"(h5py: {type(exc).__name__}: {_first_line(exc)})", _CORRUPT_FIX,
             ) from None
         if values.shape != (stop - start,):
             raise RecordingError(
