@@ -8,6 +8,7 @@ from analysis.results._atomic import (
     atomic_output,
     atomic_outputs,
     fsync_folder,
+    output_mode,
     remove_stale_temps,
     temp_prefix,
     write_text_atomic,
@@ -24,4 +25,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["DEFAULT_WAIT_S", "FORMAT_NAME", "RecordingFacts", "ResultsBusyError", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "holder_of", "load_results", "lock_path", "provenance_now", "remove_stale_temps", "results_lock", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["DEFAULT_WAIT_S", "FORMAT_NAME", "RecordingFacts", "ResultsBusyError", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "holder_of", "load_results", "lock_path", "output_mode", "provenance_now", "remove_stale_temps", "results_lock", "save_results", "temp_prefix", "write_text_atomic"]

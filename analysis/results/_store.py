@@ -38,7 +38,7 @@ from analysis._version import __version__
 from analysis.conditions import Condition, SteadyState
 from analysis.decisions import FIELDS as DECISION_FIELDS
 from analysis.decisions import DecisionLog, now_utc
-from analysis.errors import ResultsFileError
+from analysis.errors import ResultsFileError, missing
 from analysis.recording import file_sha256
 from analysis.results._atomic import atomic_output
 from analysis.results._facts import RecordingFacts
@@ -399,7 +399,7 @@ def load_results(path: str | os.PathLike, *, verify_sources: bool = True) -> Res
 
     text = os.fspath(path)
     if not os.path.exists(text):
-        raise ResultsFileError(text, "no such file", "check the path")
+        raise ResultsFileError(text, *missing(text))
     if os.path.isdir(text):
         raise ResultsFileError(text, "is a folder, not a results file", "give the .h5 file itself")
     folder = os.path.dirname(os.path.abspath(text))
