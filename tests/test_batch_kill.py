@@ -90,7 +90,7 @@ def test_sigkill_of_batch_leaves_no_worker_alive(tmp_path, folder, trial):
         proc.wait(timeout=10)
         time.sleep(2.0)  # the bound: nothing may be left a moment later
         left = sorted(p for p in workers if _alive(p))
-        what = {p: open(f"/proc/{p}/cmdline", "rb").read().replace(b"\0", b" ")[:150] for p in left}
+        what = {p: Path(f"/proc/{p}/cmdline").read_bytes().replace(b"\0", b" ")[:150] for p in left}
         assert not left, f"processes still running 2 s after kill -9 of batch: {what}"
         assert not (tmp_path / "out.h5").exists()
     finally:

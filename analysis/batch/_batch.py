@@ -23,6 +23,7 @@ from __future__ import annotations
 import contextlib
 import multiprocessing
 import os
+import select
 import signal
 import sys
 import threading
@@ -264,8 +265,6 @@ def _die_with(batch_pid: int) -> None:
 
 
 def _watch(pid: int) -> None:
-    import select  # waiting primitives of this platform
-
     try:
         if hasattr(os, "pidfd_open"):
             fd = os.pidfd_open(pid)

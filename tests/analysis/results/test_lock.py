@@ -84,9 +84,8 @@ def test_a_killed_holder_leaves_the_file_free(tmp_path):
     child = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
     try:
         assert child.stdout.readline().strip() == "held"
-        with pytest.raises(ResultsBusyError):
-            with results_lock(target, wait_s=0.2):
-                pass
+        with pytest.raises(ResultsBusyError), results_lock(target, wait_s=0.2):
+            pass
         child.kill()
         child.wait(timeout=10)
         with results_lock(target, wait_s=5):
@@ -105,7 +104,7 @@ def test_analyze_exits_2_in_one_line_when_the_file_stays_locked(tmp_path):
     out = tmp_path / "shared.h5"
     env = dict(os.environ, PYTHONPATH=str(REPO))
     with results_lock(out):
-        proc = subprocess.run([sys.executable, "-m", "app.cli", "analyze", str(rec), "--out", str(out),
+        proc = subprocess.run(check=False, args=[sys.executable, "-m", "app.cli", "analyze", str(rec), "--out", str(out),
                                "--lock-wait", "1"], capture_output=True, text=True, env=env, timeout=300)
     assert proc.returncode == 2, proc.stderr
     lines = proc.stderr.strip().splitlines()

@@ -89,18 +89,18 @@ def test_demo_window_on_xvfb_takes_review_keys(tmp_path):
                                stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
 
         def window() -> str:
-            found = subprocess.run(["xdotool", "search", "--onlyvisible", "--name", r"\.abf.* — Upstroke"],
+            found = subprocess.run(check=False, args=["xdotool", "search", "--onlyvisible", "--name", r"\.abf.* — Upstroke"],
                                    env=env, capture_output=True, text=True)
             return found.stdout.split()[-1] if found.returncode == 0 and found.stdout.split() else ""
 
         win = _wait("the demo recording's window", window, 240, app)  # title: FILE — Upstroke
-        subprocess.run(["xdotool", "windowactivate", "--sync", win], env=env, capture_output=True, timeout=30)
-        geometry = subprocess.run(["xdotool", "getwindowgeometry", "--shell", win], env=env,
+        subprocess.run(check=False, args=["xdotool", "windowactivate", "--sync", win], env=env, capture_output=True, timeout=30)
+        geometry = subprocess.run(check=False, args=["xdotool", "getwindowgeometry", "--shell", win], env=env,
                                   capture_output=True, text=True, timeout=30).stdout
         geo = dict(line.split("=", 1) for line in geometry.split() if "=" in line)
         # Click the trace (upper middle of the window) so the keys go to the window, not a list.
         x, y = int(geo["X"]) + int(geo["WIDTH"]) // 3, int(geo["Y"]) + int(geo["HEIGHT"]) // 3
-        subprocess.run(["xdotool", "mousemove", str(x), str(y), "click", "1"], env=env, timeout=30)
+        subprocess.run(check=False, args=["xdotool", "mousemove", str(x), str(y), "click", "1"], env=env, timeout=30)
         config = tmp_path / "config"
 
         def log() -> dict:
@@ -112,7 +112,7 @@ def test_demo_window_on_xvfb_takes_review_keys(tmp_path):
         def accepted_one() -> bool:
             if log()["accepted"]:
                 return True
-            subprocess.run(["xdotool", "key", "a"], env=env, timeout=30)
+            subprocess.run(check=False, args=["xdotool", "key", "a"], env=env, timeout=30)
             time.sleep(2.0)
             return bool(log()["accepted"])
 
@@ -122,12 +122,12 @@ def test_demo_window_on_xvfb_takes_review_keys(tmp_path):
         assert set(before["accepted"]) == {1} and set(before["sweep"]) == {0}
         last = before["beat"][-1]
         # Accepting moves on to the next beat; N skips one more; A accepts that one.
-        subprocess.run(["xdotool", "key", "--delay", "300", "n", "a"], env=env, timeout=30)
+        subprocess.run(check=False, args=["xdotool", "key", "--delay", "300", "n", "a"], env=env, timeout=30)
         _wait("the second accept", lambda: len(log()["beat"]) == len(before["beat"]) + 1, 60, app)
         after = log()
         assert after["beat"][-1] == last + 2 and after["accepted"][-1] == 1 and after["action"][-1] == "review"
         # P goes back to that beat; E returns it to the automatic verdict (logged as a clear, -1).
-        subprocess.run(["xdotool", "key", "--delay", "300", "p", "e"], env=env, timeout=30)
+        subprocess.run(check=False, args=["xdotool", "key", "--delay", "300", "p", "e"], env=env, timeout=30)
         _wait("the return to the automatic verdict", lambda: len(log()["beat"]) == len(after["beat"]) + 1, 60, app)
         cleared = log()
         assert cleared["beat"][-1] == last + 2 and cleared["accepted"][-1] == -1  # analysis.decisions.CLEAR
