@@ -28,6 +28,11 @@ from collections.abc import Callable, Iterator
 
 from analysis.errors import ResultsFileError
 
+if os.name == "nt":  # pragma: no cover - Windows
+    import msvcrt
+else:
+    import fcntl
+
 __all__ = ["DEFAULT_WAIT_S", "ResultsBusyError", "holder_of", "lock_path", "results_lock"]
 
 #: How long a writer waits for another one to finish, unless told otherwise (``--lock-wait``).
@@ -69,15 +74,11 @@ def holder_of(path: str | os.PathLike) -> str:
 
 def _try_lock(fd: int) -> bool:
     if os.name == "nt":  # pragma: no cover - Windows
-        import msvcrt  # Windows only
-
         try:
             msvcrt.locking(fd, msvcrt.LK_NBLCK, 1)
         except OSError:
             return False
         return True
-    import fcntl  # POSIX only
-
     try:
         fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except BlockingIOError:
@@ -88,13 +89,9 @@ def _try_lock(fd: int) -> bool:
 def _unlock(fd: int) -> None:
     with contextlib.suppress(OSError):
         if os.name == "nt":  # pragma: no cover - Windows
-            import msvcrt  # Windows only
-
             os.lseek(fd, 0, os.SEEK_SET)
             msvcrt.locking(fd, msvcrt.LK_UNLCK, 1)
         else:
-            import fcntl  # POSIX only
-
             fcntl.flock(fd, fcntl.LOCK_UN)
     os.close(fd)
 
