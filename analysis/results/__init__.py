@@ -15,6 +15,7 @@ from analysis.results._atomic import (
 )
 from analysis.results._facts import RecordingFacts, facts_values
 from analysis.results._lock import DEFAULT_WAIT_S, ResultsBusyError, holder_of, lock_path, results_lock
+from analysis.results._study import read_study, write_study
 from analysis.results._store import (
     FORMAT_NAME,
     SCHEMA_VERSION,
@@ -25,4 +26,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["DEFAULT_WAIT_S", "FORMAT_NAME", "RecordingFacts", "ResultsBusyError", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "holder_of", "load_results", "lock_path", "output_mode", "provenance_now", "remove_stale_temps", "results_lock", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["DEFAULT_WAIT_S", "FORMAT_NAME", "RecordingFacts", "ResultsBusyError", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "holder_of", "load_results", "lock_path", "output_mode", "provenance_now", "read_study", "remove_stale_temps", "results_lock", "save_results", "temp_prefix", "write_study", "write_text_atomic"]
