@@ -44,11 +44,14 @@ review) and :data:`USER` where a review decision applies.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from typing import Iterable, Sequence
 
 import numpy as np
+
+from analysis.errors import InputError
 
 __all__ = [
     "ACCEPT",
@@ -68,6 +71,7 @@ __all__ = [
     "beat_status",
     "held_for_review",
     "now_utc",
+    "REPRODUCIBLE_CLOCK_ENV",
 ]
 
 ACCEPT, REJECT, CLEAR = 1, 0, -1
@@ -82,9 +86,39 @@ MATCH_TOLERANCE_S = 0.010
 FIELDS = ("sweep", "beat", "t_upstroke_s", "accepted", "reason", "time_utc", "action")
 
 
+#: The environment variable of reproducible builds (reproducible-builds.org's SOURCE_DATE_EPOCH
+#: specification): whole seconds since 1970-01-01 UTC that stand in for "now".
+REPRODUCIBLE_CLOCK_ENV = "SOURCE_DATE_EPOCH"
+
+
 def now_utc() -> str:
-    """The current time as ISO 8601 in UTC, to the millisecond."""
-    return datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
+    """The current time as ISO 8601 in UTC, to the millisecond.
+
+    With ``SOURCE_DATE_EPOCH`` set (reproducible mode), that time instead: every clock reading a
+    results file stores (when a recording was analysed, when a decision was made) is then fixed,
+    and two runs on the same input write identical bytes.
+
+    Raises
+    ------
+    InputError
+        When ``SOURCE_DATE_EPOCH`` is set but not a whole number of seconds (the specification
+        asks tools to stop rather than guess).
+    """
+    fixed = os.environ.get(REPRODUCIBLE_CLOCK_ENV)
+    if fixed is None:
+        moment = datetime.now(timezone.utc)
+    else:
+        text = fixed.strip()
+        try:
+            if not text.isdigit():
+                raise ValueError(text)
+            moment = datetime.fromtimestamp(int(text), timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            raise InputError(
+                None, f"{REPRODUCIBLE_CLOCK_ENV}={fixed[:40]!r} is not a whole number of seconds since 1970",
+                "set it to an integer such as 1767225600, or unset it to record the real time",
+            ) from None
+    return moment.isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
 @dataclass(frozen=True)

@@ -77,7 +77,7 @@ class FileTask:
         ``Settings.to_dict()`` of the analysis settings; None for the defaults.
     channel : int, str or None
         The channel to analyse; None lets the analysis pick the current-clamp channel.
-    sweeps : sequence of int or None
+    sweeps : tuple of int, SweepSelection or None
         Sweeps to analyse; None for all.
     units : tuple of (channel, units) pairs or None
         Units to declare for channels that a file's header mislabels (as ``--units 0=mV``).
@@ -91,7 +91,7 @@ class FileTask:
     open_path: str
     settings: dict[str, Any] | None = None
     channel: int | str | None = None
-    sweeps: tuple[int, ...] | None = None
+    sweeps: Any = None  # tuple of int, analysis.sweeps.SweepSelection or None
     units: tuple[tuple[int | str, str], ...] | None = None
     conditions: tuple[str, ...] = ()
 

@@ -29,6 +29,7 @@ from analysis.pipeline._sweep import analyse_sweep
 from analysis.recording import Recording
 from analysis.settings import Settings
 from analysis.table import CSV_COLUMNS, BeatTable
+from analysis.sweeps import SweepSelection
 
 __all__ = ["AnalysisResult", "analyze", "flag_and_reject"]
 
@@ -81,9 +82,11 @@ class AnalysisResult:
     detections: dict = field(default_factory=dict)
 
 
-def _sweep_list(recording: Recording, sweeps: Sequence[int] | None) -> list[int]:
+def _sweep_list(recording: Recording, sweeps: Sequence[int] | SweepSelection | None) -> list[int]:
     if sweeps is None:
         return list(range(recording.n_sweeps))
+    if isinstance(sweeps, SweepSelection):  # ranges: checked on their ends before any list is made
+        return list(sweeps.resolve(recording.n_sweeps, recording.source_path))
     out = []
     for s in sweeps:
         i = int(s)

@@ -28,12 +28,13 @@ from typing import Sequence
 import numpy as np
 
 from analysis._version import __version__
-from analysis.errors import ResultsFileError
+from analysis.errors import ResultsFileError, missing
 from analysis.recording import file_sha256
 from analysis.results._atomic import atomic_output
 from analysis.results._h5 import checked, damaged, set_text_attr, str_dtype, text
 from analysis.results._layout import OWNED, read_v2, write_v2
 from analysis.results._legacy import read_v1
+from analysis.results._lock import results_lock
 from analysis.results._records import ResultsFile, StoredRecording
 from analysis.results._study import carry_study
 
@@ -114,7 +115,9 @@ def save_results(
     recordings = list(content.recordings)
     carry = _carry_from(content.path, target if atomic else None)
     try:
-        with atomic_output(target) if atomic else contextlib.nullcontext(target) as tmp:
+        # One writer at a time (a caller that read the file first holds the lock already).
+        with results_lock(target) if atomic else contextlib.nullcontext(), \
+                atomic_output(target) if atomic else contextlib.nullcontext(target) as tmp:
             with h5py.File(tmp, "w", libver=("earliest", "v110"), track_order=False) as f:
                 set_text_attr(f, "format", FORMAT_NAME)
                 f.attrs["schema_version"] = np.int64(SCHEMA_VERSION)
@@ -191,7 +194,7 @@ def load_results(path: str | os.PathLike, *, verify_sources: bool | str = True) 
 
     name = os.fspath(path)
     if not os.path.exists(name):
-        raise ResultsFileError(name, "no such file", "check the path")
+        raise ResultsFileError(name, *missing(name))
     if os.path.isdir(name):
         raise ResultsFileError(name, "is a folder, not a results file", "give the .h5 file itself")
     folder = os.path.dirname(os.path.abspath(name))

@@ -383,6 +383,8 @@ class SummarySettings(Section):
     """How summaries group beats and find the steady state (see analysis.stats._summary)."""
 
     key: ClassVar[str] = "summary"
+    # A cell cannot be both: the ventricular-like ratios end below where the atrial-like begin.
+    order: ClassVar[tuple[tuple[str, str, str], ...]] = (("ventricular_max_ratio", "<", "atrial_min_ratio"),)
 
     sweep_groups: str = setting(
         "all", choices=("all", "each"), source=_NO_SOURCE,

@@ -28,7 +28,7 @@ from .options import (
     add_results_arguments, parse_channel, parse_sweeps, parse_units, parse_workers, settings_from_args,
 )
 from .result_line import beat_counts, cl_and_rate_text, counts_text
-from .review_outputs import prepare, review, write_results, write_summary
+from .review_outputs import locked_out, prepare, review, write_results, write_summary
 
 __all__ = [
     "add_parser", "run", "analyse_files", "write_outputs", "summary_line", "OUTPUT_WRITERS",
@@ -219,7 +219,8 @@ def run(args: argparse.Namespace) -> int:
     settings = settings_from_args(args)
     saved = prepare(args)  # checks the outputs and reads an existing --out file before analysing
     results = analyse_files(args, settings)
-    results = review(args, results, settings, saved)  # --out, --summary-csv, --condition
-    written = write_outputs(args, results)
+    with locked_out(args, saved) as saved:  # one writer of the --out file at a time
+        results = review(args, results, settings, saved)  # --out, --summary-csv, --condition
+        written = write_outputs(args, results)
     report(results, written)
     return 0

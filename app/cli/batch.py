@@ -17,7 +17,8 @@ from contextlib import contextmanager
 from typing import Iterator
 
 from .options import (
-    parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
+    add_lock_wait_argument, lock_notice, parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers,
+    settings_from_args,
 )
 from .result_line import counts_text
 from .study_outputs import (
@@ -72,6 +73,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
     where.add_argument("--scheduler", metavar="ADDRESS",
                         help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
                         '(needs pip install "upstroke[cluster]")')
+    add_lock_wait_argument(parser)
     add_layout_options(parser)
     add_table_options(parser, figures=False)
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -102,6 +104,7 @@ def run(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
     from analysis.batch import find_recordings, make_tasks, prepare_existing, run_batch, save_batch
+    from analysis.results import results_lock
 
     settings = settings_from_args(args)
     outputs = [p for p in (args.out, args.csv, args.summary_csv, args.study_csv, args.compare) if p]
@@ -136,9 +139,11 @@ def run(args: argparse.Namespace) -> int:
             result = run_batch(tasks, workers=args.workers, scheduler=args.scheduler, on_done=on_done)
         saved = None
         if result.succeeded:
-            saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
-            if layout is not None:
-                _save_study(layout, args)
+            # One writer of the results file at a time: save_batch reads it again under the lock.
+            with results_lock(args.out, wait_s=args.lock_wait, notify=lock_notice("batch")):
+                saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
+                if layout is not None:
+                    _save_study(layout, args)
     if layout is not None:
         report_layout(layout)
     return _report(result, saved)
