@@ -31,7 +31,7 @@ from analysis.settings import Settings
 from analysis.table import CSV_COLUMNS, BeatTable
 from analysis.sweeps import SweepSelection
 
-__all__ = ["AnalysisResult", "analyze", "flag_and_reject"]
+__all__ = ["AnalysisResult", "analyze", "flag_and_reject", "rules_again", "with_review_status"]
 
 _TO_MV = {"mv": 1.0, "v": 1000.0, "uv": 1e-3, "µv": 1e-3}
 
@@ -298,7 +298,14 @@ def flag_and_reject(
     sweeps_raw = flags.RecordingSweeps(recording, channel, scale=scale)
     table, warnings = flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
                                          detection=settings.detection, spikes=spikes)
+    return with_review_status(table, warnings, review_flags)
+
+
+def with_review_status(table: BeatTable, warnings: list[str], review_flags) -> tuple[BeatTable, list[str]]:
+    """``table`` with each beat's automatic status (:func:`analysis.decisions.apply_status`) and
+    ``warnings`` with one line saying how many beats wait for review, if any."""
     table = apply_status(table, None, review_flags)
+    warnings = list(warnings)
     held = np.flatnonzero(table["verdict"] == TO_REVIEW)
     if held.size:
         found = {w for f in table["flags"][held] for w in str(f).split(";")}
@@ -308,3 +315,13 @@ def flag_and_reject(
             "the summaries leave them out until they are accepted or rejected"
         )
     return table, warnings
+
+
+def rules_again(beats: BeatTable, quality) -> tuple[BeatTable, list[str]] | None:
+    """:func:`analysis.flags.reapply_rules` followed by the automatic status, as
+    :func:`flag_and_reject` gives it: the table's rules and review holds of new quality settings
+    without reading samples. None when the events must run again."""
+    again = flags.reapply_rules(beats, quality)
+    if again is None:
+        return None
+    return with_review_status(again[0], again[1], getattr(quality, "review_flags", ()))

@@ -45,7 +45,7 @@ _QUALITY = {
     **{f: "rules" for f in (
         "pause_factor", "pause_median_beats", "noise_max_mV_rms", "mdp_drift_max_mV", "mdp_reference_beats",
         "apa_min_mV", "overshoot_min_mV", "reject_clipped", "reject_noisy", "reject_low_apa", "reject_mdp_drift",
-        "reject_ead", "reject_dad", "reject_pause",
+        "reject_ead", "reject_dad", "reject_pause", "review_flags",
     )},
 }
 

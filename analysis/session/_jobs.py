@@ -154,7 +154,7 @@ class SettingsJob:
     * ``"none"``: nothing differs; nothing is computed.
     * ``"summary"`` (only the summary section differs): the summaries are computed again.
     * ``"rules"`` (the table's quality rules): the flagged table is re-flagged and the rejection
-      rules applied again, without reading samples (:func:`analysis.flags.reapply_rules`; the
+      rules applied again, without reading samples (:func:`analysis.pipeline.rules_again`; the
       events run again when the table cannot tell), then the summaries.
     * ``"events"`` (the trace's event settings): the events and quality rules run again on the
       beats already measured (nothing is detected or measured), then the summaries.
@@ -228,7 +228,7 @@ class SettingsJob:
         kept = tuple(w for w in it.warnings if not is_event_warning(w))
         if scope == "rules":
             step(0.0, "applying the quality rules")
-            again = flags.reapply_rules(it.table, self.settings.quality)
+            again = pipeline.rules_again(it.table, self.settings.quality)
             if again is not None:
                 return again[0], kept + tuple(again[1]), None
         if scope in ("rules", "events"):

@@ -144,7 +144,7 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
         entry = _Entry.__new__(_Entry)
         entry.__dict__.update(
             info=info, settings=settings, recording=None, requested_channel=r.channel, version=0,
-            unverified=bool(verify_sources and r.sha256), _load=_loader(r, text, settings.quality.review_flags),
+            unverified=bool(verify_sources and r.sha256), _load=_loader(r, text, info, settings, match_tolerance_s),
         )
         session._entries[key] = entry
     session.path = os.path.abspath(text)
@@ -153,15 +153,64 @@ def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sour
     return session
 
 
-def _loader(r: StoredRecording, path: str, review_flags):
+def _older_ensembles(r: StoredRecording) -> dict[tuple[str, str], Ensemble]:
+    """The ensemble beats of summaries written by another version of the summary columns, by
+    (sweep group, condition): their samples and measured parameters are kept even though the
+    summaries themselves are recomputed."""
+    cols = r.summary
+    names = [f"ensemble_{col}" for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")]
+    if not all(c in cols for c in ("sweep_group", "condition", "ensemble_n")):
+        return {}
+    out = {}
+    for i in range(len(cols["condition"])):
+        if i >= len(r.ensembles) or not r.ensembles[i][0].size:
+            continue
+        v, fs, t0 = r.ensembles[i]
+        params = {n[len("ensemble_"):]: float(cols[n][i]) for n in names if n in cols}
+        out[(str(cols["sweep_group"][i]), str(cols["condition"][i]))] = Ensemble(
+            np.asarray(v), fs, t0, int(cols["ensemble_n"][i]), params)
+    return out
+
+
+def _recomputed_summaries(r: StoredRecording, loaded: dict, info: RecordingFacts, settings, tolerance_s: float):
+    """Summaries of a file whose summary columns another version wrote, recomputed from its
+    reviewed table; each keeps the ensemble beat stored for the same sweep group and condition
+    when that ensemble averaged as many beats as the summary now uses (the samples may be gone)."""
+    from types import SimpleNamespace
+
+    from analysis.session._jobs import summaries_of
+    from analysis.session._types import reviewed_table
+
+    kept = _older_ensembles(r)
+    if not kept:
+        return None
+    entry = SimpleNamespace(info=info, settings=settings, **loaded)
+    out = summaries_of(reviewed_table(entry, tolerance_s), info, entry.conditions, settings, None)
+    for s in out:
+        ens = kept.get((str(s.values.get("sweep_group")), str(s.values.get("condition"))))
+        if ens is None or s.ensemble is not None or ens.n_beats != s.values.get("n_used"):
+            continue
+        s.ensemble = ens
+        s.values["ensemble_n"] = ens.n_beats
+        for name, value in ens.parameters.items():
+            if f"ensemble_{name}" in s.values:
+                s.values[f"ensemble_{name}"] = value
+    return out
+
+
+def _loader(r: StoredRecording, path: str, info: RecordingFacts, settings, tolerance_s: float):
     """Reads a stored recording's tables into the session's terms, once, when first needed."""
 
     def load() -> dict:
         try:
-            return {
-                "table": _auto_table(r.beats, review_flags), "warnings": tuple(r.warnings), "decisions": r.decisions,
-                "conditions": check_conditions(r.conditions), "summaries": _stored_summaries(r),
+            loaded = {
+                "table": _auto_table(r.beats, settings.quality.review_flags), "warnings": tuple(r.warnings),
+                "decisions": r.decisions, "conditions": check_conditions(r.conditions),
             }
+            summaries = _stored_summaries(r)
+            if summaries is None:
+                summaries = _recomputed_summaries(r, loaded, info, settings, tolerance_s)
+            return {**loaded, "summaries": summaries}
         except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
             raise ResultsFileError(path, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
 

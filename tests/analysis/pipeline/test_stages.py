@@ -5,8 +5,8 @@ import dataclasses
 import numpy as np
 import pytest
 
-from analysis.flags import reapply_rules
-from analysis.pipeline import STAGES, analyze, stage_of_change, stage_of_field
+from analysis.flags import is_event_warning, reapply_rules
+from analysis.pipeline import STAGES, analyze, rules_again, stage_of_change, stage_of_field
 from analysis.settings import Settings
 from analysis.synthetic import EAD, preset, synthesize
 
@@ -50,13 +50,13 @@ def test_rules_reapplied_to_the_table_give_what_the_events_give(cell, name, valu
     new = Settings().replace(name, value)
     if name == "quality.apa_min_mV":
         new = new.replace("quality.reject_low_apa", True)
-    got = reapply_rules(old.beats, new.quality)
+    got = rules_again(old.beats, new.quality)  # reapply_rules plus the review holds, as the app runs it
     assert got is not None
     fresh = analyze(cell, new)
     for col in ("flags", "accepted", "reject_reason", "ead_mV", "noise_mV_rms"):
         a, b = np.asarray(got[0][col]), np.asarray(fresh.beats[col])
         assert (list(a) == list(b)) if a.dtype == object else np.array_equal(a, b, equal_nan=True), col
-    assert got[1] == [w for w in fresh.warnings if "quality rules" in w or "mdp_drift" in w]
+    assert got[1] == [w for w in fresh.warnings if is_event_warning(w)]
 
 
 def test_measuring_from_the_detections_gives_what_a_fresh_analysis_gives(cell):
