@@ -136,7 +136,7 @@ def marker_columns(percents) -> tuple[str, ...]:
     return (
         "i_upstroke", "t_mdp_s", "t_top_s", "t_peak_s",
         *(f"t_{apd_name(p)}_s" for p in sorted(set(percents) | set(CSV_APD_PERCENTS))),
-        "rise_ms", "dvdt_window_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
+        "rise_ms", "dvdt_window_ms", "dvdt_max_sd_V_per_s", "dvdt_peak_width_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
     )
 
 

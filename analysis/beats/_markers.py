@@ -47,6 +47,7 @@ MARKER_FIELDS = (
     "t_upstroke_s", "t_dvdt_max_s", "dvdt_max_V_per_s", "peak_mV", "t_peak_s", "mdp_mV", "t_mdp_s",
     "top_mV", "t_top_s", "ddr_mV_per_s", "ddr100_mV_per_s", "ddr_early_mV_per_s", "ddr_late_mV_per_s",
     "ddr_tau_ms", "ddr_vinf_mV", "rise_ms", "rise_samples", "dvdt_window_ms",
+    "dvdt_max_sd_V_per_s", "dvdt_peak_width_ms",
 )
 
 
@@ -358,6 +359,7 @@ class _Context(TakeoffSteps):
         r["dvdt_max_V_per_s"] = up.dvdt_max_V_per_s
         r["t_dvdt_max_s"] = self.t(up.index)
         r["rise_ms"], r["rise_samples"], r["dvdt_window_ms"] = up.rise_ms, up.rise_samples, up.window_ms
+        r["dvdt_max_sd_V_per_s"], r["dvdt_peak_width_ms"] = up.sd_V_per_s, up.peak_width_ms
         r["i_upstroke"] = int(round(up.index))
         # Upstroke time.
         if s.upstroke_time_method == "dvdt_max":
