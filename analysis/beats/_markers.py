@@ -24,6 +24,7 @@ from typing import Sequence
 import numpy as np
 
 from analysis.beats._extrema import mdp_batch, peak_batch
+from analysis.beats._mdp_time import mdp_band_mV, mdp_vertex_times
 from analysis.columns import apd_name
 from analysis.beats._repolarisation import first_crossings, refine_crossings
 from analysis.beats._takeoff import TakeoffSteps
@@ -196,6 +197,10 @@ def measure_beats(
     end = np.array([w[2] for w in where], np.int64).reshape(k)
     ip0 = np.array([w[3] for w in where], np.int64).reshape(k)
     i_mdp, mdp = ctx.mdps(prev, g)
+    if s.mdp_time_method == "two_sided_fit":
+        noise_band = mdp_band_mV(noise_mV, ctx.w_mdp)
+        i_mdp = mdp_vertex_times(v, fs_hz, ctx.w_mdp, max(s.mdp_fit_band_mV, noise_band), i_mdp, mdp, prev, g + 1,
+                                 noise_band_mV=noise_band)
     ctx.find_feet(g, prev, i_mdp)
     repol = []
     w_pk = np.ones(k, np.int64)

@@ -253,6 +253,11 @@ class MeasurementSettings(Section):
         1.0, unit="mV", min=0.05, max=20.0, source=_NO_SOURCE,
         doc="the MDP fit uses the samples within this many mV of the smoothed minimum",
     )
+    mdp_time_method: str = setting(
+        "two_sided_fit", choices=("two_sided_fit", "minimum"), source=_NO_SOURCE,
+        doc="MDP time: the vertex of a parabola with its own curvature on each side, fitted to the trough "
+            "within mdp_fit_band_mV (or a noise-scaled band) of the MDP; or the smoothed minimum itself",
+    )
     mdp_smoothing_ms: float = setting(
         10.0, unit="ms", min=0.0, max=100.0, source="Savitzky-Golay smoothing; " + _NO_SOURCE,
         doc="window of the smoothing applied before the minimum is taken for MDP (0: raw samples)",
