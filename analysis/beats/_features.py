@@ -32,6 +32,8 @@ __all__ = ["Feature", "FEATURES", "FLAG_WORDS", "features_of_sweep", "marker_col
 #: Flags this module sets (the events module adds its own).
 FLAG_WORDS = {
     "no_diastole": "first beat of its sweep: no preceding diastole, so no MDP, TOP, DDR, APA, APD or CL",
+    "no_phase4": "no diastolic depolarisation above the noise before the upstroke (a paced or evoked action "
+                 "potential, a driven quiescent cell, a neuron-like spike): TOP, DDR and DDR100 left empty",
     "truncated": "the sweep ends before the beat has repolarised (APDs cut off), or during its upstroke",
 }
 

@@ -27,7 +27,7 @@ from analysis.beats._extrema import mdp_batch, peak_batch
 from analysis.beats._mdp_time import mdp_band_mV, mdp_vertex_times
 from analysis.columns import apd_name
 from analysis.beats._repolarisation import first_crossings, refine_crossings
-from analysis.beats._takeoff import TakeoffSteps
+from analysis.beats._takeoff import PHASE4_COLUMNS, TakeoffSteps
 from analysis.beats._upstroke import upstroke_velocity
 from analysis.settings import MeasurementSettings
 from analysis.signal import (
@@ -207,6 +207,8 @@ def measure_beats(
     for b in range(k):
         ctx.beat_index = b
         r, w_pk[b] = ctx.upstroke_and_takeoff(int(g[b]), int(prev[b]), int(ip0[b]), i_mdp[b], mdp[b])
+        if r.pop("no_phase4", False):
+            flags[b].append("no_phase4")
         for name, value in r.items():
             if name == "i_upstroke":
                 out_up[b] = value + offset
@@ -378,6 +380,10 @@ class _Context(TakeoffSteps):
                 r["t_top_s"] = self.t(i_top)
                 r["top_mV"] = self._top_value
                 self.phase4(r, i_mdp, i_top)
+                if self.lacks_phase4(i_mdp, mdp, i_top, self._top_value):
+                    for name in PHASE4_COLUMNS:
+                        r.pop(name, None)
+                    r["no_phase4"] = True
         # The peak is smoothed as dV/dt max was (a quartic is then fitted near its top).
         w_pk = window_samples(up.window_ms, fs, polyorder=3, minimum=5) if up.window_ms > 0 else 1
         return r, w_pk
