@@ -24,7 +24,7 @@ from typing import Sequence
 import numpy as np
 
 from analysis.beats._extrema import mdp_batch, peak_batch
-from analysis.beats._mdp_time import mdp_band_mV, mdp_vertex_times
+from analysis.beats._mdp_time import mdp_band_mV, mdp_vertex_times, recorded_diastole
 from analysis.columns import apd_name
 from analysis.beats._repolarisation import first_crossings, refine_crossings
 from analysis.beats._takeoff import PHASE4_COLUMNS, TakeoffSteps
@@ -178,7 +178,7 @@ def measure_beats(
     v = np.asarray(v_mV, dtype=np.float64)
     ups = np.asarray(i_upstroke, dtype=np.int64)
     k = ups.size
-    prev = np.concatenate(([-1], ups[:-1])) if i_previous is None else np.asarray(i_previous, np.int64)
+    prev = np.concatenate(([-1], ups[:-1])) if i_previous is None else np.array(i_previous, np.int64)
     nxt = np.concatenate((ups[1:], [v.size])) if i_next is None else np.asarray(i_next, np.int64)
     if noise_mV is None:
         noise_mV = noise_rms_mV(v)
@@ -189,6 +189,12 @@ def measure_beats(
     out_up = np.full(k, -1, dtype=np.int64)
     flags: list[list[str]] = [[] for _ in range(k)]
     ctx = _Context(v, fs_hz, s, noise_mV)
+    if offset == 0:
+        # A sweep's first beat is measured from the diastole recorded before it, when whole.
+        for b in np.flatnonzero(prev < 0):
+            g0 = min(max(int(ups[b]), 0), v.size - 1)
+            if recorded_diastole(v, g0, ctx.w_mdp, ctx.box_argmin(0, g0 + 1), noise_mV):
+                prev[b] = 0
     # Each step that works on fixed windows around every beat takes all the beats at once
     # (analysis.beats._extrema, analysis.beats._repolarisation); the steps between go beat by beat.
     where = [ctx.locate(int(ups[b]), int(prev[b]), int(nxt[b]), sweep_end) for b in range(k)]

@@ -19,7 +19,7 @@ import numpy as np
 
 from analysis.signal import cached_savgol_coeffs, savgol_smooth
 
-__all__ = ["MDP_BAND_MIN_MV", "MDP_BAND_NOISE", "mdp_band_mV", "mdp_vertex_times"]
+__all__ = ["FIRST_BEAT_FALL_MV", "MDP_BAND_MIN_MV", "MDP_BAND_NOISE", "mdp_band_mV", "mdp_vertex_times", "recorded_diastole"]
 
 #: The noise band spans this many rms of the white noise left in the smoothed V (10: the hum and
 #: low-frequency noise that smoothing leaves move the smoothed minimum further than white noise).
@@ -120,3 +120,25 @@ def _two_sided_vertex(y: np.ndarray) -> float:
     best = float(coarse[int(np.argmin(sse(coarse)))])
     fine = np.arange(max(1.0, best - step), min(m - 2.0, best + step) + 0.25, 0.25)
     return float(fine[int(np.argmin(sse(fine)))])
+
+
+#: The first beat of a sweep is measured from the diastole recorded before it when V fell by at
+#: least this many mV (or 10 x the noise rms) from the sweep's start into a minimum that lies two
+#: MDP windows or more from both the start and the upstroke: the previous beat's repolarisation
+#: is on record, so the minimum is the MDP the definition asks for, not a sample where the
+#: recording happened to begin (common practice, no source).
+FIRST_BEAT_FALL_MV = 2.0
+
+
+def recorded_diastole(v: np.ndarray, g: int, w: int, m0: int, noise_mV: float) -> bool:
+    """Whether the samples before a sweep's first upstroke ``g`` hold a whole diastole.
+
+    ``v`` starts where the sweep starts; ``m0`` is where V, averaged over the MDP window ``w``,
+    is lowest in ``[0, g]``.
+    """
+    edge = 2 * max(w, 1)
+    if m0 < edge or g - m0 < edge:
+        return False
+    start = float(np.mean(v[:max(w, 1)]))
+    lowest = float(np.mean(v[max(0, m0 - w // 2):m0 + w // 2 + 1]))
+    return start - lowest >= max(FIRST_BEAT_FALL_MV, 10.0 * noise_mV)
