@@ -174,6 +174,11 @@ class MeasurementSettings(Section):
         0.5, unit="V/s", min=0.01, max=100.0, source="0.5 and 1 V/s are common criteria (MEASUREMENTS.md)",
         doc="dV/dt criterion of the take-off potential (top_method dvdt_criterion)",
     )
+    no_phase4_min_mV: float = setting(
+        1.0, unit="mV", min=0.0, max=20.0, source=_NO_SOURCE,
+        doc="a beat whose take-off lies less than this (or 4 x the noise rms) above its MDP has no phase 4 "
+            "(flag no_phase4, no TOP or DDR); 0: never",
+    )
     top_fraction: float = setting(
         0.1, min=0.001, max=0.9, source="10 % of dV/dt max is common (MEASUREMENTS.md)",
         doc="fraction of dV/dt max that marks take-off (top_method dvdt_fraction)",
