@@ -145,7 +145,7 @@ def test_first_beat_has_no_diastole_and_a_cut_off_last_beat_is_truncated():
 def test_measure_beats_directly_with_explicit_neighbours():
     v, centres = gaussian_train(FS, 2.0, cl_s=0.5)
     ups = np.rint((centres - W / math.sqrt(2)) * FS).astype(int)
-    m = measure_beats(v, FS, ups[1:3], i_previous=ups[0:2], i_next=ups[2:4])
+    m = measure_beats(v, FS, ups[1:3], i_previous=ups[0:2], i_next=ups[2:4], settings=KEEP_TOP.measurement)
     assert m.has_previous.all() and m.flags == [[], []]
     np.testing.assert_allclose(m.values["mdp_mV"], -60.0, atol=0.01)
 
