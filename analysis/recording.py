@@ -37,7 +37,7 @@ UNKNOWN_CLAMP = "unknown"
 MIN_SAMPLES_PER_SWEEP = 100
 
 _VOLTAGE_UNITS = {"mv": "mV", "v": "V", "uv": "uV", "µv": "uV"}
-_CURRENT_UNITS = {"pa": "pA", "na": "nA", "ua": "uA", "a": "A", "fa": "fA"}
+_CURRENT_UNITS = {"pa": "pA", "na": "nA", "ua": "uA", "a": "A", "fa": "fA", "pa/pf": "pA/pF", "a/f": "A/F"}
 
 # Loader signature: (sweep, channel, start, stop) -> samples in the channel's units.
 Loader = Callable[[int, int, int, int], np.ndarray]

@@ -83,10 +83,13 @@ class BeatTable:
 
     @classmethod
     def concat(cls, tables: Sequence["BeatTable"]) -> "BeatTable":
-        """Rows of several tables one after another; the columns are those of the first table."""
+        """Rows of several tables one after another; the columns are those of the first table
+        that has rows (a table with no rows, from a recording without beats, may lack columns)."""
         tables = [t for t in tables if t is not None]
         if not tables:
             return cls.empty()
+        with_rows = [t for t in tables if len(t)]
+        tables = with_rows or tables[:1]
         names = tables[0].names
         return cls({n: np.concatenate([t[n] for t in tables]) if len(tables) > 1 else tables[0][n] for n in names})
 

@@ -12,6 +12,8 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 REPO = Path(__file__).resolve().parents[1]
 #: Real ABF files from working labs, read in place (never copied into the repository).
 REAL_ABF_DIR = Path(os.environ.get("UPSTROKE_REAL_ABF", REPO.parent / "shared" / "real-abf"))
+#: Real stem-cell-derived cardiomyocyte recordings as text, with beat counts in their README.
+REAL_IPSC_DIR = Path(os.environ.get("UPSTROKE_REAL_IPSC", REPO.parent / "shared" / "real-ipsc"))
 
 
 @pytest.fixture(autouse=True)
@@ -28,6 +30,14 @@ def real_abf_dir() -> Path:
     if not (REAL_ABF_DIR / "MANIFEST.csv").is_file():
         pytest.skip(f"real ABF files not found at {REAL_ABF_DIR} (set UPSTROKE_REAL_ABF)")
     return REAL_ABF_DIR
+
+
+@pytest.fixture(scope="session")
+def real_ipsc_dir() -> Path:
+    """The folder of real hiPSC-cardiomyocyte text recordings; skips when it is not there."""
+    if not (REAL_IPSC_DIR / "README.md").is_file():
+        pytest.skip(f"real hiPSC-CM recordings not found at {REAL_IPSC_DIR} (set UPSTROKE_REAL_IPSC)")
+    return REAL_IPSC_DIR
 
 
 @pytest.fixture(scope="session")

@@ -135,10 +135,10 @@ def detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total
     width_min = s.min_width_ms * 1e-3 * fs_hz
     ups, peaks, arts, reasons = [], [], [], []
     # (arm, cross, in_core): a candidate belongs to the chunk whose core holds its first crossing.
-    queue = [(int(nz[j - 1]), int(nz[j]), core[0] <= int(nz[j]) + offset < core[1]) for j in rises]
+    queue = [(int(nz[j - 1]), int(nz[j]), core[0] <= int(nz[j]) + offset < core[1], False) for j in rises]
     qi = 0
     while qi < len(queue):
-        arm, cross, in_core = queue[qi]
+        arm, cross, in_core, after_spike = queue[qi]
         qi += 1
         if not in_core:
             continue
@@ -156,7 +156,14 @@ def detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total
         # Still above half amplitude where the sweep ends: an upstroke the sweep cuts off, whose
         # width cannot be judged (a beat; the measurement flags it truncated).
         cut_by_end = not right.size and offset + end >= n_total
-        if amp < s.min_amplitude_mV:
+        # The rise counts from the preceding minimum (the diastole since the previous fall below
+        # the low level), not from the low level's crossing: a slow diastolic depolarisation
+        # from a low MDP is a beat even when the adaptive levels sit high (common practice: a
+        # beat's amplitude is peak minus the MDP before it).
+        # A second look after a narrow artefact starts where the artefact ended.
+        since = arm if after_spike else (int(falls_all[k - 1]) if k > 0 else 0)
+        rise = float(vs[ip]) - float(np.min(vs[since:cross + 1]))
+        if max(amp, rise) < s.min_amplitude_mV:
             continue  # a sub-threshold depolarisation (or noise), not a beat and not an artefact
         if t_right - t_left < width_min and not cut_by_end:
             arts.append(iu + offset)
@@ -164,7 +171,7 @@ def detect_region(v, offset, fs_hz, s, threshold, *, levels_from, block, n_total
             # A spike may hide a real upstroke later in the same event: look again after it.
             above = np.flatnonzero(vs[t_right:end] > hi_lvl[t_right:end])
             if above.size:
-                queue.append((t_right, t_right + int(above[0]), True))
+                queue.append((t_right, t_right + int(above[0]), True, True))
             continue
         if dvs[iu] < threshold:
             arts.append(iu + offset)

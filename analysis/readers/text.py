@@ -4,8 +4,10 @@ The first line that is not a ``#`` comment names the columns, with units: ``time
 ``t (ms)``, ``Vm (mV)``, ``V [V]``, ``Im/pA``; or a line of names followed by a line of units.
 Cells are separated by tabs, commas, semicolons or runs of spaces (whichever the header uses).
 The time column (the first in s, ms or us) gives the sampling rate and must be evenly spaced;
-every other column is a channel in mV, V, uV (all shown as mV) or a current (pA, nA, ...), kept
-as given. The whole file is parsed at open (text cannot be mapped), streamed from disk by numpy's
+every other column is a channel in mV, V, uV (all shown as mV) or a current or current density
+(pA, nA, pA/pF, A/F, ...), kept as given. A column whose units are unknown or missing is kept as
+an auxiliary channel (shown with the units as written, never analysed) when another column is a
+voltage. The whole file is parsed at open (text cannot be mapped), streamed from disk by numpy's
 C parser so that only the numbers are held in memory.
 """
 
@@ -38,6 +40,8 @@ _UNITS: dict[str, tuple[str, str, float]] = {
     "µv": ("voltage", "mV", 1e-3),
     "pa": ("current", "pA", 1.0), "na": ("current", "nA", 1.0), "ua": ("current", "uA", 1.0),
     "fa": ("current", "fA", 1.0), "a": ("current", "A", 1.0),
+    # Current densities (current per membrane capacitance): auxiliary, never analysed.
+    "pa/pf": ("current", "pA/pF", 1.0), "a/f": ("current", "A/F", 1.0),
 }
 _BRACKETED = re.compile(r"^(?P<name>.*?)\s*[\(\[]\s*(?P<unit>[^\)\]]*?)\s*[\)\]]\s*$")
 _SUFFIXED = re.compile(r"^(?P<name>.+?)\s*[_/]\s*(?P<unit>[^_/\s]+)$")
@@ -80,6 +84,10 @@ def parse_label(label: str) -> tuple[str, str | None]:
             return match.group("name").strip() or text, match.group("unit")
     if text.lower() in _UNITS:
         return text, text
+    match = _BRACKETED.match(text)
+    if match and match.group("unit") and match.group("name").strip():
+        # Units Upstroke does not know ("Stim (a.u.)"): the column is kept, not analysed.
+        return match.group("name").strip(), match.group("unit")
     return text, None
 
 
@@ -212,19 +220,27 @@ def _split_header(line: str, delimiter: str | None) -> list[str]:
 
 
 def _columns(labels: list[str], origin: str) -> list[_Column]:
+    """The header's columns. A column whose units are unknown or missing is kept as an
+    auxiliary channel (kind ``"unknown"``, units as written), as long as some column holds a
+    voltage: the membrane potential is chosen among the voltage columns, the rest is not analysed."""
     columns = []
     for label in labels:
         name, unit = parse_label(label)
-        if unit is None:
-            if len(name) > 40:  # not a column name but a line of something else: quote its start
-                label = name = name[:37] + "..."
-            raise RecordingError(
-                origin, f"column {label!r} has no units Upstroke knows",
-                f"name it like '{name}_mV' or '{name} (mV)' (time in s or ms; voltage in mV or V; "
-                "current in pA or nA)",
-            )
-        kind, shown, factor = _UNITS[unit.lower()]
+        if unit is not None and unit.lower() in _UNITS:
+            kind, shown, factor = _UNITS[unit.lower()]
+        else:
+            kind, shown, factor = "unknown", unit or "", 1.0
         columns.append(_Column(label.strip().strip('"').strip(), name, kind, shown, factor))
+    unitless = [c for c in columns if c.kind == "unknown" and not c.units]
+    if unitless and not any(c.kind == "voltage" for c in columns):
+        label = unitless[0].label
+        if len(label) > 40:  # not a column name but a line of something else: quote its start
+            label = label[:37] + "..."
+        raise RecordingError(
+            origin, f"column {label!r} has no units, and no column is a voltage",
+            "write each column's units in the header, e.g. 't (ms)' or 'time_s' for the time and "
+            "'Vm (mV)' or 'Vm_V' for the membrane potential (currents in pA, nA or pA/pF)",
+        )
     if not any(c.kind == "time" for c in columns):
         raise RecordingError(
             origin, "has no time column (a column in s or ms)",

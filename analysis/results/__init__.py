@@ -13,6 +13,7 @@ from analysis.results._atomic import (
     write_text_atomic,
 )
 from analysis.results._facts import RecordingFacts, facts_values
+from analysis.results._study import read_study, write_study
 from analysis.results._store import (
     FORMAT_NAME,
     SCHEMA_VERSION,
@@ -23,4 +24,4 @@ from analysis.results._store import (
     save_results,
 )
 
-__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "load_results", "provenance_now", "remove_stale_temps", "save_results", "temp_prefix", "write_text_atomic"]
+__all__ = ["FORMAT_NAME", "RecordingFacts", "ResultsFile", "SCHEMA_VERSION", "StoredRecording", "WriteError", "atomic_output", "atomic_outputs", "facts_values", "fsync_folder", "load_results", "provenance_now", "read_study", "remove_stale_temps", "save_results", "temp_prefix", "write_study", "write_text_atomic"]

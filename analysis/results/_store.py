@@ -42,6 +42,7 @@ from analysis.errors import ResultsFileError
 from analysis.recording import file_sha256
 from analysis.results._atomic import atomic_output
 from analysis.results._facts import RecordingFacts
+from analysis.results._study import carry_study
 from analysis.table import BeatTable
 
 __all__ = [
@@ -239,6 +240,7 @@ def save_results(
                 for i, r in enumerate(content.recordings):
                     _write_recording(recs.create_group(f"{i:06d}"), r, folder)
                 f.flush()
+            carry_study(target, tmp)  # a study's layout stays with the file it describes
     except PermissionError as exc:
         raise ResultsFileError(path, f"cannot be written ({exc.strerror})", "choose a folder you can write to") from None
 

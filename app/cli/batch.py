@@ -19,6 +19,10 @@ from typing import Iterator
 from .options import (
     parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
 )
+from .study_outputs import (
+    add_layout_options, add_table_options, check_request, layout_from_args, report_layout, study_tables, tasks_conditions,
+    with_study_columns,
+)
 
 __all__ = ["add_parser", "run"]
 
@@ -27,6 +31,9 @@ examples:
   upstroke batch recordings/ --out study.h5 --csv beats.csv
   upstroke batch 'day*/cell*.abf' --out study.h5 --workers 4
   upstroke batch /shared/screen --out screen.h5 --scheduler tcp://10.0.0.5:8786
+  upstroke batch study/ --out study.h5 --layout '{cell}/{condition}.abf' \
+      --condition-order baseline,UP-113,washout --study-csv cells.csv --compare compare.csv
+  upstroke batch study/ --out study.h5 --sheet study/sheet.csv --group-from drug
 
 Folders are searched recursively for files with a recording extension; quote glob patterns
 (use ** to reach into subfolders). With --scheduler every worker must see the files at the same
@@ -64,6 +71,8 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
     where.add_argument("--scheduler", metavar="ADDRESS",
                         help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
                         '(needs pip install "upstroke[cluster]")')
+    add_layout_options(parser)
+    add_table_options(parser, figures=False)
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
     parser.set_defaults(run=run)
     return parser
@@ -94,11 +103,21 @@ def run(args: argparse.Namespace) -> int:
     from analysis.batch import find_recordings, make_tasks, prepare_existing, run_batch, save_batch
 
     settings = settings_from_args(args)
-    outputs = [p for p in (args.out, args.csv, args.summary_csv) if p]
+    outputs = [p for p in (args.out, args.csv, args.summary_csv, args.study_csv, args.compare) if p]
     _check_outputs(outputs)
+    if not (args.layout or args.sheet):
+        check_request(None, args, None)  # study outputs without a study: before any search
     paths = find_recordings(args.sources, exclude=outputs)
+    layout = layout_from_args(args, paths)
     conditions = tuple(c.text() for c in args.conditions)
+    study_conditions: dict = {}
+    if layout is not None:
+        paths, study_conditions = tasks_conditions(layout, paths)
+        if conditions:  # stretches the user named within every file win over the whole file
+            study_conditions = {}
+    check_request(layout, args, None)
     kept = prepare_existing(args.out, paths, conditions)  # a damaged results file stops here
+    kept.update(study_conditions)
     tasks = make_tasks(
         paths, settings=settings, channel=args.channel, sweeps=args.sweeps, units=args.units or None,
         conditions=conditions, file_conditions=kept,
@@ -114,7 +133,29 @@ def run(args: argparse.Namespace) -> int:
         saved = None
         if result.succeeded:
             saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
+            if layout is not None:
+                _save_study(layout, args)
+    if layout is not None:
+        report_layout(layout)
     return _report(result, saved)
+
+
+def _save_study(layout, args: argparse.Namespace) -> None:
+    """The layout into the results file, then the study's tables from what it holds."""
+    from analysis.results import atomic_outputs, load_results, write_study
+
+    write_study(args.out, layout)
+    tables = study_tables(layout, load_results(args.out, verify_sources=False), args)
+    if args.csv:  # the beats CSV gains the study's columns
+        with open(args.csv, encoding="utf-8", newline="") as fh:
+            tables.insert(0, (args.csv, with_study_columns(fh.read(), layout)))
+    if tables:
+        with atomic_outputs([path for path, _ in tables]) as temps:
+            for (_, text), tmp in zip(tables, temps):
+                with open(tmp, "w", encoding="utf-8", newline="") as fh:
+                    fh.write(text)
+        for path, _ in tables:
+            print(f"wrote {path}")
 
 
 def _check_outputs(outputs: list[str]) -> None:

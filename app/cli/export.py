@@ -1,11 +1,14 @@
-"""``upstroke export RESULTS.h5 [--csv BEATS.csv] [--summary-csv SUMMARY.csv] [--figures DIR]``.
+"""``upstroke export RESULTS.h5 [--csv BEATS.csv] [--summary-csv SUMMARY.csv] [--figures DIR] [study options]``.
 
 Writes tables (and figures) from a saved results file with the review decisions applied, without
 the source recordings: the beats CSV as ``upstroke analyze --csv`` writes it (for a results file
 that analyze wrote and nobody reviewed since, byte for byte the same), the summary CSV (one row
 per file x sweep group x condition, as saved), and with ``--figures`` one SVG per recording of
 its per-beat time courses (rate, APD90, DDR, MDP; accepted beats filled, rejected ones open,
-conditions shaded). Without an output option it lists what the file holds.
+conditions shaded). For a study (a results file that ``upstroke batch --layout/--sheet`` wrote):
+``--study-csv`` (one row per cell x condition), ``--compare`` (each condition against the
+baseline, per cell and per group with paired tests) and ``--compare-figures DIR`` (one SVG and
+one PNG per group). Without an output option it lists what the file holds.
 
 Every output is built in memory first, then written to a temporary file beside its target; the
 targets are replaced only once all are written, so a failure leaves no partial file, replaces no
@@ -24,6 +27,8 @@ from typing import Any
 import numpy as np
 
 from analysis.errors import InputError
+
+from .study_outputs import add_table_options, check_request, comparison_figures, study_tables, with_study_columns
 
 __all__ = ["add_parser", "run", "figure_name", "beats_csv", "summary_text"]
 
@@ -48,6 +53,7 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                    help="write the summaries (one row per file x sweep group x condition)")
     p.add_argument("--figures", metavar="DIR",
                    help="write one SVG per recording of its per-beat time courses into DIR (created if missing)")
+    add_table_options(p, figures=True)
     p.set_defaults(run=run)
     return p
 
@@ -94,8 +100,10 @@ def _check_target(path: str, results: str) -> None:
         raise ExportError(path, "the output folder does not exist", "create it or write elsewhere")
 
 
-def _describe(session, results: str) -> list[str]:
+def _describe(session, results: str, layout=None) -> list[str]:
     lines = [f"{results}: {len(session.recordings)} recording(s)"]
+    if layout is not None:
+        lines.append(f"  study: {layout.describe()}")
     for key in session.recordings:
         b = session.beats(key)
         n = len(b)
@@ -111,44 +119,60 @@ def _describe(session, results: str) -> list[str]:
 
 def run(args: argparse.Namespace) -> int:
     """Export what the options ask for; 0 on success (bad input raises InputError, exit 2)."""
-    from analysis.results import atomic_outputs
+    from analysis.results import atomic_outputs, load_results
     from analysis.session import Session
+
+    from analysis.results import read_study
 
     session = Session.open(args.results)
     for w in session.open_warnings:
         print(f"upstroke export: warning: {w}", file=sys.stderr)
-    outputs: list[tuple[str, str]] = []
-    for path in (args.csv, args.summary_csv):
-        if path:
-            _check_target(path, args.results)
-    if args.csv and args.summary_csv and os.path.abspath(args.csv) == os.path.abspath(args.summary_csv):
-        raise ExportError(args.csv, "is given for both --csv and --summary-csv", "give two different files")
-    if args.figures and os.path.exists(args.figures) and not os.path.isdir(args.figures):
-        raise ExportError(args.figures, "exists and is not a folder", "give a folder for --figures")
-    if args.figures and not os.path.isdir(os.path.dirname(os.path.abspath(args.figures))):
-        raise ExportError(args.figures, "its parent folder does not exist", "create it or write elsewhere")
+    layout = read_study(args.results)
+    check_request(layout, args, args.results)
+    outputs: list[tuple[str, str | bytes]] = []
+    files = [p for p in (args.csv, args.summary_csv, args.study_csv, args.compare) if p]
+    for path in files:
+        _check_target(path, args.results)
+    if len(set(map(os.path.abspath, files))) != len(files):
+        raise ExportError(files[0], "two table options name the same file", "give every output its own file")
+    folders = [d for d in (args.figures, args.compare_figures) if d]
+    for folder in folders:
+        if os.path.exists(folder) and not os.path.isdir(folder):
+            raise ExportError(folder, "exists and is not a folder", "give a folder for the figures")
+        if not os.path.isdir(os.path.dirname(os.path.abspath(folder))):
+            raise ExportError(folder, "its parent folder does not exist", "create it or write elsewhere")
     # Build everything before writing anything.
     if args.csv:
-        outputs.append((args.csv, beats_csv(session)))
+        text = beats_csv(session)
+        outputs.append((args.csv, with_study_columns(text, layout) if layout is not None else text))
     if args.summary_csv:
         outputs.append((args.summary_csv, summary_text(session)))
     if args.figures:
         outputs.extend((os.path.join(args.figures, name), svg) for name, svg in _figures(session))
+    if layout is not None and (args.study_csv or args.compare or args.compare_figures):
+        stored = load_results(args.results, verify_sources=False)
+        outputs += study_tables(layout, stored, args)
+        if args.compare_figures:
+            outputs += comparison_figures(layout, stored, args.compare_figures)
     if not outputs:
-        print("\n".join(_describe(session, args.results)))
+        print("\n".join(_describe(session, args.results, layout)))
         return 0
-    made = bool(args.figures) and not os.path.isdir(args.figures)
+    made = [d for d in dict.fromkeys(folders) if not os.path.isdir(d)]
     try:
-        if made:
-            os.makedirs(args.figures)
+        for folder in made:
+            os.makedirs(folder)
         # All or none: the targets are replaced only once every output is written.
         with atomic_outputs([path for path, _ in outputs]) as temps:
-            for (path, text), tmp in zip(outputs, temps):
-                with open(tmp, "w", encoding="utf-8", newline="") as fh:
-                    fh.write(text)
+            for (path, content), tmp in zip(outputs, temps):
+                if isinstance(content, bytes):
+                    with open(tmp, "wb") as fh:
+                        fh.write(content)
+                else:
+                    with open(tmp, "w", encoding="utf-8", newline="") as fh:
+                        fh.write(content)
     except BaseException:
-        if made:
-            shutil.rmtree(args.figures, ignore_errors=True)
+        for folder in made:
+            shutil.rmtree(folder, ignore_errors=True)
         raise
     for path, _ in outputs:
         print(f"wrote {path}")

@@ -152,3 +152,38 @@ def test_windows_export_with_bom_and_crlf(tmp_path):
     rec = open_recording(path)
     assert rec.channels[0].name == "Vm" and rec.sampling_rate_hz == pytest.approx(10_000.0)
     np.testing.assert_allclose(rec.sweep(0), rows[:, 1], atol=5e-4)  # the 3 decimals written
+
+
+@pytest.mark.parametrize(
+    "label, expected",
+    [
+        # Units of current density and unknown units stay with their column (common practice
+        # for column headers, no source): the column is kept, not analysed.
+        ("Current (pA/pF)", ("Current", "pA/pF")), ("Im (A/F)", ("Im", "A/F")), ("I (nA)", ("I", "nA")),
+        ("Stim (a.u.)", ("Stim", "a.u.")),
+    ],
+)
+def test_header_labels_with_current_densities_and_unknown_units(label, expected):
+    assert parse_label(label) == expected
+
+
+def test_columns_that_are_not_a_voltage_are_kept_as_auxiliary_channels(tmp_path):
+    rows = files.regular_rows(2000, 10_000.0)
+    table = np.c_[rows[:, 0], rows[:, 1] * 1e-3, rows[:, 1] * 0.0, rows[:, 1] * 0.5, rows[:, 1] * 2.0]
+    path = files.write_text(tmp_path / "cell.csv", "Time (s),Voltage (V),Current (pA/pF),Stim (a.u.),Sync",
+                            table, fmt="%.9f")
+    rec = open_recording(path)
+    # The voltage in V is shown in mV (SI prefixes); the others keep their units as written.
+    assert [(c.name, c.units) for c in rec.channels] == [
+        ("Voltage", "mV"), ("Current", "pA/pF"), ("Stim", "a.u."), ("Sync", "")]
+    assert [c.clamp_mode for c in rec.channels][:2] == ["current clamp", "voltage clamp"]
+    np.testing.assert_allclose(rec.sweep(0, 0), rows[:, 1], atol=1e-6)
+    np.testing.assert_allclose(rec.sweep(0, "Stim"), rows[:, 1] * 0.5, atol=1e-9)
+
+
+def test_a_file_with_no_voltage_column_is_refused_without_guessing_a_unit(tmp_path):
+    rows = files.regular_rows(1000, 10_000.0)
+    path = files.write_text(tmp_path / "cell.csv", "time_s,Current (pA/pF),Signal", np.c_[rows, rows[:, 1]])
+    with pytest.raises(RecordingError, match=r"column 'Signal' has no units, and no column is a voltage") as info:
+        open_recording(path)
+    assert "'Signal (mV)'" not in str(info.value) and "'Current (pA/pF) (mV)'" not in str(info.value)
