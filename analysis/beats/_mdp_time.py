@@ -66,7 +66,9 @@ def mdp_vertex_times(v: np.ndarray, fs_hz: float, w: int, band_mV: float, i_mdp:
     h = w // 2
     for b in np.flatnonzero(np.isfinite(out)):
         m = round(out[b])
-        a, z = max(int(lo[b]), 0), min(int(hi[b]), n)
+        # The trough is looked for within 250 ms of the minimum (a bounded cost per beat).
+        reach = int(0.25 * fs_hz)
+        a, z = max(int(lo[b]), 0, m - reach), min(int(hi[b]), n, m + reach + 1)
         if not a <= m < z:
             continue
         ca, cz = max(0, a - 2 * h), min(n, z + 2 * h)
