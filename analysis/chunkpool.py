@@ -10,9 +10,11 @@ the same bytes with one worker or many (``tests/analysis/test_chunkpool.py``).
 
 The number of workers is a context setting, one unless a caller asks for more
 (:func:`use_workers`). The command line asks for the cores available, at most four
-(:func:`default_workers`). The app's worker threads
-and the batch processes stay at one: forking a process that runs other threads (a Qt
-application) is unsafe, and a batch already keeps every core busy with whole files. Forking is
+(:func:`default_workers`), and so does the app's re-analysis after a settings change
+(:class:`analysis.session.Session`'s ``workers``): a forked worker only computes its chunk with
+numpy, sends the result down a pipe and ends with ``os._exit``, touching nothing the app's other
+threads hold. The batch processes stay at one: a batch already keeps every core busy with
+whole files. Forking is
 used on Linux only; elsewhere the chunks are worked one after another.
 """
 

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 __all__ = [
     "KINDS", "BeatColumn", "CATALOGUE", "CSV_APD_PERCENTS", "apd_name", "apd_column", "apd_time_column",
-    "column", "csv_columns", "summarised_columns",
+    "FLAG_VOCABULARY", "column", "csv_columns", "review_csv_columns", "summarised_columns",
 ]
 
 #: What a column is, by kind.
@@ -32,6 +32,16 @@ KINDS = {
 _DTYPES = ("float", "int", "str")
 _MS = "MEASUREMENTS.md"
 _CONTRACT = "CONTRACT.md"
+_REVIEW = "CONTRACT.md (the review's columns); named by Upstroke"
+
+#: Every word the ``flags`` column may hold, in the order they are written: the structural flags
+#: of :data:`analysis.beats.FLAG_WORDS` then the event and quality flags of
+#: :data:`analysis.flags.EVENT_FLAGS` (their meanings are documented there). Settings that name
+#: flags (``quality.review_flags``) are checked against it.
+FLAG_VOCABULARY: tuple[str, ...] = (
+    "no_diastole", "no_phase4", "truncated",
+    "ead", "dad", "pause", "clipped", "noisy", "mdp_drift", "low_apa", "no_overshoot", "artefact",
+)
 
 
 @dataclass(frozen=True)
@@ -58,7 +68,9 @@ class BeatColumn:
         Where its definition is published (MEASUREMENTS.md gives the sources; CONTRACT.md for
         columns the contract itself defines); empty when none.
     in_csv : bool
-        The beats CSV carries it (in :data:`CATALOGUE` order).
+        The beats CSV carries it among the contract's columns (in :data:`CATALOGUE` order).
+    review_csv : bool
+        The beats CSV carries it after the contract's columns, among the review's columns.
     summarised : bool
         Each summary reports its mean and SD (and the ensemble beat's value).
     """
@@ -73,6 +85,7 @@ class BeatColumn:
     source: str = ""
     in_csv: bool = False
     summarised: bool = False
+    review_csv: bool = False
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS or self.dtype not in _DTYPES:
@@ -154,7 +167,8 @@ CATALOGUE: tuple[BeatColumn, ...] = (
     BeatColumn("t_upstroke_s", "measured", "float", "s", 6, "upstroke",
                "upstroke time (dV/dt max, or a voltage-level crossing) from the sweep's start", _MS, in_csv=True),
     BeatColumn("accepted", "decision", "int", label="kept", in_csv=True, source=_CONTRACT,
-               description="1 accepted, 0 rejected (by review or a quality rule)"),
+               description="1 when the summaries use the beat; 0 when it is rejected (by review or a quality rule) "
+               "or waits for review"),
     BeatColumn("flags", "flag", "str", label="flags", in_csv=True, source=_CONTRACT,
                description="';'-separated flag words, empty when none"),
     BeatColumn("condition", "flag", "str", label="condition", in_csv=True, source=_CONTRACT,
@@ -171,8 +185,17 @@ CATALOGUE: tuple[BeatColumn, ...] = (
     _m("peak_mV", "mV", "peak", "peak potential: maximum V after the upstroke, before the next diastole"),
     _m("apa_mV", "mV", "APA", "action-potential amplitude, peak - MDP"),
     *(apd_column(p) for p in CSV_APD_PERCENTS),
-    BeatColumn("reject_reason", "decision", "str", label="reason",
-               description="why the beat is rejected (the rule or the reviewer's words), empty when accepted"),
+    BeatColumn("verdict", "decision", "str", label="verdict", review_csv=True, source=_REVIEW,
+               description="accepted, rejected, or to_review: a flag of the quality.review_flags setting holds "
+               "the beat out of the summaries until the user accepts or rejects it"),
+    BeatColumn("reject_reason", "decision", "str", label="reason", review_csv=True, source=_REVIEW,
+               description="why the beat is rejected: 'auto: FLAG (why)' for a quality rule, else the reviewer's "
+               "words; empty unless rejected"),
+    BeatColumn("decided_by", "decision", "str", label="decided by", review_csv=True, source=_REVIEW,
+               description="auto (the quality rules, which also hold beats for review) or user (a review decision)"),
+    BeatColumn("recording_id", "identity", "str", label="recording id", review_csv=True, source=_REVIEW,
+               description="the first 16 hex digits of the recording file's SHA-256: the same whichever "
+               "front end wrote the CSV and wherever the file lies; empty for data not read from a file"),
     _marker("i_upstroke", "", "upstroke sample", "sample index of the upstroke in its sweep", dtype="int"),
     _marker("t_mdp_s", "s", "MDP time", "time of the MDP, from the sweep's start"),
     _marker("t_top_s", "s", "TOP time", "time of the take-off, from the sweep's start"),
@@ -217,6 +240,11 @@ def column(name: str) -> BeatColumn:
 def csv_columns() -> tuple[BeatColumn, ...]:
     """The beats CSV's columns, in its order."""
     return tuple(c for c in CATALOGUE if c.in_csv)
+
+
+def review_csv_columns() -> tuple[BeatColumn, ...]:
+    """The review's columns the beats CSV writes after the contract's, in its order."""
+    return tuple(c for c in CATALOGUE if c.review_csv)
 
 
 def summarised_columns() -> tuple[BeatColumn, ...]:

@@ -9,8 +9,10 @@ The text form, used by ``upstroke analyze --condition`` and shown in the app, is
 
     NAME=START-END[,steady=RULE]
 
-* ``START-END`` in seconds (``0-60``, ``0-60s``), minutes (``1min-3min``) or open-ended
-  (``120-end``, ``120-``); or sweeps, inclusive, ``sweeps:0-3`` or ``sweeps:4``.
+* ``START-END`` with a unit: seconds (``0s-60s``, or ``0-60s``: a unit after the end applies
+  to a start without one), minutes (``1min-3min``), or open-ended to the end of the recording
+  (``120s-end``, ``2min-``); or sweeps, inclusive, ``sweeps:0-3`` or ``sweeps:4``. A range
+  without any unit (``0-60``, ``120-end``) is refused: a number's unit is never a guess.
 * ``RULE`` is ``auto`` (the suggested steady state, the default), ``all`` (the whole condition),
   ``lastTs`` / ``lastTmin`` (``last30s``, ``last2min``) or ``lastNbeats`` (``last20beats``).
 
@@ -35,6 +37,7 @@ __all__ = [
     "SteadyState",
     "assign_conditions",
     "check_conditions",
+    "check_inside",
     "parse_condition",
 ]
 
@@ -151,7 +154,7 @@ class Condition:
         if self.unit == "sweeps":
             rng = f"sweeps:{int(self.start)}" + ("-end" if not math.isfinite(self.end) else ("" if self.end == self.start else f"-{int(self.end)}"))
         else:
-            rng = f"{self.start:g}-" + ("end" if not math.isfinite(self.end) else f"{self.end:g}s")
+            rng = f"{self.start:g}s-end" if not math.isfinite(self.end) else f"{self.start:g}-{self.end:g}s"
         steady = "" if self.steady.kind == "auto" else f",steady={self.steady.text()}"
         return f"{self.name}={rng}{steady}"
 
@@ -187,11 +190,15 @@ def parse_condition(text: str) -> Condition:
     --------
     >>> parse_condition("washout=3min-end").end
     inf
+    >>> parse_condition("baseline=0-60").start
+    Traceback (most recent call last):
+    ...
+    analysis.conditions.ConditionError: condition 'baseline=0-60': the range '0-60' has no unit; write baseline=0s-60s (seconds) or baseline=0min-1min (minutes)
     >>> parse_condition("drug=sweeps:4-7,steady=last20beats").steady
     SteadyState(kind='last_beats', value=20.0)
     """
     raw = str(text).strip()
-    fix = "write NAME=START-END (seconds, e.g. baseline=0-60s), NAME=sweeps:FIRST-LAST, optionally ,steady=last30s"
+    fix = "write NAME=START-END with a unit (e.g. baseline=0s-60s or washout=3min-end), NAME=sweeps:FIRST-LAST, optionally ,steady=last30s"
     if "=" not in raw:
         raise ConditionError(None, f"condition {raw!r} has no '='", fix)
     name, _, rest = raw.partition("=")
@@ -211,9 +218,22 @@ def parse_condition(text: str) -> Condition:
     m = _TIME.match(spec)
     if not m:
         raise ConditionError(None, f"condition {raw!r}: range {parts[0]!r} not understood", fix)
-    start = float(m.group(1)) * (60.0 if m.group(2) == "min" else 1.0)
+    start_unit = m.group(2) or m.group(4)  # "0-60s": the end's unit applies to the start
+    if start_unit is None or (m.group(3) is not None and m.group(4) is None):
+        raise ConditionError(None, f"condition {raw!r}: the range {parts[0]!r} has no unit", _unit_fix(name, m))
+    start = float(m.group(1)) * (60.0 if start_unit == "min" else 1.0)
     end = math.inf if m.group(3) is None else float(m.group(3)) * (60.0 if m.group(4) == "min" else 1.0)
     return Condition(name, start, end, "s", steady)
+
+
+def _unit_fix(name: str, m: re.Match) -> str:
+    """How to write a range that lacks its unit, with the user's own numbers."""
+    a, b = m.group(1), m.group(3)
+    if b is None:
+        return f"write {name}={a}s-end (seconds) or {name}={a}min-end (minutes)"
+    def minutes(x: str) -> str:
+        return f"{float(x) / 60.0:g}"
+    return f"write {name}={a}s-{b}s (seconds) or {name}={minutes(a)}min-{minutes(b)}min (minutes)"
 
 
 def check_conditions(
@@ -225,15 +245,20 @@ def check_conditions(
 ) -> tuple[Condition, ...]:
     """Conditions sorted by start, after checking names are unique and ranges do not overlap.
 
-    Sweep ranges are compared with time ranges through the sweeps' start times and durations
-    when those are given.
+    When the sweeps' start times and durations are given, each condition must also lie inside
+    the recording (:func:`check_inside`), and sweep ranges are compared with time ranges through
+    them.
 
     Raises
     ------
     ConditionError
-        For a repeated name or an overlap, naming both conditions.
+        For a condition outside the recording, a repeated name or an overlap, naming both
+        conditions.
     """
     conds = list(conditions)
+    if sweep_starts_s is not None and sweep_durations_s is not None:
+        for c in conds:
+            check_inside(c, sweep_starts_s, sweep_durations_s, where=where)
     names = [c.name for c in conds]
     for n in names:
         if names.count(n) > 1:
@@ -252,6 +277,65 @@ def check_conditions(
                 "make each condition end where the next begins",
             )
     return tuple(conds[i] for i in order)
+
+
+#: Seconds a condition's end may pass the recording's end (rounding of the sweeps' durations).
+END_TOLERANCE_S = 1e-3
+
+
+def check_inside(
+    condition: Condition,
+    sweep_starts_s: Sequence[float],
+    sweep_durations_s: Sequence[float],
+    *,
+    where: str | None = None,
+) -> None:
+    """Refuse a condition that starts or ends outside the recording.
+
+    Parameters
+    ----------
+    condition : Condition
+    sweep_starts_s, sweep_durations_s : sequence of float
+        Per sweep of the recording: start from the start of the recording, and duration, in s.
+    where : str or None
+        The recording, for the message.
+
+    Raises
+    ------
+    ConditionError
+        Naming the condition, the recording's extent and how to write the condition instead.
+
+    Examples
+    --------
+    >>> check_inside(parse_condition("washout=120s-end"), [0.0], [180.0])
+    >>> check_inside(parse_condition("washout=120-300s"), [0.0], [180.0])
+    Traceback (most recent call last):
+    ...
+    analysis.conditions.ConditionError: condition 'washout' ends at 300 s, after the recording ends (180 s); end it by 180 s, or write washout=120s-end to run to the end
+    """
+    c = condition
+    n = len(sweep_starts_s)
+    if c.unit == "sweeps":
+        last = n - 1
+        beyond = c.start if c.start > last else (c.end if math.isfinite(c.end) and c.end > last else None)
+        if beyond is not None:
+            raise ConditionError(
+                where, f"condition {c.name!r} names sweep {int(beyond)}, but the recording has sweeps 0-{last}",
+                f"give sweeps from 0 to {last}, e.g. {c.name}=sweeps:{min(int(c.start), last)}-end",
+            )
+        return
+    ends = [float(a) + float(d) for a, d in zip(sweep_starts_s, sweep_durations_s)]
+    rec_end = max(ends) if ends else 0.0
+    if c.start >= rec_end:
+        raise ConditionError(
+            where, f"condition {c.name!r} starts at {c.start:g} s, when the recording has ended ({rec_end:g} s)",
+            f"start it before {rec_end:g} s",
+        )
+    if math.isfinite(c.end) and c.end > rec_end + END_TOLERANCE_S:
+        raise ConditionError(
+            where, f"condition {c.name!r} ends at {c.end:g} s, after the recording ends ({rec_end:g} s)",
+            f"end it by {rec_end:g} s, or write {c.name}={c.start:g}s-end to run to the end",
+        )
 
 
 def assign_conditions(

@@ -1,4 +1,4 @@
-"""Review decisions: an append-only log of accept/reject verdicts on beats.
+"""Review decisions: an append-only log of accept/reject verdicts on beats, and each beat's status.
 
 Every review action appends entries; nothing is ever removed, so the log is also the audit trail
 of the review (who did what when, as far as a single user's file can say). A beat is named by its
@@ -21,26 +21,104 @@ time_utc : str
 action : str
     ``"review"`` for a user's verdict, ``"undo"`` / ``"redo"`` for entries the undo stack wrote
     to restore an earlier state.
+
+Status of a beat
+----------------
+Every front end (the command line, the app, the results file, the summaries) says where a beat
+stands with :func:`beat_status`, one function:
+
+``accepted``
+    used by the summaries: no quality rule rejected it and no flag holds it for review, or the
+    user accepted it;
+``rejected``
+    a quality rule rejected it (its reason starts ``auto:``) or the user did;
+``to_review``
+    it carries a flag of the ``quality.review_flags`` setting (by default the artefact-type
+    flags: ``clipped``, ``noisy``, ``mdp_drift``, ``low_apa``, ``artefact``: "this value may be
+    wrong") and nobody has judged it yet. It stays out of every summary until the user accepts
+    or rejects it, and is counted apart.
+
+Who decided (``decided_by``) is :data:`AUTO` for the rules (including holding a beat for
+review) and :data:`USER` where a review decision applies.
 """
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from typing import Iterable, Sequence
 
 import numpy as np
 
-__all__ = ["ACCEPT", "CLEAR", "REJECT", "Decision", "DecisionLog", "now_utc"]
+from analysis.errors import InputError
+
+__all__ = [
+    "ACCEPT",
+    "ACCEPTED",
+    "AUTO",
+    "CLEAR",
+    "MATCH_TOLERANCE_S",
+    "REJECT",
+    "REJECTED",
+    "STATUSES",
+    "TO_REVIEW",
+    "USER",
+    "BeatStatus",
+    "Decision",
+    "DecisionLog",
+    "apply_status",
+    "beat_status",
+    "held_for_review",
+    "now_utc",
+    "REPRODUCIBLE_CLOCK_ENV",
+]
 
 ACCEPT, REJECT, CLEAR = 1, 0, -1
+#: A beat's status, as the beats CSV's ``verdict`` column writes it.
+ACCEPTED, REJECTED, TO_REVIEW = "accepted", "rejected", "to_review"
+STATUSES = (ACCEPTED, REJECTED, TO_REVIEW)
+#: Who decided, as the beats CSV's ``decided_by`` column writes it.
+AUTO, USER = "auto", "user"
+#: A decision applies to the beat of its sweep whose upstroke lies this near (seconds).
+MATCH_TOLERANCE_S = 0.010
 #: Field names, in the order the results file stores them.
 FIELDS = ("sweep", "beat", "t_upstroke_s", "accepted", "reason", "time_utc", "action")
 
 
+#: The environment variable of reproducible builds (reproducible-builds.org's SOURCE_DATE_EPOCH
+#: specification): whole seconds since 1970-01-01 UTC that stand in for "now".
+REPRODUCIBLE_CLOCK_ENV = "SOURCE_DATE_EPOCH"
+
+
 def now_utc() -> str:
-    """The current time as ISO 8601 in UTC, to the millisecond."""
-    return datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
+    """The current time as ISO 8601 in UTC, to the millisecond.
+
+    With ``SOURCE_DATE_EPOCH`` set (reproducible mode), that time instead: every clock reading a
+    results file stores (when a recording was analysed, when a decision was made) is then fixed,
+    and two runs on the same input write identical bytes.
+
+    Raises
+    ------
+    InputError
+        When ``SOURCE_DATE_EPOCH`` is set but not a whole number of seconds (the specification
+        asks tools to stop rather than guess).
+    """
+    fixed = os.environ.get(REPRODUCIBLE_CLOCK_ENV)
+    if fixed is None:
+        moment = datetime.now(timezone.utc)
+    else:
+        text = fixed.strip()
+        try:
+            if not text.isdigit():
+                raise ValueError(text)
+            moment = datetime.fromtimestamp(int(text), timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            raise InputError(
+                None, f"{REPRODUCIBLE_CLOCK_ENV}={fixed[:40]!r} is not a whole number of seconds since 1970",
+                "set it to an integer such as 1767225600, or unset it to record the real time",
+            ) from None
+    return moment.isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
 @dataclass(frozen=True)
@@ -183,3 +261,123 @@ class DecisionLog:
             accepted[i] = d.accepted
             reason[i] = d.reason if d.accepted != CLEAR else ""
         return accepted, reason
+
+
+@dataclass(frozen=True)
+class BeatStatus:
+    """Where each beat of a table stands; equal-length arrays, one entry per beat.
+
+    Attributes
+    ----------
+    status : ndarray of object (str)
+        :data:`ACCEPTED`, :data:`REJECTED` or :data:`TO_REVIEW`.
+    reason : ndarray of object (str)
+        Why a beat is rejected (the rule's ``auto: ...`` text or the user's words); empty
+        otherwise.
+    decided_by : ndarray of object (str)
+        :data:`AUTO` or :data:`USER`.
+    """
+
+    status: np.ndarray
+    reason: np.ndarray
+    decided_by: np.ndarray
+
+    @property
+    def used(self) -> np.ndarray:
+        """True where the beat is accepted (the ``accepted`` column: 1 used, 0 not)."""
+        return self.status == ACCEPTED
+
+    def counts(self) -> dict[str, int]:
+        """How many beats have each status, ``{"accepted": .., "rejected": .., "to_review": ..}``."""
+        return {s: int(np.count_nonzero(self.status == s)) for s in STATUSES}
+
+
+def held_for_review(flags: Sequence[str], review_flags: Iterable[str]) -> np.ndarray:
+    """True for each ``;``-separated flags text that holds one of ``review_flags``.
+
+    Examples
+    --------
+    >>> held_for_review(["noisy;pause", "ead", ""], ("noisy", "clipped")).tolist()
+    [True, False, False]
+    """
+    wanted = frozenset(review_flags)
+    if not wanted:
+        return np.zeros(len(flags), dtype=bool)
+    return np.fromiter((bool(wanted.intersection(str(f).split(";"))) for f in flags), dtype=bool, count=len(flags))
+
+
+def beat_status(
+    table,
+    decisions: DecisionLog | None = None,
+    review_flags: Iterable[str] = (),
+    *,
+    tolerance_s: float = MATCH_TOLERANCE_S,
+) -> BeatStatus:
+    """The status of every beat: the quality rules' verdict, review flags, then the user's decisions.
+
+    Parameters
+    ----------
+    table : BeatTable or mapping of str to array
+        The automatic beat table (as analysis gave it, no review applied): ``sweep``,
+        ``t_upstroke_s``, ``flags`` and ``accepted``, and ``reject_reason`` where the quality
+        rules wrote their reasons. With ``reject_reason`` present a beat is rejected by a rule
+        exactly when it has a reason (the rules always give one, so a table this function has
+        already been applied to gives the same answer again); without it, where ``accepted`` is 0.
+    decisions : DecisionLog or None
+        The review decisions (None: none); the latest one that applies to a beat wins, and a
+        cleared decision leaves the automatic status.
+    review_flags : iterable of str
+        Flags that hold a beat for review (the ``quality.review_flags`` setting).
+    tolerance_s : float
+        How near a decision's upstroke time must lie to a beat's (:meth:`DecisionLog.match`).
+
+    Returns
+    -------
+    BeatStatus
+
+    Examples
+    --------
+    >>> t = {"sweep": [0, 0, 0, 0], "t_upstroke_s": [0.5, 1.0, 1.5, 2.0], "accepted": [1, 0, 1, 1],
+    ...      "flags": ["", "clipped", "noisy", "ead"], "reject_reason": ["", "auto: clipped", "", ""]}
+    >>> beat_status(t, None, ("clipped", "noisy")).status.tolist()
+    ['accepted', 'rejected', 'to_review', 'accepted']
+    >>> log = DecisionLog([Decision(0, 2, 1.5, ACCEPT, "", "2024-01-01T00:00:00.000Z")])
+    >>> st = beat_status(t, log, ("clipped", "noisy"))
+    >>> st.status[2], st.decided_by[2]
+    ('accepted', 'user')
+    """
+    n = len(table["flags"])
+    if "reject_reason" in table:
+        reason = np.array(["" if r is None else str(r) for r in table["reject_reason"]], dtype=object)
+        rule_rejected = reason != ""
+    else:
+        reason = np.full(n, "", dtype=object)
+        rule_rejected = np.asarray(table["accepted"]) == 0
+    held = held_for_review(table["flags"], review_flags) & ~rule_rejected
+    status = np.full(n, ACCEPTED, dtype=object)
+    status[rule_rejected] = REJECTED
+    status[held] = TO_REVIEW
+    reason[~rule_rejected] = ""
+    decided_by = np.full(n, AUTO, dtype=object)
+    if decisions is not None and len(decisions) and n:
+        verdict, why = decisions.state(table["sweep"], table["t_upstroke_s"], tolerance_s=tolerance_s)
+        decided = verdict != CLEAR
+        status[decided & (verdict == ACCEPT)] = ACCEPTED
+        status[decided & (verdict == REJECT)] = REJECTED
+        reason[decided] = np.where(verdict[decided] == REJECT, why[decided], "")
+        decided_by[decided] = USER
+    return BeatStatus(status, reason, decided_by)
+
+
+def apply_status(table, decisions: DecisionLog | None = None, review_flags: Iterable[str] = (), *,
+                 tolerance_s: float = MATCH_TOLERANCE_S):
+    """The table with its status written into it: ``accepted``, ``reject_reason``, ``verdict``,
+    ``decided_by`` and ``reviewed`` (1 where a review decision applies).
+
+    ``table`` is a BeatTable (anything with ``with_columns``); see :func:`beat_status`.
+    """
+    st = beat_status(table, decisions, review_flags, tolerance_s=tolerance_s)
+    return table.with_columns(
+        accepted=st.used.astype(np.int64), reject_reason=st.reason, verdict=st.status,
+        decided_by=st.decided_by, reviewed=(st.decided_by == USER).astype(np.int64),
+    )

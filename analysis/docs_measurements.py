@@ -108,26 +108,30 @@ def _vocabulary_title() -> str:
 
 def _columns() -> list[str]:
     rows = ["| column | unit | definition (default) | source |", "|---|---|---|---|"]
-    for col in columns.csv_columns():
+    for col in (*columns.csv_columns(), *columns.review_csv_columns()):
         unit = f"{col.unit} " if col.unit else ""
         rows.append(f"| `{col.name}` | {unit}| {_cell(col.description)} | {_cell(col.source)} |")
     return rows
 
 
 def _flags() -> list[str]:
-    auto = set(rejection_flags(settings.QualitySettings()))
-    rows = ["| flag | meaning | rejected automatically by default |", "|---|---|---|"]
+    quality = settings.QualitySettings()
+    auto = set(rejection_flags(quality))
+    held = set(quality.review_flags)
+    rows = ["| flag | meaning | rejected automatically by default | held for review by default |", "|---|---|---|---|"]
     for word, meaning in flag_vocabulary().items():
         rule = "yes" if word in auto else ("never" if word == "no_overshoot" else "no")
         if word in FLAG_WORDS:
             rule = "no (left out of summaries)"
-        rows.append(f"| `{word}` | {_cell(_md(meaning))} | {rule} |")
+        review = ("yes" if word not in auto else "yes, when not rejected") if word in held else "no"
+        rows.append(f"| `{word}` | {_cell(_md(meaning))} | {rule} | {review} |")
     return rows
 
 
 def _allowed(info: settings.FieldInfo) -> str:
     if info.choices:
-        return "one of " + ", ".join(f"`{c}`" for c in info.choices)
+        words = ", ".join(f"`{c}`" for c in info.choices)
+        return f"any of {words} (the flag vocabulary)" if info.kind == "text list" else f"one of {words}"
     if info.kind == "bool":
         return "true or false"
     return settings.range_text(info.min, info.max)
@@ -140,7 +144,7 @@ def _default(info: settings.FieldInfo) -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, tuple):
-        return "[" + ", ".join(f"{v:g}" for v in value) + "]"
+        return "[" + ", ".join(f"`{v}`" if isinstance(v, str) else f"{v:g}" for v in value) + "]"
     if isinstance(value, float):
         return f"{value:g}"
     return f"`{value}`" if isinstance(value, str) else str(value)
@@ -183,6 +187,10 @@ def render() -> str:
         "",
         "## The beats CSV's columns",
         "",
+        "The contract's columns come first, in the contract's order (CONTRACT.md), then the review's:",
+        "`" + "`, `".join(c.name for c in columns.review_csv_columns()) + "`. The review's columns keep their",
+        "names and order from one release to the next; new columns go after them. The command line",
+        "(`analyze`, `batch`, `export`) and the app write the same columns with the same values.",
         "Undefined values are empty cells. The first beat of a sweep is measured from the diastole",
         "recorded before it when the sweep holds the previous beat's repolarisation falling at least",
         f"{FIRST_BEAT_FALL_MV:g} mV (or 10 x the noise rms) into a minimum two MDP windows or more from the",
@@ -211,8 +219,12 @@ def render() -> str:
         "The `flags` column holds `;`-separated words from this vocabulary, in this order. Flags are",
         "suggestions the reviewer confirms; only the rules marked here reject beats without review",
         "(each `quality.reject_FLAG` setting switches one on or off). A rejection sets `accepted` to 0",
-        f"and says why (`{events.AUTO_PREFIX}FLAG (why)`). Summaries leave out rejected beats and those",
-        "flagged `no_diastole` or `truncated`.",
+        f"and says why (`{events.AUTO_PREFIX}FLAG (why)`). A beat carrying a flag of the",
+        "`quality.review_flags` setting (by default those marked here: each says a value may be wrong)",
+        "and not rejected is held for review: its `verdict` is `to_review`, its `accepted` 0, and the",
+        "summaries leave it out and count it (`n_to_review`) until the user accepts or rejects it.",
+        "Physiological flags (`ead`, `dad`, `pause`) keep the beat in and are counted. Summaries also",
+        "leave out rejected beats and those flagged `no_diastole` or `truncated`.",
         "",
         *_flags(),
         "",

@@ -8,9 +8,28 @@ is an internal fault (exit status 1).
 
 from __future__ import annotations
 
+import errno
 import os
 
-__all__ = ["InputError", "RecordingError", "SettingsError", "ResultsFileError"]
+__all__ = ["InputError", "RecordingError", "SettingsError", "ResultsFileError", "missing"]
+
+
+def missing(path: str | os.PathLike, what: str = "file") -> tuple[str, str]:
+    """``(problem, fix)`` for a path that does not lead to a file: a symbolic link that loops or
+    points nowhere is named as such, not as a missing ``what``."""
+    text = os.fspath(path)
+    try:
+        os.stat(text)
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:
+            return ("is a loop of symbolic links (it leads back to itself)",
+                    "point the link at the real file, or give the file's own path")
+        if os.path.islink(text):
+            return (f"is a symbolic link to {os.readlink(text)!r}, which does not exist",
+                    "point the link at the real file, or give the file's own path")
+        if exc.errno == errno.ENOTDIR:
+            return (f"no such {what}: a part of the path is not a folder", "check the path")
+    return (f"no such {what}", "check the path and the name")
 
 
 class InputError(ValueError):

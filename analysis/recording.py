@@ -21,11 +21,15 @@ from analysis.errors import RecordingError
 __all__ = [
     "Channel",
     "Recording",
+    "RECORDING_ID_DIGITS",
     "clamp_mode_from_units",
+    "recording_id",
     "CURRENT_CLAMP",
     "VOLTAGE_CLAMP",
     "UNKNOWN_CLAMP",
     "MIN_SAMPLES_PER_SWEEP",
+    "RECORDING_ID_DIGITS",
+    "recording_id",
 ]
 
 CURRENT_CLAMP = "current clamp"
@@ -301,6 +305,17 @@ class Recording:
         return self.n_sweeps == 1
 
     @property
+    def recording_id(self) -> str:
+        """The recording's stable identifier (:func:`recording_id`); "" for in-memory data.
+
+        "" too when the source file cannot be read any more (the samples may be in memory).
+        """
+        try:
+            return recording_id(self.sha256)
+        except OSError:
+            return ""
+
+    @property
     def sha256(self) -> str | None:
         """SHA-256 of the source file (hex), computed on first use; None for in-memory data."""
         if self._sha256 is None and self._source is not None:
@@ -385,6 +400,26 @@ class Recording:
         )
 
 
+#: Hex digits of the SHA-256 that make a recording's identifier.
+RECORDING_ID_DIGITS = 16
+
+
+def recording_id(sha256: str | None) -> str:
+    """A recording's stable identifier: the first 16 hex digits of its file's SHA-256.
+
+    The same whichever front end wrote it and wherever the file lies (the beats CSV's
+    ``recording_id`` column); "" when there is no file (in-memory data).
+
+    Examples
+    --------
+    >>> recording_id("9f86d081884c7d659a2feaa0c55ad015a3bf4f1b2b0b822cd15d6c15b0f00a08")
+    '9f86d081884c7d65'
+    >>> recording_id(None)
+    ''
+    """
+    return (sha256 or "")[:RECORDING_ID_DIGITS].lower()
+
+
 def file_sha256(path: str | os.PathLike, chunk_bytes: int = 1 << 20) -> str:
     """SHA-256 of a file, read in chunks of ``chunk_bytes``."""
     digest = hashlib.sha256()
@@ -392,6 +427,25 @@ def file_sha256(path: str | os.PathLike, chunk_bytes: int = 1 << 20) -> str:
         while block := fh.read(chunk_bytes):
             digest.update(block)
     return digest.hexdigest()
+
+
+#: Hex digits of the SHA-256 that make a recording's identifier.
+RECORDING_ID_DIGITS = 16
+
+
+def recording_id(sha256_hex: str | None) -> str:
+    """The stable identifier of a recording: the first 16 hex digits of its file's SHA-256.
+
+    The same file gives the same identifier from the command line, a batch and the app, wherever
+    the file lies; the results file's index and the tables carry it. In-memory data (no file,
+    no SHA-256) has none: "".
+
+    Examples
+    --------
+    >>> recording_id("9f86d081884c7d659a2feaa0c55ad015a3bf4f1b2b0b822cd15d6c15b0f00a08")
+    '9f86d081884c7d65'
+    """
+    return (sha256_hex or "")[:RECORDING_ID_DIGITS].lower()
 
 
 def check_finite(samples: np.ndarray, origin: str | None, where: str = "") -> None:

@@ -2,7 +2,8 @@
 
 Rejection is a value in the ``accepted`` column with a reason elsewhere, never a removed row, so
 columns cannot fall out of line. The columns that the beats CSV carries, in its order, are
-:data:`CSV_COLUMNS`; a table may carry more (marker times and sample indices used by events,
+:data:`BEATS_CSV_COLUMNS`: the contract's :data:`CSV_COLUMNS`, then the review's
+:data:`REVIEW_CSV_COLUMNS`; a table may carry more (marker times and sample indices used by events,
 summaries and the app), which the CSV leaves out. Every column is declared once, in the catalogue
 :mod:`analysis.columns`.
 """
@@ -16,15 +17,19 @@ from typing import IO, Iterable, Iterator, Mapping, Sequence
 
 import numpy as np
 
-from analysis.columns import BeatColumn, csv_columns
+from analysis.columns import BeatColumn, csv_columns, review_csv_columns
 
-__all__ = ["COLUMNS", "CSV_COLUMNS", "BeatTable", "format_value"]
+__all__ = ["BEATS_CSV_COLUMNS", "COLUMNS", "CSV_COLUMNS", "REVIEW_CSV_COLUMNS", "BeatTable", "format_value"]
 
 
-#: Every column of the beats CSV, in the contract's order: the catalogue's CSV columns.
+#: The contract's columns of the beats CSV, in the contract's order: the catalogue's CSV columns.
 COLUMNS: tuple[BeatColumn, ...] = csv_columns()
 CSV_COLUMNS: tuple[str, ...] = tuple(c.name for c in COLUMNS)
-_BY_NAME = {c.name: c for c in COLUMNS}
+#: The review's columns the beats CSV writes after them: verdict, reason, who decided, recording id.
+REVIEW_CSV_COLUMNS: tuple[str, ...] = tuple(c.name for c in review_csv_columns())
+#: Every column of the beats CSV, in its order.
+BEATS_CSV_COLUMNS: tuple[str, ...] = CSV_COLUMNS + REVIEW_CSV_COLUMNS
+_BY_NAME = {c.name: c for c in (*COLUMNS, *review_csv_columns())}
 
 
 def format_value(value: object, decimals: int | None) -> str:
@@ -77,7 +82,7 @@ class BeatTable:
         self._cols = cols
 
     @classmethod
-    def empty(cls, names: Iterable[str] = CSV_COLUMNS) -> "BeatTable":
+    def empty(cls, names: Iterable[str] = BEATS_CSV_COLUMNS) -> "BeatTable":
         """A table with the given columns and no rows."""
         return cls({name: [] for name in names})
 
@@ -149,7 +154,7 @@ class BeatTable:
         return True
 
     # -- output -------------------------------------------------------------------------------
-    def to_csv(self, fh: IO[str] | None = None, columns: Sequence[str] = CSV_COLUMNS, header: bool = True) -> str | None:
+    def to_csv(self, fh: IO[str] | None = None, columns: Sequence[str] = BEATS_CSV_COLUMNS, header: bool = True) -> str | None:
         """Write the table as CSV (``\\n`` line ends, undefined values as empty cells).
 
         Returns the text when ``fh`` is None.

@@ -53,7 +53,7 @@ SEED = 417
 CONDITION_TEXTS = (
     "baseline=0-60s,steady=last30s",
     f"{COMPOUND} 1 uM=60-120s,steady=last30s",
-    "washout=120-end,steady=last30s",
+    "washout=120s-end,steady=last30s",
 )
 #: When the compound arrives and when the washout starts (s): the solution changes.
 WASH_IN_S, WASH_OUT_S = 60.0, 120.0

@@ -73,8 +73,8 @@ class Provider:
         return chunk.ljust(n, b"\0")
 
 
-def make_seeds(folder: Path) -> list[Path]:
-    """The seed recordings, written into ``folder``."""
+def make_seeds(folder: Path, formats: tuple[str, ...] = ("abf", "nwb")) -> list[Path]:
+    """The seed recordings of the given formats, written into ``folder``."""
     from analysis.synthetic import preset, synthesize
     from analysis.synthetic import write_abf, write_nwb
 
@@ -85,14 +85,14 @@ def make_seeds(folder: Path) -> list[Path]:
     try:
         import myokit
 
-        formats = Path(myokit.__file__).parent / "tests" / "data" / "formats"
+        shipped = Path(myokit.__file__).parent / "tests" / "data" / "formats"
         for name in ("abf-v1.abf", "abf-v2.abf"):
-            if (formats / name).is_file():
+            if (shipped / name).is_file():
                 seeds.append(folder / name)
-                seeds[-1].write_bytes((formats / name).read_bytes())
+                seeds[-1].write_bytes((shipped / name).read_bytes())
     except ImportError:
         pass
-    return seeds
+    return [s for s in seeds if s.suffix.lstrip(".") in formats]
 
 
 def mutate(seed: bytes, p: Provider) -> bytes:
@@ -128,6 +128,7 @@ class Harness:
         self.scratch = scratch
         self.opened = 0
         self.refused = 0
+        self.crashed = 0
 
     def __call__(self, data: bytes) -> None:
         from analysis import open_recording
@@ -176,7 +177,8 @@ def _report(harness: Harness, started: float) -> None:
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     total = harness.opened + harness.refused
     print(
-        f"fuzz_readers: {total} inputs ({harness.opened} opened, {harness.refused} refused) "
+        f"fuzz_readers: {total + harness.crashed} inputs ({harness.opened} opened, {harness.refused} refused, "
+        f"{harness.crashed} crashed) "
         f"in {time.perf_counter() - started:.1f} s, peak memory {peak_mb:.0f} MB",
         file=sys.stderr,
     )
@@ -188,12 +190,19 @@ def main(argv: list[str]) -> int:
     parser.add_argument("--seed", type=int, default=1, help="the random loop's seed")
     parser.add_argument("--crashes", default=str(REPO / "bench" / "out" / "fuzz"),
                         help="where the random loop saves an input that crashes (libFuzzer: -artifact_prefix=)")
+    parser.add_argument("--formats", default="abf,nwb",
+                        help="the seed formats to fuzz, comma-separated (default: abf,nwb)")
+    parser.add_argument("--keep-going", action="store_true",
+                        help="random loop: save every crashing input and go on, then count them (exit 1 if any)")
     own, rest = parser.parse_known_args(argv[1:])
     import warnings
 
     warnings.simplefilter("ignore")  # the readers' libraries warn about what they repair
     scratch = Path(tempfile.mkdtemp(prefix="upstroke-fuzz-"))
-    harness = Harness(make_seeds(scratch), scratch)
+    formats = tuple(f.strip().lower() for f in own.formats.split(",") if f.strip())
+    harness = Harness(make_seeds(scratch, formats), scratch)
+    if not harness.seeds:
+        parser.error(f"--formats {own.formats!r} names no seed format (abf, nwb)")
     _cap_memory()
     started = time.perf_counter()
     if own.random is not None:
@@ -202,15 +211,18 @@ def main(argv: list[str]) -> int:
             data = rng.randbytes(rng.randint(4, 96))
             try:
                 harness(data)
-            except Exception:
+            except Exception as exc:
                 crash = Path(own.crashes) / f"crash-random-{own.seed}-{i}"
                 crash.parent.mkdir(parents=True, exist_ok=True)
                 crash.write_bytes(data)  # replays as an input: python bench/fuzz_readers.py FILE
-                print(f"fuzz_readers: input {i} crashed; saved as {crash}", file=sys.stderr)
-                _report(harness, started)
-                raise
+                print(f"fuzz_readers: input {i} crashed ({type(exc).__name__}: {str(exc)[:120]}); "
+                      f"saved as {crash}", file=sys.stderr)
+                harness.crashed += 1
+                if not own.keep_going:
+                    _report(harness, started)
+                    raise
         _report(harness, started)
-        return 0
+        return 1 if harness.crashed else 0
     import atexit
 
     import atheris

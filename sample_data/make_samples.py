@@ -54,7 +54,7 @@ if str(HERE.parent) not in sys.path:  # run from a plain checkout, without an in
 from analysis import open_recording  # noqa: E402
 from analysis.conditions import assign_conditions  # noqa: E402
 from analysis.synthetic import write_abf  # noqa: E402
-from analysis.table import BeatTable  # noqa: E402
+from analysis.table import CSV_COLUMNS, BeatTable  # noqa: E402
 from app import demo_data  # noqa: E402
 
 TRUTH_GAP_FREE = f"{demo_data.CELL_ID}_truth.csv"
@@ -182,7 +182,7 @@ def _event_rows(syn) -> list[str]:
         if e["kind"] == "artefact":
             nxt = t_up[t_up > t].min()
             what = f"electrical artefact: a spike of {e['amplitude_mV']:+.0f} mV for 0.5 ms in diastole"
-            see = f"not a beat; the next beat (upstroke at {nxt:.3f} s) is flagged `noisy`"
+            see = f"not a beat; the next beat (upstroke at {nxt:.3f} s) is flagged `noisy` and waits for review"
         elif e["kind"] == "dad":
             before = t_up[t_up < t].max()
             what = f"delayed afterdepolarisation of {e['amplitude_mV']:.0f} mV (time of its top)"
@@ -193,7 +193,8 @@ def _event_rows(syn) -> list[str]:
         elif e["kind"] == "seal":
             what = (f"seal trouble until {float(e['stop_s']):.1f} s: a leak depolarises the cell by "
                     f"{e['amplitude_mV']:.0f} mV, noise rises to 1.5 mV rms")
-            see = ("`noisy` and `mdp_drift` on the beats inside; the seal's recovery also looks like a small DAD "
+            see = ("`noisy` and `mdp_drift` on the beats inside, which wait for review: the washout summary leaves "
+                   "them out until they are accepted or rejected; the seal's recovery also looks like a small DAD "
                    "to the detector")
         else:
             what, see = str(e["kind"]), ""
@@ -244,7 +245,9 @@ def readme_text(gap_free, episodic) -> str:
         *[f"- `{t}`" for t in d.CONDITION_TEXTS],
         "",
         "True steady-state means (beats with a diastole; from the truth table, not from an analysis; the",
-        "washout window holds the seal trouble, which depolarises its MDP and TOP):",
+        "washout window holds the seal trouble, which depolarises its MDP and TOP: every beat of the window",
+        "is counted here, while Upstroke's summary holds the seal-trouble beats for review and leaves them",
+        "out until they are judged):",
         "",
         "| condition | window (s) | beats | CL (ms) | rate (bpm) | MDP (mV) | TOP (mV) | DDR (mV/s) "
         "| dV/dt max (V/s) | peak (mV) | APD50 (ms) | APD90 (ms) |",
@@ -275,8 +278,9 @@ def readme_text(gap_free, episodic) -> str:
         "  --csv beats.csv --summary-csv summary.csv",
         "```",
         "",
-        f"`beats.csv` has the rows and columns of `{TRUTH_GAP_FREE}`, so the two compare line by line: what",
-        "Upstroke measured against the true values of the waveform it was given.",
+        f"`beats.csv` has the rows and columns of `{TRUTH_GAP_FREE}` (then the review's own columns), so the two",
+        "compare line by line: what Upstroke measured against the true values of the waveform it was given.",
+        "The command prints how many beats wait for review; `summary.csv` counts them (`n_to_review`).",
         "",
         "## Making them again",
         "",
@@ -316,7 +320,7 @@ def make_samples(out_dir: str | os.PathLike = HERE) -> list[Path]:
         (TRUTH_EPISODIC, episodic, demo_data.EPISODIC_ABF, ()),
     ):
         with open(paths[name], "w", encoding="utf-8", newline="") as fh:
-            truth_table(syn, file_name, conds).to_csv(fh)
+            truth_table(syn, file_name, conds).to_csv(fh, columns=CSV_COLUMNS)  # the truth: no review
     paths["README.md"].write_text(readme_text(gap_free, episodic), encoding="utf-8", newline="\n")
     manifest = {
         "note": "invented demo data; see README.md",

@@ -122,7 +122,7 @@ SUBPROCESS_CASES = ("abf2-cut-in-ADC", "nwb-rate-zero", "text-nan", "path-is-a-f
 
 
 def _run_child(case: Case) -> subprocess.CompletedProcess:
-    env = dict(os.environ, PYTHONPATH=str(REPO), QT_QPA_PLATFORM="offscreen")
+    env = dict(os.environ, PYTHONPATH=str(REPO), QT_QPA_PLATFORM="offscreen", **dict(case.env))
     return subprocess.run(
         [sys.executable, "-m", "app", *case.argv], capture_output=True, text=True, env=env,
         timeout=120, cwd=REPO, preexec_fn=_cap_child,

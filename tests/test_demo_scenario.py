@@ -86,7 +86,8 @@ def test_each_artefact_flags_the_beat_whose_diastole_holds_it(beats, planted):
     for t_art in _times(planted, "artefact"):
         nxt = int(np.flatnonzero(t > t_art)[0])
         assert "noisy" in flags[nxt], f"the artefact at {t_art} s left beat {nxt} unflagged"
-        assert beats["accepted"][nxt] == 1  # noisy is a suggestion, not an automatic rejection
+        # noisy is no automatic rejection: the beat waits for the reviewer (quality.review_flags).
+        assert beats["verdict"][nxt] == "to_review" and beats["accepted"][nxt] == 0
 
 
 def test_the_dad_is_flagged_on_the_beat_it_follows(beats, planted):
@@ -189,3 +190,74 @@ def test_the_ventricular_like_episodic_cell_is_plausible_and_its_ead_is_flagged(
     ead_row = int(rows[-1])
     assert "ead" in b["flags"][ead_row]
     assert [i for i, f in enumerate(b["flags"]) if "ead" in f] == [ead_row]
+
+
+def test_the_washout_summary_leaves_the_seal_trouble_out_until_it_is_reviewed(result, session, beats, planted):
+    # The seal trouble depolarises the MDP by up to 12 mV (planted); its beats are flagged noisy and
+    # mdp_drift and wait for review, so the washout means are those of the clean beats.
+    s, key = session
+    t = np.asarray(beats["t_upstroke_s"])
+    start, stop = _seal(planted)
+    wash = np.asarray(beats["condition"]) == "washout"
+    held = np.flatnonzero(wash & (np.asarray(beats["verdict"]) == "to_review"))
+    seal = np.flatnonzero(wash & (t >= start) & (t <= stop + 1.0) & (np.asarray(beats["flags"]) != ""))
+    assert set(seal) <= set(held) and seal.size >= 5
+    (t_art,) = [a for a in _times(planted, "artefact") if a > demo_data.WASH_OUT_S]
+    assert set(held) == set(seal) | {int(np.flatnonzero(t > t_art)[0])}  # and the artefact's beat
+    summary = {x.values["condition"]: x for x in s.summaries(key)}["washout"]
+    v, used = summary.values, summary.beat_rows
+    assert v["n_beats"] == int(wash.sum()) and v["n_to_review"] == held.size and v["n_rejected"] == 0
+    assert not set(used) & set(held)
+    lo, hi = v["window_start_s"], v["window_end_s"]
+    assert v["n_in_window"] == int((wash & (t >= lo) & (t <= hi)).sum())
+    assert v["n_used"] == used.size == v["n_in_window"] - int(((t[held] >= lo) & (t[held] <= hi)).sum())
+    mdp = np.asarray(beats["mdp_mV"])
+    assert v["mdp_mean_mV"] == pytest.approx(np.mean(mdp[used]), rel=1e-12)  # numpy: the beats used
+    # Clean washout beats sit near the baseline MDP: the generator's truth over the window, without
+    # the seal trouble, within 0.5 mV (the drift of 0.8 mV/min is in both).
+    truth_t, truth_mdp = np.asarray(planted.beats["t_upstroke_s"]), np.asarray(planted.beats["mdp_mV"])
+    clean_truth = (truth_t >= lo) & (truth_t <= hi) & ~((truth_t >= start) & (truth_t <= stop + 1.0))
+    assert v["mdp_mean_mV"] == pytest.approx(np.nanmean(truth_mdp[clean_truth]), abs=0.5)
+    assert v["mdp_sd_mV"] < 0.5  # the seal trouble's beats would spread it to several mV
+
+    # Once the reviewer accepts them, they count and pull the MDP up (by the leak's depolarisation).
+    review = Session()  # a session of its own: the shared one stays unreviewed
+    k2 = review.add(SAMPLES / demo_data.GAP_FREE_ABF, result=result, conditions=demo_data.demo_conditions(None))
+    review.accept(k2, held.tolist())
+    after = {x.values["condition"]: x for x in review.summaries(k2)}["washout"].values
+    assert after["n_to_review"] == 0 and after["n_used"] > v["n_used"]
+    assert after["mdp_mean_mV"] > v["mdp_mean_mV"] + 1.0
+
+
+def test_the_command_line_says_how_many_beats_wait_and_keeps_them_out_of_the_washout(tmp_path, capsys, beats):
+    import csv
+
+    from app.cli import main
+
+    summary_csv, beats_csv = tmp_path / "summary.csv", tmp_path / "beats.csv"
+    args = [a for t in demo_data.CONDITION_TEXTS for a in ("--condition", t)]
+    assert main(["analyze", str(SAMPLES / demo_data.GAP_FREE_ABF), *args, "--summary-csv", str(summary_csv),
+                 "--csv", str(beats_csv)]) == 0
+    out = capsys.readouterr().out
+    verdict = np.asarray(beats["verdict"])
+    n, waiting = len(verdict), int((verdict == "to_review").sum())
+    # The scenario: 3 artefacts' beats and the 6 beats of the seal trouble wait; nothing is rejected.
+    assert (n, waiting) == (189, 9)
+    assert "189 beats (180 used, 0 rejected, 9 waiting for review)" in out
+    with open(summary_csv, newline="") as fh:
+        wash = next(r for r in csv.DictReader(fh) if r["condition"] == "washout")
+    assert (wash["n_beats"], wash["n_in_window"], wash["n_used"], wash["n_rejected"], wash["n_to_review"]) == (
+        "67", "37", "31", "0", "7")
+    with open(beats_csv, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    lo, hi = float(wash["window_start_s"]), float(wash["window_end_s"])
+    used = [r for r in rows if r["condition"] == "washout" and r["accepted"] == "1"
+            and lo - 1e-3 <= float(r["t_upstroke_s"]) <= hi + 1e-3]
+    assert len(used) == 31
+    # The summary's means are those of the beats the CSV marks used (numpy on the CSV's values).
+    for col in ("mdp_mV", "cl_ms", "apd90_ms", "dvdt_max_V_per_s"):
+        mean = np.mean([float(r[col]) for r in used if r[col] != ""])  # empty: undefined, left out
+        stem = col.rsplit("_", 1)[0] if col != "dvdt_max_V_per_s" else "dvdt_max"
+        unit = col[len(stem) + 1:]
+        assert float(wash[f"{stem}_mean_{unit}"]) == pytest.approx(mean, abs=2e-3)
+    assert -62.0 < float(wash["mdp_mean_mV"]) < -59.0  # the clean beats only (seal trouble: about -48 mV)

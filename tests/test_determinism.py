@@ -90,7 +90,7 @@ def test_analyze_gives_identical_outputs_on_every_run(recordings):
     outputs = []
     for run, hash_seed in (("1", "1"), ("2", "4242")):
         args = ["analyze", "cell-a.abf", "cell-b.nwb", "--settings", "settings.toml",
-                "--condition", "baseline=0-2.5s", "--condition", "drug=2.5-end",
+                "--condition", "baseline=0-2.5s", "--condition", "drug=2.5s-end",
                 "--out", f"run{run}.h5", "--csv", f"run{run}.csv", "--summary-csv", f"run{run}-summary.csv"]
         _run(args, recordings, hash_seed)
         outputs.append(run)
@@ -128,3 +128,34 @@ def test_export_reproduces_the_same_bytes_twice(recordings, tmp_path):
     session.save(tmp_path / "again1.h5")
     Session.open(tmp_path / "again1.h5").save(tmp_path / "again2.h5")
     _assert_same_h5(tmp_path / "again1.h5", tmp_path / "again2.h5")
+
+
+@pytest.mark.slow
+def test_reproducible_mode_gives_identical_results_file_bytes(recordings):
+    """SOURCE_DATE_EPOCH (reproducible-builds.org's specification) fixes every clock reading: two
+    runs, in separate processes with different hash seeds, write byte-identical results files."""
+    import h5py
+
+    for run, hash_seed in (("1", "3"), ("2", "977")):
+        args = ["analyze", "cell-a.abf", "cell-b.nwb", "--settings", "settings.toml",
+                "--condition", "baseline=0-2.5s", "--out", f"repro{run}.h5"]
+        env_seed = dict(os.environ, SOURCE_DATE_EPOCH="1767225600")
+        proc = subprocess.run([sys.executable, "-m", "app", *args], cwd=recordings, capture_output=True, text=True,
+                              timeout=300, env=dict(env_seed, PYTHONPATH=str(REPO), PYTHONHASHSEED=hash_seed))
+        assert proc.returncode == 0, proc.stderr
+    first, second = (recordings / "repro1.h5").read_bytes(), (recordings / "repro2.h5").read_bytes()
+    assert len(first) > 10_000 and first == second
+    with h5py.File(recordings / "repro1.h5", "r") as f:
+        stamps = {f["recordings"][k]["provenance"].attrs["analysed_at_utc"] for k in f["recordings"]}
+    assert stamps == {"2026-01-01T00:00:00.000Z"}  # 1767225600 s after 1970-01-01 UTC (POSIX time)
+
+
+def test_a_malformed_source_date_epoch_is_refused_in_one_line(monkeypatch):
+    from analysis.decisions import now_utc
+    from analysis.errors import InputError
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "yesterday")
+    with pytest.raises(InputError, match=r"SOURCE_DATE_EPOCH='yesterday' is not a whole number"):
+        now_utc()
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "0")
+    assert now_utc() == "1970-01-01T00:00:00.000Z"  # the POSIX epoch

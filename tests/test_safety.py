@@ -99,7 +99,7 @@ def test_opaque_data_holding_a_pickle_is_refused_and_never_run(good_results, tmp
 
     marker = tmp_path / "unpickled-something"
     payload = np.frombuffer(_pickle_payload(marker), dtype=f"V{len(_pickle_payload(marker))}")
-    for where in ("recordings/000000/beats", "recordings/000000/decisions"):
+    for where in ("beats", "decisions"):
         path = tmp_path / "pickled.h5"
         shutil.copyfile(good_results, path)
         with h5py.File(path, "r+") as f:
@@ -108,7 +108,7 @@ def test_opaque_data_holding_a_pickle_is_refused_and_never_run(good_results, tmp
             del f[f"{where}/{name}"]
             f[where].create_dataset(name, data=np.repeat(payload, 3))
         with pytest.raises(ResultsFileError, match="neither numbers nor text"):
-            load_results(path)
+            load_results(path).recordings[0].beats  # the tables are read on first use
         assert not marker.exists()  # nothing was unpickled
 
 
@@ -121,7 +121,7 @@ def test_reference_and_compound_types_are_refused(good_results, tmp_path):
         path = tmp_path / f"{kind}.h5"
         shutil.copyfile(good_results, path)
         with h5py.File(path, "r+") as f:
-            table = f["recordings/000000/beats"]
+            table = f["beats"]
             first = table.attrs["columns"][0]
             name = first.decode() if isinstance(first, bytes) else str(first)
             rows = table[name].shape[0]
@@ -131,11 +131,11 @@ def test_reference_and_compound_types_are_refused(good_results, tmp_path):
             else:
                 table.create_dataset(name, data=np.zeros(rows, dtype=[("a", "<i4"), ("b", "<f8")]))
         with pytest.raises(ResultsFileError, match="neither numbers nor text"):
-            load_results(path)
+            load_results(path).recordings[0].beats  # the tables are read on first use
 
 
 def test_a_100_MB_string_attribute_is_refused_clearly(good_results, tmp_path):
-    """The label, an attribute of a recording's group, holds 100 MB of text."""
+    """The label, a text in the index of recordings, holds 100 MB of text."""
     import h5py
 
     from tests.corpus.checks import check_refusal, run_in_process
@@ -144,7 +144,7 @@ def test_a_100_MB_string_attribute_is_refused_clearly(good_results, tmp_path):
     path = tmp_path / "huge-label.h5"
     shutil.copyfile(good_results, path)
     with h5py.File(path, "r+") as f:
-        f["recordings/000000"].attrs.create("label", "L" * 100_000_000, dtype=h5py.string_dtype("utf-8"))
+        _set_index_text(f, "label", "L" * 100_000_000)
     assert path.stat().st_size > 100_000_000
     out = tmp_path / "beats.csv"
     case = Case("huge-label", (path,), ("export", str(path), "--csv", str(out)), path,
@@ -159,9 +159,18 @@ def _point_sources_at(path: Path, source_path: str, relpath: str, label: str) ->
     import h5py
 
     with h5py.File(path, "r+") as f:
-        group = f["recordings/000000"]
         for key, value in (("source_path", source_path), ("source_relpath", relpath), ("label", label)):
-            group.attrs.create(key, value, dtype=h5py.string_dtype("utf-8"))
+            _set_index_text(f, key, value)
+
+
+def _set_index_text(f, column: str, value: str) -> None:
+    """Set the first recording's text in a column of the index (docs/results-format.md)."""
+    import h5py
+
+    values = f["index"][column].asstr()[()].tolist()
+    values[0] = value
+    del f["index"][column]
+    f["index"].create_dataset(column, data=np.array(values, dtype=object), dtype=h5py.string_dtype("utf-8"))
 
 
 def _snapshot(folder: Path) -> dict[str, tuple[int, int]]:

@@ -23,8 +23,11 @@ from __future__ import annotations
 import contextlib
 import multiprocessing
 import os
+import queue
+import select
 import signal
 import sys
+import threading
 import time
 import traceback
 from concurrent import futures as _cf
@@ -39,6 +42,7 @@ from analysis.batch._types import (
     FileTask,
 )
 from analysis.errors import InputError
+from analysis.sweeps import SweepSelection
 
 __all__ = ["analyze_file", "make_tasks", "run_batch"]
 
@@ -55,7 +59,7 @@ def make_tasks(
     *,
     settings: Any = None,
     channel: int | str | None = None,
-    sweeps: Sequence[int] | None = None,
+    sweeps: Sequence[int] | SweepSelection | None = None,
     units: Mapping[int | str, str] | Sequence[tuple[int | str, str]] | None = None,
     conditions: Sequence[Any] = (),
     file_conditions: Mapping[str, Sequence[Any]] | None = None,
@@ -86,7 +90,8 @@ def make_tasks(
     unit_pairs = None
     if units:
         unit_pairs = tuple(units.items() if isinstance(units, Mapping) else units)
-    sweep_tuple = None if sweeps is None else tuple(int(s) for s in sweeps)
+    # A selection of ranges stays ranges: each file checks it against its own sweep count.
+    sweep_tuple = sweeps if sweeps is None or isinstance(sweeps, SweepSelection) else tuple(int(s) for s in sweeps)
     return [
         FileTask(
             index=i, path=os.fspath(p), open_path=os.path.abspath(os.fspath(p)), settings=settings_dict,
@@ -220,11 +225,75 @@ def _run_inline(tasks: Sequence[FileTask], cancel: Any) -> Iterator[FileOutcome]
         yield analyze_file(task)
 
 
-def _worker_init() -> None:
+def _worker_init(batch_pid: int | None = None) -> None:
     # Ctrl-C in a terminal reaches the whole process group; the parent alone decides what to do
     # (stop the workers, write nothing), so the workers ignore it instead of each printing a
     # traceback.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if batch_pid is not None:
+        _die_with(batch_pid)
+
+
+#: prctl(2) option: the signal a process gets when its parent ends (linux/prctl.h).
+_PR_SET_PDEATHSIG = 1
+#: How often a worker that cannot be told of its batch's end looks whether it is still there.
+_WATCH_S = 0.25
+
+
+def _die_with(batch_pid: int) -> None:
+    """End this worker as soon as the batch process ends, however it ends (even ``kill -9``).
+
+    Without this a worker busy with a long file runs it to the end with nobody to send the
+    result to, and keeps the fork server alive with it (each worker holds the pipe whose end
+    tells the fork server to exit). Two guards:
+
+    * the parent-death signal (Linux prctl PR_SET_PDEATHSIG): SIGKILL when the worker's parent
+      ends, which is the batch process itself with the spawn start method;
+    * a thread that waits for the batch process to end and then ends the worker: on a pidfd
+      (Linux 5.3 and later: readable once the process has exited), on kqueue's process-exit
+      event (macOS, BSD), or by looking every quarter second elsewhere.
+    """
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes  # only to call prctl(2)
+
+            ctypes.CDLL(None, use_errno=True).prctl(_PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):
+            pass  # no usable libc: the thread below still ends the worker
+    if os.name == "nt":
+        return  # not covered on Windows: os.kill(pid, 0) would send Ctrl-C there
+    threading.Thread(target=_watch, args=(batch_pid,), name="upstroke-batch-watch", daemon=True).start()
+
+
+def _watch(pid: int) -> None:
+    try:
+        if hasattr(os, "pidfd_open"):
+            fd = os.pidfd_open(pid)
+            select.select([fd], [], [])  # readable once the process has exited
+        elif hasattr(select, "kqueue"):
+            kq = select.kqueue()
+            event = select.kevent(pid, filter=select.KQ_FILTER_PROC, flags=select.KQ_EV_ADD,
+                                  fflags=select.KQ_NOTE_EXIT)
+            kq.control([event], 1, None)  # returns when the process exits
+        else:
+            while _running(pid):
+                time.sleep(_WATCH_S)
+    except ProcessLookupError:
+        pass  # already gone
+    except OSError:
+        while _running(pid):
+            time.sleep(_WATCH_S)
+    os._exit(1)
+
+
+def _running(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return True
+    return True
 
 
 def _pool_context() -> multiprocessing.context.BaseContext:
@@ -273,20 +342,30 @@ def _worker_environment() -> Iterator[None]:
 
 
 def _run_pool(tasks: Sequence[FileTask], n_workers: int, cancel: Any) -> Iterator[FileOutcome]:
-    pool = _cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=_pool_context(), initializer=_worker_init)
+    pool = _cf.ProcessPoolExecutor(max_workers=n_workers, mp_context=_pool_context(), initializer=_worker_init,
+                                   initargs=(os.getpid(),))
     finished = False
+    # Each future puts itself on this queue when done: collecting costs the same per file
+    # whatever the number of files still pending (waiting on all pending futures would not).
+    done: queue.SimpleQueue = queue.SimpleQueue()
     try:
         with _worker_environment():
-            pending = {pool.submit(analyze_file, t): t for t in tasks}
+            pending = {}
+            for t in tasks:
+                fut = pool.submit(analyze_file, t)
+                pending[fut] = t
+                fut.add_done_callback(done.put)
         done_count = 0
         while pending:
             if _cancelled(cancel):
                 raise BatchCancelled(done_count, len(tasks))
-            ready, _ = _cf.wait(pending, timeout=_POLL_S, return_when=_cf.FIRST_COMPLETED)
-            for fut in ready:
-                task = pending.pop(fut)
-                done_count += 1
-                yield _pool_outcome(fut, task)
+            try:
+                fut = done.get(timeout=_POLL_S)
+            except queue.Empty:
+                continue
+            task = pending.pop(fut)
+            done_count += 1
+            yield _pool_outcome(fut, task)
         finished = True
     finally:
         if finished:

@@ -6,7 +6,7 @@ import glob
 import os
 from typing import Iterable, Sequence
 
-from analysis.errors import InputError
+from analysis.errors import InputError, missing
 from analysis.readers import supported_extensions
 
 __all__ = ["find_recordings"]
@@ -112,7 +112,7 @@ def find_recordings(
                 elif os.path.splitext(match)[1].lower() in exts and not _is_hidden(os.path.basename(match)):
                     candidates.append(match)
         else:
-            raise InputError(text, "no such file or folder", "check the path")
+            raise InputError(text, *missing(text, "file or folder"))
         for path in candidates:
             key = os.path.realpath(path)
             if key in seen or key in skip or (path not in given and _is_upstroke_output(path)):

@@ -12,6 +12,7 @@ import numpy as np
 
 from analysis.batch._task import stored_from_outcome
 from analysis.batch._types import BatchResult
+from analysis.decisions import REJECTED, TO_REVIEW
 from analysis.errors import ResultsFileError
 from analysis.results import ResultsFile, atomic_output, load_results, save_results
 from analysis.settings import Settings
@@ -23,13 +24,19 @@ __all__ = ["SavedBatch", "prepare_existing", "save_batch"]
 
 @dataclass(frozen=True)
 class SavedBatch:
-    """What :func:`save_batch` wrote: the results file, the other outputs, and counts."""
+    """What :func:`save_batch` wrote: the results file, the other outputs, and counts.
+
+    ``n_accepted`` beats are used by the summaries, ``n_rejected`` were rejected and
+    ``n_to_review`` wait for review (of ``n_beats``).
+    """
 
     out: str
     extra: tuple[str, ...]
     n_files: int
     n_beats: int
     n_accepted: int
+    n_rejected: int = 0
+    n_to_review: int = 0
 
 
 def save_batch(
@@ -81,13 +88,12 @@ def save_batch(
         old_keys = {_source_key(r.source_path) for r in previous.recordings}
         recordings = [fresh.get(_source_key(r.source_path), r) for r in previous.recordings]
         recordings += [r for r in stored if _source_key(r.source_path) not in old_keys]
-    beats = BeatTable.concat([r.beats for r in stored])
     with contextlib.ExitStack() as stack:
         extra = []
         if csv is not None:
             tmp = stack.enter_context(atomic_output(csv))
             with open(tmp, "w", encoding="utf-8", newline="") as fh:
-                beats.to_csv(fh)
+                BeatTable.concat([r.beats for r in stored]).to_csv(fh)
             extra.append(os.fspath(csv))
         if summary_csv is not None:
             tmp = stack.enter_context(atomic_output(summary_csv))
@@ -97,8 +103,15 @@ def save_batch(
         # The results file goes last: its own save is atomic, and the CSVs replace their
         # targets only after it succeeded.
         save_results(out, ResultsFile(recordings, default_json))
-    n_acc = int(np.sum(beats["accepted"])) if len(beats) else 0
-    return SavedBatch(os.fspath(out), tuple(extra), len(stored), len(beats), n_acc)
+    n_beats = sum(len(r.beats) for r in stored)
+    n_acc = sum(int(np.sum(r.beats["accepted"])) for r in stored if len(r.beats))
+    n_rej = n_wait = 0
+    for r in stored:
+        if len(r.beats) and "verdict" in r.beats:
+            verdict = np.asarray(r.beats["verdict"], dtype=object)
+            n_rej += int(np.count_nonzero(verdict == REJECTED))
+            n_wait += int(np.count_nonzero(verdict == TO_REVIEW))
+    return SavedBatch(os.fspath(out), tuple(extra), len(stored), n_beats, n_acc, n_rej, n_wait)
 
 
 def _source_key(path: str) -> str:

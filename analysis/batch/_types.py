@@ -14,7 +14,7 @@ import numpy as np
 from analysis.errors import InputError
 from analysis.table import BeatTable
 
-__all__ = ["BatchCancelled", "BatchResult", "ClusterError", "FileOutcome", "FileTask"]
+__all__ = ["BatchCancelled", "BatchResult", "ClusterError", "FileOutcome", "FileTask", "pack_columns", "unpack_columns"]
 
 
 class BatchCancelled(Exception):
@@ -28,6 +28,35 @@ class BatchCancelled(Exception):
 
 class ClusterError(InputError):
     """Dask is not installed, or the scheduler given cannot be reached."""
+
+
+# -- tables packed for travel ----------------------------------------------------------------
+#: The tables of a task's ``meta`` that travel packed (dicts of equal-length columns).
+_PACKED_META = ("summary", "decisions")
+
+
+def pack_columns(cols: dict[str, np.ndarray]) -> tuple:
+    """Equal-length columns as ``(names, keys, blocks)``: the columns of one dtype stacked into
+    one 2-D array of ``blocks`` (text as one object array), ``keys`` naming each column's block."""
+    names = tuple(cols)
+    keys = tuple(np.asarray(cols[n]).dtype.str if np.asarray(cols[n]).dtype.kind != "U" else "|O" for n in names)
+    blocks = {}
+    for key in dict.fromkeys(keys):
+        members = [np.asarray(cols[n]) for n, k in zip(names, keys) if k == key]
+        blocks[key] = np.stack(members).astype(object if key == "|O" else key, copy=False)
+    return names, keys, blocks
+
+
+def unpack_columns(packed: tuple) -> dict[str, np.ndarray]:
+    """The columns :func:`pack_columns` packed, in order (views into the blocks)."""
+    names, keys, blocks = packed
+    seen: dict[str, int] = {}
+    out = {}
+    for name, key in zip(names, keys):
+        i = seen.get(key, 0)
+        seen[key] = i + 1
+        out[name] = blocks[key][i]
+    return out
 
 
 # -- one file, one task ----------------------------------------------------------------------
@@ -48,7 +77,7 @@ class FileTask:
         ``Settings.to_dict()`` of the analysis settings; None for the defaults.
     channel : int, str or None
         The channel to analyse; None lets the analysis pick the current-clamp channel.
-    sweeps : sequence of int or None
+    sweeps : tuple of int, SweepSelection or None
         Sweeps to analyse; None for all.
     units : tuple of (channel, units) pairs or None
         Units to declare for channels that a file's header mislabels (as ``--units 0=mV``).
@@ -62,7 +91,7 @@ class FileTask:
     open_path: str
     settings: dict[str, Any] | None = None
     channel: int | str | None = None
-    sweeps: tuple[int, ...] | None = None
+    sweeps: Any = None  # tuple of int, analysis.sweeps.SweepSelection or None
     units: tuple[tuple[int | str, str], ...] | None = None
     conditions: tuple[str, ...] = ()
 
@@ -102,6 +131,26 @@ class FileOutcome:
     @property
     def ok(self) -> bool:
         return not (self.error or self.fault)
+
+    # A finished task travels back packed: each table's columns of one dtype as one 2-D array
+    # (a few arrays per table instead of one per column), unpacked into views on arrival.
+    def __getstate__(self) -> dict[str, Any]:
+        state = dict(self.__dict__)
+        state["columns"] = pack_columns(self.columns)
+        meta = dict(self.meta)
+        for key in _PACKED_META:
+            if isinstance(meta.get(key), dict):
+                meta[key] = pack_columns(meta[key])
+        state["meta"] = meta
+        return state
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        state["columns"] = unpack_columns(state["columns"])
+        meta = state["meta"]
+        for key in _PACKED_META:
+            if isinstance(meta.get(key), tuple):
+                meta[key] = unpack_columns(meta[key])
+        self.__dict__.update(state)
 
     @property
     def reason(self) -> str:

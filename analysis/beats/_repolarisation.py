@@ -71,6 +71,28 @@ def _smooth_rows_sums(x: np.ndarray, w: int) -> np.ndarray:
     return (s4k * s0 - s2k * k2y) / (w * s4k - s2k * s2k) + ref
 
 
+def _smoothed(v: np.ndarray, w: int, lo: int, hi: int) -> np.ndarray:
+    """Savitzky-Golay smoothing (order 3) of ``v`` at the samples ``lo:hi`` (``w // 2`` inside each end).
+
+    One pass over the stretch, however many beats' repolarisations it holds: a short window by
+    direct correlation, a long one by FFT convolution (running sums over a whole stretch would
+    lose digits to their long index weights).
+    """
+    h = w // 2
+    x = np.asarray(v[lo - h:hi + h], dtype=np.float64)
+    if w <= 1:
+        return x.copy()
+    coeffs = savgol_coeffs(w, 3)  # symmetric: correlation and convolution agree
+    if w >= 31:
+        from scipy.signal import oaconvolve  # scipy.signal is slow to import; only long windows need it
+
+        return oaconvolve(x, coeffs, mode="valid")
+    from scipy.ndimage import correlate1d  # scipy.ndimage is slow to import; only measuring needs it
+
+    # About half the time of numpy's convolution over a chunk.
+    return correlate1d(x, coeffs, mode="nearest")[h:x.size - h]
+
+
 def first_crossings_one(v: np.ndarray, w_rep: int, ip: int, limit: int, levels: list[float]) -> list[float]:
     """The first smoothed downward crossing of each level after ``ip``, before ``limit`` (one beat).
 
@@ -124,8 +146,9 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     """:func:`first_crossings_one` for every beat: ``levels`` has one row per beat (NaN: skip).
 
     Returns fractional indices, shape ``levels.shape`` (NaN where a level is not crossed). The
-    repolarisations are gathered in stages (the first 0.1 s after each peak, then up to 0.25 s,
-    then up to :data:`_GATHER_S`), each beat only as far as its deepest level needs.
+    stretch the repolarisations cover is smoothed once; the smoothed repolarisations are then
+    gathered in stages of 50 ms after each peak, up to :data:`_GATHER_S`, each beat only about as
+    far as its deepest level lies.
     """
     k, n_lv = levels.shape
     out = np.full((k, n_lv), np.nan)
@@ -136,7 +159,12 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     inside = (ip - 2 * h - 1 > 0) & (ip + span + 2 * h < n) & (span > 1)
     cur = np.zeros(k, np.int64)  # the level each beat is looking for
     start = np.zeros(k, np.int64)  # from this sample after the peak
-    stages = sorted({int(round(0.1 * fs_hz)), int(round(0.25 * fs_hz)), cap})
+    # Stages of 50 ms: a beat is gathered only about as far as its deepest level lies.
+    stages = sorted({int(round(t * fs_hz)) for t in np.arange(0.05, _GATHER_S, 0.05)} | {cap})
+    if inside.any():
+        s_lo = int(ip[inside].min()) - 1
+        s_hi = int((ip + span)[inside].max()) + 1
+        smooth = _smoothed(v, w_rep, s_lo, s_hi)  # smooth[j - s_lo]: the smoothed sample j
     c_lo = 0
     for c_hi in stages:
         if c_hi <= c_lo:
@@ -144,30 +172,34 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
         rows = np.flatnonzero(inside & (cur < n_lv) & (span > c_lo))
         if rows.size:
             # columns c_lo - 1 .. c_hi - 1 of the smoothed trace (one before, for interpolation)
-            cols = np.arange(c_lo - 1 - h, c_hi + h)
-            idx = np.clip(ip[rows, None] + cols[None, :], 0, n - 1)
-            sm = _smooth_rows(v[idx], w_rep)
             c = np.arange(c_lo - 1, c_hi)
-            valid = c[None, :] < span[rows, None]
-            valid[:, 0] = False  # the column before the stage only serves the interpolation
-            at = np.arange(rows.size)
+            idx = np.clip(ip[rows, None] - s_lo + c[None, :], 0, smooth.size - 1)
+            sm = smooth[idx]
+            col = np.arange(c.size)[None, :]
             for p in range(n_lv):
                 mine = cur[rows] == p
                 lv = levels[rows, p]
                 skip = mine & ~np.isfinite(lv)
                 cur[rows[skip]] += 1
-                mine &= ~skip
-                if not mine.any():
+                sel = np.flatnonzero(mine & ~skip)
+                if sel.size == 0:
                     continue
-                below = valid & (sm <= lv[:, None]) & (c[None, :] >= start[rows, None]) & mine[:, None]
+                r, lv = rows[sel], lv[sel]
+                smr = sm[sel]
+                # Columns searched: from the beat's start (never the column before the stage,
+                # which only serves the interpolation) to the end of its span.
+                first = np.maximum(start[r] - (c_lo - 1), 1)
+                stop = span[r] - (c_lo - 1)
+                below = (smr <= lv[:, None]) & (col >= first[:, None]) & (col < stop[:, None])
                 has = below.any(axis=1)
                 j = np.argmax(below, axis=1)  # column of sm
-                y0, y1 = sm[at, np.maximum(j - 1, 0)], sm[at, j]
+                at = np.arange(sel.size)
+                y0, y1 = smr[at, np.maximum(j - 1, 0)], smr[at, j]
                 jc = c[j]  # samples after the peak
-                interp = (jc > start[rows]) & (y0 != y1)
+                interp = (jc > start[r]) & (y0 != y1)
                 with np.errstate(divide="ignore", invalid="ignore"):
                     x = np.where(interp, jc - 1 + (y0 - lv) / (y0 - y1), jc.astype(np.float64))
-                got = rows[has]
+                got = r[has]
                 out[got, p] = ip[got] + x[has]
                 start[got] = np.floor(x[has]).astype(np.int64)
                 cur[got] += 1

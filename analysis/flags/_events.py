@@ -60,7 +60,7 @@ import numpy as np
 from analysis.flags._trace import as_sweeps, sweep_trace_events
 from analysis.table import BeatTable
 
-__all__ = ["AUTO_PREFIX", "EVENT_FLAGS", "REJECTABLE_FLAGS", "apply_events", "artefact_like", "is_event_warning", "rejection_flags", "strip_events", "table_events"]
+__all__ = ["AUTO_PREFIX", "EVENT_FLAGS", "REJECTABLE_FLAGS", "TRACE_FLAGS", "apply_events", "artefact_like", "is_event_warning", "reapply_rules", "rejection_flags", "strip_events", "table_events"]
 
 #: The flag words this module writes, in the order they appear in the ``flags`` column.
 EVENT_FLAGS: tuple[str, ...] = (
@@ -167,7 +167,9 @@ def table_events(beats: BeatTable, quality) -> tuple[dict[str, np.ndarray], list
     return flags, warnings
 
 
-_WARNING_MARKS = ("beat(s) rejected automatically by the quality rules", "beat(s) flagged mdp_drift")
+_WARNING_MARKS = (
+    "beat(s) rejected automatically by the quality rules", "beat(s) flagged mdp_drift", "beat(s) wait for review",
+)
 
 
 def is_event_warning(text: str) -> bool:
@@ -193,7 +195,7 @@ def strip_events(beats: BeatTable) -> BeatTable:
         kept = []
         for i, r in enumerate(reasons):
             parts = [p for p in str(r).split("; ") if p and not p.startswith(AUTO_PREFIX)]
-            if str(r) and not parts:
+            if not parts:  # neither a rule's rejection nor a hold for review survives the strip
                 accepted[i] = 1
             kept.append("; ".join(parts))
         reasons = np.array(kept, dtype=object)
@@ -270,6 +272,58 @@ def apply_events(
     if k:
         details["artefact"] = table_flags["artefact_detail"]
 
+    return _assemble(base, found, details, extra, quality, warnings)
+
+
+#: The flags read from the trace (:func:`sweep_trace_events`); the others come from the table.
+TRACE_FLAGS: tuple[str, ...] = ("ead", "dad", "clipped", "noisy")
+
+
+def reapply_rules(beats: BeatTable, quality: Any) -> tuple[BeatTable, list[str]] | None:
+    """The flags and automatic rejections of new quality settings, without reading any samples.
+
+    ``beats`` is a table :func:`apply_events` flagged under settings that differ from
+    ``quality`` only in the table's rules (pause, MDP drift, low APA, overshoot, the noise
+    threshold, which flags reject). The trace's findings are taken from it as they are: the
+    ``ead``, ``dad`` and ``clipped`` words and the ``noise_mV_rms``, ``ead_mV``,
+    ``ead_takeoff_mV`` and ``dad_mV`` columns; ``noisy`` is judged again on the noise column.
+    The result is the table :func:`apply_events` gives with ``quality``. Returns None when it
+    cannot be told from the table alone (a clipped beat to reject whose clipping detail the
+    table does not hold): the events must then run again.
+    """
+    k = len(beats)
+    if k == 0:
+        return beats, []
+    missing = [c for c in EVENT_COLUMNS if c not in beats]
+    if missing:
+        return None
+    words = [set(str(f).split(";")) for f in beats["flags"]]
+    found = {f: np.zeros(k, bool) for f in EVENT_FLAGS}
+    for f in ("ead", "dad", "clipped"):
+        found[f] = np.array([f in w for w in words], bool)
+    details = {"clipped": np.full(k, "", dtype=object)}
+    if getattr(quality, "reject_clipped", False) and found["clipped"].any():
+        prefix = f"{AUTO_PREFIX}clipped ("
+        for i in np.flatnonzero(found["clipped"]):
+            parts = [p for p in str(beats["reject_reason"][i]).split("; ") if p.startswith(prefix)]
+            if not parts:
+                return None
+            details["clipped"][i] = parts[0][len(prefix):-1]
+    extra = {c: np.asarray(beats[c], float) for c in EVENT_COLUMNS}
+    with np.errstate(invalid="ignore"):
+        found["noisy"] = np.isfinite(extra["noise_mV_rms"]) & (extra["noise_mV_rms"] > quality.noise_max_mV_rms)
+    base = strip_events(beats)
+    table_flags, warnings = table_events(base, quality)
+    for f in ("pause", "mdp_drift", "low_apa", "no_overshoot", "artefact"):
+        found[f] = table_flags[f]
+    details["artefact"] = table_flags["artefact_detail"]
+    return _assemble(base, found, details, extra, quality, warnings)
+
+
+def _assemble(base: BeatTable, found: dict, details: dict, extra: dict, quality: Any,
+              warnings: list[str]) -> tuple[BeatTable, list[str]]:
+    """The flagged table: event words appended, rejection rules applied, event columns added."""
+    k = len(base)
     flags_out = []
     for i, old in enumerate(base["flags"]):
         words = [w for w in str(old).split(";") if w] + [f for f in EVENT_FLAGS if found[f][i]]

@@ -22,12 +22,14 @@ import numpy as np
 import analysis.flags as flags
 from analysis.beats import ARTEFACT_REASONS, apd_name, marker_columns
 from analysis.chunkpool import use_workers
+from analysis.decisions import TO_REVIEW, apply_status
 from analysis.errors import RecordingError, SettingsError
 from analysis.pipeline._channel import choose_channel, implausible_range_note
 from analysis.pipeline._sweep import analyse_sweep
 from analysis.recording import Recording
 from analysis.settings import Settings
 from analysis.table import CSV_COLUMNS, BeatTable
+from analysis.sweeps import SweepSelection
 
 __all__ = ["AnalysisResult", "analyze", "flag_and_reject"]
 
@@ -61,6 +63,10 @@ class AnalysisResult:
     spikes : dict of int to ndarray
         Per sweep, the ``(start, stop)`` sample spans of short electrical spikes (guards
         included) that were bridged before measuring (:func:`analysis.beats.find_spikes`).
+    detections : dict of int to Detection
+        Per sweep, what detection found (:func:`analysis.beats.detect_sweep`): hand it back to
+        :func:`analyze` (``detections=``) to measure again under new measurement or quality
+        settings without detecting again.
     """
 
     beats: BeatTable
@@ -73,11 +79,14 @@ class AnalysisResult:
     artefacts: dict = field(default_factory=dict)
     hum_sweeps: list = field(default_factory=list)
     spikes: dict = field(default_factory=dict)
+    detections: dict = field(default_factory=dict)
 
 
-def _sweep_list(recording: Recording, sweeps: Sequence[int] | None) -> list[int]:
+def _sweep_list(recording: Recording, sweeps: Sequence[int] | SweepSelection | None) -> list[int]:
     if sweeps is None:
         return list(range(recording.n_sweeps))
+    if isinstance(sweeps, SweepSelection):  # ranges: checked on their ends before any list is made
+        return list(sweeps.resolve(recording.n_sweeps, recording.source_path))
     out = []
     for s in sweeps:
         i = int(s)
@@ -99,6 +108,7 @@ def analyze(
     *,
     label: str | None = None,
     workers: int | None = None,
+    detections: dict | None = None,
 ) -> AnalysisResult:
     """Detect and measure every beat of a current-clamp recording.
 
@@ -120,6 +130,10 @@ def analyze(
         Processes that share the chunks of a long sweep (:mod:`analysis.chunkpool`; the
         results are the same bytes whatever the number). None: the caller's context (one
         unless :func:`analysis.chunkpool.use_workers` says otherwise).
+    detections : dict or None
+        An earlier result's :attr:`AnalysisResult.detections`, found with the same preprocess
+        and detection settings: the sweeps it holds are measured from those detections without
+        detecting again (a change of measurement or quality settings). None detects every sweep.
 
     Returns
     -------
@@ -143,7 +157,7 @@ def analyze(
     """
     if workers is not None:
         with use_workers(workers):
-            return analyze(recording, settings, channel, sweeps, progress, label=label)
+            return analyze(recording, settings, channel, sweeps, progress, label=label, detections=detections)
     s = settings or Settings()
     idx, note = choose_channel(recording, channel)
     ch = recording.channels[idx]
@@ -169,10 +183,11 @@ def analyze(
         if progress is not None:
             progress(min(done[0], total), total)
 
-    parts, artefacts, rise, hum_sweeps, spikes, surveys = [], {}, [], [], {}, {}
+    parts, artefacts, rise, hum_sweeps, spikes, surveys, found = [], {}, [], [], {}, {}, {}
     for sw in sweep_ids:
         try:
-            cols, art, rise_sw, surveys[sw], spikes[sw] = analyse_sweep(recording, sw, idx, scale, s, tick)
+            cols, art, rise_sw, surveys[sw], spikes[sw], found[sw] = analyse_sweep(
+                recording, sw, idx, scale, s, tick, (detections or {}).get(sw))
         except SettingsError as exc:
             if exc.path is not None:
                 raise
@@ -189,6 +204,12 @@ def analyze(
         parts.append(cols)
         rise.extend(rise_sw)
     beats = _table(parts, s)
+    # The status columns take their place before the events add theirs (flag_and_reject fills them).
+    k = len(beats)
+    beats = beats.with_columns(
+        recording_id=np.full(k, recording.recording_id, dtype=object), verdict=np.full(k, "", dtype=object),
+        decided_by=np.full(k, "", dtype=object), reviewed=np.zeros(k, np.int64),
+    )
     _sampling_warning(rise, fs, s, warnings)
     if hum_sweeps:
         warnings.append(f"mains hum found and subtracted in sweep(s) {_ranges(hum_sweeps)} (preprocess.hum_removal)")
@@ -196,7 +217,7 @@ def analyze(
     warnings.extend(more)
     return AnalysisResult(
         beats=beats, warnings=warnings, channel=idx, channel_name=ch.name, settings=s, recording=recording,
-        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes,
+        ljp_mV=s.preprocess.ljp_mV, artefacts=artefacts, hum_sweeps=hum_sweeps, spikes=spikes, detections=found,
     )
 
 
@@ -253,17 +274,20 @@ def flag_and_reject(
 ) -> tuple[BeatTable, list[str]]:
     """The hook where events and quality rules flag and automatically reject measured beats.
 
-    Runs :func:`analysis.flags.apply_events` when the settings carry a ``quality`` section;
-    otherwise returns the table unchanged. The events module reads each sweep's preprocessed
-    samples in windows of beats (:class:`analysis.flags.RecordingSweeps`), never a whole sweep.
+    Runs :func:`analysis.flags.apply_events` when the settings carry a ``quality`` section, then
+    writes each beat's automatic status (:func:`analysis.decisions.apply_status`: accepted,
+    rejected by a rule, or held for review by a flag of ``quality.review_flags``). The events
+    module reads each sweep's preprocessed samples in windows of beats
+    (:class:`analysis.flags.RecordingSweeps`), never a whole sweep.
     ``hum`` says whether any sweep carries hum, or gives each sweep's
     :class:`analysis.signal.HumSurvey` (False where none) as the analysis judged it; ``spikes`` (per
     sweep, the spike spans detection bridged, :attr:`AnalysisResult.spikes`) spares the events
     finding them again; None finds them.
     """
     quality = getattr(settings, "quality", None)
+    review_flags = getattr(quality, "review_flags", ())
     if quality is None or len(beats) == 0:
-        return beats, []
+        return apply_status(beats, None, review_flags), []
 
     # Read in windows (with filter context), so memory stays bounded by a chunk of beats. Without
     # hum in any sweep, the windows need not look for it again.
@@ -272,5 +296,15 @@ def flag_and_reject(
     sweeps_v = flags.RecordingSweeps(recording, channel, scale=scale, preprocess=pre,
                                       hum_surveys=hum if isinstance(hum, dict) else None)
     sweeps_raw = flags.RecordingSweeps(recording, channel, scale=scale)
-    return flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
-                               detection=settings.detection, spikes=spikes)
+    table, warnings = flags.apply_events(beats, sweeps_v, recording.sampling_rate_hz, quality, sweeps_raw=sweeps_raw,
+                                         detection=settings.detection, spikes=spikes)
+    table = apply_status(table, None, review_flags)
+    held = np.flatnonzero(table["verdict"] == TO_REVIEW)
+    if held.size:
+        found = {w for f in table["flags"][held] for w in str(f).split(";")}
+        words = ", ".join(w for w in review_flags if w in found)
+        warnings.append(
+            f"{held.size} beat(s) wait for review, flagged {words} (quality.review_flags): "
+            "the summaries leave them out until they are accepted or rejected"
+        )
+    return table, warnings

@@ -46,7 +46,11 @@ def _loader(recording: Recording, sw: int, ch: int, scale: float, s: Settings):
     return load
 
 
-def analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
+def analyse_sweep(recording, sw, ch, scale, s: Settings, tick, detection=None):
+    """Detect (unless ``detection``, an earlier :func:`detect_sweep` result under the same
+    preprocess and detection settings, is given) and measure the beats of one sweep.
+
+    Returns (columns or None, artefacts, rise samples, hum survey, spike spans, detection)."""
     fs = recording.sampling_rate_hz
     n = recording.n_samples(sw)
     load = _loader(recording, sw, ch, scale, s)
@@ -59,13 +63,15 @@ def analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
         tick(now - sent[0])
         sent[0] = now
 
-    det = detect_sweep(load, n, fs, settings=s.detection, noise_mV=noise, pad=pad, progress=detected)
+    det = detection
+    if det is None:
+        det = detect_sweep(load, n, fs, settings=s.detection, noise_mV=noise, pad=pad, progress=detected)
     tick(n - sent[0])
     art = (det.i_artefact, det.artefact_reason)
     ups = det.i_upstroke
     if ups.size == 0:
         tick(n)
-        return None, art, [], load.hum, det.spike_spans
+        return None, art, [], load.hum, det.spike_spans, det
     measure = _Measurer(load, n, fs, s, noise, pad, det.spike_spans)
     prev = np.concatenate(([-1], ups[:-1]))
     nxt = np.concatenate((ups[1:], [n]))
@@ -85,7 +91,7 @@ def analyse_sweep(recording, sw, ch, scale, s: Settings, tick):
     merged["previous_row"] = previous_row
     cols = _sweep_columns(merged, sw, s)
     rise = [float(x) for x in merged["rise_samples"]]
-    return cols, art, rise, load.hum, det.spike_spans
+    return cols, art, rise, load.hum, det.spike_spans, det
 
 
 class _Measurer:

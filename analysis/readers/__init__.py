@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from types import ModuleType
 from typing import Callable, Mapping
 
-from analysis.errors import RecordingError
+from analysis.errors import RecordingError, missing
 from analysis.recording import Recording, clamp_mode_from_units, UNKNOWN_CLAMP
 from analysis.readers import abf, nwb, text
 
@@ -147,7 +147,7 @@ def open_recording(
 def _check_path(origin: str) -> bytes:
     """The file's first bytes, after refusing paths that are not a readable, non-empty file."""
     if not os.path.exists(origin):
-        raise RecordingError(origin, "no such file", "check the path and the file name")
+        raise RecordingError(origin, *missing(origin))
     if os.path.isdir(origin):
         raise RecordingError(origin, "is a folder, not a recording file", "give one file; "
                              "`upstroke batch` takes folders")

@@ -10,7 +10,11 @@ h5py.
 
 from __future__ import annotations
 
+import atexit
 import os
+import shutil
+import sys
+import tempfile
 import warnings
 from collections import defaultdict
 from dataclasses import dataclass
@@ -22,7 +26,7 @@ from analysis.errors import RecordingError
 from analysis.recording import CURRENT_CLAMP, MIN_SAMPLES_PER_SWEEP, Channel, Recording, clamp_mode_from_units
 from analysis.readers._timebase import check_rate, rate_from_times
 
-__all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "read", "sniff"]
+__all__ = ["EXTENSIONS", "SNIFF_BY_SIGNATURE", "import_pynwb", "read", "sniff"]
 
 EXTENSIONS = (".nwb",)
 SNIFF_BY_SIGNATURE = True
@@ -34,6 +38,10 @@ SERIES_TYPES = ("CurrentClampSeries", "IZeroClampSeries")
 _UNIT_SCALE = {"volts": ("mV", 1e3), "volt": ("mV", 1e3), "v": ("mV", 1e3), "mv": ("mV", 1.0),
                "millivolts": ("mV", 1.0)}
 _CORRUPT_FIX = "the file is damaged or incomplete; export it again from the original"
+#: What h5py and libhdf5 raise on damaged metadata or chunks while samples are read (a broken
+#: B-tree is a KeyError or OSError, a bad filter message a ValueError or RuntimeError, a bad
+#: datatype a TypeError).
+_H5_READ_ERRORS = (OSError, KeyError, RuntimeError, ValueError, TypeError, IndexError, AttributeError)
 
 
 def sniff(head: bytes) -> bool:
@@ -115,16 +123,51 @@ def read(path: str | os.PathLike) -> Recording:
     stimuli = [s.stimulus for s in columns[0]]
     if any(st and st != "N/A" for st in stimuli):
         meta["sweep_stimuli"] = stimuli
+    loader = _NwbSamples(origin, columns)
+    loader.probe()  # `info` refuses what `analyze` could not read
     return Recording(
         channels=channels,
         sampling_rate_hz=series[0].rate_hz,
         sweep_lengths=lengths,
         sweep_starts_s=[s.start_s for s in columns[0]],
-        loader=_NwbSamples(origin, columns),
+        loader=loader,
         source_path=origin,
         format="nwb",
         metadata=meta,
     )
+
+
+#: The environment pynwb reads where it keeps its cache of the NWB schema.
+_CACHE_ENV = ("XDG_CACHE_HOME", "PYNWB_NO_CACHE_DIR")
+
+
+def import_pynwb() -> Any:
+    """pynwb, imported so that reading never depends on a writable cache folder.
+
+    pynwb makes its cache folder (under ``$XDG_CACHE_HOME`` or ``~/.cache``) when it is first
+    imported and fails with PermissionError where that folder cannot be made (a read-only home, a
+    home under a world-writable folder without the sticky bit). The cache only saves a second
+    of parsing the schema: on that failure pynwb is imported again with its cache in a temporary
+    folder (removed at exit) and caching turned off.
+    """
+    try:
+        import pynwb  # imported here: it takes most of a second, and ABF or text files never need it
+    except OSError:
+        for name in [m for m in sys.modules if m == "pynwb" or m.startswith("pynwb.")]:
+            del sys.modules[name]  # the half-run import, so that it runs again whole
+        saved = {key: os.environ.get(key) for key in _CACHE_ENV}
+        scratch = tempfile.mkdtemp(prefix="upstroke-pynwb-cache-")
+        atexit.register(shutil.rmtree, scratch, True)
+        os.environ.update(XDG_CACHE_HOME=scratch, PYNWB_NO_CACHE_DIR="1")
+        try:
+            import pynwb  # imported here: it takes most of a second, and ABF or text files never need it
+        finally:
+            for key, value in saved.items():
+                if value is None:
+                    os.environ.pop(key, None)
+                else:
+                    os.environ[key] = value
+    return pynwb
 
 
 def _check_hdf5(origin: str) -> str:
@@ -134,7 +177,7 @@ def _check_hdf5(origin: str) -> str:
     try:
         with h5py.File(origin, "r") as fh:
             version = fh.attrs.get("nwb_version")
-    except (OSError, KeyError, RuntimeError, ValueError) as exc:  # h5py's kinds of "corrupt"
+    except _H5_READ_ERRORS as exc:  # h5py's kinds of "corrupt"
         raise RecordingError(
             origin, f"the HDF5 file is truncated or corrupt (h5py: {_first_line(exc)})", _CORRUPT_FIX,
         ) from None
@@ -148,7 +191,7 @@ def _check_hdf5(origin: str) -> str:
 
 def _collect(origin: str) -> tuple[list[_Series], dict[str, Any]]:
     """The file's current-clamp series and its session metadata, read with pynwb."""
-    import pynwb  # imported here: it takes most of a second, and ABF or text files never need it
+    pynwb = import_pynwb()
 
     try:
         with warnings.catch_warnings(), pynwb.NWBHDF5IO(origin, "r", load_namespaces=True) as io:
@@ -269,15 +312,35 @@ class _NwbSamples:
         self._columns = columns
         self._files: dict[str, Any] = {}
 
+    def probe(self) -> None:
+        """Read the first and last sample of every series: a dataset whose metadata is damaged
+        is refused when the file is opened, not halfway through an analysis."""
+        for channel, members in enumerate(self._columns):
+            for sweep, s in enumerate(members):
+                self(sweep, channel, 0, 1)
+                if s.n_samples > 1:
+                    self(sweep, channel, s.n_samples - 1, s.n_samples)
+
     def __call__(self, sweep: int, channel: int, start: int, stop: int) -> np.ndarray:
         import h5py  # heavy; ABF and text files never need it
 
         s = self._columns[channel][sweep]
-        fh = self._files.get(s.filename)
-        if fh is None:
-            fh = self._files[s.filename] = h5py.File(s.filename, "r")
-        raw = fh[s.dataset][start:stop]
-        values = np.asarray(raw, dtype=np.float64).reshape(-1)
+        try:
+            fh = self._files.get(s.filename)
+            if fh is None:
+                fh = self._files[s.filename] = h5py.File(s.filename, "r")
+            raw = fh[s.dataset][start:stop]
+            values = np.asarray(raw, dtype=np.float64).reshape(-1)
+        except _H5_READ_ERRORS as exc:  # damage that only reading the samples meets
+            raise RecordingError(
+                self._origin, f"the samples of series {s.name!r} (sweep {sweep}) cannot be read "
+                f"(h5py: {type(exc).__name__}: {_first_line(exc)})", _CORRUPT_FIX,
+            ) from None
+        if values.shape != (stop - start,):
+            raise RecordingError(
+                self._origin, f"series {s.name!r} (sweep {sweep}) gave {values.size} samples where "
+                f"{stop - start} were asked", _CORRUPT_FIX,
+            )
         values *= s.conversion
         values += s.offset
         values *= s.factor

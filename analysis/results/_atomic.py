@@ -18,7 +18,7 @@ from typing import Iterator
 
 from analysis.errors import InputError
 
-__all__ = ["WriteError", "atomic_output", "atomic_outputs", "fsync_folder", "remove_stale_temps", "temp_prefix", "write_text_atomic"]
+__all__ = ["WriteError", "atomic_output", "atomic_outputs", "fsync_folder", "output_mode", "remove_stale_temps", "temp_prefix", "write_text_atomic"]
 
 
 def temp_prefix(path: str | os.PathLike) -> str:
@@ -69,9 +69,12 @@ def fsync_folder(folder: str | os.PathLike) -> None:
         _fsync_path(folder)
 
 
-def _mode_for(target: str) -> int:
-    # mkstemp makes a private (0600) file; give the result the permissions the file it replaces
-    # had, or those an ordinary new file would get.
+def output_mode(target: str | os.PathLike) -> int:
+    """The permissions for a file written to a temporary file and moved to ``target``.
+
+    mkstemp makes a private (0600) file; the result gets the permissions of the file it
+    replaces, or those an ordinary new file would get (0666 less the umask).
+    """
     try:
         return os.stat(target).st_mode & 0o7777
     except OSError:
@@ -122,7 +125,7 @@ def atomic_output(path: str | os.PathLike) -> Iterator[str]:
     try:
         yield tmp
         _fsync_path(tmp)
-        os.chmod(tmp, _mode_for(target))
+        os.chmod(tmp, output_mode(target))
         os.replace(tmp, target)
     except BaseException as exc:
         with contextlib.suppress(OSError):
@@ -182,7 +185,7 @@ def atomic_outputs(paths: list[str | os.PathLike]) -> Iterator[list[str]]:
         for tmp, target in zip(temps, targets):
             current = target
             _fsync_path(tmp)
-            os.chmod(tmp, _mode_for(target))
+            os.chmod(tmp, output_mode(target))
         for tmp, target in zip(temps, targets):
             current = target
             os.replace(tmp, target)

@@ -33,6 +33,9 @@ class RecordingFacts:
         The ``file`` column of the CSVs (as given on the command line).
     sha256 : str
         SHA-256 of the source when analysed ("" for in-memory data).
+    source_bytes : int
+        The source file's size when analysed (-1: not known), so that opening a results file
+        notices a changed source without reading it whole.
     reader, channel, channel_name, units : str, int, str, str
         How the samples were read.
     sweeps : tuple of int or None
@@ -46,6 +49,7 @@ class RecordingFacts:
     source_path: str
     label: str
     sha256: str = ""
+    source_bytes: int = -1
     reader: str = ""
     channel: int = 0
     channel_name: str = ""

@@ -86,14 +86,16 @@ class SettingsCommand(Command):
         self.keys = tuple(keys)
         self.text = "Change the settings"
         self.old = {
-            k: (e.settings, e.table, e.warnings, dict(e.info.provenance))
+            k: (e.settings, e.table, e.warnings, dict(e.info.provenance), e.detected)
             for k, e in ((k, session._entries[k]) for k in keys)
         }
 
-    def _set(self, key: str, settings, table, warnings, provenance, reanalysed: bool) -> None:
+    def _set(self, key: str, settings, table, warnings, provenance, reanalysed: bool, detected=None) -> None:
         s = self.session
         e = s._entries[key]
         e.settings, e.table, e.warnings = settings, table, warnings
+        if detected is not None:
+            e.detected = detected
         e.info.provenance = provenance
         s._invalidate(key)
         s._emit("settings_changed", key)
@@ -105,9 +107,14 @@ class SettingsCommand(Command):
         for k in self.keys:
             e = self.session._entries[k]
             prepared_from = e.version
+            table = c.tables.get(k, e.table)
+            dets = c.detections.get(k)
+            if dets is None and e.detected is not None and e.detected[0] is e.table:
+                dets = e.detected[1]  # the same detections: only later stages ran
             self._set(
-                k, c.settings, c.tables.get(k, e.table), c.warnings.get(k, e.warnings),
+                k, c.settings, table, c.warnings.get(k, e.warnings),
                 c.provenance.get(k, dict(e.info.provenance)), k in c.tables,
+                (table, dets) if dets is not None else None,
             )
             if k in c.summaries and c.versions.get(k) == prepared_from:
                 # Computed with these very decisions and conditions: no need to summarise again.
@@ -115,8 +122,8 @@ class SettingsCommand(Command):
 
     def undo(self) -> None:
         for k in self.keys:
-            settings, table, warnings, prov = self.old[k]
-            self._set(k, settings, table, warnings, prov, k in self.change.tables)
+            settings, table, warnings, prov, detected = self.old[k]
+            self._set(k, settings, table, warnings, prov, k in self.change.tables, detected)
 
 
 class SweepsCommand(Command):

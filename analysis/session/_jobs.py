@@ -24,6 +24,7 @@ import os
 from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
+import analysis.flags as flags
 import analysis.pipeline as pipeline
 from analysis.conditions import Condition
 from analysis.decisions import DecisionLog
@@ -133,10 +134,13 @@ class SettingsItem:
     facts: RecordingFacts
     channel: int | str
     recording: Recording | None
+    #: What detection found for ``table`` (:attr:`analysis.pipeline.AnalysisResult.detections`),
+    #: or None (then a measurement change detects again).
+    detections: dict | None = None
 
 
 #: Share of a recording's progress spent before its summaries, by scope.
-_WORK_SHARE = {"analysis": 0.85, "events": 0.6, "summary": 0.0}
+_WORK_SHARE = {"detect": 0.85, "measure": 0.8, "events": 0.6, "rules": 0.3, "summary": 0.0}
 
 
 @dataclass(frozen=True)
@@ -149,19 +153,30 @@ class SettingsJob:
 
     * ``"none"``: nothing differs; nothing is computed.
     * ``"summary"`` (only the summary section differs): the summaries are computed again.
-    * ``"events"`` (quality, perhaps with summary): the events and quality rules run again on the
+    * ``"rules"`` (the table's quality rules): the flagged table is re-flagged and the rejection
+      rules applied again, without reading samples (:func:`analysis.flags.reapply_rules`; the
+      events run again when the table cannot tell), then the summaries.
+    * ``"events"`` (the trace's event settings): the events and quality rules run again on the
       beats already measured (nothing is detected or measured), then the summaries.
-    * ``"analysis"`` (preprocess, detection or measurement): detection and measurement run again
-      on the recording's analysed sweeps (its sweep selection; sweeps left out stay out), then the
+    * ``"measure"`` (measurement, or the artefact rule): the beats are measured again from the
+      detections the table was made from (detected again when they are not known), then the
+      events, rules and summaries.
+    * ``"detect"`` (preprocess or detection): detection and measurement run again on the
+      recording's analysed sweeps (its sweep selection; sweeps left out stay out), then the
       events and quality rules, then the summaries.
 
-    Summaries are computed from the decisions and conditions of the snapshot; if the user edits
-    them before the change is applied, the summaries are dropped and computed again later.
+    Detection and measurement share a long sweep's chunks with ``workers`` processes, as the
+    command line does. Summaries are computed from the decisions and conditions of the snapshot
+    (not at all when ``summaries`` is False: the session computes them when next asked); if the
+    user edits them before the change is applied, the summaries are dropped and computed again
+    later.
     """
 
     settings: Any
     items: tuple[SettingsItem, ...]
     tolerance_s: float
+    workers: int | None = None
+    summaries: bool = True
 
     @property
     def scopes(self) -> dict[str, str]:
@@ -170,7 +185,7 @@ class SettingsJob:
     def __call__(self, progress: Progress | None = None) -> SettingsChange:
         report = progress or _quiet
         busy = [it for it in self.items if it.scope != "none"]
-        tables, warnings, prov, summaries, versions, bases = {}, {}, {}, {}, {}, {}
+        tables, warnings, prov, summaries, versions, bases, found = {}, {}, {}, {}, {}, {}, {}
         report(0.0, "applying the settings" if busy else "settings unchanged")
         for i, it in enumerate(busy):
             lo, width = i / len(busy), 1.0 / len(busy)
@@ -179,37 +194,49 @@ class SettingsJob:
             def step(fraction: float, message: str, lo=lo, width=width, label=os.path.basename(it.facts.label)) -> None:
                 report(lo + width * min(max(fraction, 0.0), 1.0), f"{label}: {message}")
 
-            table, warn = self._results(it, step, share)
-            if it.scope in ("analysis", "events"):
+            table, warn, dets = self._results(it, step, share)
+            if it.scope not in ("summary", "none"):
                 tables[it.key], warnings[it.key], prov[it.key] = table, warn, provenance_now()
-            step(share, "summarising")
-            entry = Entry(info=it.facts, settings=self.settings, table=table, warnings=warn,
-                          decisions=it.decisions, conditions=it.conditions)
-            summaries[it.key] = summaries_of(reviewed_table(entry, self.tolerance_s), it.facts, it.conditions,
-                                             self.settings, it.recording)
+            if dets is not None:
+                found[it.key] = dets
             versions[it.key] = it.version
+            if self.summaries or it.scope == "summary":
+                step(share, "summarising")
+                entry = Entry(info=it.facts, settings=self.settings, table=table, warnings=warn,
+                              decisions=it.decisions, conditions=it.conditions)
+                summaries[it.key] = summaries_of(reviewed_table(entry, self.tolerance_s), it.facts, it.conditions,
+                                                 self.settings, it.recording)
             bases[it.key] = (it.settings, it.table)
             step(1.0, "done")
         report(1.0, "settings applied" if busy else "settings unchanged")
-        return SettingsChange(self.settings, self.scopes, tables, warnings, prov, summaries, versions, bases)
+        return SettingsChange(self.settings, self.scopes, tables, warnings, prov, summaries, versions, bases, found)
 
-    def _results(self, it: SettingsItem, step: Progress, share: float) -> tuple[BeatTable, tuple[str, ...]]:
-        """The recording's new automatic table and warnings (unchanged for the summary scope)."""
+    def _results(self, it: SettingsItem, step: Progress, share: float):
+        """The recording's new automatic table, warnings and detections (None: unchanged)."""
 
-        if it.scope == "analysis":
-            message = "detecting and measuring beats"
+        scope = it.scope
+        if scope == "measure" and not it.detections:
+            scope = "detect"  # the detections are not known: find them again
+        if scope in ("detect", "measure"):
+            message = "detecting and measuring beats" if scope == "detect" else "measuring beats"
             step(0.0, message)
             res = pipeline.analyze(it.recording, settings=self.settings, channel=it.channel, sweeps=it.facts.sweeps,
-                          label=it.facts.label,
+                          label=it.facts.label, workers=self.workers,
+                          detections=it.detections if scope == "measure" else None,
                           progress=lambda done, total: step(share * (done / total if total else 1.0), message))
-            return res.beats, tuple(res.warnings)
-        if it.scope == "events":
+            return res.beats, tuple(res.warnings), res.detections or None
+        kept = tuple(w for w in it.warnings if not is_event_warning(w))
+        if scope == "rules":
+            step(0.0, "applying the quality rules")
+            again = flags.reapply_rules(it.table, self.settings.quality)
+            if again is not None:
+                return again[0], kept + tuple(again[1]), None
+        if scope in ("rules", "events"):
             step(0.0, "running the events and quality rules")
             table, more = pipeline.flag_and_reject(it.table, it.recording, it.facts.channel, self.settings,
                                           scale=mV_scale(it.facts.units))
-            kept = tuple(w for w in it.warnings if not is_event_warning(w))
-            return table, kept + tuple(more)
-        return it.table, it.warnings
+            return table, kept + tuple(more), None
+        return it.table, it.warnings, None
 
 
 def snapshot_summary(entry: Entry, key: str, beats: BeatTable, recording: Recording | None) -> SummaryJob:
@@ -222,5 +249,8 @@ def snapshot_summary(entry: Entry, key: str, beats: BeatTable, recording: Record
 def snapshot_settings_item(entry: Entry, key: str, scope: str, recording: Recording | None) -> SettingsItem:
     """One recording's part of a :class:`SettingsJob` (call on the session's thread)."""
     channel = entry.requested_channel if entry.requested_channel is not None else entry.info.channel
+    detected = entry.detected
+    detections = detected[1] if detected is not None and detected[0] is entry.table else None
     return SettingsItem(key, entry.version, scope, entry.settings, entry.table, tuple(entry.warnings),
-                        entry.decisions.copy(), tuple(entry.conditions), _facts_copy(entry.info), channel, recording)
+                        entry.decisions.copy(), tuple(entry.conditions), _facts_copy(entry.info), channel, recording,
+                        detections)

@@ -15,6 +15,7 @@ import os
 import numpy as np
 
 from analysis.conditions import ConditionError, check_conditions
+from analysis.decisions import apply_status
 from analysis.errors import ResultsFileError, SettingsError
 from analysis.results import RecordingFacts, ResultsFile, StoredRecording, facts_values, load_results, save_results
 from analysis.session._types import Entry as _Entry
@@ -66,7 +67,8 @@ def stored_recordings(session: SessionCore) -> list[StoredRecording]:
 def save_session(session: SessionCore, path: str | os.PathLike, *, atomic: bool = True) -> None:
     """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
-    save_results(path, ResultsFile(stored_recordings(session), default), atomic=atomic)
+    # The file the session came from lends the new file any groups of other modules it holds.
+    save_results(path, ResultsFile(stored_recordings(session), default, path=session.path), atomic=atomic)
 
 
 def _settings(text: str, path: str, label: str):
@@ -77,16 +79,16 @@ def _settings(text: str, path: str, label: str):
         raise ResultsFileError(path, f"the settings of {label} cannot be read: {problem}", "update Upstroke, or analyse the recording again") from None
 
 
-def _auto_table(stored: BeatTable) -> BeatTable:
+def _auto_table(stored: BeatTable, review_flags) -> BeatTable:
     cols = stored.columns()
     for c in AUTO_COLUMNS:
         if c not in cols:
             raise KeyError(c)
     cols["accepted"] = cols.pop("auto_accepted")
     cols["reject_reason"] = cols.pop("auto_reject_reason")
-    cols.pop("reviewed", None)
     cols["condition"] = np.full(len(stored), "", dtype=object)
-    return BeatTable(cols)
+    # The stored status is the reviewed one; the automatic table holds the rules' own.
+    return apply_status(BeatTable(cols), None, review_flags)
 
 
 def _stored_summaries(r: StoredRecording) -> list:
@@ -108,38 +110,59 @@ def _stored_summaries(r: StoredRecording) -> list:
             v, fs, t0 = r.ensembles[i]
             params = {col: float(values[f"ensemble_{col}"]) for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")}
             ens = Ensemble(np.asarray(v), fs, t0, int(values["ensemble_n"]), params)
-        lo, hi = float(values["steady_start_s"]), float(values["steady_end_s"])
+        lo, hi = float(values["suggested_window_start_s"]), float(values["suggested_window_end_s"])
         suggestion = (lo, hi) if math.isfinite(lo) and math.isfinite(hi) else None
-        out.append(Summary(values, suggestion, str(values["steady_note"]), ens))
+        out.append(Summary(values, suggestion, str(values["suggested_window_note"]), ens))
     return out
 
 
 def open_session(cls: type[SessionCore], path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> SessionCore:
-    """Rebuild a session from a results file (recordings are opened lazily)."""
+    """Rebuild a session from a results file (recordings are opened lazily).
+
+    Only the file's index is read now: each recording's facts and settings. Its beat table,
+    decisions, conditions, summaries and warnings are read the first time the session uses them
+    (schema-2 files; a schema-1 file is read whole but converted on first use all the same).
+    """
 
     text = os.fspath(path)
-    content: ResultsFile = load_results(text, verify_sources=verify_sources)
+    # Opening finds each source and compares its size; the SHA-256, which reads the whole
+    # recording, is compared when the session first opens it (Session.recording).
+    content: ResultsFile = load_results(text, verify_sources="quick" if verify_sources else False)
     default = _settings(content.default_settings_json, text, "the session") if content.default_settings_json else None
     session = cls(default, match_tolerance_s=match_tolerance_s)
+    parsed: dict[str, object] = {}  # the distinct settings of the file, each parsed once
     for r in content.recordings:
-        try:
-            table = _auto_table(r.beats)
-            conditions = check_conditions(r.conditions)
-            summaries = _stored_summaries(r)
-        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
-            raise ResultsFileError(text, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
+        settings = parsed.get(r.settings_json)
+        if settings is None:
+            settings = parsed[r.settings_json] = _settings(r.settings_json, text, r.label)
         # The stored ljp_mV attribute is not read back: the settings hold the LJP (one home).
         info = RecordingFacts(**facts_values(r))
         key = _key_of(r.source_path) if r.sha256 else r.label
         base, n = key, 2
         while key in session._entries:  # a file written elsewhere may hold a source twice
             key, n = f"{base}#{n}", n + 1
-        session._entries[key] = _Entry(
-            info=info, settings=_settings(r.settings_json, text, r.label), table=table,
-            warnings=tuple(r.warnings), decisions=r.decisions, conditions=conditions,
-            requested_channel=r.channel, summaries=summaries,
+        entry = _Entry.__new__(_Entry)
+        entry.__dict__.update(
+            info=info, settings=settings, recording=None, requested_channel=r.channel, version=0,
+            unverified=bool(verify_sources and r.sha256), _load=_loader(r, text, settings.quality.review_flags),
         )
+        session._entries[key] = entry
     session.path = os.path.abspath(text)
     session.open_warnings = list(content.open_warnings)
     session._clean_depth = 0
     return session
+
+
+def _loader(r: StoredRecording, path: str, review_flags):
+    """Reads a stored recording's tables into the session's terms, once, when first needed."""
+
+    def load() -> dict:
+        try:
+            return {
+                "table": _auto_table(r.beats, review_flags), "warnings": tuple(r.warnings), "decisions": r.decisions,
+                "conditions": check_conditions(r.conditions), "summaries": _stored_summaries(r),
+            }
+        except (KeyError, ValueError, TypeError, IndexError, ConditionError) as exc:
+            raise ResultsFileError(path, f"the beats, conditions or summaries of {r.label} are damaged ({exc})", "analyse the recording again") from None
+
+    return load

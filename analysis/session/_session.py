@@ -4,8 +4,11 @@ A :class:`Session` is the model the desktop app and the command line share. It h
 of analysed recordings, keyed by their source path, each with its own settings, its automatic
 beat table (measurement, events and quality rules), the user's review decisions (an append-only
 :class:`~analysis.decisions.DecisionLog`) and its conditions. :meth:`Session.beats` gives the
-table as the user sees it: decisions applied to ``accepted`` and ``reject_reason``, the
-``condition`` column filled in, and a ``reviewed`` column (1 where a review decision applies).
+table as the user sees it: each beat's status (:func:`analysis.decisions.beat_status`: accepted,
+rejected, or held for review by a flag of ``quality.review_flags``) in ``verdict``, ``accepted``,
+``reject_reason``, ``decided_by`` and ``reviewed`` (1 where a review decision applies), the
+``condition`` column filled in, and the ``recording_id``; :meth:`Session.review_status` gives the
+status alone.
 
 Every edit is a command on an undo stack. Change notifications are plain Python callbacks
 (:meth:`Session.subscribe`), so the app can forward them as Qt signals and the core stays
@@ -52,10 +55,20 @@ import numpy as np
 
 import analysis.pipeline as pipeline
 from analysis.conditions import Condition, check_conditions
-from analysis.decisions import ACCEPT, CLEAR, REJECT, Decision, DecisionLog, now_utc
+from analysis.decisions import (
+    ACCEPT,
+    CLEAR,
+    REJECT,
+    BeatStatus,
+    Decision,
+    DecisionLog,
+    beat_status,
+    now_utc,
+)
 from analysis.errors import RecordingError
 from analysis.readers import open_recording
 from analysis.recording import Recording
+from analysis.results import changed_source_warning
 from analysis.session._commands import (
     ConditionsCommand,
     DecideCommand,
@@ -92,11 +105,16 @@ class Session(SessionHistory, SessionWork):
         (for example a change of the upstroke-time definition).
     """
 
-    def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010) -> None:
+    def __init__(self, default_settings: Any = None, *, match_tolerance_s: float = 0.010,
+                 workers: int | None = None) -> None:
         super().__init__()
         self.default_settings = default_settings if default_settings is not None else Settings()
         self.match_tolerance_s = float(match_tolerance_s)
+        #: Processes a re-analysis shares a long sweep's chunks with (:mod:`analysis.chunkpool`;
+        #: None: the caller's context, one unless it says otherwise).
+        self.workers = workers
         self._entries: dict[str, Entry] = {}
+        self._views: dict[str, tuple[tuple, BeatTable]] = {}  # key -> (what it is made of, reviewed table)
         self.path: str | None = None
         self.open_warnings: list[str] = []
 
@@ -161,6 +179,7 @@ class Session(SessionHistory, SessionWork):
         entry = Entry(
             info=info, settings=settings, table=result.beats, warnings=tuple(result.warnings),
             decisions=DecisionLog(), conditions=(), recording=rec, requested_channel=channel,
+            detected=(result.beats, getattr(result, "detections", None) or None),
         )
         old = self._entries.get(key)
         if old is not None and keep_review:
@@ -225,6 +244,12 @@ class Session(SessionHistory, SessionWork):
             if not os.path.isfile(path):
                 raise RecordingError(path, "the source recording is not there", "put it back or re-link it, then try again")
             rec = open_recording(path)
+            if e.unverified:
+                e.unverified = False
+                if rec.sha256 != e.info.sha256:
+                    warning = changed_source_warning(e.info.label, path, "SHA-256 differs")
+                    self.open_warnings.append(warning)
+                    self._emit("warning", key, detail=warning)
             if rec.units(e.info.channel) != e.info.units:
                 # The units were declared anew when it was analysed (a mislabelled channel).
                 rec = rec.with_units(e.info.channel, e.info.units)
@@ -248,12 +273,19 @@ class Session(SessionHistory, SessionWork):
         Returns
         -------
         BeatTable
-            The automatic table's columns in their order, with ``accepted`` and
-            ``reject_reason`` after the latest applying decision, ``condition`` filled in, and
-            ``reviewed`` (1 where a review decision applies, 0 where the automatic verdict
-            stands).
+            The automatic table's columns in their order, with the status after the latest
+            applying decision (``verdict``, ``accepted``, ``reject_reason``, ``decided_by``,
+            ``reviewed``: 1 where a review decision applies, 0 where the automatic status
+            stands), ``condition`` filled in, and ``recording_id``.
         """
-        return reviewed_table(self._entry(key), self.match_tolerance_s)
+        e = self._entry(key)
+        # Kept while nothing it is made of has changed: a review key asks for it more than once.
+        stamp = (e.version, id(e.table), id(e.decisions), len(e.decisions), e.conditions, id(e.settings),
+                 self.match_tolerance_s)
+        cached = self._views.get(key)
+        if cached is None or cached[0] != stamp:
+            cached = self._views[key] = (stamp, reviewed_table(e, self.match_tolerance_s))
+        return cached[1]
 
     def all_beats(self, keys: Sequence[str] | None = None) -> BeatTable:
         """The reviewed tables of several recordings (all by default), one after another."""
@@ -266,6 +298,19 @@ class Session(SessionHistory, SessionWork):
         return BeatTable.concat([BeatTable({c: t[c] for c in common}) for t in tables])
 
     # -- decisions ---------------------------------------------------------------------------
+    def review_flags(self, key: str) -> tuple[str, ...]:
+        """The flags that hold a recording's beats for review (its ``quality.review_flags``)."""
+        return tuple(getattr(getattr(self._entry(key).settings, "quality", None), "review_flags", ()))
+
+    def review_status(self, key: str) -> BeatStatus:
+        """Every beat's status, reason and who decided, by row of :meth:`beats`.
+
+        The same :func:`analysis.decisions.beat_status` the beats CSV, the summaries and the
+        command line use: ``status`` is ``accepted``, ``rejected`` or ``to_review``.
+        """
+        e = self._entry(key)
+        return beat_status(e.table, e.decisions, self.review_flags(key), tolerance_s=self.match_tolerance_s)
+
     def decisions(self, key: str) -> DecisionLog:
         """A copy of a recording's decision log (every entry ever made, oldest first)."""
         return self._entry(key).decisions.copy()
@@ -404,8 +449,11 @@ class Session(SessionHistory, SessionWork):
     def open(cls, path: str | os.PathLike, *, verify_sources: bool = True, match_tolerance_s: float = 0.010) -> "Session":
         """A session restored from a results file.
 
-        Recordings are opened from their sources only when needed (traces, re-analysis);
-        a changed or missing source adds a line to :attr:`open_warnings` and the results open.
+        Only the file's index is read now; each recording's tables are read when first used,
+        and its source is opened only when needed (traces, re-analysis). A missing source, or
+        one whose size differs from the one analysed, adds a line to :attr:`open_warnings` at
+        once; a source whose SHA-256 differs adds one (and a ``warning`` event) when it is first
+        opened. The results open either way.
 
         Raises
         ------

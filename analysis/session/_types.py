@@ -13,22 +13,22 @@ from typing import Any, Callable, Protocol, Sequence
 import numpy as np
 
 from analysis.conditions import Condition, assign_conditions
-from analysis.decisions import ACCEPT, CLEAR, REJECT, DecisionLog
+from analysis.decisions import DecisionLog, apply_status
 import analysis.flags as flags
-from analysis.pipeline import MEASURING_QUALITY_FIELDS, analyze
-from analysis.recording import Recording
+from analysis.pipeline import analyze, stage_of_change
+from analysis.recording import Recording, recording_id
 from analysis.results import RecordingFacts, facts_values, provenance_now
 from analysis.stats import measure_cycle
 from analysis.table import BeatTable
 
-__all__ = ["EVENTS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
+__all__ = ["EVENTS", "LAZY_ENTRY_FIELDS", "SessionCore", "Change", "Entry", "RecordingInfo", "SettingsChange", "VIEW_COLUMNS", "cycle_measurer", "info_from", "is_event_warning", "key_of", "mV_scale", "reviewed_table", "scope"]
 
 EVENTS = (
     "recording_added", "recording_removed", "results_changed", "decisions_changed",
     "conditions_changed", "settings_changed", "history_changed", "saved", "warning",
 )
-#: Columns the session adds to the automatic table in its view.
-VIEW_COLUMNS = ("reviewed",)
+#: Columns the session writes anew in its view of the automatic table.
+VIEW_COLUMNS = ("reviewed", "verdict", "decided_by")
 
 
 class SessionCore(Protocol):
@@ -100,9 +100,19 @@ class RecordingInfo(RecordingFacts):
         return cls(**facts_values(facts), ljp_mV=float(ljp_mV))
 
 
+#: Fields of an :class:`Entry` opened from a results file that are read when first used.
+LAZY_ENTRY_FIELDS = ("table", "warnings", "decisions", "conditions", "summaries")
+
+
 @dataclass
 class Entry:
-    """A recording's state inside a session (internal to the session modules)."""
+    """A recording's state inside a session (internal to the session modules).
+
+    An entry opened from a results file may be *lazy*: it holds a ``_load`` callable in place of
+    the fields in :data:`LAZY_ENTRY_FIELDS`, which the first access to any of them calls to read
+    them all (:func:`analysis.session.open_session`). None of those fields has a class-level
+    default, so that the access reaches :meth:`__getattr__`.
+    """
 
     info: RecordingFacts
     settings: Any
@@ -112,8 +122,28 @@ class Entry:
     conditions: tuple[Condition, ...]
     recording: Recording | None = None
     requested_channel: int | str | None = None
-    summaries: list | None = None
+    summaries: list | None = field(default_factory=lambda: None)
     version: int = 0
+    #: (table, detections): what detection found for that automatic table
+    #: (:attr:`analysis.pipeline.AnalysisResult.detections`), so that a measurement change
+    #: measures again without detecting; None when unknown (reopened from a results file).
+    detected: tuple | None = None
+    #: True for a recording opened from a results file whose source's SHA-256 is still to be
+    #: compared with the one analysed (done when the source is first opened).
+    unverified: bool = False
+
+    def __getattr__(self, name: str) -> Any:
+        load = self.__dict__.get("_load")
+        if load is None or name not in LAZY_ENTRY_FIELDS:
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        self.__dict__.update(load())
+        del self.__dict__["_load"]
+        return self.__dict__[name]
+
+    @property
+    def loaded(self) -> bool:
+        """False while an entry opened from a results file has not read its tables yet."""
+        return "_load" not in self.__dict__
 
     @property
     def ljp_mV(self) -> float:
@@ -129,9 +159,10 @@ class SettingsChange:
     ----------
     settings : Settings
     scopes : dict of str to str
-        Per recording key: ``"none"`` (nothing changed), ``"summary"`` (only summaries change),
-        ``"events"`` (events and quality rules re-run on the measured beats) or ``"analysis"``
-        (detection and measurement re-run on the analysed sweeps).
+        Per recording key, the earliest stage the change reran (:data:`analysis.pipeline.STAGES`):
+        ``"none"`` (nothing changed), ``"summary"``, ``"rules"`` (the table re-flagged),
+        ``"events"`` (the trace's events and the rules), ``"measure"`` (measured again from the
+        detections) or ``"detect"`` (detected and measured again on the analysed sweeps).
     tables, warnings, provenance : dict
         The new results of the recordings that were re-analysed (scopes ``events`` and
         ``analysis``).
@@ -154,6 +185,7 @@ class SettingsChange:
     summaries: dict[str, list] = field(default_factory=dict)
     versions: dict[str, int] = field(default_factory=dict)
     bases: dict[str, tuple[Any, BeatTable]] = field(default_factory=dict)
+    detections: dict[str, dict] = field(default_factory=dict)
 
 
 def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> RecordingFacts:
@@ -163,6 +195,7 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
         source_path=os.path.abspath(rec.source_path) if rec.source_path else label,
         label=label,
         sha256=(rec.sha256 or "") if rec.source_path else "",
+        source_bytes=_size(rec.source_path),
         reader=rec.format,
         channel=int(result.channel),
         channel_name=str(result.channel_name),
@@ -175,26 +208,25 @@ def info_from(rec: Recording, result: Any, label: str, sweeps: Any) -> Recording
     )
 
 
+def _size(path: str | None) -> int:
+    try:
+        return os.path.getsize(path) if path else -1
+    except OSError:
+        return -1
+
+
 def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:
     """An entry's automatic table with its decisions and conditions applied (see Session.beats)."""
     t = e.table
     n = len(t)
     sweep = np.asarray(t["sweep"], dtype=np.int64) if n else np.empty(0, np.int64)
     t_up = np.asarray(t["t_upstroke_s"], dtype=np.float64) if n else np.empty(0)
-    verdict, reason = e.decisions.state(sweep, t_up, tolerance_s=tolerance_s)
-    accepted = np.asarray(t["accepted"]).copy() if n else np.empty(0, np.int64)
-    reasons = np.array(t["reject_reason"], dtype=object) if "reject_reason" in t else np.full(n, "", dtype=object)
-    decided = verdict != CLEAR
-    accepted[decided] = verdict[decided]
-    reasons[decided & (verdict == ACCEPT)] = ""
-    rejected = decided & (verdict == REJECT)
-    reasons[rejected] = reason[rejected]
     starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
     t_rec = starts[sweep] + t_up if n else np.empty(0)
     condition = assign_conditions(sweep, t_rec, e.conditions)
-    return t.with_columns(
-        accepted=accepted, reject_reason=reasons, condition=condition, reviewed=decided.astype(np.int64),
-    )
+    review_flags = getattr(getattr(e.settings, "quality", None), "review_flags", ())
+    view = apply_status(t, e.decisions, review_flags, tolerance_s=tolerance_s)
+    return view.with_columns(condition=condition, recording_id=np.full(n, recording_id(e.info.sha256), dtype=object))
 
 
 def key_of(source: str) -> str:
@@ -204,19 +236,7 @@ def key_of(source: str) -> str:
 
 def scope(old: Any, new: Any) -> str:
     """What a change of settings from ``old`` to ``new`` recomputes (see :class:`SettingsChange`)."""
-    if old == new:
-        return "none"
-    changed = {k for k in type(new).sections() if getattr(old, k) != getattr(new, k)}
-    if changed <= {"summary"}:
-        return "summary"
-    if changed <= {"summary", "quality"}:
-        # The artefact rule also decides which beats the others' cycle lengths and MDPs skip.
-        if "quality" in changed and any(
-            getattr(old.quality, f, None) != getattr(new.quality, f, None) for f in MEASURING_QUALITY_FIELDS
-        ):
-            return "analysis"
-        return "events"
-    return "analysis"
+    return stage_of_change(old, new)
 
 
 def cycle_measurer(settings: Any, ljp_mV: float, fs_hz: float) -> Callable[[np.ndarray], dict | None]:

@@ -32,7 +32,7 @@ class SessionWork:
     """Settings changes and summaries for :class:`~analysis.session.Session` (a mixin)."""
 
     # -- settings ----------------------------------------------------------------------------
-    def settings_job(self, settings: Any, keys: Sequence[str] | None = None) -> SettingsJob:
+    def settings_job(self, settings: Any, keys: Sequence[str] | None = None, *, summaries: bool = True) -> SettingsJob:
         """A snapshot that computes what new settings give, for running in a worker thread.
 
         Per recording (``keys``, default all) the settings' scope says what is recomputed; the
@@ -40,11 +40,15 @@ class SessionWork:
         :class:`~analysis.session.SettingsJob`):
 
         * a summary-only change recomputes the summaries;
-        * a quality change (perhaps with summary) re-runs the events and quality rules on the
-          beats already measured, then the summaries;
-        * a preprocess, detection or measurement change re-runs detection and measurement of the
-          recording's analysed sweeps (its selection, see :meth:`set_sweeps`), then the rules
-          and summaries.
+        * a change of the table's quality rules re-flags the table without reading samples;
+        * a change of the trace's event settings re-runs the events and quality rules on the
+          beats already measured;
+        * a measurement change (or the artefact rule's) measures the beats again from their
+          detections (:func:`analysis.pipeline.stage_of_change` names the stage of each field);
+        * a preprocess or detection change re-runs detection and measurement of the recording's
+          analysed sweeps (its selection, see :meth:`set_sweeps`);
+        each followed by the later stages, the summaries last (unless ``summaries`` is False:
+        the session then computes them when next asked, see :meth:`summary_job`).
 
         Call it on the session's thread; the job holds immutable inputs only, so the session may
         go on changing while it runs. Hand its result to :meth:`apply_settings`.
@@ -60,7 +64,7 @@ class SessionWork:
             e = self._entry(key)
             scope = change_scope(e.settings, settings)
             rec = None
-            if scope in ("analysis", "events"):
+            if scope in ("detect", "measure", "events", "rules"):
                 rec = self.recording(key)
             elif scope == "summary":
                 try:
@@ -68,7 +72,7 @@ class SessionWork:
                 except RecordingError:
                     rec = None  # summaries without their ensemble beat
             items.append(snapshot_settings_item(e, key, scope, rec))
-        return SettingsJob(settings, tuple(items), self.match_tolerance_s)
+        return SettingsJob(settings, tuple(items), self.match_tolerance_s, getattr(self, "workers", None), summaries)
 
     def prepare_settings(
         self, settings: Any, keys: Sequence[str] | None = None, *, progress: Progress | None = None,

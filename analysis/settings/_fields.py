@@ -73,7 +73,7 @@ class FieldInfo:
 
 
 def _kind(annotation: Any) -> str:
-    """``float``, ``int``, ``bool``, ``str``, ``optional float`` or ``float list``."""
+    """``float``, ``int``, ``bool``, ``str``, ``optional float``, ``float list`` or ``text list``."""
     if annotation in (float, int, bool, str):
         return annotation.__name__
     origin = typing.get_origin(annotation)
@@ -84,6 +84,8 @@ def _kind(annotation: Any) -> str:
             return "optional float"
     if origin is tuple and args and args[0] is float:
         return "float list"
+    if origin is tuple and args and args[0] is str:
+        return "text list"
     raise TypeError(f"unsupported settings field type {annotation!r}")
 
 
@@ -173,6 +175,16 @@ def _check_value(path: str, kind: str, value: Any, meta: Mapping[str, Any], orig
         if len(set(out)) != len(out):
             raise wrong("repeats a value", "give each value once")
         return out
+    if kind == "text list":
+        allowed = f"words from: {', '.join(choices)}" if choices else "words"
+        if isinstance(value, (str, bytes)) or not isinstance(value, (list, tuple)):
+            raise wrong("is not a list of words", f"give a list such as [\"{(choices or ('word',))[0]}\"], {allowed}")
+        unknown = [x for x in value if not isinstance(x, str) or (choices is not None and x not in choices)]
+        if unknown:
+            raise wrong(f"holds {unknown[0]!r}, which is not known", f"use {allowed}")
+        if len(set(value)) != len(value):
+            raise wrong("repeats a word", "give each word once")
+        return tuple(value)
     raise TypeError(kind)
 
 

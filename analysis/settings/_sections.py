@@ -9,6 +9,7 @@ re-exports them.
 from dataclasses import dataclass
 from typing import ClassVar
 
+from analysis.columns import FLAG_VOCABULARY
 from analysis.settings._fields import Section, setting
 
 __all__ = [
@@ -26,6 +27,8 @@ __all__ = [
 
 _LJP_SOURCE = "Barry & Lynch 1991, J Membr Biol 121:101; Neher 1992, Methods Enzymol 207:123"
 _NO_SOURCE = "common practice, no source"
+#: The flags that hold a beat for review by default: those that say a value may be wrong.
+REVIEW_FLAGS = ("clipped", "noisy", "mdp_drift", "low_apa", "artefact")
 
 
 @dataclass(frozen=True)
@@ -372,6 +375,11 @@ class QualitySettings(Section):
     reject_ead: bool = setting(False, source=_EVENTS_SOURCE, doc="reject beats with an EAD automatically")
     reject_dad: bool = setting(False, source=_EVENTS_SOURCE, doc="reject beats followed by a DAD automatically")
     reject_pause: bool = setting(False, source=_EVENTS_SOURCE, doc="reject beats that end a pause automatically")
+    review_flags: tuple[str, ...] = setting(
+        REVIEW_FLAGS, choices=FLAG_VOCABULARY, source=_NO_SOURCE,
+        doc="flags that hold a beat out of the summaries until the user accepts or rejects it "
+        "(artefact-type flags: the values may be wrong; EAD, DAD and pause are physiology and keep the beat in)",
+    )
 
 
 _CELL_TYPE_SOURCE = (
@@ -385,6 +393,8 @@ class SummarySettings(Section):
     """How summaries group beats and find the steady state (see analysis.stats._summary)."""
 
     key: ClassVar[str] = "summary"
+    # A cell cannot be both: the ventricular-like ratios end below where the atrial-like begin.
+    order: ClassVar[tuple[tuple[str, str, str], ...]] = (("ventricular_max_ratio", "<", "atrial_min_ratio"),)
 
     sweep_groups: str = setting(
         "all", choices=("all", "each"), source=_NO_SOURCE,

@@ -3,7 +3,7 @@
 import os
 import tomllib
 
-from analysis.errors import SettingsError
+from analysis.errors import SettingsError, missing
 from analysis.settings._settings import SCHEMA_VERSION, Settings
 
 __all__ = ["load_settings", "save_settings"]
@@ -22,10 +22,13 @@ def load_settings(path: str | os.PathLike) -> Settings:
         with open(p, "rb") as fh:
             data = tomllib.load(fh)
     except FileNotFoundError:
-        raise SettingsError(p, "the settings file does not exist", "check the path") from None
+        problem, fix = missing(p, "settings file")
+        raise SettingsError(p, problem.replace("no such settings file", "the settings file does not exist"), fix) from None
     except IsADirectoryError:
         raise SettingsError(p, "is a folder, not a settings file", "give a .toml file") from None
     except OSError as exc:
+        if os.path.islink(p):  # a loop of links (ELOOP)
+            raise SettingsError(p, *missing(p, "settings file")) from None
         raise SettingsError(p, f"cannot read the settings file ({exc.strerror})", "check its permissions") from None
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise SettingsError(p, f"is not valid TOML ({exc})", "fix the line named or save the settings again") from None

@@ -6,16 +6,27 @@ for beats outside every condition). It uses only *eligible* beats: accepted (aft
 rules and review) and not flagged ``no_diastole`` or ``truncated``; of those, only the ones in the
 condition's steady-state window (:class:`analysis.conditions.SteadyState`).
 
+The window
+----------
+One concept, named ``window`` everywhere in a summary: the stretch of the condition its means are
+taken over, chosen by the condition's steady-state rule (``window`` holds the rule;
+``window_start_s`` and ``window_end_s`` its start and end, seconds from the start of the
+recording). The
+automatic rule's proposal is ``suggested_window_*``.
+
 What a summary holds
 --------------------
-* ``n_beats`` (every row of the group and condition), ``n_rejected``, ``n_accepted`` (eligible
-  beats in the window);
+* the counts: ``n_beats`` (every beat of the group and condition, whatever its status),
+  ``n_in_window`` (those whose upstroke lies in the window), ``n_used`` (the beats the means are
+  taken over: accepted, in the window, not ``no_diastole`` or ``truncated``), ``n_rejected`` and
+  ``n_to_review`` (beats of the condition rejected, and held for review by a flag of
+  ``quality.review_flags``: :func:`analysis.decisions.beat_status`);
 * mean and sample SD of every per-beat parameter;
 * cycle-length variability (CV, RMSSD, Poincare SD1/SD2; SDNN is the CL SD) and the short-term
   variability of APD90, with the mean rate beside them (:mod:`analysis.stats._variability`);
 * the DDR-CL relation across beats: least-squares slope of CL on DDR and Pearson's r;
 * the cell-type hint and the rule that gave it;
-* the steady-state suggestion (:func:`suggest_steady_state`);
+* the suggested window (:func:`suggest_steady_state`);
 * the ensemble-averaged beat (:mod:`analysis.stats._ensemble`) and its own parameters.
 
 The summary CSV's columns are :data:`SUMMARY_COLUMNS`, described in ``docs/results-format.md``.
@@ -33,6 +44,7 @@ import numpy as np
 
 from analysis.columns import summarised_columns
 from analysis.conditions import Condition, SteadyState
+from analysis.decisions import REJECTED, TO_REVIEW
 from analysis.stats._ensemble import Ensemble, ensemble_average
 from analysis.table import BeatTable, format_value
 from analysis.stats._variability import CellTypeRule, cell_type_hint, coefficient_of_variation_pct, linear_relation, poincare_sd1_sd2, rmssd, stv
@@ -57,11 +69,13 @@ _EXCLUDED_FLAGS = ("no_diastole", "truncated")
 #: The summary CSV's columns, in order, with their decimals (None: text or integers).
 _COLUMN_SPECS: tuple[tuple[str, int | None], ...] = (
     ("file", None), ("sweep_group", None), ("condition", None), ("window", None),
-    ("window_start_s", 3), ("window_end_s", 3), ("n_beats", None), ("n_rejected", None), ("n_accepted", None),
+    ("window_start_s", 3), ("window_end_s", 3),
+    ("n_beats", None), ("n_in_window", None), ("n_used", None), ("n_rejected", None), ("n_to_review", None),
     *[(f"{stem}_{stat}_{unit}", 3) for _, stem, unit in PARAMETERS for stat in ("mean", "sd")],
     ("cl_cv_pct", 3), ("cl_rmssd_ms", 3), ("cl_sd1_ms", 3), ("cl_sd2_ms", 3), ("apd90_stv_ms", 3),
     ("ddr_cl_slope_ms_per_mV_per_s", 4), ("ddr_cl_r", 4),
-    ("steady_start_s", 3), ("steady_end_s", 3), ("steady_note", None), ("cell_type_hint", None), ("cell_type_rule", None),
+    ("suggested_window_start_s", 3), ("suggested_window_end_s", 3), ("suggested_window_note", None),
+    ("cell_type_hint", None), ("cell_type_rule", None),
     ("ensemble_n", None),
     *[(f"ensemble_{col}", 3) for col, stem, _ in PARAMETERS if stem not in ("cl", "rate")],
     ("settings_hash", None),
@@ -268,7 +282,11 @@ def summarize(
     t_rec = starts[sweep] + np.asarray(beats["t_upstroke_s"], float)
     condition = np.asarray(beats["condition"], dtype=object)
     eligible = eligible_mask(beats)
-    rejected = np.asarray(beats["accepted"]) == 0
+    if "verdict" in beats:
+        verdict = np.asarray(beats["verdict"], dtype=object)
+        rejected, to_review = verdict == REJECTED, verdict == TO_REVIEW
+    else:  # a table without statuses: accepted or rejected
+        rejected, to_review = np.asarray(beats["accepted"]) == 0, np.zeros(n, bool)
     by_name = {c.name: c for c in conditions}
     names = [c.name for c in conditions if np.any(condition == c.name)]
     if np.any(condition == ""):
@@ -298,12 +316,15 @@ def summarize(
             mask, window, lo, hi = _select_window(t_rec[rows], steady, cond_end, suggestion)
             used = rows[mask]
             values = _values(beats, used, sweep)
+            with np.errstate(invalid="ignore"):
+                in_window = (t_rec[rows_all] >= lo - 1e-12) & (t_rec[rows_all] <= hi + 1e-12)
             values.update(
                 file=label, sweep_group=group, condition=name, window=window, window_start_s=lo,
-                window_end_s=hi, n_beats=int(rows_all.size), n_rejected=int(rejected[rows_all].sum()),
-                n_accepted=int(used.size), settings_hash=settings_hash,
-                steady_start_s=suggestion[0] if suggestion else math.nan,
-                steady_end_s=suggestion[1] if suggestion else math.nan, steady_note=note,
+                window_end_s=hi, n_beats=int(rows_all.size), n_in_window=int(in_window.sum()),
+                n_used=int(used.size), n_rejected=int(rejected[rows_all].sum()),
+                n_to_review=int(to_review[rows_all].sum()), settings_hash=settings_hash,
+                suggested_window_start_s=suggestion[0] if suggestion else math.nan,
+                suggested_window_end_s=suggestion[1] if suggestion else math.nan, suggested_window_note=note,
             )
             hint, why = cell_type_hint(
                 apd90_ms=values["apd90_mean_ms"], apd50_ms=values["apd50_mean_ms"],
@@ -329,7 +350,7 @@ def _one_hint_per_cell(rows: list[dict[str, object]]) -> None:
     """The cell-type hint of a recording, judged once: on its first condition (the baseline, in
     the conditions' order) with accepted beats, and shown on every row. A drug that slows the
     rate or changes the action potential does not change what cell it is recorded from."""
-    judged = next((r for r in rows if int(r.get("n_accepted", 0)) > 0), None)
+    judged = next((r for r in rows if int(r.get("n_used", r.get("n_accepted", 0)) or 0) > 0), None)
     if judged is None:
         return
     name = str(judged.get("condition", "")) or "all beats"

@@ -16,6 +16,7 @@ import tempfile
 import numpy as np
 
 from analysis.recording import Recording
+from analysis.results import output_mode
 
 __all__ = ["write_abf", "write_nwb"]
 
@@ -82,6 +83,7 @@ def write_abf(recording: Recording, path: str | os.PathLike, *, channel: int | s
             fh.write(header)
             fh.write(counts.tobytes())
             fh.write(b"\0" * padding)
+        os.chmod(tmp, output_mode(path))  # as any other output: the umask's permissions, not 0600
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
@@ -137,6 +139,7 @@ def write_nwb(
     try:
         with NWBHDF5IO(tmp, "w") as io:
             io.write(nwb)
+        os.chmod(tmp, output_mode(path))  # as any other output: the umask's permissions, not 0600
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):

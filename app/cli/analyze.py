@@ -27,7 +27,8 @@ from analysis.settings import Settings
 from .options import (
     add_results_arguments, parse_channel, parse_sweeps, parse_units, parse_workers, settings_from_args,
 )
-from .review_outputs import prepare, review, write_results, write_summary
+from .result_line import beat_counts, cl_and_rate_text, counts_text
+from .review_outputs import locked_out, prepare, review, write_results, write_summary
 
 __all__ = [
     "add_parser", "run", "analyse_files", "write_outputs", "summary_line", "OUTPUT_WRITERS",
@@ -75,13 +76,18 @@ def analyse_files(args: argparse.Namespace, settings: Settings, *, progress: Cal
     """
     from analysis import open_recording
     from analysis.chunkpool import default_workers
+    from analysis.conditions import check_conditions
     from analysis.pipeline import analyze
 
     units = dict(args.units) if getattr(args, "units", None) else None
     workers = getattr(args, "workers", None) or default_workers()
     results = []
+    conditions = list(getattr(args, "conditions", None) or [])
     for path in args.files:
         rec = open_recording(path, units=units)
+        if conditions:  # a condition outside this recording stops the command before any analysis
+            check_conditions(conditions, rec.sweep_starts_s,
+                             [n / rec.sampling_rate_hz for n in rec.sweep_lengths], where=path)
         with _progress_bar(path, stream if stream is not None else sys.stderr, progress) as tick:
             results.append(analyze(rec, settings, channel=args.channel, sweeps=args.sweeps, progress=tick,
                                    label=path, workers=workers))
@@ -169,31 +175,29 @@ def _mean(values: np.ndarray) -> float:
 
 
 def summary_line(result) -> str:
-    """``FILE: N beats (A accepted) in S sweeps; CL ... ms (... bpm), MDP ... mV, dV/dt max ... V/s``.
+    """``FILE: N beats (U used, R rejected, W waiting for review) in S sweeps; mean CL ... ms (... bpm), ...``.
 
-    Means are over accepted beats without ``no_diastole`` or ``truncated`` flags.
+    Means are over the beats the summaries use (accepted, not ``no_diastole`` or ``truncated``:
+    :func:`analysis.stats.eligible_mask`); the rate is 60000 / the mean CL printed beside it.
     """
+    from analysis.stats import eligible_mask
+
     b = result.beats
     n = len(b)
     label = b["file"][0] if n else (result.recording.source_path or "recording")
     if n == 0:
         return f"{label}: no beats found (channel {result.channel} {result.channel_name})"
-    accepted = np.asarray(b["accepted"]) == 1
-    clean = accepted & np.array(
-        [not ({"no_diastole", "truncated"} & set(str(f).split(";"))) for f in b["flags"]], dtype=bool,
-    )
+    clean = eligible_mask(b)
     n_sweeps = len(np.unique(b["sweep"]))
 
-    def fmt(name: str, digits: int = 1) -> str:
+    def said(name: str, digits: int = 1) -> str:
         m = _mean(b[name][clean])
-        return f"{m:.{digits}f} {column(name).unit}" if math.isfinite(m) else "n/a"
-
-    def said(name: str) -> str:
-        return f"{column(name).label} {fmt(name)}"
+        return f"{column(name).label} " + (f"{m:.{digits}f} {column(name).unit}" if math.isfinite(m) else "n/a")
 
     return (
-        f"{label}: {n} beats ({int(accepted.sum())} accepted) in {n_sweeps} sweep{'s' * (n_sweeps != 1)}; "
-        f"mean {said('cl_ms')} ({fmt('rate_bpm')}), {said('mdp_mV')}, {said('dvdt_max_V_per_s')}"
+        f"{label}: {counts_text(beat_counts(b))} in {n_sweeps} sweep{'s' * (n_sweeps != 1)}; "
+        f"mean {cl_and_rate_text(_mean(b['cl_ms'][clean]), column('cl_ms').label)}, {said('mdp_mV')}, "
+        f"{said('dvdt_max_V_per_s')}"
     )
 
 
@@ -215,7 +219,8 @@ def run(args: argparse.Namespace) -> int:
     settings = settings_from_args(args)
     saved = prepare(args)  # checks the outputs and reads an existing --out file before analysing
     results = analyse_files(args, settings)
-    results = review(args, results, settings, saved)  # --out, --summary-csv, --condition
-    written = write_outputs(args, results)
+    with locked_out(args, saved) as saved:  # one writer of the --out file at a time
+        results = review(args, results, settings, saved)  # --out, --summary-csv, --condition
+        written = write_outputs(args, results)
     report(results, written)
     return 0

@@ -17,8 +17,10 @@ from contextlib import contextmanager
 from typing import Iterator
 
 from .options import (
-    parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers, settings_from_args,
+    add_lock_wait_argument, lock_notice, parse_channel, parse_condition_arg, parse_sweeps, parse_units, parse_workers,
+    settings_from_args,
 )
+from .result_line import counts_text
 from .study_outputs import (
     add_layout_options, add_table_options, check_request, layout_from_args, report_layout, study_tables, tasks_conditions,
     with_study_columns,
@@ -71,6 +73,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParse
     where.add_argument("--scheduler", metavar="ADDRESS",
                         help="send the work to a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
                         '(needs pip install "upstroke[cluster]")')
+    add_lock_wait_argument(parser)
     add_layout_options(parser)
     add_table_options(parser, figures=False)
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -101,6 +104,7 @@ def run(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
     from analysis.batch import find_recordings, make_tasks, prepare_existing, run_batch, save_batch
+    from analysis.results import results_lock
 
     settings = settings_from_args(args)
     outputs = [p for p in (args.out, args.csv, args.summary_csv, args.study_csv, args.compare) if p]
@@ -125,16 +129,21 @@ def run(args: argparse.Namespace) -> int:
     with _sigterm_as_interrupt():
         with tqdm(total=len(tasks), unit="file", desc="upstroke batch", file=sys.stderr,
                   disable=args.quiet, dynamic_ncols=True) as bar:
+            found = [0]  # beats so far, counted as each file arrives
+
             def on_done(outcome, done, total):
-                bar.set_postfix_str(os.path.basename(outcome.path), refresh=False)
+                found[0] += len(next(iter(outcome.columns.values()), ()))
+                bar.set_postfix_str(f"{os.path.basename(outcome.path)}, {found[0]} beats", refresh=False)
                 bar.update(1)
 
             result = run_batch(tasks, workers=args.workers, scheduler=args.scheduler, on_done=on_done)
         saved = None
         if result.succeeded:
-            saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
-            if layout is not None:
-                _save_study(layout, args)
+            # One writer of the results file at a time: save_batch reads it again under the lock.
+            with results_lock(args.out, wait_s=args.lock_wait, notify=lock_notice("batch")):
+                saved = save_batch(result, out=args.out, csv=args.csv, summary_csv=args.summary_csv, settings=settings)
+                if layout is not None:
+                    _save_study(layout, args)
     if layout is not None:
         report_layout(layout)
     return _report(result, saved)
@@ -184,8 +193,10 @@ def _report(result, saved) -> int:
         print(f"upstroke batch: {len(warnings) - MAX_WARNINGS_SHOWN} more warning(s) are stored with the results",
               file=sys.stderr)
     if saved is not None:
-        print(f"{n_ok} of {n_all} recording(s) analysed on {result.where}: {saved.n_beats} beats "
-              f"({saved.n_accepted} accepted) saved to {saved.out}"
+        counts = {"beats": saved.n_beats, "used": saved.n_accepted, "rejected": saved.n_rejected,
+                  "to_review": saved.n_to_review}
+        print(f"{n_ok} of {n_all} recording(s) analysed on {result.where}: {counts_text(counts)} "
+              f"saved to {saved.out}"
               + "".join(f", {p}" for p in saved.extra), file=sys.stdout)
     failed = result.failed
     if failed:

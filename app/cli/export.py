@@ -28,6 +28,7 @@ import numpy as np
 
 from analysis.errors import InputError
 
+from .result_line import beat_counts, counts_text
 from .study_outputs import add_table_options, check_request, comparison_figures, study_tables, with_study_columns
 
 __all__ = ["add_parser", "run", "figure_name", "beats_csv", "summary_text"]
@@ -106,13 +107,11 @@ def _describe(session, results: str, layout=None) -> list[str]:
         lines.append(f"  study: {layout.describe()}")
     for key in session.recordings:
         b = session.beats(key)
-        n = len(b)
-        acc = int((np.asarray(b["accepted"]) == 1).sum()) if n else 0
-        reviewed = int(np.asarray(b["reviewed"]).sum()) if n else 0
+        reviewed = int(np.asarray(b["reviewed"]).sum()) if len(b) else 0
         conds = ", ".join(c.name for c in session.conditions(key)) or "none"
         lines.append(
-            f"  {session.label(key)}: {n} beats ({acc} accepted, {reviewed} reviewed), conditions: {conds}, "
-            f"settings {session.settings(key).short_hash()}"
+            f"  {session.label(key)}: {counts_text(beat_counts(b))}, {reviewed} decided in review, "
+            f"conditions: {conds}, settings {session.settings(key).short_hash()}"
         )
     return lines
 

@@ -11,34 +11,22 @@ import argparse
 from analysis.settings import Settings
 
 __all__ = [
-    "add_results_arguments", "parse_channel", "parse_condition_arg", "parse_sweeps", "parse_units",
-    "parse_workers", "settings_from_args",
+    "add_lock_wait_argument", "add_results_arguments", "lock_notice", "parse_channel", "parse_condition_arg",
+    "parse_lock_wait", "parse_sweeps", "parse_units", "parse_workers", "settings_from_args",
 ]
 
 
-def parse_sweeps(text: str) -> list[int]:
-    """``"0-3,5"`` -> ``[0, 1, 2, 3, 5]`` (argparse type: bad text is a command-line error)."""
-    out: list[int] = []
+def parse_sweeps(text: str):
+    """``"0-3,5"`` -> an :class:`analysis.sweeps.SweepSelection` (argparse type: bad text is a
+    command-line error). The ranges stay ranges: each recording checks them against its own
+    sweep count before any list of sweeps is made."""
+    from analysis.sweeps import SweepSelection
+
     try:
-        for part in text.split(","):
-            part = part.strip()
-            if not part:
-                continue
-            if "-" in part:
-                a, b = (int(x) for x in part.split("-", 1))
-                if b < a or a < 0:
-                    raise ValueError
-                out.extend(range(a, b + 1))
-            else:
-                i = int(part)
-                if i < 0:
-                    raise ValueError
-                out.append(i)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"--sweeps {text!r} is not a list such as 0-3,5") from None
-    if not out:
-        raise argparse.ArgumentTypeError("--sweeps is empty; give a list such as 0-3,5")
-    return sorted(set(out))
+        return SweepSelection.parse(text)
+    except ValueError as exc:
+        shown = text if len(text) <= 60 else text[:57] + "..."
+        raise argparse.ArgumentTypeError(f"--sweeps {shown!r} is not a list such as 0-3,5 ({exc})") from None
 
 
 def parse_units(text: str) -> tuple[int | str, str]:
@@ -76,16 +64,47 @@ def parse_condition_arg(text: str):
         raise argparse.ArgumentTypeError(exc.one_line()) from None
 
 
+def parse_lock_wait(text: str) -> float:
+    """``"60"`` -> ``60.0`` seconds (argparse type: a finite number, at least 0)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--lock-wait {text!r} is not a number of seconds") from None
+    if not (value >= 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError(f"--lock-wait {text!r} is not 0 or more seconds")
+    return value
+
+
+def add_lock_wait_argument(parser: argparse.ArgumentParser) -> None:
+    """Add ``--lock-wait SECONDS``: how long to wait while another process writes the results file."""
+    from analysis.results import DEFAULT_WAIT_S
+
+    parser.add_argument("--lock-wait", dest="lock_wait", type=parse_lock_wait, default=DEFAULT_WAIT_S, metavar="SECONDS",
+                        help="when another upstroke process is writing the same results file, wait this long "
+                        f"for it to finish, then give up (default: {DEFAULT_WAIT_S:g})")
+
+
+def lock_notice(command: str):
+    """What a command says, once, when it starts waiting for another writer of its results file."""
+    import sys
+
+    def notify(text: str) -> None:
+        print(f"upstroke {command}: {text}", file=sys.stderr, flush=True)
+
+    return notify
+
+
 def add_results_arguments(parser: argparse.ArgumentParser) -> None:
-    """Add ``--out``, ``--summary-csv`` and ``--condition`` to a command's parser."""
+    """Add ``--out``, ``--summary-csv``, ``--condition`` and ``--lock-wait`` to a command's parser."""
     parser.add_argument("--out", metavar="RESULTS.h5",
                         help="write (or add to) a results file: settings, beats, decisions, conditions, summaries")
     parser.add_argument("--summary-csv", dest="summary_csv", metavar="SUMMARY.csv",
                         help="write the summaries (one row per file x sweep group x condition)")
     parser.add_argument("--condition", dest="conditions", type=parse_condition_arg, action="append", default=[],
                         metavar="NAME=START-END[,steady=RULE]",
-                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180-end, "
+                        help="name a stretch of every file: baseline=0-60s, drug=60-180s, washout=180s-end, "
                         "or sweeps:0-3; steady=auto|all|last30s|last20beats picks its summary window (repeatable)")
+    add_lock_wait_argument(parser)
 
 
 def settings_from_args(args: argparse.Namespace) -> Settings:

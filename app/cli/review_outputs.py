@@ -12,8 +12,9 @@ Conditions on the command line
 ------------------------------
 ``--condition NAME=START-END[,steady=RULE]``, repeatable, applies to every file given:
 
-* ``--condition baseline=0-60s --condition drug=60-180s --condition washout=180-end``
-  (seconds from the start of the recording; ``s`` is optional, ``min`` works too: ``1min-3min``);
+* ``--condition baseline=0-60s --condition drug=60-180s --condition washout=180s-end``
+  (seconds from the start of the recording; every range needs a unit, ``s`` or ``min``:
+  ``1min-3min``; ``0-60`` without one is refused);
 * ``--condition drug=sweeps:4-7`` (inclusive sweep numbers, for episodic files);
 * ``,steady=RULE`` chooses the condition's steady-state window for its summary: ``auto`` (the
   suggested steady state, the default), ``all``, ``last30s``, ``last2min`` or ``last20beats``.
@@ -22,12 +23,13 @@ Conditions on the command line
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
-from typing import Sequence
+from typing import Iterator, Sequence
 
 from analysis.errors import InputError
 
-__all__ = ["Reviewed", "prepare", "review", "write_results", "write_summary"]
+__all__ = ["Reviewed", "locked_out", "prepare", "review", "write_results", "write_summary"]
 
 
 class Reviewed(list):
@@ -67,8 +69,44 @@ def prepare(args: argparse.Namespace):
     if out and os.path.exists(out):
         from analysis.session import Session
 
+        args.out_seen = _signature(out)
         return Session.open(out)  # a damaged or foreign file stops here: it is never replaced
     return None
+
+
+def _signature(path: str) -> tuple[int, int, int] | None:
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return (st.st_ino, st.st_size, st.st_mtime_ns)
+
+
+@contextlib.contextmanager
+def locked_out(args: argparse.Namespace, saved=None) -> Iterator:
+    """Hold the ``--out`` file's write lock while the session is completed and written.
+
+    Yields the saved session to add to: the one :func:`prepare` read, or the file read again
+    when another writer replaced it in the meantime (so that what it added is kept). Without
+    ``--out`` nothing is locked.
+    """
+    out = getattr(args, "out", None)
+    if not out:
+        yield saved
+        return
+    from analysis.results import results_lock
+
+    from .options import lock_notice
+
+    with results_lock(out, wait_s=getattr(args, "lock_wait", None), notify=lock_notice(args.command)):
+        if not os.path.exists(out):
+            yield None if getattr(args, "out_seen", None) else saved
+            return
+        if saved is None or _signature(out) != getattr(args, "out_seen", None):
+            from analysis.session import Session
+
+            saved = Session.open(out)
+        yield saved
 
 
 def review(args: argparse.Namespace, results: Sequence, settings, saved=None) -> Sequence:

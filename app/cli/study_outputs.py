@@ -92,7 +92,7 @@ def tasks_conditions(layout, paths: list[str]) -> tuple[list[str], dict[str, tup
         path = found.get(os.path.normcase(full), full)
         chosen.append(path)
         if not re.search(r"[=,]", entry.condition):  # names with these cannot name a stretch
-            conditions[path] = (f"{entry.condition}=0-end",)
+            conditions[path] = (f"{entry.condition}=0s-end",)
     return chosen, conditions
 
 

@@ -41,6 +41,8 @@ REJECTED_LABEL = "#9b2c2c"
 FLAG_BAND = (224, 159, 31, 34)
 FLAG_LABEL = "#8a5a00"
 QUIET_FLAGS = ("no_diastole", "truncated")
+#: Beats waiting for a look (a flag that holds them out of the summaries until reviewed).
+REVIEW_BAND = (230, 126, 20, 38)
 
 #: The beat under review.
 CURRENT_BAND = (29, 53, 87, 28)
@@ -55,8 +57,8 @@ PHASES = {
     3: (96, 170, 110, 40),
 }
 
-#: Two cursors: (colour, label).
-CURSORS = (("#c2410c", "C1"), ("#0369a1", "C2"))
+#: The two gates that bound a stretch of trace to read out: (colour, tag drawn on the line).
+CURSORS = (("#8e3b8a", "◧ from"), ("#3f7d20", "to ◨"))
 
 #: Conditions (bands on the overview and the time courses, points in the DDR plot), in order.
 CONDITIONS = ("#3a86ff", "#ef476f", "#06a77d", "#8338ec", "#fb8500", "#118ab2", "#8d6e63")

@@ -19,7 +19,7 @@ from analysis.beats._features import apd_features
 from analysis.columns import CATALOGUE, column, csv_columns, summarised_columns
 from analysis.settings import MeasurementSettings, Settings
 from analysis.stats import PARAMETERS, SUMMARY_COLUMNS, summarize
-from analysis.table import COLUMNS, CSV_COLUMNS, BeatTable
+from analysis.table import COLUMNS, CSV_COLUMNS, REVIEW_CSV_COLUMNS, BeatTable
 
 CONTRACT = Path(__file__).resolve().parents[3] / "shared" / "CONTRACT.md"
 #: The beats CSV header as CONTRACT.md ("Beats CSV") states it; used when the contract file is not
@@ -45,8 +45,18 @@ def test_the_csv_header_is_the_contracts():
     assert list(CSV_COLUMNS) == header
     assert [c.name for c in csv_columns()] == header
     assert COLUMNS == csv_columns()  # the beat table declares the catalogue's CSV columns
-    # The CSV writer writes exactly that header.
-    assert next(csv.reader(io.StringIO(BeatTable.empty().to_csv()))) == header
+    # The CSV writer writes exactly that header, then the review's columns (CONTRACT.md: the verdict,
+    # the reason of a rejection, who decided, a stable recording identifier; names documented in
+    # docs/measurements.md and kept stable).
+    assert list(REVIEW_CSV_COLUMNS) == ["verdict", "reject_reason", "decided_by", "recording_id"]
+    assert next(csv.reader(io.StringIO(BeatTable.empty().to_csv()))) == header + list(REVIEW_CSV_COLUMNS)
+
+
+def test_the_review_columns_are_documented_with_the_beats_csv():
+    page = (Path(__file__).resolve().parents[2] / "docs" / "measurements.md").read_text(encoding="utf-8")
+    section = page.split("## The beats CSV's columns", 1)[1].split("\n## ", 1)[0]
+    rows = [line.split("|")[1].strip().strip("`") for line in section.splitlines() if line.startswith("| `")]
+    assert rows == [*CSV_COLUMNS, *REVIEW_CSV_COLUMNS]  # every column, in the CSV's order
 
 
 def test_every_measured_column_has_exactly_one_compute_function_and_every_function_a_column():
@@ -107,7 +117,8 @@ def test_names_units_and_labels_hang_together():
 
 def test_csv_decimals_are_the_catalogues():
     # CONTRACT.md: an undefined value is an empty cell; decimals as the catalogue declares them.
-    row = {c.name: [1.23456789 if c.dtype == "float" else (1 if c.dtype == "int" else "x")] for c in csv_columns()}
+    row = {c.name: [1.23456789 if c.dtype == "float" else (1 if c.dtype == "int" else "x")]
+           for c in (*csv_columns(), *columns.review_csv_columns())}
     row["cl_ms"] = [math.nan]
     line = BeatTable(row).to_csv().splitlines()[1].split(",")
     for c, cell in zip(csv_columns(), line):

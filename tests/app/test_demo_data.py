@@ -18,7 +18,7 @@ def test_scenario_conditions_cover_three_minutes_without_overlap():
 
 
 def test_conditions_file_beside_the_samples_wins(tmp_path):
-    (tmp_path / "conditions.txt").write_text("# the scenario\nbefore=0-30s\nafter=30-end\n")
+    (tmp_path / "conditions.txt").write_text("# the scenario\nbefore=0-30s\nafter=30s-end\n")
     assert [c.name for c in demo_data.demo_conditions(tmp_path)] == ["before", "after"]
 
 

@@ -62,6 +62,10 @@ class Case:
         One of :data:`FAULTS`.
     huge : bool
         The file declares an enormous size: the command's peak memory is checked.
+    tags : tuple of str
+        ``"subprocess"``: the command runs in a process of its own.
+    env : tuple of (name, value)
+        Environment variables set for that process (with the ``subprocess`` tag).
     """
 
     name: str
@@ -75,6 +79,7 @@ class Case:
     fault: str = ""
     huge: bool = False
     tags: tuple[str, ...] = field(default=())
+    env: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self) -> None:
         if self.fault not in FAULTS:

@@ -103,8 +103,33 @@ def build(folder: Path) -> list[Case]:
     for name, edit, expect, why, huge in edits:
         path = _variant(seed, folder / f"{name}.nwb", edit)
         cases.append(Case(name, (path,), ("info", str(path)), path, expect, why, huge=huge))
-    cases += _damaged_bytes(seed, folder) + _foreign(folder) + _samples(seed, folder)
+    cases += _damaged_bytes(seed, folder) + _foreign(folder) + _samples(seed, folder) + _found_by_fuzzing(seed, folder)
     return cases
+
+
+def _found_by_fuzzing(seed: Path, folder: Path) -> list[Case]:
+    """Damage that reached the samples' reading as a bare h5py error (bench/fuzz_readers.py)."""
+    data = bytearray(seed.read_bytes())
+    # Four bytes of the local heap of the series' group overwritten (offsets in the seed as
+    # pynwb writes it): h5py's KeyError "bad heap free list" once the data is looked up.
+    for at, value in ((1057, 115), (1058, 151), (1059, 28), (2432, 100)):
+        data[at] = value
+    path = folder / "nwb-heap-free-list-damaged.nwb"
+    path.write_bytes(bytes(data))
+    outputs = (folder / "nwb-heap-free-list-damaged.h5", folder / "nwb-heap-free-list-damaged.csv")
+    argv = ("analyze", str(path), "--out", str(outputs[0]), "--csv", str(outputs[1]))
+    why = "a damaged heap in the series' group, met when the samples are read"
+    # pynwb makes its cache folder when it is imported; here that folder cannot be made (its
+    # parent is a file), and the damaged file must still be refused in one line.
+    blocker = folder / "cache-parent-is-a-file"
+    blocker.write_text("not a folder\n", encoding="utf-8")
+    return [
+        Case("nwb-heap-free-list-damaged", (path,), argv, path, r"samples of series .* cannot be read", why,
+             outputs=outputs),
+        Case("nwb-cache-folder-cannot-be-made", (path,), ("info", str(path)), path,
+             r"samples of series .* cannot be read", why + ", with pynwb's cache folder impossible to make",
+             tags=("subprocess",), env=(("XDG_CACHE_HOME", str(blocker / "cache")),)),
+    ]
 
 
 def _samples(seed: Path, folder: Path) -> list[Case]:

@@ -18,6 +18,18 @@ def build(folder: Path) -> list[Case]:
     missing = folder / "not-there.abf"
     cases.append(Case("path-missing", (), ("info", str(missing)), missing, r"no such file",
                       "a path where no file is"))
+    loop_a, loop_b = folder / "loop-a.abf", folder / "loop-b.abf"
+    for link, target in ((loop_a, loop_b.name), (loop_b, loop_a.name)):
+        if not link.is_symlink():
+            link.symlink_to(target)
+    cases.append(Case("path-symlink-loop", (), ("info", str(loop_a)), loop_a, r"loop of symbolic links",
+                      "two symbolic links pointing at each other (ELOOP, not a missing file)"))
+    dangling = folder / "dangling.abf"
+    if not dangling.is_symlink():
+        dangling.symlink_to("moved-away.abf")
+    cases.append(Case("path-dangling-symlink", (), ("analyze", str(dangling)), dangling,
+                      r"symbolic link to 'moved-away\.abf', which does not exist",
+                      "a symbolic link whose recording was moved"))
     empty = folder / "empty.abf"
     empty.write_bytes(b"")
     cases.append(Case("path-empty-file", (empty,), ("info", str(empty)), empty, r"empty",

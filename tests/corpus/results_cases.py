@@ -2,8 +2,8 @@
 
 Seed: a results file written by ``upstroke analyze --out`` for a synthetic cell. Each case
 rewrites one part with h5py at the place ``docs/results-format.md`` documents (root attributes
-``format`` and ``schema_version``; ``/recordings/NNNNNN/`` with ``beats/``, ``decisions/``,
-``settings``), or cuts the file.
+``format`` and ``schema_version``; the tables ``/index``, ``/beats``, ``/decisions``,
+``/settings``, ``/summary``, ``/warnings``), or cuts the file.
 """
 
 from __future__ import annotations
@@ -19,7 +19,7 @@ import numpy as np
 from .make_corpus import Case
 from .settings_cases import good_recording
 
-REC = "recordings/000000"
+BEATS = "beats"
 _DAMAGED = r"damaged|corrupt|cannot be read|not a readable|truncated"
 
 
@@ -46,8 +46,8 @@ def _variant(seed: Path, dest: Path, edit: Callable) -> Path:
 
 
 def _first_beats_column(f) -> str:
-    return str(f[REC + "/beats"].attrs["columns"][0].decode() if isinstance(f[REC + "/beats"].attrs["columns"][0], bytes)
-               else f[REC + "/beats"].attrs["columns"][0])
+    first = f[BEATS].attrs["columns"][0]
+    return str(first.decode() if isinstance(first, bytes) else first)
 
 
 def _replace_first(f, table: str, data) -> None:
@@ -74,8 +74,8 @@ def _replace_first_numeric(f, table: str, data) -> None:
 
 def _replace_column(f, data=None, **create) -> None:
     name = _first_beats_column(f)
-    del f[f"{REC}/beats/{name}"]
-    f[REC + "/beats"].create_dataset(name, data=data, **create)
+    del f[f"{BEATS}/{name}"]
+    f[BEATS].create_dataset(name, data=data, **create)
 
 
 def _set_text(path: str, value: str, *, lines: bool = False) -> Callable:
@@ -92,6 +92,13 @@ def _set_text(path: str, value: str, *, lines: bool = False) -> Callable:
     return edit
 
 
+def _long_warning(f) -> None:
+    """The first recording's one warning: 5 million characters (the index counts it)."""
+    _set_text("warnings/text", "W" * 5_000_000, lines=True)(f)
+    f["index/warnings_start"][0] = 0
+    f["index/warnings_count"][0] = 1
+
+
 def build(folder: Path) -> list[Case]:
     """The results-file cases, written into ``folder``."""
     import h5py
@@ -106,36 +113,36 @@ def build(folder: Path) -> list[Case]:
          r"unknown results schema", "schema version 0", False),
         ("results-no-format", lambda f: f.attrs.__delitem__("format"), r"not an Upstroke results file",
          "the format attribute removed", False),
-        ("results-no-beats", lambda f: f.__delitem__(REC + "/beats"), _DAMAGED, "a recording's beats group removed", False),
-        ("results-no-column", lambda f: f.__delitem__(f"{REC}/beats/{_first_beats_column(f)}"), _DAMAGED,
+        ("results-no-beats", lambda f: f.__delitem__(BEATS), _DAMAGED, "the beats table removed", False),
+        ("results-no-column", lambda f: f.__delitem__(f"{BEATS}/{_first_beats_column(f)}"), _DAMAGED,
          "one beats column removed", False),
-        ("results-no-decisions", lambda f: f.__delitem__(REC + "/decisions"), _DAMAGED,
+        ("results-no-decisions", lambda f: f.__delitem__("decisions"), _DAMAGED,
          "the decision log removed", False),
-        ("results-junk-group-name", lambda f: f.move(REC, "recordings/abc"), _DAMAGED,
-         "a recording group named 'abc', not a number", False),
-        ("results-recordings-not-a-group",
-         lambda f: (f.__delitem__("recordings"), f.create_dataset("recordings", data=np.zeros(3))), _DAMAGED,
-         "/recordings is a dataset", False),
-        ("results-settings-not-json", _set_text(REC + "/settings", "{not json"), r"settings.*cannot be read|not JSON|damaged",
+        ("results-index-out-of-range", lambda f: f["index/beats_count"].__setitem__(0, 10**9), _DAMAGED,
+         "the index gives a recording more beats than the table holds", False),
+        ("results-index-not-a-group",
+         lambda f: (f.__delitem__("index"), f.create_dataset("index", data=np.zeros(3))), _DAMAGED,
+         "/index is a dataset", False),
+        ("results-settings-not-json", _set_text("settings/json", "{not json", lines=True), r"settings.*cannot be read|not JSON|damaged",
          "a recording's settings JSON broken", False),
-        ("results-settings-out-of-range", _set_text(REC + "/settings", '{"schema_version": 1, "detection": {"smoothing_ms": -5}}'),
+        ("results-settings-out-of-range", _set_text("settings/json", '{"schema_version": 1, "detection": {"smoothing_ms": -5}}', lines=True),
          r"settings.*cannot be read|out of range|damaged", "a recording's settings out of range", False),
         ("results-opaque-column", lambda f: _replace_column(f, np.zeros(3, dtype="V8")), _DAMAGED,
          "a beats column of opaque bytes", False),
         ("results-column-length", lambda f: _replace_column(f, np.zeros(7)), _DAMAGED + r"|length",
          "a beats column longer than the others", False),
-        ("results-summary-column-length", lambda f: _replace_first(f, REC + "/summary", np.zeros(0)), _DAMAGED,
+        ("results-summary-column-length", lambda f: _replace_first(f, "summary", np.zeros(0)), _DAMAGED,
          "one summary column emptied (found by the hypothesis fuzzer: it crashed the session)", False),
         # Found by the hypothesis fuzzer: text in a numeric summary column escaped as ValueError.
-        ("results-summary-text", lambda f: _replace_first_numeric(f, REC + "/summary", np.array(["é" * 50], dtype=object)),
+        ("results-summary-text", lambda f: _replace_first_numeric(f, "summary", np.array(["é" * 50], dtype=object)),
          _DAMAGED, "a numeric summary column holding text", False),
-        ("results-beats-column-2d", lambda f: _replace_first(f, REC + "/beats", np.zeros((3, 2))), _DAMAGED,
+        ("results-beats-column-2d", lambda f: _replace_first(f, BEATS, np.zeros((3, 2))), _DAMAGED,
          "a beats column stored as a 3 x 2 table", False),
         ("results-huge-unstored-column", lambda f: _replace_column(f, None, shape=(10**12,), dtype="f8", chunks=(4096,)),
          r"declares|stores|holds|damaged", "a beats column declaring 10^12 rows, none stored", True),
-        ("results-long-settings-text", _set_text(REC + "/settings", "S" * 5_000_000), r"too long|characters",
+        ("results-long-settings-text", _set_text("settings/json", "S" * 5_000_000, lines=True), r"too long|characters",
          "a settings text of 5 million characters", False),
-        ("results-long-warning", _set_text(REC + "/warnings", "W" * 5_000_000, lines=True), r"too long|characters",
+        ("results-long-warning", _long_warning, r"too long|characters",
          "a warning of 5 million characters", False),
     ]
     cases = []

@@ -28,6 +28,25 @@ def good_recording(folder: Path) -> Path:
 RECORDING_DEPENDENT = ("settings-lowpass-above-nyquist",)
 
 
+def _sweep_ranges(folder: Path, rec: Path) -> list[Case]:
+    """``--sweeps`` ranges far beyond the recording's one sweep: refused before any list is made."""
+    cases = []
+    # (A batch reports the same line for each file, in its list of failed files.)
+    for name, text, command in [
+        ("sweeps-range-of-10-to-the-12", "0-999999999999", "analyze"),
+        ("sweeps-range-of-50-million", "0-50000000", "analyze"),
+    ]:
+        out_h5, out_csv = folder / f"{name}.out.h5", folder / f"{name}.out.csv"
+        argv = (command, str(rec), "--sweeps", text, "--out", str(out_h5), "--csv", str(out_csv))
+        first = text.split("-")[0]
+        cases.append(Case(
+            name, (rec,), argv, rec, rf"has 1 sweep \(0 to 0\) but --sweeps {text} asks for sweep {max(1, int(first))}",
+            f"--sweeps {text} on a recording of one sweep (a list of them would take "
+            f"{(int(text.split('-')[1]) + 1) * 28 / 2**30:.0f} GiB)", outputs=(out_h5, out_csv), huge=True,
+        ))
+    return cases
+
+
 def build(folder: Path) -> list[Case]:
     """The settings cases, written into ``folder``."""
     rec = good_recording(folder)
@@ -71,6 +90,9 @@ def build(folder: Path) -> list[Case]:
         ("settings-windows-crossed", "[measurement]\ndvdt_max_min_window_ms = 20.0\ndvdt_max_max_window_ms = 0.05\n",
          r"dvdt_max_min_window_ms.*dvdt_max_max_window_ms|dvdt_max_max_window_ms.*dvdt_max_min_window_ms",
          "the shortest dV/dt window longer than the longest"),
+        ("settings-cell-type-ratios-crossed", "[summary]\nventricular_max_ratio = 2.0\natrial_min_ratio = 1.5\n",
+         r"ventricular_max_ratio = 2 is not below summary\.atrial_min_ratio = 1\.5",
+         "APD90/APD50 ratios that would call a cell both ventricular-like and atrial-like"),
         ("settings-lowpass-above-nyquist", "[preprocess]\nlowpass_hz = 8000.0\n", r"lowpass_hz.*half the sampling rate",
          "a low-pass corner above the 5 kHz Nyquist frequency of a 10 kHz recording"),
     ]
@@ -86,6 +108,7 @@ def build(folder: Path) -> list[Case]:
         # A setting that only this recording cannot take is blamed on the recording.
         blame = rec if name in RECORDING_DEPENDENT else path
         cases.append(Case(name, (path, rec), argv, blame, expect, why, outputs=(out_h5, out_csv)))
+    cases += _sweep_ranges(folder, rec)
     sub = folder / "settings-folder.toml"
     sub.mkdir(exist_ok=True)
     missing = folder / "no-such-settings.toml"

@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
 )
 
 from analysis.batch import BatchCancelled, find_recordings, make_tasks, prepare_existing, run_batch, save_batch
+from analysis.results import results_lock
 from analysis.errors import InputError
 
 __all__ = ["BatchDialog", "BatchWorker", "add_batch_action", "batch_analyse_folder"]
@@ -73,7 +74,8 @@ class BatchWorker(QObject):
             result = run_batch(tasks, workers=self.workers, cancel=self.cancel_flag, on_done=self._on_done)
             if self.cancel_flag.is_set():
                 raise BatchCancelled(len(result.outcomes), len(tasks))
-            saved = save_batch(result, out=self.out_path, settings=self.settings)
+            with results_lock(self.out_path):  # one writer at a time: save_batch reads the file again
+                saved = save_batch(result, out=self.out_path, settings=self.settings)
         except BatchCancelled:
             self.cancelled.emit()
         except InputError as exc:

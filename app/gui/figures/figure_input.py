@@ -78,7 +78,7 @@ def summary_beat_rows(beats: BeatTable, summaries, sweep_starts_s) -> dict[str, 
         v = s.values
         name = str(v["condition"])
         rows = np.asarray(s.beat_rows, dtype=np.int64)
-        if not rows.size and int(v["n_accepted"]):
+        if not rows.size and int(v["n_used"]):
             lo, hi = float(v["window_start_s"]), float(v["window_end_s"])
             sel = eligible & (condition == name) & (t_rec >= lo - 1e-9) & (t_rec <= hi + 1e-9)
             if str(v["sweep_group"]) != "all":

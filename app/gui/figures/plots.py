@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
@@ -29,6 +30,7 @@ from .. import palette
 from ..views.bands import BandLabels, SpanBands
 from .figure_export import export_figure
 from .figure_input import _WHOLE_RULES, FigureInput, summary_beat_rows
+from .tab_note import TabNote
 
 __all__ = ["FigureInput", "FiguresPanel", "export_figure", "summary_beat_rows", "FIGURES"]
 
@@ -98,12 +100,18 @@ class AlignedBeatsFigure(_Figure):
 
     title = "Aligned beats"
     MAX_DRAWN = 30
+    #: Points per faint beat, at most.
+    FAINT_POINTS = 700
     MAX_AVERAGED = 400
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.plot = self.addPlot()
         _style(self.plot, ("time from upstroke", "ms"), ("V", "mV"))
+        # The averages are drawn peak-decimated to the plot's width: thick pens over thousands of
+        # samples made every repaint (a menu closing over the figure) cost tens of ms.
+        self.plot.setDownsampling(auto=True, mode="peak")
+        self.plot.setClipToView(True)
         self.legend = _legend(self.plot, (-10, 10))
         self.averages: dict[str, readouts.AlignedBeats] = {}
 
@@ -131,8 +139,17 @@ class AlignedBeatsFigure(_Figure):
             self.averages[name] = aligned
             faint = pg.mkPen(palette.rgba(colour, 30), width=1)
             drawn = np.unique(np.linspace(0, aligned.rows.size - 1, min(aligned.rows.size, self.MAX_DRAWN)).round().astype(int))
-            for trace in aligned.traces[drawn]:
-                self.plot.plot(aligned.t_ms, trace, pen=faint)
+            # The faint beats as one item, each ending where the next begins unjoined: one path
+            # to draw (and to repaint when a window over the figure closes) instead of thirty.
+            # Each faint beat is thinned to about a point per pixel (their average is not).
+            step = max(1, aligned.t_ms.size // self.FAINT_POINTS)
+            t_ms, traces = aligned.t_ms[::step], aligned.traces[drawn][:, ::step]
+            x = np.tile(t_ms, len(traces))
+            join = np.ones(x.size, dtype=np.int32)
+            join[t_ms.size - 1::t_ms.size] = 0
+            background = self.plot.plot(x, traces.reshape(-1), pen=faint, connect=join)
+            background.setDownsampling(ds=1, auto=False)  # x runs back at each beat: thinned above
+            background.setClipToView(False)
             label = f"{_group_label(name)}: n = {rows.size} ({which}"
             if aligned.rows.size < rows.size:
                 label += f"; mean of {aligned.rows.size} spread evenly"
@@ -344,6 +361,9 @@ FIGURES = (
 class FiguresPanel(QtWidgets.QWidget):
     """The figures as tabs, each with an export button; redrawn only when shown."""
 
+    #: After a verdict, the figures wait this long for the next key before they redraw (ms).
+    SETTLE_MS = 900
+
     def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
         super().__init__(parent)
         self.setObjectName("figures")
@@ -351,6 +371,9 @@ class FiguresPanel(QtWidgets.QWidget):
         layout.setContentsMargins(0, 0, 0, 0)
         self.tabs = QtWidgets.QTabWidget()
         self.tabs.setDocumentMode(True)
+        # Every tab reachable without scroll arrows: narrow windows shorten the titles instead.
+        self.tabs.setUsesScrollButtons(False)
+        self.tabs.setElideMode(QtCore.Qt.ElideRight)
         self.figures: dict[str, _Figure] = {}
         for key, cls in FIGURES:
             fig = cls()
@@ -358,26 +381,70 @@ class FiguresPanel(QtWidgets.QWidget):
             self.figures[key] = fig
             self.tabs.addTab(fig, cls.title)
         export = QtWidgets.QToolButton()
-        export.setText("Export figure…")
+        export.setText("Export…")
         export.setToolTip("Save the figure shown as PNG or SVG")
         export.clicked.connect(self._export_dialog)
         self.tabs.setCornerWidget(export, QtCore.Qt.TopRightCorner)
         layout.addWidget(self.tabs)
         self._input: FigureInput | None = None
         self._dirty: set[str] = set()
+        # Said in the tab's title: a label over the figure would have it all repainted.
+        self._updating = TabNote(self.tabs, [cls.title for _key, cls in FIGURES])
+        self._later = QtCore.QTimer(self, singleShot=True, interval=self.SETTLE_MS, timeout=self._redraw_if_needed)
         self.tabs.currentChanged.connect(lambda _i: self._redraw_if_needed())
 
-    def set_input(self, data: FigureInput | None) -> None:
+    def set_input(self, data: FigureInput | None, *, defer: bool = False) -> None:
         """New data: the figure shown is redrawn now, the others when their tab is opened;
-        None blanks every figure."""
+        None blanks every figure.
+
+        With ``defer`` (a verdict during a review), the figure shown says it is updating and
+        redraws once the review pauses for :attr:`SETTLE_MS`: keys pressed in a row cost one
+        redraw, not one each.
+        """
         self._input = data
         if data is None:
             for figure in self.figures.values():
                 figure.blank()
             self._dirty = set()
+            self._later.stop()
+            self._updating.hide()
             return
         self._dirty = {key for key, _cls in FIGURES}
+        if defer:
+            self._updating.show()
+            self._later.start()
+            return
+        self._later.stop()
         self._redraw_if_needed()
+
+    def mark_updating(self) -> None:
+        """The data behind the figures is changing (new data follows): say so on the figure shown."""
+        if self._input is not None:
+            self._updating.show()
+
+    def pending(self) -> bool:
+        """Whether a deferred redraw is waiting."""
+        return self._later.isActive()
+
+    def flush(self) -> None:
+        """Run a deferred redraw now."""
+        if self._later.isActive():
+            self._later.stop()
+            self._redraw_if_needed()
+
+    @property
+    def input(self) -> FigureInput | None:
+        """What the figures are drawn from (None: blank)."""
+        return self._input
+
+    def set_current_row(self, row: int) -> None:
+        """Another beat under review: only the figures that draw it (the phase plane) redraw."""
+        if self._input is None or self._input.current_row == row:
+            return
+        self._input = replace(self._input, current_row=int(row))
+        self._dirty.add("phase_plane")
+        if not self._later.isActive():  # else the deferred redraw draws it
+            self._redraw_if_needed()
 
     def current_key(self) -> str:
         return FIGURES[self.tabs.currentIndex()][0]
@@ -402,6 +469,8 @@ class FiguresPanel(QtWidgets.QWidget):
         key = self.current_key()
         if key in self._dirty and self.isVisible():
             self.redraw({key})
+        if key not in self._dirty:
+            self._updating.hide()
 
     def showEvent(self, event) -> None:  # noqa: N802
         super().showEvent(event)

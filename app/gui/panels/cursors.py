@@ -1,4 +1,4 @@
-"""The panel that reads out what lies between the trace view's two cursors.
+"""The gates: the panel that reads out what lies between the trace view's two gate lines.
 
 The numbers come from :func:`analysis.readouts.readout`, called when a cursor drag finishes
 (not on every pixel of the drag), over the samples between the cursors.
@@ -18,14 +18,14 @@ __all__ = ["CursorPanel", "READOUT_ROWS"]
 
 #: (attribute, label, unit pattern, decimals): the readout's rows in order.
 READOUT_ROWS = (
-    ("t0_s", "C1", "s", 4),
-    ("t1_s", "C2", "s", 4),
-    ("delta_t_ms", "Δt", "ms", 2),
-    ("delta_value", "ΔV", "{u}", 2),
-    ("mean_value", "mean", "{u}", 2),
-    ("min_value", "min", "{u}", 2),
-    ("max_value", "max", "{u}", 2),
-    ("slope_per_s", "slope (fit)", "{u}/s", 2),
+    ("t0_s", "◧ from", "s", 4),
+    ("t1_s", "to ◨", "s", 4),
+    ("delta_t_ms", "gated", "ms", 2),
+    ("delta_value", "rise (to − from)", "{u}", 2),
+    ("mean_value", "average", "{u}", 2),
+    ("min_value", "lowest", "{u}", 2),
+    ("max_value", "highest", "{u}", 2),
+    ("slope_per_s", "trend (least squares)", "{u}/s", 2),
     ("n_samples", "samples", "", 0),
 )
 
@@ -37,7 +37,7 @@ def _fmt(value: float, decimals: int) -> str:
 
 
 class CursorPanel(QtWidgets.QWidget):
-    """Readout of the two cursors, with buttons to show them and to reject the beats between."""
+    """Readout of the two gates, with buttons to show them and to reject the beats inside."""
 
     toggled = QtCore.Signal(bool)
     reject_between = QtCore.Signal()
@@ -48,12 +48,12 @@ class CursorPanel(QtWidgets.QWidget):
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         buttons = QtWidgets.QHBoxLayout()
-        self.show_button = QtWidgets.QPushButton("Cursors")
+        self.show_button = QtWidgets.QPushButton("Gates")
         self.show_button.setCheckable(True)
-        self.show_button.setToolTip("Show the two cursors on the trace (drag them; numbers update when you let go)")
+        self.show_button.setToolTip("Show the two gates on the trace (drag them; the numbers follow when you let go)")
         self.show_button.toggled.connect(self.toggled)
-        self.reject_button = QtWidgets.QPushButton("Reject beats between")
-        self.reject_button.setToolTip("Reject every beat whose upstroke lies between the cursors, with one reason")
+        self.reject_button = QtWidgets.QPushButton("Reject beats inside")
+        self.reject_button.setToolTip("Reject every beat whose upstroke lies between the gates, with one reason")
         self.reject_button.clicked.connect(self.reject_between)
         buttons.addWidget(self.show_button)
         buttons.addWidget(self.reject_button)
@@ -80,7 +80,7 @@ class CursorPanel(QtWidgets.QWidget):
             grid.addWidget(unit, i, 2)
             self.values[attr] = value
             self.units[attr] = unit
-        self.beats_label = QtWidgets.QLabel("beats between: —")
+        self.beats_label = QtWidgets.QLabel("upstrokes inside: —")
         self.beats_label.setObjectName("readout_beats")
         self.beats_label.setWordWrap(True)
         grid.addWidget(self.beats_label, len(READOUT_ROWS), 0, 1, 3)
@@ -104,11 +104,11 @@ class CursorPanel(QtWidgets.QWidget):
             self.values[attr].setText(_fmt(getattr(readout, attr), decimals))
             self.units[attr].setText(unit.format(u=readout.units))
         if readout is None:
-            self.beats_label.setText("beats between: —")
+            self.beats_label.setText("upstrokes inside: —")
             return
         numbers = beat_numbers if beat_numbers is not None else list(readout.beats)
         listed = ", ".join(str(n) for n in numbers[:12]) + (" …" if len(numbers) > 12 else "")
-        self.beats_label.setText(f"beats between: {readout.n_beats}" + (f"  ({listed})" if numbers else ""))
+        self.beats_label.setText(f"upstrokes inside: {readout.n_beats}" + (f"  ({listed})" if numbers else ""))
 
     def value_text(self, attr: str) -> str:
         return self.values[attr].text()

@@ -38,7 +38,8 @@ def _bounds_text(info: FieldInfo) -> str:
 
 def field_tooltip(info: FieldInfo) -> str:
     """Rich-text tooltip: what the field means, allowed values, default, published source."""
-    default = ", ".join(f"{v:g}" for v in info.default) if isinstance(info.default, tuple) else info.default
+    default = (", ".join(v if isinstance(v, str) else f"{v:g}" for v in info.default)
+               if isinstance(info.default, tuple) else info.default)
     parts = [f"<b>{html.escape(info.path)}</b>", html.escape(info.doc)]
     bounds = _bounds_text(info)
     if bounds:
@@ -85,6 +86,9 @@ class _Editor:
         elif kind == "float list":
             self.widget = QtWidgets.QLineEdit()
             self.widget.setPlaceholderText("e.g. 20, 50, 90")
+        elif kind == "text list":
+            self.widget = QtWidgets.QLineEdit()
+            self.widget.setPlaceholderText("e.g. " + ", ".join((info.choices or ("word",))[:2]))
         else:  # pragma: no cover - the core declares only the kinds above
             raise TypeError(kind)
         self.widget.setObjectName(f"setting_{info.path}")
@@ -98,6 +102,8 @@ class _Editor:
             w.setCurrentIndex(max(0, w.findData(value)))
         elif kind == "float list":
             w.setText(", ".join(f"{v:g}" for v in value))
+        elif kind == "text list":
+            w.setText(", ".join(value))
         elif kind == "optional float":
             w.setValue(w.minimum() if value is None else float(value))
         else:
@@ -115,6 +121,8 @@ class _Editor:
                 return tuple(float(p) for p in text.split(",") if p.strip())
             except ValueError:
                 raise SettingsError(None, f"setting {self.info.path} = {text!r} is not a list of numbers", "write numbers separated by commas, e.g. 20, 50, 90") from None
+        if kind == "text list":
+            return tuple(p.strip() for p in w.text().replace(";", ",").split(",") if p.strip())
         if kind == "optional float":
             return None if w.value() == w.minimum() else float(w.value())
         return w.value()

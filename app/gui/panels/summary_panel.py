@@ -31,7 +31,8 @@ def _num(value, decimals: int = 1) -> str:
 def summary_rows(values: Mapping[str, object]) -> list[tuple[str, str]]:
     """The panel's rows for one summary: ``(label, text)``."""
     rows: list[tuple[str, str]] = [
-        ("beats used / all (✕)", f"{values.get('n_accepted', 0)} / {values.get('n_beats', 0)} ({values.get('n_rejected', 0)})"),
+        ("beats used / in window / all", f"{values.get('n_used', 0)} / {values.get('n_in_window', 0)} / {values.get('n_beats', 0)}"),
+        ("rejected, to review", f"{values.get('n_rejected', 0)}, {values.get('n_to_review', 0)}"),
         ("window (s)", f"{_num(values.get('window_start_s'), 1)}–{_num(values.get('window_end_s'), 1)}"),
     ]
     for col, stem, unit in PARAMETERS:
@@ -64,15 +65,31 @@ class SummaryPanel(QtWidgets.QTableWidget):
         self.setFont(font)
         self.verticalHeader().setFont(font)
         self.horizontalHeader().setFont(font)
-        self.verticalHeader().setDefaultSectionSize(19)
+        self.verticalHeader().setDefaultSectionSize(18)
+        self.verticalHeader().setMinimumSectionSize(16)
         self.horizontalHeader().setStretchLastSection(False)
-        self.horizontalHeader().setSectionResizeMode(QtWidgets.QHeaderView.ResizeToContents)
+        # The conditions share the width (no sideways scrolling in a narrow window).
+        self.horizontalHeader().setSectionResizeMode(QtWidgets.QHeaderView.Stretch)
         self.summaries: list[Mapping[str, object]] = []
         self.show_summaries([])
 
     def show_summaries(self, summaries: Sequence[Mapping[str, object]], colours: Mapping[str, str] | None = None,
-                       hints: Sequence[str] | None = None) -> None:
-        """Show summaries (each a mapping of summary column -> value)."""
+                       hints: Sequence[str] | None = None, updating: set[str] | frozenset = frozenset()) -> None:
+        """Show summaries (each a mapping of summary column -> value).
+
+        The same conditions as shown (a verdict changed one of them) change only the cells whose
+        text changed. ``updating`` names conditions whose ensemble beat is being made again
+        (their header says so until the next call).
+        """
+        if self._same_layout(summaries) and self.summaries:
+            self.summaries = list(summaries)
+            for c, v in enumerate(self.summaries):
+                for r, (_label, text) in enumerate(summary_rows(v)):
+                    item = self.item(r, c)
+                    if item.text() != text:
+                        item.setText(text)
+                self._mark_updating(c, str(v.get("condition", "")) in updating)
+            return
         self.summaries = list(summaries)
         colours = colours or {}
         if not self.summaries:
@@ -108,6 +125,16 @@ class SummaryPanel(QtWidgets.QTableWidget):
                     item.setToolTip(f"{v.get('cell_type_rule', '')}\nA hint from the rule shown, not a classification.")
                     item.setForeground(QtGui.QBrush(QtGui.QColor(palette.ENVELOPE)))
                 self.setItem(r, c, item)
+
+    def _same_layout(self, summaries: Sequence[Mapping[str, object]]) -> bool:
+        key = [(v.get("condition"), v.get("sweep_group")) for v in summaries]
+        return key == [(v.get("condition"), v.get("sweep_group")) for v in self.summaries]
+
+    def _mark_updating(self, column: int, on: bool) -> None:
+        head = self.horizontalHeaderItem(column)
+        text = head.text().removesuffix(" …")
+        head.setText(text + " …" if on else text)
+        head.setToolTip("ensemble beat being made again" if on else "")
 
     def cell_text(self, label: str, column: int = 0) -> str:
         for r in range(self.rowCount()):

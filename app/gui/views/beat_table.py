@@ -16,14 +16,51 @@ from analysis.table import BeatTable
 
 from .. import palette
 
-__all__ = ["BeatTableModel", "BeatTableView", "SHOWN_COLUMNS", "header_label"]
+__all__ = ["BeatFilterBar", "BeatTableModel", "BeatTableView", "FILTERS", "SHOWN_COLUMNS", "filter_mask", "header_label"]
 
 #: Columns shown, in order: where and whether, the measured values, then the words.
 SHOWN_COLUMNS = (
     "sweep", "beat", "t_upstroke_s", "accepted", "cl_ms", "rate_bpm", "mdp_mV", "top_mV",
     "ddr_mV_per_s", "ddr100_mV_per_s", "dvdt_max_V_per_s", "peak_mV", "apa_mV", "apd20_ms",
-    "apd50_ms", "apd90_ms", "condition", "flags", "reject_reason",
+    "apd50_ms", "apd90_ms", "condition", "flags", "verdict", "reject_reason", "decided_by",
 )
+
+#: The beat table's filters: key -> what the menu says. Any other key is a flag's word.
+FILTERS = {
+    "all": "all beats",
+    "to_review": "waiting for a look",
+    "unreviewed": "not yet reviewed",
+    "rejected": "rejected",
+    "accepted": "accepted",
+    "flagged": "with any flag",
+}
+
+
+def filter_mask(table: BeatTable, name: str) -> np.ndarray | None:
+    """Which rows a filter keeps (None: all of them)."""
+    n = len(table)
+    if name == "all" or not n:
+        return None
+    if name in ("to_review", "rejected", "accepted"):
+        if "verdict" in table:
+            return np.asarray(table["verdict"], dtype=object) == name
+        ok = np.asarray(table["accepted"]) != 0
+        return ok if name == "accepted" else ~ok if name == "rejected" else np.zeros(n, bool)
+    if name == "unreviewed":
+        return np.asarray(table["reviewed"]) == 0 if "reviewed" in table else np.ones(n, bool)
+    flags = np.asarray(table["flags"], dtype=object) if "flags" in table else np.full(n, "", dtype=object)
+    if name == "flagged":
+        return np.array([bool(f) for f in flags], dtype=bool)
+    return np.array([name in str(f).split(";") for f in flags], dtype=bool)
+
+_WORD_COLUMNS = ("reject_reason", "flags", "condition", "verdict", "decided_by")
+_DISPLAY, _ALIGN, _USER = QtCore.Qt.DisplayRole, QtCore.Qt.TextAlignmentRole, QtCore.Qt.UserRole
+_BACKGROUND, _FOREGROUND = QtCore.Qt.BackgroundRole, QtCore.Qt.ForegroundRole
+_ROLES = (_DISPLAY, _ALIGN, _USER, _BACKGROUND, _FOREGROUND, QtCore.Qt.ToolTipRole)
+_RIGHT = int(QtCore.Qt.AlignRight | QtCore.Qt.AlignVCenter)
+_LEFT = int(QtCore.Qt.AlignLeft | QtCore.Qt.AlignVCenter)
+#: What the ``accepted`` column shows for each verdict.
+_VERDICT_MARK = {"accepted": "✓", "rejected": "✕", "to_review": "?"}
 
 
 def header_label(name: str) -> str:
@@ -43,30 +80,67 @@ class BeatTableModel(QtCore.QAbstractTableModel):
         self._names: list[str] = []
         self._order = np.empty(0, dtype=np.int64)
         self._sort: tuple[int, QtCore.Qt.SortOrder] | None = None
+        self._filter = "all"
+        self._arrays: list[np.ndarray] = []
+        self._numeric: list[bool] = []
+        self._verdicts: np.ndarray | None = None
         self._rejected_bg = QtGui.QBrush(QtGui.QColor(*palette.REJECTED_BAND[:3], 40))
         self._rejected_fg = QtGui.QBrush(QtGui.QColor(palette.REJECTED_LABEL))
+        self._waiting_bg = QtGui.QBrush(QtGui.QColor(*palette.REVIEW_BAND[:3], 50))
 
     # -- data in and out ------------------------------------------------------------------------
     @property
     def table(self) -> BeatTable:
         return self._table
 
-    def set_table(self, table: BeatTable | None) -> None:
-        """Show a table; a table of the same rows (new decisions) keeps order and selection."""
+    def set_table(self, table: BeatTable | None, changed=None) -> None:
+        """Show a table; a table of the same rows (new decisions) keeps order and selection.
+
+        ``changed`` names the rows whose verdict changed (a review key): only they are redrawn,
+        and the order stays as it is (neither sorted nor filtered again), so that the row under
+        review never jumps away. None: every row may have changed, and the order is made again.
+        """
         table = table if table is not None else BeatTable.empty()
         names = [n for n in SHOWN_COLUMNS if n in table]
         if len(table) == len(self._table) and names == self._names and len(table):
             self._table = table
-            if self._sort is not None:
-                self._apply_sort(*self._sort, notify=True)
-            self.dataChanged.emit(self.index(0, 0), self.index(len(table) - 1, len(names) - 1))
+            self._columns_changed()
+            if changed is not None:
+                last = len(names) - 1
+                for row in changed:
+                    view_row = self.view_row(int(row))
+                    if view_row >= 0:
+                        self.dataChanged.emit(self.index(view_row, 0), self.index(view_row, last))
+                return
+            self.layoutAboutToBeChanged.emit()
+            self._make_order()
+            self.layoutChanged.emit()
+            self.dataChanged.emit(self.index(0, 0), self.index(max(0, self.rowCount() - 1), len(names) - 1))
             return
         self.beginResetModel()
         self._table, self._names = table, names
-        self._order = np.arange(len(table), dtype=np.int64)
+        self._columns_changed()
+        self._make_order()
+        self.endResetModel()
+
+    def set_filter(self, name: str) -> None:
+        """Show only some beats: a key of :data:`FILTERS`, or a flag's word."""
+        self.layoutAboutToBeChanged.emit()
+        self._filter = name
+        self._make_order()
+        self.layoutChanged.emit()
+
+    def shown_rows(self) -> np.ndarray:
+        """The beat-table rows shown, in the order shown."""
+        return self._order.copy()
+
+    def _make_order(self) -> None:
+        self._order = np.arange(len(self._table), dtype=np.int64)
         if self._sort is not None:
             self._apply_sort(*self._sort, notify=False)
-        self.endResetModel()
+        keep = filter_mask(self._table, self._filter)
+        if keep is not None:
+            self._order = self._order[keep[self._order]]
 
     def column_names(self) -> list[str]:
         return list(self._names)
@@ -82,7 +156,7 @@ class BeatTableModel(QtCore.QAbstractTableModel):
 
     # -- Qt model API ---------------------------------------------------------------------------
     def rowCount(self, parent=QtCore.QModelIndex()) -> int:  # noqa: N802
-        return 0 if parent.isValid() else len(self._table)
+        return 0 if parent.isValid() else len(self._order)
 
     def columnCount(self, parent=QtCore.QModelIndex()) -> int:  # noqa: N802
         return 0 if parent.isValid() else len(self._names)
@@ -100,33 +174,49 @@ class BeatTableModel(QtCore.QAbstractTableModel):
                 return name
         return None
 
+    def _verdict(self, row: int) -> str:
+        return str(self._verdicts[row]) if self._verdicts is not None else "accepted"
+
+    def _columns_changed(self) -> None:
+        """Arrays looked up once per table, not once per cell painted."""
+        t = self._table
+        self._arrays = [t[name] for name in self._names]
+        self._numeric = [name not in _WORD_COLUMNS for name in self._names]
+        if "verdict" in t:
+            self._verdicts = np.asarray(t["verdict"], dtype=object)
+        elif "accepted" in t:
+            self._verdicts = np.where(np.asarray(t["accepted"]) != 0, "accepted", "rejected").astype(object)
+        else:
+            self._verdicts = None
+
     def data(self, index, role=QtCore.Qt.DisplayRole):
-        if not index.isValid():
+        if role not in _ROLES or not index.isValid():
             return None
         row = int(self._order[index.row()])
-        name = self._names[index.column()]
-        value = self._table[name][row]
-        rejected = "accepted" in self._table and not self._table["accepted"][row]
-        if role == QtCore.Qt.DisplayRole:
-            return self._text(name, value)
-        if role == QtCore.Qt.TextAlignmentRole:
-            numeric = name not in ("reject_reason", "flags", "condition")
-            return int((QtCore.Qt.AlignRight if numeric else QtCore.Qt.AlignLeft) | QtCore.Qt.AlignVCenter)
-        if role == QtCore.Qt.BackgroundRole and rejected:
-            return self._rejected_bg
-        if role == QtCore.Qt.ForegroundRole and rejected:
-            return self._rejected_fg
-        if role == QtCore.Qt.ToolTipRole and rejected:
+        col = index.column()
+        if role == _DISPLAY:
+            name = self._names[col]
+            if name == "accepted":
+                return _VERDICT_MARK[self._verdict(row)]
+            return self._text(name, self._arrays[col][row])
+        if role == _ALIGN:
+            return _RIGHT if self._numeric[col] else _LEFT
+        if role == _USER:
+            return row
+        verdict = self._verdict(row)
+        if verdict == "accepted":
+            return None
+        if role == _BACKGROUND:
+            return self._rejected_bg if verdict == "rejected" else self._waiting_bg
+        if role == _FOREGROUND:
+            return self._rejected_fg if verdict == "rejected" else None
+        if verdict == "rejected":
             reason = self._table["reject_reason"][row] if "reject_reason" in self._table else ""
             return f"rejected: {reason or 'no reason given'}"
-        if role == QtCore.Qt.UserRole:
-            return row
-        return None
+        return f"waiting for a look (flags: {self._table['flags'][row]}); left out of the summaries until reviewed"
 
     @staticmethod
     def _text(name: str, value) -> str:
-        if name == "accepted":
-            return "✓" if value else "✕"
         if isinstance(value, (float, np.floating)):
             if not math.isfinite(value):
                 return ""
@@ -139,7 +229,7 @@ class BeatTableModel(QtCore.QAbstractTableModel):
             return
         self._sort = (column, order)
         self.layoutAboutToBeChanged.emit()
-        self._apply_sort(column, order, notify=False)
+        self._make_order()
         self.layoutChanged.emit()
 
     def _apply_sort(self, column: int, order, *, notify: bool) -> None:
@@ -184,10 +274,11 @@ class BeatTableView(QtWidgets.QTableView):
         self.selectionModel().currentRowChanged.connect(self._on_current)
         self.beat_model.modelReset.connect(self._fit_columns)
 
-    def set_table(self, table: BeatTable | None) -> None:
+    def set_table(self, table: BeatTable | None, changed=None) -> None:
+        """Show a table (``changed``: see :meth:`BeatTableModel.set_table`)."""
         current = self.current_table_row()
-        self.beat_model.set_table(table)
-        if current >= 0 and current < self.beat_model.rowCount():
+        self.beat_model.set_table(table, changed)
+        if changed is None and current >= 0 and current < len(self.beat_model.table):
             self.select_table_row(current)
 
     def current_table_row(self) -> int:
@@ -217,3 +308,34 @@ class BeatTableView(QtWidgets.QTableView):
         for i in range(self.beat_model.columnCount()):
             wide = self.beat_model.column_names()[i] in ("reject_reason", "flags")
             header.resizeSection(i, max(44, header.sectionSizeFromContents(i).width() + 4, 110 if wide else 0))
+
+
+class BeatFilterBar(QtWidgets.QWidget):
+    """"show: [which beats]" above the beat table. ``filter_chosen(str)`` gives a key of
+    :data:`FILTERS` or a flag's word."""
+
+    filter_chosen = QtCore.Signal(str)
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None) -> None:
+        super().__init__(parent)
+        from analysis.columns import FLAG_VOCABULARY
+
+        layout = QtWidgets.QHBoxLayout(self)
+        layout.setContentsMargins(2, 0, 2, 0)
+        layout.addWidget(QtWidgets.QLabel("show"))
+        self.combo = QtWidgets.QComboBox()
+        self.combo.setObjectName("beat_filter")
+        self.combo.setToolTip("Which beats the table lists (a verdict given while a filter is on leaves the row in place)")
+        for key, text in FILTERS.items():
+            self.combo.addItem(text, key)
+        self.combo.insertSeparator(self.combo.count())
+        for word in FLAG_VOCABULARY:
+            self.combo.addItem(f"flagged {word}", word)
+        self.combo.activated.connect(lambda i: self.filter_chosen.emit(self.combo.itemData(i)))
+        layout.addWidget(self.combo)
+        layout.addStretch(1)
+
+    def choose(self, key: str) -> None:
+        """Pick a filter as the user would."""
+        self.combo.setCurrentIndex(self.combo.findData(key))
+        self.filter_chosen.emit(key)

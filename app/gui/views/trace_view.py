@@ -19,31 +19,17 @@ from analysis.table import BeatTable
 
 from .. import palette
 from .bands import SpanBands
+from .beat_marks import MARKER_COLUMNS, BeatMarks, beat_extent, column_of
 from .cursor_tags import CursorTags
 from .trace_data import DrawData, SweepLevels
 
 __all__ = ["TraceView", "MARKER_COLUMNS", "DEFAULT_WINDOW_S"]
 
-#: The marker kinds and the beat-table columns giving each marker's time and potential.
-MARKER_COLUMNS = {
-    "upstroke": ("t_upstroke_s", None),
-    "mdp": ("t_mdp_s", "mdp_mV"),
-    "top": ("t_top_s", "top_mV"),
-    "peak": ("t_peak_s", "peak_mV"),
-    "apd90": ("t_apd90_s", None),
-}
 #: The trace view's initial width (a dozen beats of a nodal-like cell), in seconds.
 DEFAULT_WINDOW_S = 10.0
 #: With more beats than this in view, markers and phases are left out: at that density they
 #: are a smear, and drawing thousands of symbols would slow panning (rejections stay shown).
 MAX_DETAILED_BEATS = 400
-
-
-def _col(beats: BeatTable, name: str, rows: np.ndarray) -> np.ndarray:
-    values = beats.get(name)
-    if values is None:
-        return np.full(len(rows), np.nan)
-    return np.asarray(values, dtype=np.float64)[rows]
 
 
 class TraceView(pg.PlotWidget):
@@ -77,7 +63,6 @@ class TraceView(pg.PlotWidget):
         self._offset_mV = 0.0
         self._current_row = -1
         self._painted = False
-        self._marker_data: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self._upstrokes_sorted = np.empty(0)
         self._detailed = True
         self._phases_wanted = False
@@ -106,32 +91,23 @@ class TraceView(pg.PlotWidget):
         plot.addItem(self.curve)
 
         self.phase_bands = SpanBands(label_colour=palette.INK, z=-30)
-        self.reject_bands = SpanBands(hatch=True, label_colour=palette.REJECTED_LABEL, z=-20, label_row=1)
         self.current_band = SpanBands(z=-25)
-        self.flag_bands = SpanBands(label_colour=palette.FLAG_LABEL, z=-22, label_row=1)
-        for item in (self.phase_bands, self.reject_bands, self.current_band, self.flag_bands):
+        for item in (self.phase_bands, self.current_band):
             plot.addItem(item, ignoreBounds=True)
         self.phase_bands.setVisible(False)
 
-        self.markers: dict[str, pg.ScatterPlotItem] = {}
         # The legend sits in a title row above the data, in one line, so it never hides a beat.
         plot.setTitle(" ", size="13pt")
         self.legend = pg.LegendItem(colCount=len(palette.MARKERS) + 1, labelTextColor=palette.INK,
                                     labelTextSize="9pt", horSpacing=14, verSpacing=-6)
         self.legend.setParentItem(plot)
         self.legend.anchor(itemPos=(1, 0), parentPos=(1, 0), offset=(-6, -2))
-        for kind, (label, colour, symbol, size) in palette.MARKERS.items():
-            item = pg.ScatterPlotItem(size=size, symbol=symbol, pen=pg.mkPen(palette.INK, width=0.6),
-                                      brush=pg.mkBrush(colour), name=label)
-            item.setZValue(10)
-            plot.addItem(item)
-            self.legend.addItem(item, label)
-            self.markers[kind] = item
-        self.rejected_markers = pg.ScatterPlotItem(size=8, symbol="x", pen=pg.mkPen(palette.REJECTED_MARKER, width=1.5),
-                                                   brush=None, name="rejected beat")
-        self.rejected_markers.setZValue(9)
-        plot.addItem(self.rejected_markers)
-        self.legend.addItem(self.rejected_markers, "rejected")
+        self.marks = BeatMarks(plot, self.legend)
+        self.markers = self.marks.markers
+        self.rejected_markers = self.marks.rejected_markers
+        self.reject_bands = self.marks.reject_bands
+        self.flag_bands = self.marks.flag_bands
+        self._v_up_of: tuple[object, bytes, np.ndarray] | None = None
 
         self.cursor_lines: list[pg.InfiniteLine] = []
         for colour, label in palette.CURSORS:
@@ -145,6 +121,9 @@ class TraceView(pg.PlotWidget):
             plot.addItem(line, ignoreBounds=True)
             self.cursor_lines.append(line)
         self.cursor_tags = CursorTags(self.cursor_lines)
+        self.gate_line = pg.LabelItem(" ", justify="left")
+        plot.layout.addItem(self.gate_line, 5, 1)
+        self.gate_line.setVisible(False)
         plot.addItem(self.cursor_tags, ignoreBounds=True)
 
         self.vb.sigXRangeChanged.connect(self._on_x_range)
@@ -195,8 +174,9 @@ class TraceView(pg.PlotWidget):
         return self._rows
 
     def drawn_markers(self) -> dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]]:
-        """What each marker kind draws: ``{kind: (t_s, v_mV, rows)}`` for accepted beats."""
-        return dict(self._marker_data)
+        """What each marker kind draws (beats not rejected, around the view): ``{kind: (t_s,
+        v_mV, rows)}``."""
+        return self.marks.drawn()
 
     # -- view ----------------------------------------------------------------------------------
     def x_range(self) -> tuple[float, float]:
@@ -267,12 +247,13 @@ class TraceView(pg.PlotWidget):
             self._emit_cursors()
 
     def set_readout_text(self, text: str) -> None:
-        """A one-line cursor readout in the title row, left of the legend ("" clears it), so the
-        numbers sit beside the trace without covering it."""
-        self.getPlotItem().titleLabel.setText(text or " ", justify="left", size="9pt", color=palette.INK)
+        """The gates' one-line readout in its own row under the time axis ("" clears it), so it
+        covers neither the trace nor the legend."""
+        self.gate_line.setText(text or " ", justify="left", size="9pt", color=palette.INK)
+        self.gate_line.setVisible(bool(text))
 
     def readout_line(self) -> str:
-        return self.getPlotItem().titleLabel.text
+        return self.gate_line.text if self.gate_line.isVisible() else ""
 
     def _emit_cursors(self, *_args) -> None:
         self.cursors_finished.emit(*self.cursor_times())
@@ -280,6 +261,7 @@ class TraceView(pg.PlotWidget):
     # -- drawing -------------------------------------------------------------------------------
     def _on_x_range(self, *_args) -> None:
         self._refresh_curve()
+        self.marks.follow(*self.x_range())
         self._update_detail()
         self.view_changed.emit(*self.x_range())
 
@@ -313,27 +295,28 @@ class TraceView(pg.PlotWidget):
             self.first_paint.emit()
 
     def _beat_extent(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """A time span covering each beat: from its MDP (or a little before the upstroke) to its
-        APD90 (or a little after the peak)."""
-        b = self._beats
-        t_up = _col(b, "t_upstroke_s", rows)
-        cl = _col(b, "cl_ms", rows) / 1e3
-        lead = np.where(np.isfinite(cl), 0.35 * cl, 0.15)
-        start = _col(b, "t_mdp_s", rows)
-        start = np.where(np.isfinite(start), start, t_up - lead)
-        end = _col(b, "t_apd90_s", rows)
-        end = np.where(np.isfinite(end), end, t_up + 0.6 * lead)
-        return np.minimum(start, t_up - 0.002), np.maximum(end, t_up + 0.002)
+        return beat_extent(self._beats, rows)
+
+    def _upstroke_levels(self, rows: np.ndarray) -> np.ndarray:
+        """The trace at each beat's upstroke (kept while the sweep and the upstrokes stay:
+        a verdict reads no sample)."""
+        b, levels = self._beats, self._levels
+        if "i_upstroke" in b:
+            i_up = np.asarray(b["i_upstroke"], dtype=np.int64)[rows]
+        else:
+            i_up = np.round(column_of(b, "t_upstroke_s", rows) * levels.fs_hz).astype(np.int64)
+        key = i_up.tobytes()
+        if self._v_up_of is None or self._v_up_of[0] is not levels or self._v_up_of[1] != key:
+            self._v_up_of = (levels, key, levels.value_at(i_up) if len(rows) else np.empty(0))
+        return self._v_up_of[2] - self._offset_mV
 
     def _update_beats(self) -> None:
         b, levels = self._beats, self._levels
-        self._marker_data = {}
         if b is None or levels is None or not len(b) or "t_upstroke_s" not in b:
             self._rows = np.empty(0, dtype=np.int64)
             self._upstrokes_sorted = np.empty(0)
-            for item in (*self.markers.values(), self.rejected_markers):
-                item.setData([], [])
-            for bands in (self.phase_bands, self.reject_bands, self.current_band, self.flag_bands):
+            self.marks.clear()
+            for bands in (self.phase_bands, self.current_band):
                 bands.set_bands([], [], [])
             return
         sweeps = np.asarray(b["sweep"]) if "sweep" in b else np.zeros(len(b), dtype=np.int64)
@@ -341,34 +324,7 @@ class TraceView(pg.PlotWidget):
         rows = rows[np.argsort(np.asarray(b["t_upstroke_s"])[rows], kind="stable")]
         self._rows = rows
         self._upstrokes_sorted = np.asarray(b["t_upstroke_s"], dtype=np.float64)[rows]
-        accepted = (np.asarray(b["accepted"])[rows] != 0) if "accepted" in b else np.ones(len(rows), bool)
-
-        if "i_upstroke" in b:
-            i_up = np.asarray(b["i_upstroke"])[rows]
-        else:
-            i_up = np.round(_col(b, "t_upstroke_s", rows) * levels.fs_hz)
-        v_up = levels.value_at(i_up) - self._offset_mV if len(rows) else np.empty(0)
-        apd90_v = _col(b, "peak_mV", rows) - 0.9 * _col(b, "apa_mV", rows)
-        for kind, (t_name, v_name) in MARKER_COLUMNS.items():
-            t = _col(b, t_name, rows)
-            v = v_up if kind == "upstroke" else apd90_v if kind == "apd90" else _col(b, v_name, rows)
-            ok = accepted & np.isfinite(t) & np.isfinite(v)
-            self._marker_data[kind] = (t[ok], v[ok], rows[ok])
-            self.markers[kind].setData(t[ok], v[ok], data=rows[ok])
-        rej = rows[~accepted]
-        self.rejected_markers.setData(_col(b, "t_upstroke_s", rej), v_up[~accepted], data=rej)
-        a, e = self._beat_extent(rej)
-        reasons = b.get("reject_reason")
-        labels = [f"✕ {reasons[r]}" if reasons is not None and reasons[r] else "✕ rejected" for r in rej]
-        self.reject_bands.set_bands(a, e, [palette.REJECTED_BAND] * len(rej), labels)
-        # Flags the review should look at (accepted beats; a rejected one shows its reason).
-        flags = np.asarray(b["flags"], dtype=object)[rows] if "flags" in b else np.full(len(rows), "", dtype=object)
-        words = [";".join(w for w in str(f).split(";") if w and w not in palette.QUIET_FLAGS) for f in flags]
-        flagged = np.array([bool(w) for w in words], dtype=bool) & accepted
-        fa, fe = self._beat_extent(rows[flagged])
-        self.flag_bands.set_bands(fa, fe, [palette.FLAG_BAND] * int(flagged.sum()),
-                                  [f"⚑ {w.replace(';', ', ')}" for w, f in zip(words, flagged) if f])
-
+        self.marks.set_beats(b, rows, self._upstroke_levels(rows), self.x_range())
         self._phases_stale = True
         if self._phases_wanted:
             self._update_phases()
@@ -399,7 +355,7 @@ class TraceView(pg.PlotWidget):
         inside = np.flatnonzero((a <= t_s) & (t_s <= e))
         if len(inside):
             return int(self._rows[inside[0]])
-        t_up = _col(self._beats, "t_upstroke_s", self._rows)
+        t_up = column_of(self._beats, "t_upstroke_s", self._rows)
         return int(self._rows[int(np.nanargmin(np.abs(t_up - t_s)))])
 
     def describe_beat(self, row: int) -> str:
@@ -426,7 +382,7 @@ class TraceView(pg.PlotWidget):
         t = self.vb.mapSceneToView(pos).x()
         band = self.reject_bands.band_at(t)
         if band >= 0:
-            rej = self._rows[(np.asarray(self._beats["accepted"])[self._rows] == 0)] if "accepted" in self._beats else []
+            rej = self.marks.rejected_rows()
             if band < len(rej):
                 QtWidgets.QToolTip.showText(QtGui.QCursor.pos(), self.describe_beat(int(rej[band])), self)
                 return
@@ -439,7 +395,7 @@ class TraceView(pg.PlotWidget):
         phases.setCheckable(True)
         phases.setChecked(self.phases_visible())
         phases.toggled.connect(self.phases_toggled)
-        cursors = menu.addAction("Two cursors")
+        cursors = menu.addAction("Gates")
         cursors.setCheckable(True)
         cursors.setChecked(self.cursors_visible())
         cursors.toggled.connect(self.cursors_toggled)

@@ -13,20 +13,40 @@ import os
 import numpy as np
 from PySide6 import QtCore
 
+from analysis import readouts
 from analysis.readouts import recording_times_s
 
 from .. import palette
 from ..figures.figure_input import FigureInput, summary_beat_rows
 from .feedback import Feedback
 from .state import WindowState, WindowViews
+from .quick_summary import quick_summaries
 from .summary_job import start_summary
 from .workers import JobRunner
 
 __all__ = ["Display"]
 
 
+def _short_names(paths: list[str]) -> list[str]:
+    """File names, with as many of their folders as tell apart files of the same name (a study's
+    ``NL-0417/baseline.abf`` and ``NL-0423/baseline.abf``)."""
+    parts = [os.path.normpath(p).replace(os.sep, "/").split("/") for p in paths]
+    depth = [1] * len(parts)
+    while True:
+        names = ["/".join(p[-d:]) for p, d in zip(parts, depth)]
+        clash = {n for n in names if names.count(n) > 1}
+        grow = [i for i, n in enumerate(names) if n in clash and depth[i] < len(parts[i])]
+        if not grow:
+            return names
+        for i in grow:
+            depth[i] += 1
+
+
 class Display:
     """Draws the state in the views.
+
+    After a review key the full summaries (ensemble beats included, off the GUI thread) wait
+    :attr:`ENSEMBLE_DELAY_MS` for the next key; after any other change, :attr:`SUMMARY_DELAY_MS`.
 
     Parameters
     ----------
@@ -39,15 +59,20 @@ class Display:
         Owner of the refresh timers (the window).
     """
 
+    SUMMARY_DELAY_MS = 250
+    ENSEMBLE_DELAY_MS = 1200
+
     def __init__(self, state: WindowState, views: WindowViews, runner: JobRunner, feedback: Feedback,
                  parent: QtCore.QObject) -> None:
         self.state = state
         self.views = views
         self.runner = runner
         self.feedback = feedback
-        self.summary_timer = QtCore.QTimer(parent, singleShot=True, interval=250, timeout=self.refresh_summary)
+        self.summary_timer = QtCore.QTimer(parent, singleShot=True, interval=self.SUMMARY_DELAY_MS,
+                                           timeout=self.refresh_summary)
         # The overview follows the trace view a few times a second, not on every frame of a pan:
         # redrawing both widgets each frame would halve the frame rate.
+        self._rate_stale = False
         self.overview_timer = QtCore.QTimer(parent, singleShot=True, interval=60, timeout=self.sync_overview_window)
 
     # -- sweeps --------------------------------------------------------------------------------
@@ -63,6 +88,7 @@ class Display:
         ch = st.recording.channels[st.channel]
         offset = st.ljp_mV() if st.beats is not None else 0.0
         v.trace_view.set_sweep(st.levels(sweep), label=ch.name, units=ch.units, offset_mV=offset)
+        v.dvdt_strip.set_sweep(st.levels(sweep), units=ch.units)
         v.trace_view.set_beats(st.beats)
         v.sweep_spin.blockSignals(True)
         v.sweep_spin.setValue(sweep + 1)
@@ -135,7 +161,26 @@ class Display:
         rows = st.sweep_rows()
         pos = int(np.flatnonzero(rows == row)[0]) if row in rows else 0
         v.beat_card.show_beat(b, row, len(rows), pos)
-        v.figures.set_input(self.figure_input())
+        self.show_overlay(row)
+        v.figures.set_current_row(row)
+
+    def show_overlay(self, row: int) -> None:
+        """The beat under review over its condition's mean beat (its summary's ensemble)."""
+        st = self.state
+        b = st.table
+        if b is None or st.recording is None or not (0 <= row < len(b)):
+            self.views.beat_card.overlay.blank()
+            return
+        name = str(b["condition"][row]) if "condition" in b else ""
+        ens = next((s.ensemble for s in st.summaries
+                    if str(s.values["condition"]) == name and s.ensemble is not None and s.ensemble.v_mV.size), None)
+        before_ms, after_ms = (-1e3 * ens.t0_s, 1e3 * float(ens.t_s[-1])) if ens is not None else (250.0, 500.0)
+        one = readouts.aligned_beats(st.recording, b, np.array([row]), channel=st.channel, offset_mV=st.ljp_mV(),
+                                     before_ms=before_ms, after_ms=after_ms)
+        beat = (one.t_ms, one.traces[0]) if one.rows.size else None
+        mean = (1e3 * ens.t_s, ens.v_mV) if ens is not None else None
+        note = f"mean of {ens.n_beats}" if ens is not None else "mean: after the summary"
+        self.views.beat_card.overlay.draw(beat, mean, note)
 
     def beats_hidden(self) -> None:
         """The trace without beats (a channel that is not the analysed one)."""
@@ -169,20 +214,22 @@ class Display:
         v.table.set_table(st.table)
         b = st.table
         if len(b):
-            starts = st.session.info(st.key).sweep_starts_s
-            v.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+            self._show_rate(b)
         if not (0 <= st.current_row < len(b)):
             st.current_row = -1
             rows = st.sweep_rows()
             if rows.size:
                 # The sweep's first beat measured whole: its very first has no diastole before it.
                 st.current_row = int(rows[min(1, rows.size - 1)])
+        if v.figures.input is None:
+            # The first beats of a recording; afterwards the figures follow the summaries.
+            v.figures.set_input(self.figure_input())
         if st.current_row >= 0:
             self.select_beat(st.current_row, follow=False)
         else:
             v.table.clearSelection()
             v.beat_card.show_beat(None, -1)
-        self.summary_timer.start()
+        self.schedule_summary()
 
     def refresh_conditions(self) -> None:
         st = self.state
@@ -194,7 +241,11 @@ class Display:
         info = st.session.info(st.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), col) for c, col in zip(conds, colours)]
         self.views.overview.set_conditions(spans, [])
-        self.summary_timer.start()
+        self.schedule_summary()
+
+    def schedule_summary(self, delay_ms: int | None = None) -> None:
+        """Summarise (in the background) once nothing else has changed for a while."""
+        self.summary_timer.start(self.SUMMARY_DELAY_MS if delay_ms is None else int(delay_ms))
 
     def refresh_summary(self) -> None:
         """Summarise the conditions with the session's own job in the background; the session
@@ -211,18 +262,36 @@ class Display:
         st, v = self.state, self.views
         if key != st.key:
             return  # another recording is shown now
-        st.summaries = summaries
         st.summaries_of = (key, len(st.table)) if st.table is not None else None
-        conds = st.session.conditions(st.key)
-        colours = {c.name: palette.condition_colour(i) for i, c in enumerate(conds)}
-        values = [s.values for s in summaries]
-        v.summary_panel.show_summaries(values, colours)
+        values, colours = self._show_summary_values(summaries, set())
         info = st.session.info(st.key)
+        conds = st.session.conditions(st.key)
         spans = [(c.name, *c.span_s(info.sweep_starts_s, info.sweep_durations_s), colours[c.name]) for c in conds]
         steady = [(float(x["window_start_s"]), float(x["window_end_s"]), colours.get(str(x["condition"]), palette.TRACE))
                   for x in values if x.get("condition") in colours and np.isfinite(float(x["window_start_s"]))]
         v.overview.set_conditions(spans, steady)
-        v.figures.set_input(self.figure_input())
+        if 0 <= st.current_row < len(st.table if st.table is not None else ()):
+            self.show_overlay(st.current_row)
+        if self._rate_stale and st.table is not None:
+            self._rate_stale = False
+            self._show_rate(st.table)
+        before, data = v.figures.input, self.figure_input()
+        # The same beats with new verdicts (a review in progress): one redraw when it pauses.
+        reviewing = (before is not None and data is not None and before.recording is data.recording
+                     and len(before.beats) == len(data.beats))
+        v.figures.set_input(data, defer=reviewing)
+
+    def _show_rate(self, b) -> None:
+        starts = self.state.session.info(self.state.key).sweep_starts_s
+        self.views.overview.set_rate(recording_times_s(b, starts), np.asarray(b["rate_bpm"], float), np.asarray(b["accepted"]))
+
+    def _show_summary_values(self, summaries: list, updating: set[str]) -> tuple[list, dict]:
+        st = self.state
+        st.summaries = summaries
+        colours = {c.name: palette.condition_colour(i) for i, c in enumerate(st.session.conditions(st.key))}
+        values = [s.values for s in summaries]
+        self.views.summary_panel.show_summaries(values, colours, updating=updating)
+        return values, colours
 
     def figure_input(self) -> FigureInput | None:
         st = self.state
@@ -247,7 +316,29 @@ class Display:
 
     def on_decisions_changed(self, key: str, rows: list) -> None:
         if key == self.state.key:
-            self.refresh_beats()
+            self.refresh_verdicts(rows)
+
+    def refresh_verdicts(self, rows: list) -> None:
+        """Verdicts changed on some beats (a review key): their rows in the table, their marks
+        on the trace, the beat card and the summary of their conditions change now; the
+        ensemble beats and the figures follow once the review pauses, saying they are updating."""
+        st, v = self.state, self.views
+        if st.key is None or st.session.info(st.key).channel != st.channel or st.table is None:
+            return
+        st.table = b = st.session.beats(st.key)
+        v.trace_view.set_beats(b)
+        v.table.set_table(b, changed=rows)
+        self._rate_stale = True  # the overview's rate strip follows with the summaries
+        if 0 <= st.current_row < len(b):
+            where = st.sweep_rows()
+            v.beat_card.show_beat(b, st.current_row, len(where), int(np.searchsorted(
+                np.asarray(b["t_upstroke_s"])[where], b["t_upstroke_s"][st.current_row])))
+        if st.summaries and st.summaries_of == (st.key, len(b)):
+            summaries, updating = quick_summaries(st.session, st.key, b, st.summaries, rows)
+            if updating:
+                self._show_summary_values(summaries, updating)
+        v.figures.mark_updating()
+        self.schedule_summary(self.ENSEMBLE_DELAY_MS)
 
     def on_conditions_changed(self, key: str) -> None:
         if key == self.state.key:
@@ -269,7 +360,8 @@ class Display:
     def fill_recording_combo(self) -> None:
         st, combo = self.state, self.views.recording_combo
         combo.clear()
-        for key in st.session.recordings:
-            combo.addItem(os.path.basename(st.session.label(key)), key)
+        labels = [st.session.label(key) for key in st.session.recordings]
+        for key, name in zip(st.session.recordings, _short_names(labels)):
+            combo.addItem(name, key)
         if st.key in st.session.recordings:
             combo.setCurrentIndex(st.session.recordings.index(st.key))

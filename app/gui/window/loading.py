@@ -15,6 +15,7 @@ from typing import Callable, Sequence
 
 from PySide6 import QtCore
 
+from analysis.chunkpool import default_workers
 from analysis.conditions import Condition
 from analysis.errors import InputError
 from analysis.recording import Recording
@@ -73,6 +74,10 @@ class Loader:
         self.parent = parent
         self.history_changed = history_changed
         self.set_title = set_title
+        #: Called with each new session, and with the key of each recording shown (the study's
+        #: grid follows both).
+        self.session_listeners: list[Callable[[Session], None]] = []
+        self.recording_listeners: list[Callable[[str | None], None]] = []
 
     # -- sessions ------------------------------------------------------------------------------
     def set_session(self, session: Session) -> None:
@@ -88,6 +93,8 @@ class Loader:
         self.state.bridge.warning.connect(lambda _k, text: self.feedback.status(f"warning: {text}"))
         self.state.bridge.changed.connect(self._autosave)
         self.history_changed()
+        for listener in self.session_listeners:
+            listener(session)
 
     # -- opening -------------------------------------------------------------------------------
     def open_recording_file(self, recording: Recording, *, origin: str | None = None, label: str | None = None,
@@ -98,7 +105,7 @@ class Loader:
         recording with the form's settings (for example by a batch); it is used instead.
         """
         self.runner.cancel_all()
-        self.set_session(Session(self.views.settings_form.settings))
+        self.set_session(Session(self.views.settings_form.settings, workers=default_workers()))
         self.state.key = None
         self.display.forget_beats()
         # A recording opened on its own has no results file yet: saving asks where (it must not
@@ -225,6 +232,8 @@ class Loader:
         if restore and self.state.journal.exists():
             self._restore_review(self.state.journal)
         self.display.refresh_all()
+        for listener in self.recording_listeners:
+            listener(key)
 
     # -- autosave restore ----------------------------------------------------------------------
     def journal_follows(self, results_path: str) -> None:
@@ -305,7 +314,9 @@ class Loader:
         runs on the GUI thread with its result. False when the job cannot be made."""
         session, key = self.state.session, self.state.key
         try:
-            job = session.settings_job(settings, [key])
+            # The summaries follow in their own background job (summary_job): the beats, flags
+            # and rejections show as soon as the stage the change reran is done.
+            job = session.settings_job(settings, [key], summaries=False)
         except InputError as exc:  # the source has gone: the results stay as they are
             self.feedback.show_error(exc.one_line() + " (re-analysis needs the recording)")
             self.views.settings_form.show_settings(session.settings(key))
@@ -329,7 +340,8 @@ class Loader:
         session.default_settings = change.settings
         scope = change.scopes.get(self.state.key, "none")
         self.feedback.status({"none": "settings unchanged", "summary": "summaries updated",
-                              "events": "events and quality rules re-run", "analysis": "beats detected and measured again"}.get(scope, scope))
+                              "rules": "quality rules applied again", "events": "events and quality rules re-run",
+                              "measure": "beats measured again", "detect": "beats detected and measured again"}.get(scope, scope))
         self.display.refresh_all()
         if pending is not None and pending != change.settings:
             self.reanalyse(pending)

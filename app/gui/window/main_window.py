@@ -17,17 +17,19 @@ import os
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from analysis.chunkpool import default_workers
 from analysis.session import Session
 
 from .. import palette
 from ..dialogs.about import CAUTION, AboutDialog
 from ..figures.plots import FiguresPanel
-from ..panels.beat_card import BeatCard, ReasonPicker
+from ..panels.beat_card import BeatCard, ReasonBook, ReasonPicker
 from ..panels.conditions import ConditionsPanel
 from ..panels.cursors import CursorPanel
 from ..panels.settings_form import SettingsForm
 from ..panels.summary_panel import SummaryPanel
-from ..views.beat_table import BeatTableView
+from ..views.beat_table import BeatFilterBar, BeatTableView
+from ..views.derivative_strip import DerivativeStrip
 from ..views.overview import OverviewStrip
 from ..views.trace_view import TraceView
 from .waiting import settle as _settle
@@ -36,9 +38,10 @@ from .display import Display
 from .feedback import Feedback
 from .files import Files
 from .loading import Loader
-from .recent import RecentFiles
+from .recent import RecentFiles, config_dir
 from .reviewing import Reviewer
 from .state import WindowState, WindowViews
+from .study import StudyController
 from .workers import JobRunner
 
 __all__ = ["MainWindow"]
@@ -56,6 +59,17 @@ def _forward(controller: str, func):
     method.__name__ = method.__qualname__ = name
     method.__doc__ = func.__doc__
     return method
+
+
+def _stacked(*widgets: QtWidgets.QWidget) -> QtWidgets.QWidget:
+    """Widgets one above the other, without margins (a bar above a view)."""
+    box = QtWidgets.QWidget()
+    layout = QtWidgets.QVBoxLayout(box)
+    layout.setContentsMargins(0, 0, 0, 0)
+    layout.setSpacing(2)
+    for w in widgets:
+        layout.addWidget(w)
+    return box
 
 
 def _shown(name: str, owner: str = "state") -> property:
@@ -83,7 +97,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.feedback = Feedback(self, interactive=interactive)
         self.progress = self.feedback.progress
         self.views = self._build_views()
-        self.state = WindowState(Session(self.settings_form.settings))
+        self.state = WindowState(Session(self.settings_form.settings, workers=default_workers()))
         self.display = Display(self.state, self.views, self.runner, self.feedback, self)
         self.loader = Loader(self.state, self.views, self.display, self.runner, self.feedback, self,
                              history_changed=self.update_history_actions, set_title=self.setWindowTitle)
@@ -93,6 +107,10 @@ class MainWindow(QtWidgets.QMainWindow):
         self._build_layout()
         self._build_actions()
         self._wire()
+        self.study = StudyController(self, self.state, self.runner, self.feedback, select_recording=self._show_study_recording,
+                                     make_action=self._action)
+        self.loader.session_listeners.append(self.study.session_changed)
+        self.loader.recording_listeners.append(self.study.recording_shown)
         self.loader.set_session(self.state.session)
         self.resize(1600, 1000)
         self.status(CAUTION)
@@ -102,14 +120,17 @@ class MainWindow(QtWidgets.QMainWindow):
         self.overview = OverviewStrip()
         self.overview.setMinimumHeight(120)
         self.trace_view = TraceView()
+        self.dvdt_strip = DerivativeStrip()
+        self.dvdt_strip.link_to(self.trace_view.getPlotItem())
         self.table = BeatTableView()
+        self.table_filter = BeatFilterBar()
         self.figures = FiguresPanel()
         self.beat_card = BeatCard()
         self.cursor_panel = CursorPanel()
         self.conditions_panel = ConditionsPanel()
         self.summary_panel = SummaryPanel()
         self.settings_form = SettingsForm()
-        self.reason_picker = ReasonPicker(self)
+        self.reason_picker = ReasonPicker(self, book=ReasonBook(config_dir()))
         self.recording_combo = QtWidgets.QComboBox()
         self.recording_combo.setMinimumContentsLength(18)
         self.recording_combo.setToolTip("Recordings of the results file")
@@ -119,7 +140,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self.sweep_spin.setPrefix("sweep ")
         self.sweep_spin.setMinimumWidth(120)
         return WindowViews(
-            trace_view=self.trace_view, overview=self.overview, table=self.table, figures=self.figures,
+            trace_view=self.trace_view, dvdt_strip=self.dvdt_strip, overview=self.overview, table=self.table, figures=self.figures,
             beat_card=self.beat_card, cursor_panel=self.cursor_panel, conditions_panel=self.conditions_panel,
             summary_panel=self.summary_panel, settings_form=self.settings_form, reason_picker=self.reason_picker,
             recording_combo=self.recording_combo, channel_combo=self.channel_combo, sweep_spin=self.sweep_spin,
@@ -127,33 +148,28 @@ class MainWindow(QtWidgets.QMainWindow):
 
     def _build_layout(self) -> None:
         bottom = QtWidgets.QSplitter(QtCore.Qt.Horizontal)
-        bottom.addWidget(self.table)
+        bottom.addWidget(_stacked(self.table_filter, self.table))
         bottom.addWidget(self.figures)
-        bottom.setSizes([640, 520])
+        bottom.setSizes([460, 560])
         left = QtWidgets.QSplitter(QtCore.Qt.Vertical)
         left.addWidget(self.overview)
         left.addWidget(self.trace_view)
+        left.addWidget(self.dvdt_strip)
         left.addWidget(bottom)
-        left.setSizes([150, 430, 330])
+        left.setSizes([130, 400, 110, 300])
         left.setChildrenCollapsible(False)
 
-        cond_page = QtWidgets.QWidget()
-        cond_layout = QtWidgets.QVBoxLayout(cond_page)
-        cond_layout.setContentsMargins(0, 0, 0, 0)
-        cond_split = QtWidgets.QSplitter(QtCore.Qt.Vertical)
-        cond_split.addWidget(self.conditions_panel)
-        cond_split.addWidget(self.summary_panel)
-        cond_split.setSizes([120, 480])
-        cond_layout.addWidget(cond_split)
+        # The summary has a tab of its own: at 1366x768 it fits there without scrolling.
         self.side_tabs = QtWidgets.QTabWidget()
         self.side_tabs.setObjectName("side_tabs")
-        self.side_tabs.addTab(cond_page, "Conditions")
-        self.side_tabs.addTab(self.cursor_panel, "Cursors")
+        self.side_tabs.addTab(self.summary_panel, "Summary")
+        self.side_tabs.addTab(self.conditions_panel, "Conditions")
+        self.side_tabs.addTab(self.cursor_panel, "Gates")
         self.side_tabs.addTab(self.settings_form, "Definitions")
         right = QtWidgets.QSplitter(QtCore.Qt.Vertical)
         right.addWidget(self.beat_card)
         right.addWidget(self.side_tabs)
-        right.setSizes([230, 700])
+        right.setSizes([200, 700])
 
         main = QtWidgets.QSplitter(QtCore.Qt.Horizontal)
         main.addWidget(left)
@@ -170,7 +186,9 @@ class MainWindow(QtWidgets.QMainWindow):
         self.trace_view.cursors_toggled.connect(lambda on: self.set_cursors_visible(on))
         self.trace_view.cursors_finished.connect(review.on_cursors_finished)
         self.trace_view.view_changed.connect(display.follow_trace_view)
+        self.trace_view.view_changed.connect(self.dvdt_strip.follow)
         self.table.row_selected.connect(display.select_beat)
+        self.table_filter.filter_chosen.connect(self.table.beat_model.set_filter)
         self.overview.navigated.connect(display.on_overview_navigated)
         self.overview.clicked_at.connect(display.on_overview_clicked)
         self.overview.condition_marked.connect(review.mark_condition)
@@ -248,12 +266,17 @@ class MainWindow(QtWidgets.QMainWindow):
         review = self.menuBar().addMenu("&Review")
         self._action(review, "&Next beat", self.review.next_beat, "N")
         self._action(review, "&Previous beat", self.review.previous_beat, "P")
+        self._action(review, "Next beat needing a &look", self.review.next_waiting, "Shift+N",
+                     tip="Waiting for review, or flagged and not yet reviewed")
+        self._action(review, "Previous beat needing a l&ook", self.review.previous_waiting, "Shift+P")
+        self._action(review, "Next &unreviewed beat", self.review.next_unreviewed, "U",
+                     tip="The next beat you have given no verdict")
         review.addSeparator()
         self._action(review, "&Accept beat", self.review.accept_current, "A")
         self._action(review, "&Reject beat…", self.review.ask_reject_current, "R")
         self._action(review, "Return beat to the &automatic verdict", self.review.clear_current, "E")
-        self._action(review, "Reject beats &between cursors…", self.review.ask_reject_region, "Shift+R",
-                     tip="Between the cursors when they are shown, else every beat in view")
+        self._action(review, "Reject beats &inside the gates…", self.review.ask_reject_region, "Shift+R",
+                     tip="Between the gates when they are shown, else every beat in view")
         review.addSeparator()
         self.act_next_sweep = self._action(review, "Next s&weep", self.display.next_sweep, K.StandardKey.MoveToNextPage)
         self.act_prev_sweep = self._action(review, "Previous sw&eep", self.display.previous_sweep, K.StandardKey.MoveToPreviousPage)
@@ -265,8 +288,8 @@ class MainWindow(QtWidgets.QMainWindow):
         view = self.menuBar().addMenu("&View")
         self.act_phases = self._action(view, "&Phases", self.set_phases_visible, "H", checkable=True,
                                        tip="Wash the action-potential phases (4, 0, 1, 2, 3) behind the trace")
-        self.act_cursors = self._action(view, "&Cursors", self.set_cursors_visible, "C", checkable=True,
-                                        tip="Two cursors; their readout is in the Cursors tab")
+        self.act_cursors = self._action(view, "&Gates", self.set_cursors_visible, "G", checkable=True,
+                                        tip="Two gate lines bounding a stretch of trace; its readout is in the Gates tab")
         self.act_fit_y = self._action(view, "Fit &voltage", self.trace_view.fit_y, "Y", tip="Fit the voltage axis to what is in view")
         self.act_whole_sweep = self._action(view, "&Whole sweep", self.display.show_whole_sweep, "W", tip="Show the whole sweep")
         self._action(view, "&Zoom to beat", self.display.zoom_to_beat, "Z")
@@ -276,6 +299,10 @@ class MainWindow(QtWidgets.QMainWindow):
         self._action(help_menu, "&About Upstroke", lambda: AboutDialog(self).exec())
         self._toolbar()
         self._fill_recent_menu()
+
+    def _show_study_recording(self, key: str) -> None:
+        self.loader.select_recording(key)
+        self.display.fill_recording_combo()
 
     # -- status, errors, history ------------------------------------------------------------------
     def status(self, text: str) -> None:
@@ -352,8 +379,12 @@ class MainWindow(QtWidgets.QMainWindow):
     # -- waiting (tests, screenshots) ---------------------------------------------------------
     def settle(self, timeout_ms: int = 120_000) -> bool:
         """Run pending delayed refreshes now and wait for every background job, until neither
-        is left (a finished analysis schedules a summary, which is a job of its own)."""
-        return _settle(self.display, self.runner, timeout_ms)
+        is left (a finished analysis schedules a summary, which is a job of its own; a change
+        to a study's review, the study's tables)."""
+        settled = _settle(self.display, self.runner, timeout_ms)
+        while settled and self.study.flush():
+            settled = _settle(self.display, self.runner, timeout_ms)
+        return settled
 
     def wait_idle(self, timeout_ms: int = 120_000) -> bool:
         """Process events until no background job is left (or the timeout)."""
@@ -408,6 +439,9 @@ class MainWindow(QtWidgets.QMainWindow):
     reanalyse = _forward("loader", Loader.reanalyse)
     next_beat = _forward("review", Reviewer.next_beat)
     previous_beat = _forward("review", Reviewer.previous_beat)
+    next_waiting = _forward("review", Reviewer.next_waiting)
+    previous_waiting = _forward("review", Reviewer.previous_waiting)
+    next_unreviewed = _forward("review", Reviewer.next_unreviewed)
     accept_current = _forward("review", Reviewer.accept_current)
     reject_current = _forward("review", Reviewer.reject_current)
     clear_current = _forward("review", Reviewer.clear_current)

@@ -10,15 +10,31 @@ import numpy as np
 from PySide6 import QtCore, QtWidgets
 
 from analysis.conditions import Condition, ConditionError, SteadyState
+from analysis.decisions import TO_REVIEW
 from analysis.errors import InputError
 from analysis.readouts import readout
 
+from .. import palette
 from ..panels.conditions import ConditionDialog
+from ..views.beat_marks import beat_extent
 from .display import Display
 from .feedback import Feedback
 from .state import WindowState, WindowViews
 
-__all__ = ["Reviewer"]
+__all__ = ["Reviewer", "waiting_mask"]
+
+
+def waiting_mask(table) -> np.ndarray | None:
+    """Beats that need a look: waiting for review, or flagged (a flag the review should see)
+    and not yet given a verdict by the user."""
+    if table is None:
+        return None
+    n = len(table)
+    waiting = (np.asarray(table["verdict"], dtype=object) == TO_REVIEW) if "verdict" in table else np.zeros(n, bool)
+    flags = np.asarray(table["flags"], dtype=object) if "flags" in table else np.full(n, "", dtype=object)
+    flagged = np.array([any(w and w not in palette.QUIET_FLAGS for w in str(f).split(";")) for f in flags], dtype=bool)
+    unreviewed = np.asarray(table["reviewed"]) == 0 if "reviewed" in table else np.ones(n, bool)
+    return waiting | (flagged & unreviewed)
 
 
 class Reviewer:
@@ -62,6 +78,35 @@ class Reviewer:
         where = int(np.flatnonzero(order == self.state.current_row)[0])
         self.display.select_beat(int(order[int(np.clip(where + step, 0, order.size - 1))]))
 
+    def next_waiting(self) -> None:
+        """The next beat that needs a look: waiting for review, or flagged and not yet reviewed."""
+        self._step_to(+1, waiting_mask(self.state.table))
+
+    def previous_waiting(self) -> None:
+        """The previous beat that needs a look (see :meth:`next_waiting`)."""
+        self._step_to(-1, waiting_mask(self.state.table))
+
+    def next_unreviewed(self) -> None:
+        """The next beat with no verdict of the user's."""
+        t = self.state.table
+        self._step_to(+1, None if t is None else np.asarray(t["reviewed"]) == 0 if "reviewed" in t else np.ones(len(t), bool))
+
+    def _step_to(self, step: int, wanted: np.ndarray | None) -> None:
+        """The nearest beat after (``step`` +1) or before (-1) the one under review, in time
+        order across sweeps, where ``wanted`` is True; says so when there is none."""
+        order = self.state.time_order()
+        if wanted is None or not order.size:
+            return
+        here = np.flatnonzero(order == self.state.current_row)
+        where = int(here[0]) if here.size else -1
+        ahead = order[where + 1:] if step > 0 else order[:max(where, 0)][::-1]
+        hits = ahead[wanted[ahead]]
+        if hits.size:
+            self.display.select_beat(int(hits[0]))
+        else:
+            left = int(wanted.sum())
+            self.feedback.status(f"no such beat {'after' if step > 0 else 'before'} this one ({left} in all)")
+
     def accept_current(self) -> None:
         """Accept the beat under review and move on."""
         if self._can_edit() and self.state.current_row >= 0:
@@ -73,7 +118,8 @@ class Reviewer:
         """Open the reason picker beside the beat under review."""
         if self._can_edit() and self.state.current_row >= 0:
             self._picker_target = ("beat", [self.state.current_row])
-            self.views.reason_picker.open_at(self._beat_global_pos(self.state.current_row), "Reject this beat because…")
+            avoid = self._beat_global_rect(self.state.current_row)
+            self.views.reason_picker.open_at(avoid.topRight(), "Reject this beat because…", avoid=avoid)
 
     def reject_current(self, reason: str) -> None:
         """Reject the beat under review with a reason and move on."""
@@ -101,7 +147,7 @@ class Reviewer:
         rows = self.region_rows()
         if self._can_edit() and rows.size:
             self._picker_target = ("region", rows.tolist())
-            where = "between the cursors" if self.views.trace_view.cursors_visible() else "in view"
+            where = "between the gates" if self.views.trace_view.cursors_visible() else "in view"
             pos = self.views.trace_view.mapToGlobal(self.views.trace_view.rect().center())
             self.views.reason_picker.open_at(pos, f"Reject the {rows.size} beats {where} because…")
 
@@ -124,12 +170,15 @@ class Reviewer:
         if self.state.current_row == row:
             self.next_beat()
 
-    def _beat_global_pos(self, row: int) -> QtCore.QPoint:
-        t = float(self.state.table["t_upstroke_s"][row])
-        vb = self.views.trace_view.vb
+    def _beat_global_rect(self, row: int) -> QtCore.QRect:
+        """The beat on screen, from its MDP to its APD90 marker, the plot's whole height."""
+        view = self.views.trace_view
+        a, e = beat_extent(self.state.table, np.array([row]))
+        vb = view.vb
         (_x0, _x1), (y0, y1) = vb.viewRange()
-        scene = vb.mapViewToScene(QtCore.QPointF(t, y0 + 0.75 * (y1 - y0)))
-        return self.views.trace_view.mapToGlobal(self.views.trace_view.mapFromScene(scene))
+        corners = [view.mapToGlobal(view.mapFromScene(vb.mapViewToScene(QtCore.QPointF(float(x), float(y)))))
+                   for x, y in ((a[0], y1), (e[0], y0))]
+        return QtCore.QRect(corners[0], corners[1]).normalized()
 
     def undo(self) -> None:
         if self._can_edit():
@@ -142,9 +191,13 @@ class Reviewer:
             self._after_history_step()
 
     def _after_history_step(self) -> None:
-        # An undone settings change puts the old definitions back: show them in the form too.
-        self.views.settings_form.show_settings(self.state.session.settings(self.state.key))
-        self.display.refresh_all()
+        # A verdict or a condition undone has redrawn what it changed through the session's own
+        # notice. An undone settings change puts the old definitions back: the form shows them,
+        # and everything is drawn again.
+        settings = self.state.session.settings(self.state.key)
+        if settings != self.views.settings_form.settings:
+            self.views.settings_form.show_settings(settings)
+            self.display.refresh_all()
 
     def _can_edit(self) -> bool:
         if self.state.key is None or self.state.beats is None:
@@ -173,9 +226,9 @@ class Reviewer:
         self.state.last_readout = r
         u = r.units
         self.views.trace_view.set_readout_text(
-            f"C1–C2  Δt {r.delta_t_ms:.1f} ms · ΔV {r.delta_value:+.2f} {u} · mean {r.mean_value:.2f} {u} · "
-            f"slope {r.slope_per_s:.1f} {u}/s · {r.n_beats} beat{'s' if r.n_beats != 1 else ''}"
-            if r.n_samples else "C1–C2: no samples between the cursors")
+            f"gated {r.delta_t_ms:.1f} ms │ rise {r.delta_value:+.2f} {u} │ average {r.mean_value:.2f} {u} │ "
+            f"trend {r.slope_per_s:+.1f} {u}/s │ {r.n_beats} upstroke{'s' if r.n_beats != 1 else ''} inside"
+            if r.n_samples else "gates: no sample between them")
 
     # -- conditions ----------------------------------------------------------------------------
     def mark_condition(self, t0_s: float, t1_s: float) -> None:

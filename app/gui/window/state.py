@@ -23,6 +23,7 @@ from ..panels.cursors import CursorPanel
 from ..panels.settings_form import SettingsForm
 from ..panels.summary_panel import SummaryPanel
 from ..views.beat_table import BeatTableView
+from ..views.derivative_strip import DerivativeStrip
 from ..views.overview import OverviewStrip
 from ..views.trace_data import SweepLevels
 from ..views.trace_view import TraceView
@@ -35,6 +36,7 @@ class WindowViews:
     """The views, panels and toolbar controls of the main window."""
 
     trace_view: TraceView
+    dvdt_strip: DerivativeStrip
     overview: OverviewStrip
     table: BeatTableView
     figures: FiguresPanel

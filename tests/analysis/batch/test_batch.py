@@ -283,3 +283,21 @@ def test_a_worker_killed_mid_batch_is_reported_not_hung(study):
     died = [o for o in result.outcomes if o.fault]
     assert died and all("a worker process died while" in o.fault for o in died)
     assert all(o.ok or o.fault or o.error for o in result.outcomes)
+
+
+def test_a_finished_task_travels_packed_and_arrives_unchanged():
+    import pickle
+
+    from analysis.batch import FileOutcome
+
+    cols = {"file": np.array(["a.abf", "a.abf"], dtype=object), "sweep": np.array([0, 0]), "cl_ms": np.array([np.nan, 450.5]),
+            "accepted": np.array([1, 0]), "flags": np.array(["", "noisy"], dtype=object), "peak_mV": np.array([20.0, 21.5])}
+    summary = {"file": np.array(["a.abf"], dtype=object), "n_beats": np.array([2]), "cl_mean_ms": np.array([450.5])}
+    sent = FileOutcome(0, "a.abf", columns=cols, meta={"summary": summary, "label": "a.abf"})
+    got = pickle.loads(pickle.dumps(sent))  # pickle, as the process pool and Dask send it
+    for mine, theirs in ((cols, got.columns), (summary, got.meta["summary"])):
+        assert list(theirs) == list(mine)
+        for name, values in mine.items():
+            assert theirs[name].dtype == values.dtype
+            assert np.array_equal(theirs[name], values, equal_nan=values.dtype.kind == "f")
+    assert got.meta["label"] == "a.abf"

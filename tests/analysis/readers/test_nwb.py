@@ -142,3 +142,58 @@ def test_sniff_finds_the_hdf5_signature():
     assert nwb_reader.sniff(b"\x89HDF\r\n\x1a\n" + b"\x00" * 8)  # HDF5 format signature
     assert nwb_reader.sniff(b"\x00" * 512 + b"\x89HDF\r\n\x1a\n")  # after a 512-byte user block
     assert not nwb_reader.sniff(b"ABF2" + b"\x00" * 600)
+
+
+def test_reading_needs_no_writable_cache_folder(tmp_path):
+    """pynwb makes a cache folder when imported; where it cannot, the file still reads (compared
+    with h5py's own reading of the stored data, scaled as the NWB standard says)."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    import h5py
+
+    path = files.write_nwb(tmp_path / "cell.nwb", [
+        {"name": f"sweep_{i}", "data": _int16_wave(shift=i), "rate": RATE_HZ, "starting_time": float(i),
+         "conversion": 2e-5, "offset": -0.07} for i in range(2)
+    ])
+    blocker = tmp_path / "a-file"
+    blocker.write_text("not a folder\n")
+    code = ("import sys; from analysis import open_recording\n"
+            f"rec = open_recording({str(path)!r}); v = rec.sweep(0, 0)\n"
+            "print(rec.n_sweeps, len(v), repr(float(v[123])))\n")
+    repo = str(Path(__file__).resolve().parents[3])
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300,
+                          env={"PATH": "/usr/bin:/bin", "PYTHONPATH": repo, "HOME": str(blocker / "home"),
+                               "XDG_CACHE_HOME": str(blocker / "cache")})
+    assert proc.returncode == 0, proc.stderr
+    with h5py.File(path, "r") as f:  # h5py, independent of pynwb: the first series' samples
+        name = sorted(f["acquisition"])[0]
+        raw = f["acquisition"][name]["data"]
+        # The NWB standard: value = data * conversion + offset, in volts (NWB TimeSeries spec).
+        expected = (float(raw[123]) * float(raw.attrs["conversion"]) + float(raw.attrs["offset"])) * 1e3
+        n_stored = raw.shape[0]
+    n_sweeps, n, value = proc.stdout.split()
+    assert int(n_sweeps) == 2 and int(n) == n_stored
+    assert float(value) == pytest.approx(expected, rel=1e-12)
+
+
+def test_damaged_metadata_met_when_reading_samples_is_refused(tmp_path, monkeypatch):
+    """An h5py error while the samples are read (here a KeyError, as a damaged heap gives) is the
+    reader's one-line error, both when the file is opened and later."""
+    path = files.write_nwb(tmp_path / "cell.nwb", [{"name": "sweep_a", "data": _int16_wave(), "rate": RATE_HZ}])
+
+    import h5py
+
+    real = h5py.File.__getitem__
+
+    def broken(self, name):
+        if str(name).endswith("/data"):
+            raise KeyError("Unable to synchronously open object (bad heap free list)")
+        return real(self, name)
+
+    monkeypatch.setattr(h5py.File, "__getitem__", broken)
+    with pytest.raises(RecordingError) as err:
+        open_recording(path)
+    line = err.value.one_line()
+    assert "\n" not in line and str(path) in line and "bad heap free list" in line

@@ -38,7 +38,7 @@ def _record(tmp_path, n=50, name="cell.abf") -> StoredRecording:
         settings_hash="abc123", beats=beats,
         decisions=DecisionLog([Decision(0, 3, 2.4, 0, "bump", "2024-02-03T10:00:00.000Z"), Decision(0, 3, 2.4, -1, "", "t2", "undo")]),
         conditions=(parse_condition("baseline=0-60s"), parse_condition("drug=sweeps:2-end,steady=last20beats")),
-        summary={"file": np.array([name], dtype=object), "n_accepted": np.array([49]), "cl_mean_ms": np.array([np.nan])},
+        summary={"file": np.array([name], dtype=object), "n_used": np.array([49]), "cl_mean_ms": np.array([np.nan])},
         ensembles=[(np.linspace(-60, 20, 100), 10_000.0, -0.3)], warnings=("one", "two"), provenance=provenance_now(),
     )
 
@@ -71,14 +71,16 @@ def test_layout_is_readable_with_plain_h5py(tmp_path):
     save_results(path, [r])
     with h5py.File(path, "r") as f:
         assert f.attrs["format"] == FORMAT_NAME and f.attrs["schema_version"] == SCHEMA_VERSION
-        g = f["recordings/000000"]
-        assert g.attrs["source_relpath"] == "cell.abf"
-        assert g["beats/cl_ms"].dtype == np.float64
-        assert h5py.check_string_dtype(g["beats/flags"].dtype).encoding == "utf-8"
-        assert g["beats/reject_reason"].asstr()[0].startswith("é")
-        assert [c for c in g["beats"].attrs["columns"]] == r.beats.names
-        assert g["decisions/accepted"][()].tolist() == [0, -1]
-        assert g["settings"].asstr()[()] == '{"schema_version": 1}'
+        index = f["index"]
+        assert index["source_relpath"].asstr()[0] == "cell.abf"
+        assert index["id"].asstr()[0] == r.sha256[:16]  # first 16 hex digits of the SHA-256
+        assert index["beats_start"][0] == 0 and index["beats_count"][0] == 50
+        assert f["beats/cl_ms"].dtype == np.float64
+        assert h5py.check_string_dtype(f["beats/flags"].dtype).encoding == "utf-8"
+        assert f["beats/reject_reason"].asstr()[0].startswith("é")
+        assert [c for c in f["beats"].attrs["columns"]] == r.beats.names
+        assert f["decisions/accepted"][()].tolist() == [0, -1]
+        assert f["settings/json"].asstr()[index["settings_row"][0]] == '{"schema_version": 1}'
 
 
 def test_same_content_gives_identical_datasets(tmp_path):
@@ -161,7 +163,7 @@ def test_a_failed_save_leaves_the_previous_file(tmp_path, monkeypatch):
     def boom(*args, **kwargs):
         raise RuntimeError("disk on fire")
 
-    monkeypatch.setattr(store, "_write_recording", boom)
+    monkeypatch.setattr(store, "write_v2", boom)
     with pytest.raises(RuntimeError):
         save_results(path, [_record(tmp_path)])
     assert path.read_bytes() == before
@@ -173,17 +175,17 @@ _CHILD = textwrap.dedent(
     import os, sys, time
     import numpy as np
     sys.path.insert(0, {repo!r})
-    import analysis.results._store as store
+    import analysis.results._layout as layout
     import analysis.results._atomic as atomic
     from analysis.table import BeatTable
     from analysis.results._store import StoredRecording, save_results
 
     stop_after = int(sys.argv[2])
     count = [0]
-    real_write = store._write_column
+    real_write = layout._Table._append_column
 
-    def write_column(group, name, values):
-        real_write(group, name, values)
+    def write_column(self, *args):
+        real_write(self, *args)
         count[0] += 1
         print("column", count[0], flush=True)
         if count[0] == stop_after:
@@ -197,7 +199,7 @@ _CHILD = textwrap.dedent(
             time.sleep(60)
         real_replace(a, b)
 
-    store._write_column = write_column
+    layout._Table._append_column = write_column
     atomic.os.replace = replace
     n = 200_000
     rng = np.random.default_rng(1)

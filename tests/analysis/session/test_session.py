@@ -99,7 +99,7 @@ def test_notifications_are_plain_callbacks(session):
 
 def test_conditions_are_checked_and_fill_the_column(session, syn):
     key = session.recordings[0]
-    session.set_conditions(key, [parse_condition("drug=10-end,steady=last5beats"), parse_condition("baseline=0-10s")])
+    session.set_conditions(key, [parse_condition("drug=10s-end,steady=last5beats"), parse_condition("baseline=0-10s")])
     conds = session.conditions(key)
     assert [c.name for c in conds] == ["baseline", "drug"]  # sorted by start
     b = session.beats(key)
@@ -108,11 +108,11 @@ def test_conditions_are_checked_and_fill_the_column(session, syn):
     with pytest.raises(ConditionError, match="overlap"):
         session.add_condition(key, parse_condition("washout=9-12s"))
     with pytest.raises(ConditionError, match="two conditions"):
-        session.add_condition(key, parse_condition("drug=30-40s"))
+        session.add_condition(key, parse_condition("drug=15-18s"))
     session.replace_condition(key, "drug", Condition("drug", 10.0, math.inf, steady=SteadyState("all")))
     rows = {s.values["condition"]: s.values for s in session.summaries(key)}
     assert rows["drug"]["window"] == "all"
-    assert rows["drug"]["n_accepted"] == int(((b["condition"] == "drug") & (b["accepted"] == 1)).sum())
+    assert rows["drug"]["n_used"] == int(((b["condition"] == "drug") & (b["accepted"] == 1)).sum())
 
 
 @pytest.mark.parametrize(
@@ -120,7 +120,7 @@ def test_conditions_are_checked_and_fill_the_column(session, syn):
     [
         ("baseline=0-60s", ("baseline", 0.0, 60.0, "s", "auto")),
         ("drug=1min-3.5min,steady=last30s", ("drug", 60.0, 210.0, "s", "last30s")),
-        ("washout=180-end", ("washout", 180.0, math.inf, "s", "auto")),
+        ("washout=180s-end", ("washout", 180.0, math.inf, "s", "auto")),
         ("episodic=sweeps:2-5,steady=last20beats", ("episodic", 2.0, 5.0, "sweeps", "last20beats")),
         ("one=sweep:4,steady=all", ("one", 4.0, 4.0, "sweeps", "all")),
     ],
@@ -144,7 +144,7 @@ def test_settings_changes_recompute_only_what_they_affect(session):
     assert session.set_settings(Settings().replace("summary.steady_window_s", 30.0)) == {key: "summary"}
     assert session.auto_beats(key) is auto
     scopes = session.set_settings(session.settings(key).replace("quality.reject_ead", True))
-    assert scopes == {key: "events"}
+    assert scopes == {key: "rules"}
     after = session.auto_beats(key)
     assert np.array_equal(after["t_upstroke_s"], auto["t_upstroke_s"])  # nothing re-detected
     ead = np.array(["ead" in f for f in after["flags"]])
@@ -167,7 +167,7 @@ def test_an_artefact_rule_change_measures_the_neighbours_again(change):
     key = s.add(rec, label="cell-31")
     assert any(r.startswith("auto: artefact") for r in s.auto_beats(key)["reject_reason"])
     new = Settings().replace(*change)
-    assert s.set_settings(new) == {key: "analysis"}
+    assert s.set_settings(new) == {key: "measure"}
     fresh = analyze(rec, new, label="cell-31").beats
     got = s.auto_beats(key)
     for name in ("t_upstroke_s", "cl_ms", "mdp_mV", "apd90_ms", "accepted"):
@@ -182,7 +182,7 @@ def test_decisions_survive_a_reanalysis_matched_by_time(session):
     before = session.beats(key)["t_upstroke_s"].copy()
     t3 = before[3]
     new = Settings().replace("measurement.upstroke_time_method", "voltage_level")
-    assert session.set_settings(new) == {key: "analysis"}
+    assert session.set_settings(new) == {key: "measure"}
     b = session.beats(key)
     shifted = b["t_upstroke_s"]
     assert shifted.size == before.size
@@ -208,7 +208,7 @@ def test_save_and_open_restore_the_session_exactly(session, syn, tmp_path):
     session.reject(key, [2, 3], "bump")
     session.accept(key, [4])
     session.undo()
-    session.set_conditions(key, [parse_condition("baseline=0-9.5s,steady=last5beats"), parse_condition("drug=9.5-end")])
+    session.set_conditions(key, [parse_condition("baseline=0-9.5s,steady=last5beats"), parse_condition("drug=9.5s-end")])
     session.set_settings(Settings().replace("quality.noise_max_mV_rms", 0.5))
     assert session.modified
     path = tmp_path / "study.h5"
@@ -257,7 +257,7 @@ def test_summary_jobs_are_kept_only_while_current(session):
     assert not session.set_summaries(stale, stale())
     now = session.summaries(key)
     assert now is not fresh
-    assert now[0].values["n_accepted"] == fresh[0].values["n_accepted"] - 1
+    assert now[0].values["n_used"] == fresh[0].values["n_used"] - 1
 
 
 def test_saving_twice_gives_identical_datasets(session, tmp_path):
@@ -319,7 +319,7 @@ def test_the_ljp_is_the_settings_own_and_every_trace_follows_it(syn, tmp_path):
     import h5py
 
     with h5py.File(tmp_path / "ljp.h5", "r") as f:  # the results file's ljp_mV is the settings' (CONTRACT.md)
-        stored = [float(g.attrs["ljp_mV"]) for g in f["recordings"].values()]
+        stored = f["index/ljp_mV"][()].tolist()
     assert stored == [10.0]
     assert Session.open(tmp_path / "ljp.h5").info(key).ljp_mV == 10.0
     s.undo()
@@ -370,9 +370,11 @@ def _check_progress(seen):
 
 @pytest.mark.parametrize("name, value, scope, analysed, rules", [
     ("summary.steady_window_s", 20.0, "summary", [], 0),
-    ("quality.noise_max_mV_rms", 0.4, "events", [], 1),
-    ("detection.min_amplitude_mV", 25.0, "analysis", [(0, 2)], 1),
-    ("preprocess.ljp_mV", 4.0, "analysis", [(0, 2)], 1),
+    ("quality.noise_max_mV_rms", 0.4, "rules", [], 0),
+    ("quality.ead_min_mV", 4.0, "events", [], 1),
+    ("measurement.mdp_smoothing_ms", 3.0, "measure", [(0, 2)], 1),
+    ("detection.min_amplitude_mV", 25.0, "detect", [(0, 2)], 1),
+    ("preprocess.ljp_mV", 4.0, "detect", [(0, 2)], 1),
 ])
 def test_prepare_settings_computes_only_what_the_change_needs_with_progress(
         episodic, monkeypatch, name, value, scope, analysed, rules):
@@ -385,8 +387,10 @@ def test_prepare_settings_computes_only_what_the_change_needs_with_progress(
     assert calls["analyze"] == analysed  # only the analysed sweeps, and only for detection-level changes
     assert calls["rules"] == rules
     _check_progress(seen)
-    if scope == "analysis":
+    if scope == "detect":
         assert len({f for f, _ in seen}) > 4 and any("detecting" in m for _, m in seen)
+    if scope == "measure":
+        assert not any("detecting" in m for _, m in seen) and any("measuring" in m for _, m in seen)
     assert s.settings(key) != new  # preparing changes nothing
     assert s.apply_settings(change) and s.settings(key) == new
     # The summaries came with the change: the session does not summarise again.
@@ -409,5 +413,5 @@ def test_summaries_prepared_before_a_decision_are_not_kept(episodic):
     s.reject(key, [1], "bump")  # the user goes on reviewing while the job runs
     change = job()
     assert s.apply_settings(change) and s.cached_summaries(key) is None
-    n = change.summaries[key][0].values["n_accepted"]
-    assert s.summaries(key)[0].values["n_accepted"] == n - 1
+    n = change.summaries[key][0].values["n_used"]
+    assert s.summaries(key)[0].values["n_used"] == n - 1

@@ -9,7 +9,7 @@ import pytest
 
 from analysis.conditions import Condition, SteadyState, parse_condition
 from analysis.settings import Settings
-from analysis.stats import SUMMARY_COLUMNS, eligible_mask, suggest_steady_state, summarize, summary_columns, summary_csv
+from analysis.stats import PARAMETERS, SUMMARY_COLUMNS, eligible_mask, suggest_steady_state, summarize, summary_columns, summary_csv
 from analysis.table import BeatTable
 from analysis.stats import cell_type_hint, coefficient_of_variation_pct, linear_relation, poincare_sd1_sd2, rmssd, sdnn, stv
 
@@ -157,7 +157,7 @@ def test_summary_leaves_out_rejected_and_unmeasurable_beats():
     assert len(s) == 1
     row = s[0].values
     used = eligible
-    assert row["n_beats"] == 40 and row["n_rejected"] == 1 and row["n_accepted"] == int(used.sum())
+    assert row["n_beats"] == 40 and row["n_rejected"] == 1 and row["n_used"] == int(used.sum())
     assert row["mdp_mean_mV"] == pytest.approx(np.mean(t["mdp_mV"][used]))  # numpy reference
     assert row["apd90_sd_ms"] == pytest.approx(np.std(t["apd90_ms"][used], ddof=1))
     # RMSSD over consecutive eligible beats only (beats 4-5 and 5-6 break at the rejected beat).
@@ -182,11 +182,11 @@ def test_summary_per_condition_and_window_rules():
     s = summarize(t, label="c1", sweep_starts_s=[0.0], sweep_durations_s=[60.0], conditions=conds, settings=Settings().summary)
     by = {x.values["condition"]: x for x in s}
     assert set(by) == {"baseline", "drug"}
-    assert by["baseline"].values["n_accepted"] == 10
+    assert by["baseline"].values["n_used"] == 10
     drug = by["drug"].values
     last = t_up[eligible_mask(t) & (t["condition"] == "drug")].max()
     inside = eligible_mask(t) & (t["condition"] == "drug") & (t_up > last - 10.0 - 1e-12)
-    assert drug["n_accepted"] == int(inside.sum())
+    assert drug["n_used"] == int(inside.sum())
     assert drug["window"] == "last10s"
 
 
@@ -217,7 +217,7 @@ def test_ensemble_beat_matches_the_synthetic_truth():
     ens = summary.ensemble
     truth = syn.truth.beats
     ok = np.array([f == "" for f in truth["flags"]])
-    assert ens is not None and ens.n_beats == summary.values["n_accepted"] >= 20
+    assert ens is not None and ens.n_beats == summary.values["n_used"] >= 20
     assert ens.t0_s < 0 and ens.v_mV.size == round(np.median(truth["cl_ms"][ok]) * 20)
     p = ens.parameters
     assert p["mdp_mV"] == pytest.approx(np.mean(truth["mdp_mV"][ok]), abs=0.5)
@@ -244,3 +244,31 @@ def test_the_cell_type_hint_is_judged_once_on_the_baseline_condition():
     # one cell, one type: the baseline's, on every condition, saying where it was judged
     assert {h for h, _ in hints.values()} == {"nodal-like"}
     assert all("judged once, on baseline" in why for _, why in hints.values())
+def test_summary_counts_are_unambiguous_and_the_means_are_those_of_the_beats_used():
+    # 60 beats in one condition, a 10 s window at its end; some beats wait for review, one is rejected.
+    from analysis.decisions import apply_status
+
+    t = _table(60)
+    flags = np.array(t["flags"], dtype=object)
+    flags[[50, 52, 20]] = "noisy"  # two in the window, one before it
+    reasons = np.full(60, "", dtype=object)
+    reasons[5] = "auto: artefact"
+    t = apply_status(t.with_columns(flags=flags, reject_reason=reasons, condition=["drug"] * 60), None, ("noisy",))
+    t_up = t["t_upstroke_s"]
+    cond = Condition("drug", 0.0, math.inf, steady=SteadyState("last_s", 10.0))
+    (s,) = summarize(t, label="c1", sweep_starts_s=[0.0], sweep_durations_s=[60.0], conditions=[cond],
+                     settings=Settings().summary)
+    v = s.values
+    used = s.beat_rows
+    assert v["n_beats"] == 60 and v["n_rejected"] == 1 and v["n_to_review"] == 3
+    lo, hi = v["window_start_s"], v["window_end_s"]
+    in_window = (t_up >= lo) & (t_up <= hi)
+    assert v["n_in_window"] == int(in_window.sum())
+    # Used: accepted, in the window, not truncated (the last beat): counted by hand from the table.
+    expected = np.flatnonzero(in_window & (t["verdict"] == "accepted") & (t["flags"] != "truncated"))
+    assert v["n_used"] == used.size == expected.size and sorted(used) == expected.tolist()
+    assert not {50, 52} & set(used.tolist())
+    for col, stem, unit in PARAMETERS:  # numpy reference: the plain mean of the used beats
+        x = np.asarray(t[col], float)[expected]
+        x = x[np.isfinite(x)]
+        assert v[f"{stem}_mean_{unit}"] == pytest.approx(np.mean(x), rel=1e-12)

@@ -309,3 +309,21 @@ def test_nwb_writer_reads_back_with_pynwb(tmp_path):
         volts = series[1].data[:] * series[1].conversion
         np.testing.assert_allclose(volts * 1000.0, syn.recording.sweep(1), atol=1e-4)
         assert series[0].electrode.name == "cell-A7"
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o077, 0o002])
+def test_written_recordings_follow_the_umask(tmp_path, umask):
+    """Like every other output, not private (0600) files: POSIX open(2) gives a new file 0666 & ~umask."""
+    import os
+
+    from analysis.synthetic import preset, synthesize, write_abf, write_nwb
+
+    syn = synthesize(preset("nodal-like"), duration_s=0.5, fs_hz=10_000.0, seed=2)
+    old = os.umask(umask)
+    try:
+        write_abf(syn.recording, tmp_path / "a.abf")
+        write_nwb(syn.recording, tmp_path / "a.nwb")
+    finally:
+        os.umask(old)
+    for name in ("a.abf", "a.nwb"):
+        assert (tmp_path / name).stat().st_mode & 0o777 == 0o666 & ~umask, name

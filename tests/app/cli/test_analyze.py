@@ -40,13 +40,23 @@ def test_writes_the_beats_csv_and_a_summary(tmp_path, capsys):
     code, out, err = _analyze(capsys, path, "--csv", out_csv)
     assert code == 0, err
     with open(out_csv, newline="") as fh:
-        assert next(csv.reader(fh)) == list(CSV_COLUMNS)  # CONTRACT.md's header, in order
+        header = next(csv.reader(fh))
+    # CONTRACT.md's header, in order, then the review's columns (docs/measurements.md).
+    assert header == [*CSV_COLUMNS, "verdict", "reject_reason", "decided_by", "recording_id"]
     rows = _rows(out_csv)
     assert len(rows) == len(centres)  # one row per beat built in
     assert rows[0]["file"] == str(path) and rows[0]["beat"] == "0" and rows[0]["accepted"] == "1"
     assert rows[0]["mdp_mV"] == "" and rows[0]["cl_ms"] == ""  # first beat: empty, never 0 (CONTRACT.md)
     assert float(rows[1]["cl_ms"]) == pytest.approx(500.0, abs=0.05)  # construction (int16 steps of the ABF)
-    assert f"{path}: {len(centres)} beats ({len(centres)} accepted)" in out and "mean CL 500.0 ms" in out
+    n = len(centres)
+    assert f"{path}: {n} beats ({n} used, 0 rejected, 0 waiting for review)" in out
+    assert "mean CL 500.0 ms (120.0 bpm)" in out  # 60000 / 500 ms: the rate agrees with the CL printed
+    from analysis.recording import file_sha256
+
+    digest = file_sha256(path)
+    assert digest == __import__("hashlib").sha256(path.read_bytes()).hexdigest()  # hashlib reference
+    assert {r["recording_id"] for r in rows} == {digest[:16]}
+    assert {(r["verdict"], r["decided_by"], r["reject_reason"]) for r in rows} == {("accepted", "auto", "")}
     assert f"wrote {out_csv}" in out
 
 
@@ -206,3 +216,80 @@ def test_a_progress_bar_on_a_terminal_only(tmp_path):
     assert drawn.startswith(f"\r{path.name}:") and "%|" in drawn and pipe.getvalue() == ""
     assert drawn.endswith("\r") and drawn.rsplit("\r", 2)[-2].strip() == ""  # cleared when the file is done
     assert len(on_terminal.beats) == len(on_pipe.beats) == len(centres)  # one row per beat built in
+
+
+# -- the review's view: beats held for review, conditions that must make sense -------------------
+def _noisy_cell(tmp_path):
+    """A 6 s train whose last 2 s carry 3 mV rms of noise: the quality rules flag those beats noisy
+    (quality.noise_max_mV_rms, 1 mV by default) and hold them for review."""
+    v, centres = gaussian_train(FS, 6.0, cl_s=0.5)
+    rng = np.random.default_rng(5)
+    noisy = np.arange(v.size) >= int(4.0 * FS)
+    v = v + np.where(noisy, rng.normal(0.0, 3.0, v.size), 0.0)
+    return files.write_abf1(tmp_path / "noisy.abf", v[None, :], FS), centres
+
+
+def test_beats_waiting_for_review_are_counted_and_left_out_of_the_summary(tmp_path, capsys):
+    path, _ = _noisy_cell(tmp_path)
+    beats, summary = tmp_path / "beats.csv", tmp_path / "summary.csv"
+    code, out, err = _analyze(capsys, path, "--condition", "all=0s-end,steady=all", "--csv", beats,
+                              "--summary-csv", summary)
+    assert code == 0, err
+    rows = _rows(beats)
+    waiting = [r for r in rows if r["verdict"] == "to_review"]
+    assert waiting and all("noisy" in r["flags"].split(";") for r in waiting)
+    assert all(r["accepted"] == "0" and r["decided_by"] == "auto" and r["reject_reason"] == "" for r in waiting)
+    assert all(float(r["t_upstroke_s"]) > 3.9 for r in waiting)  # only the noisy stretch (construction)
+    used = [r for r in rows if r["verdict"] == "accepted"]
+    assert f"{len(rows)} beats ({len(used)} used, 0 rejected, {len(waiting)} waiting for review)" in out
+    assert f"{len(waiting)} beat(s) wait for review, flagged noisy" in err
+    (s,) = _rows(summary)
+    clean = [r for r in used if "no_diastole" not in r["flags"] and "truncated" not in r["flags"]]
+    assert int(s["n_beats"]) == len(rows) and int(s["n_to_review"]) == len(waiting)
+    assert int(s["n_used"]) == len(clean) and int(s["n_rejected"]) == 0
+    # The mean is that of the beats used, computed here with numpy from the CSV (numpy reference).
+    assert float(s["mdp_mean_mV"]) == pytest.approx(np.mean([float(r["mdp_mV"]) for r in clean]), abs=1e-3)
+
+
+@pytest.mark.parametrize("condition, words", [
+    ("drug=0-60", "has no unit; write drug=0s-60s"),
+    ("washout=2-end", "has no unit; write washout=2s-end"),
+])
+def test_a_condition_without_a_unit_is_refused_with_the_right_form(tmp_path, capsys, condition, words):
+    path, _ = _cell(tmp_path)
+    out_csv = tmp_path / "beats.csv"
+    with pytest.raises(SystemExit) as stop:  # a command-line error: argparse's exit
+        _analyze(capsys, path, "--condition", condition, "--csv", out_csv)
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and words in err
+    assert not out_csv.exists()
+
+
+@pytest.mark.parametrize("condition, words", [
+    ("washout=5s-end", "condition 'washout' starts at 5 s, when the recording has ended (3 s)"),
+    ("drug=1-10s", "condition 'drug' ends at 10 s, after the recording ends (3 s); end it by 3 s, or write drug=1s-end"),
+    ("late=sweeps:2-3", "names sweep 2, but the recording has sweeps 0-0"),
+])
+def test_a_condition_outside_the_recording_exits_2_and_writes_nothing(tmp_path, capsys, condition, words):
+    path, _ = _cell(tmp_path)  # 3 s, one sweep
+    out_csv, out_h5 = tmp_path / "beats.csv", tmp_path / "results.h5"
+    code, _, err = _analyze(capsys, path, "--condition", condition, "--csv", out_csv, "--out", out_h5)
+    assert code == 2, err
+    assert words in err and str(path) in err and len(err.strip().splitlines()) == 1
+    assert not out_csv.exists() and not out_h5.exists() and os.listdir(tmp_path) == [path.name]
+
+
+def test_every_front_end_writes_the_same_review_columns(tmp_path, capsys):
+    # The beats CSV straight from the analysis, through a results file, from export, and as the app
+    # writes it (the session's table, File > Export beats CSV): the same bytes, the same recording id.
+    from analysis.session import Session
+
+    path, _ = _noisy_cell(tmp_path)
+    plain, via, exported = tmp_path / "plain.csv", tmp_path / "via.csv", tmp_path / "export.csv"
+    assert _analyze(capsys, path, "--csv", plain)[0] == 0
+    assert _analyze(capsys, path, "--csv", via, "--out", tmp_path / "r.h5")[0] == 0
+    assert main(["export", str(tmp_path / "r.h5"), "--csv", str(exported)]) == 0
+    session = Session.open(tmp_path / "r.h5")
+    app_text = session.beats(session.recordings[0]).to_csv()
+    assert plain.read_text() == via.read_text() == exported.read_text() == app_text
+    assert "to_review" in app_text

@@ -46,7 +46,17 @@ def test_batch_with_two_workers_writes_what_analyze_writes(folder, tmp_path, cap
                  "--summary-csv", str(a / "summary.csv"), "--condition", "early=0-2s"]) == 0
     code = main(["batch", *good, "--workers", "2", "--out", str(b / "r.h5"), "--csv", str(b / "beats.csv"),
                  "--summary-csv", str(b / "summary.csv"), "--condition", "early=0-2s"])
-    assert code == 0, capsys.readouterr().err
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    # The one-line result counts what the beats CSV says of each beat.
+    import csv
+
+    with open(b / "beats.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    n_used = sum(r["verdict"] == "accepted" for r in rows)
+    assert n_used == sum(r["accepted"] == "1" for r in rows)
+    n_rej, n_wait = (sum(r["verdict"] == v for r in rows) for v in ("rejected", "to_review"))
+    assert f"{len(rows)} beats ({n_used} used, {n_rej} rejected, {n_wait} waiting for review) saved to" in out
     # Byte for byte the same tables (the reference is the sequential command itself).
     assert (b / "beats.csv").read_bytes() == (a / "beats.csv").read_bytes()
     assert (b / "summary.csv").read_bytes() == (a / "summary.csv").read_bytes()
@@ -54,6 +64,9 @@ def test_batch_with_two_workers_writes_what_analyze_writes(folder, tmp_path, cap
     assert [r.label for r in rb] == [r.label for r in ra] == good
     for x, y in zip(ra, rb):
         assert x.beats.equals(y.beats) and x.settings_json == y.settings_json and x.sha256 == y.sha256
+        # The recording id: the first 16 hex digits of the file's SHA-256 (hashlib reference).
+        digest = __import__("hashlib").sha256(Path(x.source_path).read_bytes()).hexdigest()
+        assert {r["recording_id"] for r in rows if r["file"] == x.label} == {digest[:16]}
         assert [c.text() for c in x.conditions] == [c.text() for c in y.conditions] == ["early=0-2s"]
 
 

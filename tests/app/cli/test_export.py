@@ -43,7 +43,7 @@ def test_export_reproduces_analyze_byte_for_byte(recordings, tmp_path, capsys, m
     monkeypatch.chdir(recordings)
     code, out, err = _run(
         ["analyze", "cell07.abf", "cell08.abf", "--condition", "baseline=0-8s",
-         "--condition", "drug=8-end,steady=last5s", "--csv", tmp_path / "beats.csv",
+         "--condition", "drug=8s-end,steady=last5s", "--csv", tmp_path / "beats.csv",
          "--summary-csv", tmp_path / "summary.csv", "--out", tmp_path / "results.h5"], capsys)
     assert code == 0, err
     assert "wrote" in out
@@ -154,7 +154,7 @@ def test_bad_conditions_and_outputs_are_command_line_errors(recordings, tmp_path
         main(["analyze", "cell08.abf", "--condition", "drug=60-20s", "--out", str(tmp_path / "r.h5")])
     assert exit_info.value.code == 2
     assert "ends" in capsys.readouterr().err
-    code, out, err = _run(["analyze", "cell08.abf", "--condition", "a=0-10s", "--condition", "b=5-15s",
+    code, out, err = _run(["analyze", "cell08.abf", "--condition", "a=0-10s", "--condition", "b=5-11s",
                            "--out", tmp_path / "r.h5"], capsys)
     assert code == 2 and "overlap" in err and not (tmp_path / "r.h5").exists()
     code, out, err = _run(["export", tmp_path / "none.h5", "--csv", tmp_path / "b.csv"], capsys)

@@ -34,6 +34,12 @@ def exported(tmp_path_factory):
     for text in demo_data.CONDITION_TEXTS:
         argv += ["--condition", text]
     assert main(argv) == 0
+    # The reviewer accepts the beats held for review (the seal trouble's), so that every beat is drawn
+    # filled and the panels' extremes stand apart (the seal trouble's MDP and APD90).
+    reviewed = Session.open(folder / "r.h5")
+    key = reviewed.recordings[0]
+    reviewed.accept(key, np.flatnonzero(reviewed.beats(key)["verdict"] == "to_review").tolist())
+    reviewed.save(folder / "r.h5")
     assert main(["export", str(folder / "r.h5"), "--figures", str(folder / "figs")]) == 0
     (svg,) = sorted((folder / "figs").iterdir())
     session = Session.open(folder / "r.h5")

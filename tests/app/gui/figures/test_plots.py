@@ -91,7 +91,8 @@ def steady_window(cell_window, cell_result):
     w = cell_window(size=(1400, 900))
     rec, _ = cell_result
     assert w.key is not None
-    assert w.add_condition(Condition("baseline", 0.0, 17.0, "s", SteadyState("last_s", 5.0)))
+    end = rec.sweep_starts_s[-1] + rec.n_samples(rec.n_sweeps - 1) / rec.sampling_rate_hz
+    assert w.add_condition(Condition("baseline", 0.0, end, "s", SteadyState("last_s", 5.0)))  # the whole recording
     t = plotdata.recording_times_s(w.session.beats(w.key), rec.sweep_starts_s)
     w.select_beat(int(np.flatnonzero(t > t.max() - 3.0)[0]))
     w.reject_current("noise")
@@ -115,11 +116,11 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
     w = steady_window
     beats = w.session.beats(w.key)
     (summary,) = [s for s in w.session.summaries(w.key) if s.values["condition"] == "baseline"]
-    n = int(summary.values["n_accepted"])
+    n = int(summary.values["n_used"])
     in_condition = int(np.sum((beats["condition"] == "baseline") & (beats["accepted"] == 1)))
     by_hand = _last_5_s(beats, w.recording.sweep_starts_s)
     assert n == by_hand.size and 4 <= n < in_condition - 5  # the window is shorter than the condition
-    assert w.summary_panel.cell_text("beats used / all (✕)").startswith(f"{n} / ")
+    assert w.summary_panel.cell_text("beats used / in window / all").startswith(f"{n} / ")
     figure = w.figures.figures["aligned"]
     assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
     avg = figure.averages["baseline"]
@@ -161,7 +162,7 @@ def test_summary_rows_read_back_match_the_rows_the_summary_listed(steady_window)
     assert listed.keys() == again.keys() and len(listed) >= 1
     for name, (rows, rule) in listed.items():
         assert np.array_equal(again[name][0], rows) and again[name][1] == rule
-        assert rows.size == sum(int(s.values["n_accepted"]) for s in summaries if s.values["condition"] == name)
+        assert rows.size == sum(int(s.values["n_used"]) for s in summaries if s.values["condition"] == name)
 
 
 def test_without_summaries_the_legend_says_every_accepted_beat(panel):

@@ -25,4 +25,4 @@ def test_panel_text_is_numpy_over_the_samples_between(qtbot):
     assert panel.value_text("max_value") == f"{np.max(seg):.2f}"  # numpy reference
     assert panel.value_text("delta_t_ms") == f"{(t1 - t0) * 1e3:.2f}"
     ups = beats["t_upstroke_s"]
-    assert panel.beats_label.text().startswith(f"beats between: {int(((ups >= t0) & (ups <= t1)).sum())}")
+    assert panel.beats_label.text().startswith(f"upstrokes inside: {int(((ups >= t0) & (ups <= t1)).sum())}")

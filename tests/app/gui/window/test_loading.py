@@ -28,9 +28,9 @@ def watch(monkeypatch, window):
     seen = {"jobs": [], "analyses": [], "progress": []}
     make, core = Session.settings_job, pipeline.analyze
 
-    def settings_job(session, settings, keys=None):
+    def settings_job(session, settings, keys=None, **kwargs):
         seen["jobs"].append(list(keys or ()))
-        return make(session, settings, keys)
+        return make(session, settings, keys, **kwargs)
 
     def spy_analyze(rec, *args, **kwargs):
         if rec is window.recording:
@@ -55,7 +55,9 @@ def test_a_detection_change_is_the_sessions_job_run_off_the_gui_thread_with_prog
     assert watch["analyses"] == [((), False)]  # every sweep analysed (all were), in a worker
     fractions = [f for f, _ in watch["progress"]]
     assert len(fractions) > 3 and fractions == sorted(fractions) and fractions[-1] == 1.0
-    assert any("detecting" in text for _, text in watch["progress"])
+    # A measurement setting measures again from the detections the table was made from.
+    assert any("measuring" in text for _, text in watch["progress"])
+    assert not any("detecting" in text for _, text in watch["progress"])
     after = window.session.beats(window.key)
     assert window.session.settings(window.key).measurement.upstroke_time_method == "voltage_level"
     moved = np.abs(after["t_upstroke_s"] - before["t_upstroke_s"])
@@ -82,7 +84,7 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     keep = Session.set_summaries
     monkeypatch.setattr(Session, "set_summaries", lambda s, job, result: applied.append(keep(s, job, result)) or applied[-1])
     key = window.key
-    n0, rows0 = window.summaries[0].values["n_accepted"], window.summaries[0].beat_rows
+    n0, rows0 = window.summaries[0].values["n_used"], window.summaries[0].beat_rows
     window.select_beat(3)
     window.reject_current("noise")
     window.display.refresh_summary()  # a job for this state...
@@ -93,6 +95,6 @@ def test_the_summaries_shown_are_the_sessions_and_a_stale_one_is_dropped(window,
     assert sorted(applied) == [False, True]
     assert window.summaries is window.session.cached_summaries(key)
     # A rejected beat leaves the pooled summary if it was in it (common practice, no source).
-    assert window.summaries[0].values["n_accepted"] == n0 - int(3 in rows0) - int(6 in rows0)
+    assert window.summaries[0].values["n_used"] == n0 - int(3 in rows0) - int(6 in rows0)
     values = window.summary_panel.summaries[0]
-    assert values["n_accepted"] == window.summaries[0].values["n_accepted"]
+    assert values["n_used"] == window.summaries[0].values["n_used"]

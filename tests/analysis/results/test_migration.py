@@ -1,0 +1,96 @@
+"""Results files written by earlier versions still open, export the same tables, and convert.
+
+``tests/data/results_v1.h5`` was written by the code of results schema 1 (one group per
+recording) with ``tests/data/make_results_v1.py``; ``results_v1_beats.csv`` and
+``results_v1_summary.csv`` are what that code's ``upstroke export`` wrote from it. Both are kept
+unchanged: they are the reference these tests compare with.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import shutil
+
+import h5py
+import numpy as np
+
+from analysis.results import SCHEMA_VERSION, load_results
+from analysis.session import Session
+
+DATA = os.path.join(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))), "data")
+V1 = os.path.join(DATA, "results_v1.h5")
+
+
+def _rows(text: str) -> list[dict[str, str]]:
+    return list(csv.DictReader(io.StringIO(text)))
+
+
+def _kept(name: str) -> list[dict[str, str]]:
+    with open(os.path.join(DATA, name), encoding="utf-8", newline="") as fh:
+        return _rows(fh.read())
+
+
+def _same_cells(got: list[dict[str, str]], want: list[dict[str, str]]) -> None:
+    # Every column the schema-1 export wrote, cell for cell (newer versions may add columns).
+    assert len(got) == len(want)
+    for g, w in zip(got, want):
+        assert {k: g.get(k) for k in w} == w
+
+
+def test_the_kept_file_is_schema_1():
+    with h5py.File(V1, "r") as f:
+        assert int(f.attrs["schema_version"]) == 1 and "recordings/000000/beats" in f
+
+
+def test_a_schema_1_file_opens_and_exports_what_its_version_exported():
+    session = Session.open(V1)
+    assert [session.label(k) for k in session.recordings] == ["NL-0417-baseline.abf", "NL-0417-washout.abf"]
+    a, b = session.recordings
+    # The review decisions the kept file holds: two beats rejected by the user, one accepted.
+    beats = session.beats(a)
+    assert beats["accepted"][1:3].tolist() == [0, 0] and beats["reject_reason"][1] == "electrode bump"
+    assert [c.name for c in session.conditions(a)] == ["baseline", "UP-113"]
+    assert len(session.decisions(b)) == 1
+    _same_cells(_rows(session.all_beats().to_csv()), _kept("results_v1_beats.csv"))
+    from analysis.stats import summary_csv
+
+    _same_cells(_rows(summary_csv(session.summary_table())), _kept("results_v1_summary.csv"))
+
+
+def test_saving_a_schema_1_file_writes_the_current_layout_with_the_same_content(tmp_path):
+    copy = tmp_path / "study.h5"
+    shutil.copyfile(V1, copy)
+    old = Session.open(copy)
+    old.save(copy)
+    with h5py.File(copy, "r") as f:
+        assert int(f.attrs["schema_version"]) == SCHEMA_VERSION == 2
+        assert "recordings" not in f and f["index"]["label"].shape == (2,)
+    new = Session.open(copy)
+    v1 = Session.open(V1)
+    for k_old, k_new in zip(v1.recordings, new.recordings):
+        assert new.beats(k_new).equals(v1.beats(k_old))
+        assert new.decisions(k_new) == v1.decisions(k_old)
+        assert new.conditions(k_new) == v1.conditions(k_old)
+        assert new.settings(k_new) == v1.settings(k_old)
+        assert new.info(k_new) == v1.info(k_old)
+    _same_cells(_rows(new.all_beats().to_csv()), _kept("results_v1_beats.csv"))
+
+
+def test_schema_1_recordings_read_whole_and_equal_after_conversion(tmp_path):
+    from analysis.results import save_results
+
+    old = load_results(V1)
+    out = tmp_path / "converted.h5"
+    save_results(out, old)
+    new = load_results(out)
+    for r_old, r_new in zip(old.recordings, new.recordings):
+        assert r_new.beats.equals(r_old.beats)
+        assert r_new.decisions == r_old.decisions and r_new.conditions == r_old.conditions
+        assert list(r_new.summary) == list(r_old.summary)
+        for name in r_old.summary:
+            a, b = np.asarray(r_old.summary[name]), np.asarray(r_new.summary[name])
+            assert a.dtype.kind == b.dtype.kind and (a.tolist() == b.tolist() or np.allclose(a, b, equal_nan=True))
+        assert [e[1:] for e in r_new.ensembles] == [e[1:] for e in r_old.ensembles]
+        assert all(np.array_equal(x[0], y[0]) for x, y in zip(r_new.ensembles, r_old.ensembles))
