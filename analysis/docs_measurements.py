@@ -26,7 +26,7 @@ from types import ModuleType
 
 import analysis.columns as columns
 import analysis.settings as settings
-from analysis.beats import FLAG_WORDS
+from analysis.beats import FIRST_BEAT_FALL_MV, FLAG_WORDS
 from analysis.flags import EVENT_FLAGS, rejection_flags
 
 # The modules whose docstrings the page renders (the definitions live beside their code).
@@ -191,8 +191,14 @@ def render() -> str:
         "`" + "`, `".join(c.name for c in columns.review_csv_columns()) + "`. The review's columns keep their",
         "names and order from one release to the next; new columns go after them. The command line",
         "(`analyze`, `batch`, `export`) and the app write the same columns with the same values.",
-        "Undefined values are empty cells. The first beat of a sweep has no diastole before it: its",
-        "MDP, TOP, DDR, APA, APDs and CL are empty and it carries `no_diastole`.",
+        "Undefined values are empty cells. The first beat of a sweep is measured from the diastole",
+        "recorded before it when the sweep holds the previous beat's repolarisation falling at least",
+        f"{FIRST_BEAT_FALL_MV:g} mV (or 10 x the noise rms) into a minimum two MDP windows or more from the",
+        "sweep's start and from the upstroke (common practice, no source); its CL stays empty (no",
+        "previous upstroke). Otherwise it has no diastole before it: its MDP, TOP, DDR, APA, APDs and CL",
+        "are empty and it carries `no_diastole`. A beat without phase-4 depolarisation above the noise",
+        "(flag `no_phase4`: a paced or evoked action potential, a driven quiescent cell, a neuron-like",
+        "spike) has no TOP, DDR or DDR100.",
         "",
         *_columns(),
         "",

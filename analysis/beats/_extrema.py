@@ -150,7 +150,7 @@ def peak_batch(v: np.ndarray, fs_hz: float, g: np.ndarray, end: np.ndarray, ip0:
 
 
 def _quartic_max_rows(coef: np.ndarray, u0: np.ndarray, u1: np.ndarray, n: np.ndarray):
-    """:func:`analysis.beats._markers._quartic_max` for a stack of quartics: (found, u, value).
+    """:func:`analysis.beats._marker_math.quartic_max` for a stack of quartics: (found, u, value).
 
     Each row is scanned at its own ``2 n + 1`` points, as one quartic alone would be.
     """

@@ -32,6 +32,8 @@ __all__ = ["Feature", "FEATURES", "FLAG_WORDS", "features_of_sweep", "marker_col
 #: Flags this module sets (the events module adds its own).
 FLAG_WORDS = {
     "no_diastole": "first beat of its sweep: no preceding diastole, so no MDP, TOP, DDR, APA, APD or CL",
+    "no_phase4": "no diastolic depolarisation above the noise before the upstroke (a paced or evoked action "
+                 "potential, a driven quiescent cell, a neuron-like spike): TOP, DDR and DDR100 left empty",
     "truncated": "the sweep ends before the beat has repolarised (APDs cut off), or during its upstroke",
 }
 
@@ -136,7 +138,7 @@ def marker_columns(percents) -> tuple[str, ...]:
     return (
         "i_upstroke", "t_mdp_s", "t_top_s", "t_peak_s",
         *(f"t_{apd_name(p)}_s" for p in sorted(set(percents) | set(CSV_APD_PERCENTS))),
-        "rise_ms", "dvdt_window_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
+        "rise_ms", "dvdt_window_ms", "dvdt_max_sd_V_per_s", "dvdt_peak_width_ms", "ddr_early_mV_per_s", "ddr_late_mV_per_s", "ddr_tau_ms", "ddr_vinf_mV",
     )
 
 

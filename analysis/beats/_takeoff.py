@@ -87,6 +87,14 @@ def _last_below_rows(d: np.ndarray, start: np.ndarray, lo: np.ndarray, level: np
     return start + j + np.clip(frac, 0.0, 1.0), found
 
 
+#: A take-off less than ``no_phase4_min_mV`` above the MDP (or this many noise rms, when larger)
+#: is no phase-4 depolarisation (flag ``no_phase4``).
+NO_PHASE4_NOISE = 4.0
+#: The columns a beat without phase 4 leaves undefined.
+PHASE4_COLUMNS = ("top_mV", "t_top_s", "ddr_mV_per_s", "ddr100_mV_per_s", "ddr_early_mV_per_s", "ddr_late_mV_per_s",
+                  "ddr_tau_ms", "ddr_vinf_mV")
+
+
 class TakeoffSteps:
     """Take-off and phase-4 steps; the host provides ``v``, ``n``, ``fs``, ``s``, ``w_top``,
     ``w_d2``, ``search``, ``beat_index`` and ``smooth``."""
@@ -247,6 +255,24 @@ class TakeoffSteps:
         xi = (a1 - (vu - b2 * xu)) / (b2 - b1)
         self._top_value = float(a1 + b1 * xi)
         return float(xi)
+
+    def lacks_phase4(self, i_mdp: float, mdp: float, i_top: float, top: float) -> bool:
+        """Whether a beat takes off without a diastolic depolarisation above the noise.
+
+        A paced or evoked action potential, a quiescent cell driven by a stimulus or a
+        neuron-like spike leaves the membrane at rest until the upstroke: its take-off lies within
+        ``max(no_phase4_min_mV, NO_PHASE4_NOISE x noise rms)`` of the MDP, where a spontaneous
+        cell's lies 5-20 mV above it (MEASUREMENTS.md, reference values; common practice, no
+        source, for the threshold); or the straight line fitted from MDP to TOP rises less than
+        that over the diastole (a fast upstroke can carry the take-off derivative's crossing a few
+        mV up its foot while the rest before it stays flat). Its DDR and TOP mean nothing and are
+        left undefined.
+        """
+        if math.isnan(mdp) or math.isnan(top) or math.isnan(i_mdp) or self.s.no_phase4_min_mV <= 0:
+            return False
+        limit = max(self.s.no_phase4_min_mV, NO_PHASE4_NOISE * self.noise)
+        fitted_rise = self.ls_slope(i_mdp, i_top) * (i_top - i_mdp) / self.fs
+        return top - mdp < limit or not fitted_rise >= limit
 
     def phase4(self, r: dict, i_mdp: float, i_top: float) -> None:
         s = self.s

@@ -136,7 +136,8 @@ class _Measurer:
     def _chunk(self, ups: np.ndarray, prev: np.ndarray, nxt: np.ndarray, k0: int, k1: int):
         """(marker columns, flags) of beats ``k0:k1``, read as one stretch with context."""
         n, fs, s = self.n, self.fs, self.s
-        start_at = int(prev[k0]) if prev[k0] >= 0 else int(ups[k0])
+        # A sweep's first beat reads from the sweep's start: the diastole recorded before it.
+        start_at = int(prev[k0]) if prev[k0] >= 0 else 0
         stop_at = int(nxt[k1 - 1])
         ra, rb = max(0, int(start_at) - self.margin), min(n, stop_at + self.margin)
         v = self.load(ra, rb)

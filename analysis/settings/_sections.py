@@ -177,6 +177,11 @@ class MeasurementSettings(Section):
         0.5, unit="V/s", min=0.01, max=100.0, source="0.5 and 1 V/s are common criteria (MEASUREMENTS.md)",
         doc="dV/dt criterion of the take-off potential (top_method dvdt_criterion)",
     )
+    no_phase4_min_mV: float = setting(
+        1.0, unit="mV", min=0.0, max=20.0, source=_NO_SOURCE,
+        doc="a beat whose take-off lies less than this (or 4 x the noise rms) above its MDP has no phase 4 "
+            "(flag no_phase4, no TOP or DDR); 0: never",
+    )
     top_fraction: float = setting(
         0.1, min=0.001, max=0.9, source="10 % of dV/dt max is common (MEASUREMENTS.md)",
         doc="fraction of dV/dt max that marks take-off (top_method dvdt_fraction)",
@@ -255,6 +260,11 @@ class MeasurementSettings(Section):
     mdp_fit_band_mV: float = setting(
         1.0, unit="mV", min=0.05, max=20.0, source=_NO_SOURCE,
         doc="the MDP fit uses the samples within this many mV of the smoothed minimum",
+    )
+    mdp_time_method: str = setting(
+        "two_sided_fit", choices=("two_sided_fit", "minimum"), source=_NO_SOURCE,
+        doc="MDP time: the vertex of a parabola with its own curvature on each side, fitted to the trough "
+            "within mdp_fit_band_mV (or a noise-scaled band) of the MDP; or the smoothed minimum itself",
     )
     mdp_smoothing_ms: float = setting(
         10.0, unit="ms", min=0.0, max=100.0, source="Savitzky-Golay smoothing; " + _NO_SOURCE,

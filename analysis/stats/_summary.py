@@ -294,6 +294,7 @@ def summarize(
     durations = np.asarray(sweep_durations_s, dtype=np.float64)
     rule = CellTypeRule(**{f: getattr(settings, f) for f in CellTypeRule.__dataclass_fields__ if hasattr(settings, f)})
     out: list[Summary] = []
+    pending: list[tuple] = []
     for group, in_group in _sweep_groups(sweep, getattr(settings, "sweep_groups", "all")):
         for name in names:
             rows_all = np.flatnonzero(in_group & (condition == name))
@@ -338,8 +339,24 @@ def summarize(
             for col, stem, _ in PARAMETERS:
                 if stem not in ("cl", "rate"):
                     values[f"ensemble_{col}"] = ens.parameters.get(col, math.nan) if ens is not None else math.nan
-            out.append(Summary({c: values.get(c, math.nan) for c in SUMMARY_COLUMNS}, suggestion, note, ens, used))
+            pending.append((values, suggestion, note, ens, used))
+    _one_hint_per_cell([p[0] for p in pending])
+    for values, suggestion, note, ens, used in pending:
+        out.append(Summary({c: values.get(c, math.nan) for c in SUMMARY_COLUMNS}, suggestion, note, ens, used))
     return out
+
+
+def _one_hint_per_cell(rows: list[dict[str, object]]) -> None:
+    """The cell-type hint of a recording, judged once: on its first condition (the baseline, in
+    the conditions' order) with accepted beats, and shown on every row. A drug that slows the
+    rate or changes the action potential does not change what cell it is recorded from."""
+    judged = next((r for r in rows if int(r.get("n_used", r.get("n_accepted", 0)) or 0) > 0), None)
+    if judged is None:
+        return
+    name = str(judged.get("condition", "")) or "all beats"
+    hint, why = judged["cell_type_hint"], f"{judged['cell_type_rule']} (judged once, on {name})"
+    for r in rows:
+        r.update(cell_type_hint=hint, cell_type_rule=why)
 
 
 def _values(beats: BeatTable, used: np.ndarray, sweep: np.ndarray) -> dict[str, object]:

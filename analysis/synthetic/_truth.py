@@ -95,7 +95,7 @@ def beat_truth(
     -------
     BeatTable
         The beats CSV's measured columns with their marker times (``t_mdp_s``, ``t_top_s``,
-        ``t_peak_s``, ``t_apd{x}_s``), ``flags`` (``no_diastole`` for the first beat,
+        ``t_peak_s``, ``t_apd{x}_s``), ``flags`` (``no_diastole`` for a first beat without a recorded diastole,
         ``truncated`` when the sweep ends before 90 % repolarisation) and ``train_beat`` (the
         beat's index in the train). Undefined values are NaN, as in the analysis.
     """
@@ -127,10 +127,15 @@ def beat_truth(
     peak = v_at(t_peak)
 
     # MDP: the lowest V between the previous beat's peak and this upstroke.
+    # The first beat of a sweep has one when the sweep recorded the previous repolarisation
+    # falling at least 2 mV into a minimum 20 ms or more after its start (MEASUREMENTS.md: the
+    # first beat is measured from the diastole recorded before it when there is enough of it).
     first = np.zeros(n, bool)
     if n:
-        first[0] = True
-    prev_peak = np.where(first, np.nan, np.concatenate([[np.nan], t_peak[:-1]]))
+        t_min = train.t_mdp_s[k[0]]
+        whole = t_min - start_s >= 0.02 and float(v_at(np.array([start_s]))[0] - v_at(np.array([t_min]))[0]) >= 2.0
+        first[0] = not whole
+    prev_peak = np.where(first, np.nan, np.concatenate([[start_s], t_peak[:-1]]))
 
     def mdp_search(lo_b, hi_b):
         g = _grid(lo_b, hi_b)

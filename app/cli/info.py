@@ -14,8 +14,9 @@ import sys
 from typing import Any
 
 from analysis import Recording, open_recording
+from analysis.recording import CURRENT_CLAMP, VOLTAGE_CLAMP
 
-__all__ = ["add_parser", "run", "describe", "format_text", "warnings_for"]
+__all__ = ["INJECTED_CURRENT", "add_parser", "clean_text", "describe", "format_text", "run", "warnings_for"]
 
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
@@ -56,7 +57,7 @@ def describe(rec: Recording) -> dict[str, Any]:
         "format": rec.format,
         "format_version": version,
         "channels": [
-            {"index": i, "name": c.name, "units": c.units, "clamp_mode": c.clamp_mode}
+            {"index": i, "name": c.name, "units": c.units, "clamp_mode": _role(rec, c.clamp_mode)}
             for i, c in enumerate(rec.channels)
         ],
         "n_sweeps": rec.n_sweeps,
@@ -68,6 +69,19 @@ def describe(rec: Recording) -> dict[str, Any]:
         "metadata": _jsonable(meta),
         "warnings": warnings_for(rec),
     }
+
+
+#: What a current channel is in a recording that also holds a membrane potential: the current
+#: the amplifier injects in current clamp, not a voltage-clamp recording.
+INJECTED_CURRENT = "current clamp (injected current)"
+
+
+def _role(rec: Recording, clamp_mode: str) -> str:
+    """A channel's clamp mode as ``info`` reports it: a current channel beside a membrane
+    potential is the injected current of a current-clamp recording."""
+    if clamp_mode == VOLTAGE_CLAMP and rec.current_clamp_channels():
+        return INJECTED_CURRENT
+    return clamp_mode
 
 
 def warnings_for(rec: Recording) -> list[str]:
@@ -87,7 +101,7 @@ def format_text(info: dict[str, Any]) -> str:
     meta = info["metadata"]
     kind = {"abf": "ABF", "nwb": "NWB", "text": "delimited text"}.get(info["format"], info["format"])
     version = f" {info['format_version']}" if info["format_version"] else ""
-    mode = f" ({meta['operation_mode']})" if meta.get("operation_mode") else ""
+    mode = _mode_text(str(meta.get("operation_mode") or ""), info["gap_free"])
     rate = info["sampling_rate_hz"]
     rows = [
         ("file", str(info["file"])),
@@ -114,6 +128,16 @@ def format_text(info: dict[str, Any]) -> str:
         rows.append(("units overridden", ", ".join(f"{k}: {v}" for k, v in meta["units_overridden"].items())))
     lines += [f"{k:<16}{v}" for k, v in rows]
     return "\n".join(lines)
+
+
+def _mode_text(header_mode: str, gap_free: bool) -> str:
+    """The acquisition mode beside the format, agreeing with the sweeps line: a header that
+    declares sweeps but holds one continuous stretch is said to be read as gap-free."""
+    if not header_mode:
+        return " (gap-free)" if gap_free else ""
+    if gap_free and "gap" not in header_mode.lower():
+        return f" ({header_mode} in its header, one continuous sweep: read as gap-free)"
+    return f" ({header_mode})"
 
 
 def _sweeps_text(info: dict[str, Any]) -> str:
@@ -143,6 +167,17 @@ def _jsonable(value: Any) -> Any:
         return {str(k): _jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [_jsonable(v) for v in value]
-    if value is None or isinstance(value, (bool, int, float, str)):
+    if isinstance(value, str):
+        return clean_text(value)
+    if isinstance(value, bytes):
+        return clean_text(value.decode("latin-1"))
+    if value is None or isinstance(value, (bool, int, float)):
         return value
-    return str(value)
+    return clean_text(str(value))
+
+
+def clean_text(text: str) -> str:
+    """A header string as text: cut at its first NUL (fixed-size header fields are NUL-padded and
+    what follows is left-over memory), without control characters, trimmed."""
+    text = text.split("\x00", 1)[0]
+    return "".join(ch for ch in text if ch.isprintable() or ch in "\t").strip()

@@ -226,6 +226,24 @@ def test_ensemble_beat_matches_the_synthetic_truth():
     assert p["dvdt_max_V_per_s"] == pytest.approx(np.mean(truth["dvdt_max_V_per_s"][ok]), rel=0.05)
 
 
+def test_the_cell_type_hint_is_judged_once_on_the_baseline_condition():
+    t = _table(60)
+    t_up = t["t_upstroke_s"]
+    conds = [Condition("baseline", 0.0, 20.0), Condition("drug", 20.0, 40.0), Condition("washout", 40.0, math.inf)]
+    from analysis.conditions import assign_conditions
+
+    cond = assign_conditions(t["sweep"], t_up, conds)
+    # under the drug the beats alone would not read as nodal-like: a 60 V/s upstroke
+    dvdt = np.where(cond == "drug", 60.0, np.asarray(t["dvdt_max_V_per_s"], float))
+    alone, _ = cell_type_hint(apd90_ms=160, apd50_ms=110, dvdt_max_V_per_s=60, mdp_mV=-60, ddr_mV_per_s=80)
+    assert alone != "nodal-like"  # the rule's own verdict on the drug's beats (MEASUREMENTS.md thresholds)
+    t = t.with_columns(condition=cond, dvdt_max_V_per_s=dvdt)
+    s = summarize(t, label="c1", sweep_starts_s=[0.0], sweep_durations_s=[60.0], conditions=conds, settings=Settings().summary)
+    hints = {x.values["condition"]: (x.values["cell_type_hint"], x.values["cell_type_rule"]) for x in s}
+    assert set(hints) == {"baseline", "drug", "washout"}
+    # one cell, one type: the baseline's, on every condition, saying where it was judged
+    assert {h for h, _ in hints.values()} == {"nodal-like"}
+    assert all("judged once, on baseline" in why for _, why in hints.values())
 def test_summary_counts_are_unambiguous_and_the_means_are_those_of_the_beats_used():
     # 60 beats in one condition, a 10 s window at its end; some beats wait for review, one is rejected.
     from analysis.decisions import apply_status

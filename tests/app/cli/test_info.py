@@ -154,3 +154,33 @@ def test_real_files_in_real_processes(real_abf_dir):
     info = json.loads(done.stdout)
     # MANIFEST.csv: 1 sweep of 1 200 000 points at 1000 Hz, i.e. 20 minutes.
     assert info["samples_per_sweep"] == [1_200_000] and info["duration_s"] == pytest.approx(1200.0)
+
+
+def test_header_text_is_cut_at_its_first_nul_and_stripped_of_control_characters():
+    from app.cli.info import clean_text
+
+    # fixed-size ABF header fields are NUL-padded (ABF 1 header layout as pyabf reads it)
+    assert clean_text("recorder 10.7\x00\x00\x9a\x01garbage") == "recorder 10.7"
+    assert clean_text("  note\x07 \n") == "note"
+
+
+def test_a_gap_free_abf_reads_as_gap_free_and_its_current_channel_as_injected_current(capsys):
+    from pathlib import Path
+
+    from app.cli import main
+    from app.cli.info import INJECTED_CURRENT
+
+    path = Path("/work/shared/real-abf/18425108_abf1.abf")
+    if not path.is_file():
+        pytest.skip("the real ABF corpus is not here")
+    # real ABF 1.8 current-clamp recording (read by pyabf): one continuous sweep, an nA channel
+    # beside the mV channel
+    assert main(["info", str(path)]) == 0
+    out = capsys.readouterr().out
+    fmt = next(line for line in out.splitlines() if line.startswith("format"))
+    assert "read as gap-free" in fmt and "1 (gap-free)" in out
+    assert main(["info", "--json", str(path)]) == 0
+    info = json.loads(capsys.readouterr().out)
+    modes = {c["units"]: c["clamp_mode"] for c in info["channels"]}
+    assert modes == {"nA": INJECTED_CURRENT, "mV": "current clamp"}
+    assert all(ch.isprintable() for ch in str(info["metadata"].get("creator", "")))
