@@ -118,13 +118,20 @@ def _two_sided_vertex(y: np.ndarray) -> float:
     t = np.arange(m, dtype=np.float64)
 
     def sse(t0: np.ndarray) -> np.ndarray:
+        # The normal equations of (1, left, right) from row sums: the two sides never overlap
+        # (their cross term is exactly zero), so no (grid, m, 3) design array is built.
         left = np.maximum(t0[:, None] - t[None, :], 0.0) ** 2
         right = np.maximum(t[None, :] - t0[:, None], 0.0) ** 2
-        x = np.stack((np.ones_like(left), left, right), axis=2)  # (grid, m, 3)
-        xtx = np.einsum("gmi,gmj->gij", x, x)
-        xty = np.einsum("gmi,m->gi", x, y)
+        s_l, s_r = left.sum(axis=1), right.sum(axis=1)
+        xtx = np.zeros((t0.size, 3, 3))
+        xtx[:, 0, 0] = m
+        xtx[:, 0, 1] = xtx[:, 1, 0] = s_l
+        xtx[:, 0, 2] = xtx[:, 2, 0] = s_r
+        xtx[:, 1, 1] = np.einsum("gm,gm->g", left, left)
+        xtx[:, 2, 2] = np.einsum("gm,gm->g", right, right)
+        xty = np.stack((np.full(t0.size, y.sum()), left @ y, right @ y), axis=1)
         coef = np.linalg.solve(xtx + 1e-12 * np.eye(3), xty[..., None])[..., 0]
-        res = y[None, :] - np.einsum("gmi,gi->gm", x, coef)
+        res = y[None, :] - coef[:, :1] - coef[:, 1:2] * left - coef[:, 2:3] * right
         return np.einsum("gm,gm->g", res, res)
 
     step = max(1, m // 64)
