@@ -120,8 +120,11 @@ def _two_sided_vertex(y: np.ndarray) -> float:
     def sse(t0: np.ndarray) -> np.ndarray:
         # The normal equations of (1, left, right) from row sums: the two sides never overlap
         # (their cross term is exactly zero), so no (grid, m, 3) design array is built.
-        left = np.maximum(t0[:, None] - t[None, :], 0.0) ** 2
-        right = np.maximum(t[None, :] - t0[:, None], 0.0) ** 2
+        diff = t0[:, None] - t[None, :]
+        left = np.maximum(diff, 0.0)
+        left *= left
+        right = np.minimum(diff, 0.0, out=diff)
+        right *= right
         s_l, s_r = left.sum(axis=1), right.sum(axis=1)
         xtx = np.zeros((t0.size, 3, 3))
         xtx[:, 0, 0] = m
@@ -131,7 +134,11 @@ def _two_sided_vertex(y: np.ndarray) -> float:
         xtx[:, 2, 2] = np.einsum("gm,gm->g", right, right)
         xty = np.stack((np.full(t0.size, y.sum()), left @ y, right @ y), axis=1)
         coef = np.linalg.solve(xtx + 1e-12 * np.eye(3), xty[..., None])[..., 0]
-        res = y[None, :] - coef[:, :1] - coef[:, 1:2] * left - coef[:, 2:3] * right
+        res = y[None, :] - coef[:, :1]
+        left *= coef[:, 1:2]
+        right *= coef[:, 2:3]
+        res -= left
+        res -= right
         return np.einsum("gm,gm->g", res, res)
 
     step = max(1, m // 64)
