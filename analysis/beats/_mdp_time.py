@@ -115,31 +115,23 @@ def _two_sided_vertex(y: np.ndarray) -> float:
         full = (y.size // q) * q
         y = y[:full].reshape(-1, q).mean(axis=1)
     m = y.size
-    t = np.arange(m, dtype=np.float64)
+    # The least-squares fit at every candidate from running sums of t^p and t^p y (t scaled to
+    # [0, 1), y centred; the constant absorbs both): the two sides never overlap, so the normal
+    # equations eliminate to closed form, and each candidate costs a few operations, not a pass.
+    y = y - y.mean()
+    yy, y_sum = float(y @ y), float(y.sum())
+    s = np.arange(m, dtype=np.float64) / m
+    fwd = _power_sums(s, y)
+    rev = _power_sums(s, y[::-1].copy())  # u = m - 1 - t: the right side as a left one
 
     def sse(t0: np.ndarray) -> np.ndarray:
-        # The normal equations of (1, left, right) from row sums: the two sides never overlap
-        # (their cross term is exactly zero), so no (grid, m, 3) design array is built.
-        diff = t0[:, None] - t[None, :]
-        left = np.maximum(diff, 0.0)
-        left *= left
-        right = np.minimum(diff, 0.0, out=diff)
-        right *= right
-        s_l, s_r = left.sum(axis=1), right.sum(axis=1)
-        xtx = np.zeros((t0.size, 3, 3))
-        xtx[:, 0, 0] = m
-        xtx[:, 0, 1] = xtx[:, 1, 0] = s_l
-        xtx[:, 0, 2] = xtx[:, 2, 0] = s_r
-        xtx[:, 1, 1] = np.einsum("gm,gm->g", left, left)
-        xtx[:, 2, 2] = np.einsum("gm,gm->g", right, right)
-        xty = np.stack((np.full(t0.size, y.sum()), left @ y, right @ y), axis=1)
-        coef = np.linalg.solve(xtx + 1e-12 * np.eye(3), xty[..., None])[..., 0]
-        res = y[None, :] - coef[:, :1]
-        left *= coef[:, 1:2]
-        right *= coef[:, 2:3]
-        res -= left
-        res -= right
-        return np.einsum("gm,gm->g", res, res)
+        k = np.floor(t0).astype(np.int64) + 1  # samples t <= t0 on the left, the rest on the right
+        s_l, s_ll, s_ly = _side(fwd, k, t0 / m)
+        s_r, s_rr, s_ry = _side(rev, m - k, (m - 1 - t0) / m)
+        c = (y_sum - s_l * s_ly / s_ll - s_r * s_ry / s_rr) / (m - s_l * s_l / s_ll - s_r * s_r / s_rr)
+        p = (s_ly - c * s_l) / s_ll
+        q = (s_ry - c * s_r) / s_rr
+        return yy - (c * y_sum + p * s_ly + q * s_ry)
 
     step = max(1, m // 64)
     coarse = np.arange(1, m - 1, step, dtype=np.float64)
@@ -147,6 +139,30 @@ def _two_sided_vertex(y: np.ndarray) -> float:
     fine = np.arange(max(1.0, best - step), min(m - 2.0, best + step) + 0.25, 0.25)
     return float(fine[int(np.argmin(sse(fine)))]) * q + 0.5 * (q - 1)
 
+
+
+def _power_sums(s: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Running sums (rows: s^0..s^4, then y s^0..y s^2), column ``k`` over the first ``k`` samples."""
+    out = np.zeros((8, s.size + 1))
+    r = out[:, 1:]
+    r[0] = 1.0
+    r[1] = s
+    np.multiply(s, s, out=r[2])
+    np.multiply(r[2], s, out=r[3])
+    np.multiply(r[2], r[2], out=r[4])
+    np.multiply(r[:3], y, out=r[5:])
+    np.cumsum(r, axis=1, out=r)
+    return out
+
+
+def _side(sums: np.ndarray, k: np.ndarray, a: np.ndarray):
+    """Over the first ``k`` samples, with ``x = (a - s)^2``: sum x, sum x^2, sum x y."""
+    p0, p1, p2, p3, p4, q0, q1, q2 = sums[:, k]
+    a2 = a * a
+    s_x = a2 * p0 - 2.0 * a * p1 + p2
+    s_xx = a2 * a2 * p0 - 4.0 * a2 * a * p1 + 6.0 * a2 * p2 - 4.0 * a * p3 + p4
+    s_xy = a2 * q0 - 2.0 * a * q1 + q2
+    return s_x, s_xx, s_xy
 
 #: The first beat of a sweep is measured from the diastole recorded before it when V fell by at
 #: least this many mV (or 10 x the noise rms) from the sweep's start into a minimum that lies two
