@@ -64,6 +64,7 @@ def mdp_vertex_times(v: np.ndarray, fs_hz: float, w: int, band_mV: float, i_mdp:
     out = np.array(i_mdp, dtype=np.float64, copy=True)
     n = v.size
     h = w // 2
+    todo, troughs = [], []
     for b in np.flatnonzero(np.isfinite(out)):
         m = round(out[b])
         # The trough is looked for within 250 ms of the minimum (a bounded cost per beat).
@@ -83,8 +84,12 @@ def mdp_vertex_times(v: np.ndarray, fs_hz: float, w: int, band_mV: float, i_mdp:
         left, right = _stretch(sm, j, float(mdp[b]) + band_mV)
         if right - left >= 9:
             n_left, n_right = _stretch(sm, j, float(mdp[b]) + noise_band_mV)
-            t0 = left + _two_sided_vertex(v[a + left:a + right])
-            out[b] = a + min(max(t0, n_left - 0.5), n_right - 0.5) if n_right > n_left else out[b]
+            if n_right > n_left:
+                todo.append((b, a, left, n_left, n_right))
+                troughs.append(v[a + left:a + right])
+    # The troughs' fits all at once (the same numbers as one by one, without a pass per beat).
+    for (b, a, left, n_left, n_right), t0 in zip(todo, _two_sided_vertices(troughs)):
+        out[b] = a + min(max(left + t0, n_left - 0.5), n_right - 0.5)
     return out
 
 
@@ -99,40 +104,97 @@ def _stretch(sm: np.ndarray, j: int, level: float) -> tuple[int, int]:
     return left, right
 
 
-def _two_sided_vertex(y: np.ndarray) -> float:
-    """Where a minimum with different curvatures on its two sides lies in ``y`` (samples).
+def _two_sided_vertices(troughs: list[np.ndarray]) -> np.ndarray:
+    """Where a minimum with different curvatures on its two sides lies in each trough (samples).
 
     ``y = c + p (t0 - t)^2`` before ``t0`` and ``c + q (t - t0)^2`` after it, fitted by least
     squares for each candidate ``t0`` (linear in c, p, q), the best ``t0`` taken on a coarse grid
-    and then sample by sample around it: a trough whose repolarising side is steep and whose
+    and then by quarter samples around it: a trough whose repolarising side is steep and whose
     diastolic side is flat is followed without the shift toward the flat side that a smoothed
-    minimum, a band's centre or a symmetric fit shows.
+    minimum, a band's centre or a symmetric fit shows. The troughs are fitted together, each on
+    its own rows (padding never enters a trough's sums).
     """
-    # A long trough is fitted on block means of at most 256 points (its shape is slow; the cost
-    # per beat stays small on long, finely sampled diastoles).
-    q = max(1, -(-y.size // 256))
-    if q > 1:
-        full = (y.size // q) * q
-        y = y[:full].reshape(-1, q).mean(axis=1)
-    m = y.size
-    t = np.arange(m, dtype=np.float64)
+    k = len(troughs)
+    if k == 0:
+        return np.empty(0)
+    ys, qs = [], []
+    for y in troughs:
+        # A long trough is fitted on block means of at most 256 points (its shape is slow; the
+        # cost per beat stays small on long, finely sampled diastoles).
+        q = max(1, -(-y.size // 256))
+        if q > 1:
+            y = y[:(y.size // q) * q].reshape(-1, q).mean(axis=1)
+        ys.append(y - y.mean())  # centred: the constant absorbs the mean
+        qs.append(q)
+    ms = np.array([y.size for y in ys], np.int64)
+    width = int(ms.max())
+    yy = np.array([float(y @ y) for y in ys])
+    y_sum = np.array([float(y.sum()) for y in ys])
+    fwd, rev = np.zeros((k, width)), np.zeros((k, width))
+    for r, y in enumerate(ys):
+        fwd[r, :y.size] = y
+        rev[r, :y.size] = y[::-1]  # u = m - 1 - t: the right side as a left one
+    # The least-squares fit at every candidate from running sums of t^p and t^p y (t scaled to
+    # [0, 1) per trough): the two sides never overlap, so the normal equations eliminate to
+    # closed form, and each candidate costs a few operations, not a pass over the trough.
+    s = np.arange(width, dtype=np.float64)[None, :] / ms[:, None]
+    fwd, rev = _power_sums(s, fwd), _power_sums(s, rev)
+    rows = np.arange(k)[:, None]
+    mc = ms[:, None]
 
-    def sse(t0: np.ndarray) -> np.ndarray:
-        left = np.maximum(t0[:, None] - t[None, :], 0.0) ** 2
-        right = np.maximum(t[None, :] - t0[:, None], 0.0) ** 2
-        x = np.stack((np.ones_like(left), left, right), axis=2)  # (grid, m, 3)
-        xtx = np.einsum("gmi,gmj->gij", x, x)
-        xty = np.einsum("gmi,m->gi", x, y)
-        coef = np.linalg.solve(xtx + 1e-12 * np.eye(3), xty[..., None])[..., 0]
-        res = y[None, :] - np.einsum("gmi,gi->gm", x, coef)
-        return np.einsum("gm,gm->g", res, res)
+    def best(t0: np.ndarray, valid: np.ndarray) -> np.ndarray:
+        kk = np.floor(t0).astype(np.int64) + 1  # samples t <= t0 on the left, the rest on the right
+        s_l, s_ll, s_ly = _side(fwd[:, rows, kk], t0 / mc)
+        s_r, s_rr, s_ry = _side(rev[:, rows, mc - kk], (mc - 1 - t0) / mc)
+        c = (y_sum[:, None] - s_l * s_ly / s_ll - s_r * s_ry / s_rr) / (mc - s_l * s_l / s_ll - s_r * s_r / s_rr)
+        p = (s_ly - c * s_l) / s_ll
+        q = (s_ry - c * s_r) / s_rr
+        sse = yy[:, None] - (c * y_sum[:, None] + p * s_ly + q * s_ry)
+        return t0[np.arange(k), np.argmin(np.where(valid, sse, np.inf), axis=1)]
 
-    step = max(1, m // 64)
-    coarse = np.arange(1, m - 1, step, dtype=np.float64)
-    best = float(coarse[int(np.argmin(sse(coarse)))])
-    fine = np.arange(max(1.0, best - step), min(m - 2.0, best + step) + 0.25, 0.25)
-    return float(fine[int(np.argmin(sse(fine)))]) * q + 0.5 * (q - 1)
+    steps = np.maximum(1, ms // 64)
+    coarse = best(*_padded([np.arange(1, m - 1, st, dtype=np.float64) for m, st in zip(ms, steps)]))
+    fine = best(*_padded([np.arange(max(1.0, c - st), min(m - 2.0, c + st) + 0.25, 0.25)
+                          for m, st, c in zip(ms, steps, coarse)]))
+    q = np.array(qs, np.float64)
+    return fine * q + 0.5 * (q - 1)
 
+
+def _padded(grids: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """The candidates of every trough as rows (padded with 1.0, a valid candidate) and a mask."""
+    n = max(g.size for g in grids)
+    out = np.ones((len(grids), n))
+    valid = np.zeros((len(grids), n), bool)
+    for r, g in enumerate(grids):
+        out[r, :g.size] = g
+        valid[r, :g.size] = True
+    return out, valid
+
+
+def _power_sums(s: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Running sums along the rows, shape ``(8,) + y.shape[:-1] + (n + 1,)``: s^0..s^4, then
+    y s^0..y s^2; column ``k`` over a row's first ``k`` samples."""
+    out = np.zeros((8,) + y.shape[:-1] + (y.shape[-1] + 1,))
+    r = out[..., 1:]
+    r[0] = 1.0
+    r[1] = s
+    np.multiply(s, s, out=r[2])
+    np.multiply(r[2], s, out=r[3])
+    np.multiply(r[2], r[2], out=r[4])
+    np.multiply(r[:3], y, out=r[5:])
+    np.cumsum(r, axis=-1, out=r)
+    return out
+
+
+def _side(sums: np.ndarray, a: np.ndarray):
+    """From the running sums at each candidate's count of samples, with ``x = (a - s)^2``:
+    sum x, sum x^2, sum x y."""
+    p0, p1, p2, p3, p4, q0, q1, q2 = sums
+    a2 = a * a
+    s_x = a2 * p0 - 2.0 * a * p1 + p2
+    s_xx = a2 * a2 * p0 - 4.0 * a2 * a * p1 + 6.0 * a2 * p2 - 4.0 * a * p3 + p4
+    s_xy = a2 * q0 - 2.0 * a * q1 + q2
+    return s_x, s_xx, s_xy
 
 #: The first beat of a sweep is measured from the diastole recorded before it when V fell by at
 #: least this many mV (or 10 x the noise rms) from the sweep's start into a minimum that lies two
