@@ -1,8 +1,9 @@
 """Figures of a recording's accepted beats, by condition, each exportable to PNG or SVG.
 
-* aligned beats with each condition's ensemble average, over the beats its summary used;
-* the phase plane (dV/dt against V) of each condition's average beat and of the selected beat,
-  with the smoothed derivative the take-off definition uses;
+* aligned beats with each condition's ensemble beat (their sample-wise median), over the beats
+  its summary used;
+* the phase plane (dV/dt against V) of each condition's ensemble beat and of the selected beat,
+  with the derivative dV/dt max was measured with (over the beats' own window);
 * the time course of rate, APD90 and DDR per beat, with the conditions as bands;
 * the Poincare plot of successive cycle lengths;
 * DDR against CL per beat, coloured by condition, with each condition's fitted line.
@@ -186,7 +187,7 @@ class PhasePlaneFigure(_Figure):
         for name, aligned in (averages or {}).items():
             v, dvdt = readouts.phase_plane(aligned.mean, fs, window_ms=readouts.dvdt_window_of(data.beats, aligned.rows))
             self.plot.plot(v, dvdt, pen=pg.mkPen(colours.get(name, palette.TRACE), width=2.2),
-                           name=f"{_group_label(name)}: average beat")
+                           name=f"{_group_label(name)}: ensemble beat (median)")
         r = data.current_row
         if 0 <= r < len(data.beats):
             one = readouts.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
