@@ -13,6 +13,8 @@ code does not do:
 * the flags: :data:`analysis.beats.FLAG_WORDS` and the vocabulary in the docstring of
   :mod:`analysis.flags._events`, with the automatic rejections of the default quality settings;
 * rhythm and variability: the docstring of :mod:`analysis.stats._variability`;
+* the ensemble beat: the docstring of :mod:`analysis.stats._ensemble`; the phase plane's
+  derivative is described here (:func:`analysis.beats.derivative_trace`);
 * every setting: :func:`analysis.settings.describe` (unit, default, bounds or choices, what it
   does, its source).
 """
@@ -34,6 +36,7 @@ from analysis.beats import _detect as detect
 from analysis.beats import _markers as markers
 from analysis.flags import _events as events
 from analysis.signal import _filters as signal
+from analysis.stats import _ensemble as ensemble
 from analysis.stats import _variability as variability
 
 __all__ = ["flag_vocabulary", "render"]
@@ -231,6 +234,17 @@ def render() -> str:
         "## Rhythm and variability",
         "",
         _md(_section(inspect.getdoc(variability) or "", "Definitions")),
+        "",
+        "## The ensemble beat and the phase plane",
+        "",
+        _md(_body(ensemble)),
+        "",
+        "The aligned-beats figure draws the same sample-wise median of the beats it shows. The phase",
+        "plane (dV/dt against V) is drawn with the estimator that measured dV/dt max",
+        "(`analysis.beats.derivative_trace`): the order-3 Savitzky-Golay derivative over the beat's",
+        "own dV/dt max window (`dvdt_window_ms`; for an average beat the median of its beats'), not a",
+        "first difference, so that the loop's top is the beat's dV/dt max and its diastole is as quiet",
+        "as that estimate (Savitzky & Golay 1964, Anal Chem 36:1627; common practice, no source).",
         "",
         "## Settings",
         "",

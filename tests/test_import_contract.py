@@ -182,7 +182,7 @@ def test_the_core_is_a_handful_of_vocabulary_modules_over_tier_packages():
 DOCSTRING_SOURCES = {
     "analysis/docs_measurements.py": {
         "analysis.beats._detect", "analysis.beats._markers", "analysis.flags._events", "analysis.signal._filters",
-        "analysis.stats._variability",
+        "analysis.stats._variability", "analysis.stats._ensemble",
     },
 }
 

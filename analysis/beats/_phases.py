@@ -153,7 +153,11 @@ def phase_spans(
         Phase 4 runs from the MDP to the take-off, phase 0 from the take-off to the peak. With a
         plateau, phase 1 runs from the peak to its end (with samples), phase 2 from there to 20 %
         repolarisation and phase 3 on; without one, phase 3 starts at the peak. Phase 3 ends at the next beat's
-        MDP in the same sweep, or at 90 % repolarisation when there is no next beat.
+        MDP in the same sweep (where that beat's phase 4 starts, at its MDP marker), or at 90 %
+        repolarisation when there is no next beat. A span is drawn only where both its ends are
+        defined: a beat without APD90 (cut by the sweep's end, or without a known MDP) has no
+        phase 1, 2 or 3; one without a take-off (no diastole before it, or no phase 4) has no
+        phase 4 or 0.
 
     Examples
     --------
@@ -192,8 +196,13 @@ def phase_spans(
         r = int(r)
         add(r, 4, t_mdp[r], t_top[r])
         add(r, 0, t_top[r], t_peak[r])
+        if not np.isfinite(t90[r]):
+            # No 90 % repolarisation (a beat cut by the sweep's end, or one whose MDP is not
+            # known, so that its levels are not): where it repolarises is not known, and no
+            # span after the peak is drawn rather than one that calls the whole beat phase 3.
+            continue
         nxt = next_of[r]
-        end = t_mdp[nxt] if nxt >= 0 and np.isfinite(t_mdp[nxt]) else t90[r]
+        end = max(t_mdp[nxt], t90[r]) if nxt >= 0 and np.isfinite(t_mdp[nxt]) else t90[r]
         apd50, apd90 = t50[r] - t_up[r], t90[r] - t_up[r]
         plateau = (
             np.isfinite(apd50) and np.isfinite(apd90) and apd50 > 0

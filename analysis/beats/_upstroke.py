@@ -25,7 +25,7 @@ from analysis.signal import (
     window_samples,
 )
 
-__all__ = ["PEAK_WIDTH_FRACTION", "TOP_FIT_NOISE", "UpstrokeVelocity", "half_height_width", "rise_time_10_90", "upstroke_velocity"]
+__all__ = ["PEAK_WIDTH_FRACTION", "TOP_FIT_NOISE", "UpstrokeVelocity", "derivative_trace", "half_height_width", "rise_time_10_90", "upstroke_velocity"]
 
 
 def _quick_noise_mV(v_mV: np.ndarray) -> float:
@@ -205,6 +205,41 @@ def upstroke_velocity(
     sd = _sg_noise(n, fs_hz) * local_noise
     return UpstrokeVelocity(float(value), a + j + off, n / fs_hz * 1e3, float(rise_ms), float(rise_samples),
                             float(sd), width / fs_hz * 1e3)
+
+
+def derivative_trace(v_mV: np.ndarray, fs_hz: float, window_ms: float) -> np.ndarray:
+    """dV/dt (V/s) of a whole trace by the estimator dV/dt max used, over the same window.
+
+    Parameters
+    ----------
+    v_mV : ndarray
+        Membrane potential (mV); NaN samples (a window past a sweep's end) stay NaN and do not
+        spread into the finite stretch.
+    fs_hz : float
+    window_ms : float
+        The window :func:`upstroke_velocity` reported (``UpstrokeVelocity.window_ms``, the beat
+        table's ``dvdt_window_ms``): an order-3 Savitzky-Golay derivative over that many ms
+        (Savitzky & Golay 1964, Anal Chem 36:1627); 0 or NaN gives the central difference of
+        the ``central_difference`` method.
+
+    Returns
+    -------
+    ndarray
+        The derivative, sample by sample (mV per ms equals V per s).
+    """
+    v = np.asarray(v_mV, dtype=np.float64)
+    out = np.full(v.size, np.nan)
+    finite = np.flatnonzero(np.isfinite(v))
+    if finite.size < 3:
+        return out
+    a, b = int(finite[0]), int(finite[-1]) + 1
+    seg = v[a:b]
+    n = window_samples(window_ms, fs_hz, polyorder=3, minimum=5) if window_ms and math.isfinite(window_ms) else 0
+    if n < 5 or n > seg.size:
+        out[a:b] = central_difference(seg, fs_hz) / 1000.0
+    else:
+        out[a:b] = savgol_derivative(seg, fs_hz, window=n, polyorder=3) / 1000.0
+    return out
 
 
 #: The dV/dt max window spans at most this fraction of the dV/dt peak's half-height width. An

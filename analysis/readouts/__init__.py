@@ -9,6 +9,7 @@ from analysis.readouts._plotdata import (
     LineFit,
     aligned_beats,
     consecutive_mask,
+    dvdt_window_of,
     fit_line,
     phase_plane,
     poincare_pairs,
@@ -16,4 +17,4 @@ from analysis.readouts._plotdata import (
     take_off_window_ms,
 )
 
-__all__ = ["AlignedBeats", "CursorReadout", "LineFit", "aligned_beats", "consecutive_mask", "fit_line", "phase_plane", "poincare_pairs", "readout", "readout_samples", "recording_times_s", "take_off_window_ms"]
+__all__ = ["AlignedBeats", "CursorReadout", "LineFit", "aligned_beats", "consecutive_mask", "dvdt_window_of", "fit_line", "phase_plane", "poincare_pairs", "readout", "readout_samples", "recording_times_s", "take_off_window_ms"]

@@ -11,13 +11,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from analysis.beats import derivative_trace
 from analysis.recording import Recording
-from analysis.signal import (
-    noise_matched_window_ms,
-    noise_rms_mV,
-    savgol_derivative,
-    window_samples,
-)
+from analysis.signal import noise_matched_window_ms, noise_rms_mV
 from analysis.stats import linear_relation, successive_pairs
 from analysis.table import BeatTable
 
@@ -26,6 +22,7 @@ __all__ = [
     "LineFit",
     "aligned_beats",
     "consecutive_mask",
+    "dvdt_window_of",
     "fit_line",
     "phase_plane",
     "poincare_pairs",
@@ -47,7 +44,9 @@ class AlignedBeats:
     rows : ndarray of int, shape (n,)
         The beats' rows in the table.
     mean : ndarray, shape (m,)
-        The ensemble average (mean across beats, ignoring NaN).
+        The ensemble beat: the sample-wise median across beats, ignoring NaN, so that a single
+        outlying sample (an electrical spike in one beat) does not show in it (as the summary's
+        ensemble beat, :mod:`analysis.stats._ensemble`).
     """
 
     t_ms: np.ndarray
@@ -135,17 +134,15 @@ def aligned_beats(
         lo, hi = centre - pre, centre + post + 1
         seg = recording.sweep(sweep, channel, start=max(0, lo), stop=hi)
         traces[k, max(0, -lo) : max(0, -lo) + seg.size] = seg - offset_mV
-    if rows.size:
-        with np.errstate(all="ignore"):
-            counts = np.isfinite(traces).sum(axis=0)
-            mean = np.where(counts > 0, np.nansum(traces, axis=0) / np.maximum(counts, 1), np.nan)
-    else:
-        mean = np.full(t_ms.size, np.nan)
+    mean = np.full(t_ms.size, np.nan)
+    some = np.isfinite(traces).any(axis=0)
+    if some.any():
+        mean[some] = np.nanmedian(traces[:, some], axis=0)
     return AlignedBeats(t_ms, traces, rows, mean)
 
 
 def phase_plane(v: np.ndarray, fs_hz: float, *, window_ms: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """V and dV/dt (V/s) of a trace in mV.
+    """V and dV/dt (V/s) of a trace in mV, by the estimator that measured dV/dt max.
 
     Parameters
     ----------
@@ -153,9 +150,11 @@ def phase_plane(v: np.ndarray, fs_hz: float, *, window_ms: float | None = None) 
         The trace, in mV.
     fs_hz : float
     window_ms : float or None
-        None: a central difference. Otherwise a cubic Savitzky-Golay derivative over this window
-        (:func:`analysis.signal.savgol_derivative`; Savitzky & Golay 1964, Anal Chem 36:1627),
-        which keeps a single noisy beat's loop readable.
+        The dV/dt max window of the beat (the beat table's ``dvdt_window_ms``; for an average
+        beat :func:`dvdt_window_of`): the derivative is :func:`analysis.beats.derivative_trace`,
+        the order-3 Savitzky-Golay derivative dV/dt max is read from, so the loop's top is the
+        beat's dV/dt max and its diastole is as quiet as that estimate. None (or 0): a central
+        difference.
 
     Returns
     -------
@@ -165,13 +164,17 @@ def phase_plane(v: np.ndarray, fs_hz: float, *, window_ms: float | None = None) 
     v = np.asarray(v, dtype=np.float64)
     if v.size < 2:
         return v, np.full(v.size, np.nan)
-    if window_ms is None:
-        return v, np.gradient(v) * fs_hz / 1e3
+    return v, derivative_trace(v, fs_hz, 0.0 if window_ms is None else float(window_ms))
 
-    n = window_samples(window_ms, fs_hz, polyorder=3)
-    if n < 5 or n > v.size:
-        return v, np.gradient(v) * fs_hz / 1e3
-    return v, savgol_derivative(v, fs_hz, window=n, polyorder=3) / 1e3
+
+def dvdt_window_of(beats: BeatTable, rows: np.ndarray) -> float | None:
+    """The dV/dt max window (ms) of these beats: their median ``dvdt_window_ms`` (None when the
+    table has none), for drawing their average beat's phase plane as they were measured."""
+    if "dvdt_window_ms" not in beats:
+        return None
+    w = np.asarray(beats["dvdt_window_ms"], dtype=np.float64)[np.asarray(rows, dtype=np.int64)]
+    w = w[np.isfinite(w)]
+    return float(np.median(w)) if w.size else None
 
 
 def take_off_window_ms(v: np.ndarray, fs_hz: float, measurement) -> float:

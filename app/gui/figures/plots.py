@@ -1,8 +1,9 @@
 """Figures of a recording's accepted beats, by condition, each exportable to PNG or SVG.
 
-* aligned beats with each condition's ensemble average, over the beats its summary used;
-* the phase plane (dV/dt against V) of each condition's average beat and of the selected beat,
-  with the smoothed derivative the take-off definition uses;
+* aligned beats with each condition's ensemble beat (their sample-wise median), over the beats
+  its summary used;
+* the phase plane (dV/dt against V) of each condition's ensemble beat and of the selected beat,
+  with the derivative dV/dt max was measured with (over the beats' own window);
 * the time course of rate, APD90 and DDR per beat, with the conditions as bands;
 * the Poincare plot of successive cycle lengths;
 * DDR against CL per beat, coloured by condition, with each condition's fitted line.
@@ -152,7 +153,7 @@ class AlignedBeatsFigure(_Figure):
             background.setClipToView(False)
             label = f"{_group_label(name)}: n = {rows.size} ({which}"
             if aligned.rows.size < rows.size:
-                label += f"; mean of {aligned.rows.size} spread evenly"
+                label += f"; median of {aligned.rows.size} spread evenly"
             self.plot.plot(aligned.t_ms, aligned.mean, pen=pg.mkPen(colour, width=2.6), name=label + ")")
 
     @staticmethod
@@ -167,10 +168,6 @@ class AlignedBeatsFigure(_Figure):
     def legend_texts(self) -> list[str]:
         """The legend's entries, top to bottom."""
         return [label.text for _sample, label in self.legend.items]
-
-
-def _window(v: np.ndarray, fs: float, data: FigureInput) -> float | None:
-    return None if data.measurement is None else readouts.take_off_window_ms(v, fs, data.measurement)
 
 
 class PhasePlaneFigure(_Figure):
@@ -188,14 +185,14 @@ class PhasePlaneFigure(_Figure):
         fs = data.recording.sampling_rate_hz
         colours = dict(data.groups)
         for name, aligned in (averages or {}).items():
-            v, dvdt = readouts.phase_plane(aligned.mean, fs, window_ms=_window(aligned.mean, fs, data))
+            v, dvdt = readouts.phase_plane(aligned.mean, fs, window_ms=readouts.dvdt_window_of(data.beats, aligned.rows))
             self.plot.plot(v, dvdt, pen=pg.mkPen(colours.get(name, palette.TRACE), width=2.2),
-                           name=f"{_group_label(name)}: average beat")
+                           name=f"{_group_label(name)}: ensemble beat (median)")
         r = data.current_row
         if 0 <= r < len(data.beats):
             one = readouts.aligned_beats(data.recording, data.beats, np.array([r]), channel=data.channel,
                                          offset_mV=data.offset_mV, before_ms=250, after_ms=500)
-            v, dvdt = readouts.phase_plane(one.traces[0], fs, window_ms=_window(one.traces[0], fs, data))
+            v, dvdt = readouts.phase_plane(one.traces[0], fs, window_ms=readouts.dvdt_window_of(data.beats, one.rows))
             self.plot.plot(v, dvdt, pen=pg.mkPen(palette.rgba(palette.INK, 150), width=1),
                            name=f"selected beat (sweep {int(data.beats['sweep'][r])}, beat {int(data.beats['beat'][r])})")
 

@@ -160,37 +160,52 @@ class SpanBands(pg.GraphicsObject):
     def _label_layout(self, tr: QtGui.QTransform, vr: QtCore.QRectF, visible: np.ndarray):
         """Where each visible band's label goes, in the pixels ``tr`` maps data to.
 
-        A label is drawn when its band is wide enough to hold it. It is centred on the band, and
-        shifted inward where the band runs past the view's edge, so that it stays whole inside
-        the view while it still starts (or ends) over its own band; such a shifted label is left
-        out where it would cover its neighbour's.
+        A label is centred on its band. One too wide for its band (a millisecond-wide upstroke)
+        spills over its neighbours' ground rather than go missing, on the next line down where
+        it would cover a neighbour's label on its own; it is left out only where both lines are
+        taken. A label is shifted inward where its band runs past the view's edge, so that it
+        stays whole inside the view while it still starts (or ends) over its own band; such a
+        shifted label is left out where it would cover its neighbour's, and so is the label of
+        a band of which only a sliver is in view.
         """
         metrics = QtGui.QFontMetricsF(self._label_font)
         v0, v1 = sorted((tr.map(vr.topLeft()).x(), tr.map(vr.topRight()).x()))
-        top = self._top_px(tr, vr) + 2 + self._label_row * (metrics.height() + 1)
+        line = metrics.height() + 1
+        top = self._top_px(tr, vr) + 2 + self._label_row * line
         out = []
         for i in visible:
             if i >= len(self._labels) or not self._labels[i]:
                 continue
             p0, p1 = sorted((tr.map(QtCore.QPointF(self._t0[i], 0.0)).x(), tr.map(QtCore.QPointF(self._t1[i], 0.0)).x()))
             width = metrics.horizontalAdvance(self._labels[i])
-            if p1 - p0 < width + 4:
-                continue
-            if min(p1, v1) - max(p0, v0) < 4:
+            cut = p0 < v0 or p1 > v1
+            if cut and min(p1, v1) - max(p0, v0) < 4:
                 continue  # only a sliver of the band in view: its label would float beside it
-            # Within the band, then inward at the view's edges (a margin of 2 px): the view wins,
-            # so a band that runs past an edge has its label start (or end) at that edge, over
-            # the band's visible part.
-            centred = min(max((p0 + p1 - width) / 2, p0), p1 - width)
+            narrow = p1 - p0 < width + 4
+            # Within the band (centred on a narrow one), then inward at the view's edges (a
+            # margin of 2 px): the view wins, so a band that runs past an edge has its label
+            # start (or end) at that edge, over the band's visible part.
+            centred = (p0 + p1 - width) / 2 if narrow else min(max((p0 + p1 - width) / 2, p0), p1 - width)
             left = max(min(centred, v1 - 2 - width), v0 + 2)
-            out.append((int(i), QtCore.QRectF(left, top, width, metrics.height()), left != centred))
+            out.append((int(i), QtCore.QRectF(left, top, width, metrics.height()), left != centred, narrow))
         # A label shifted at an edge gives way to a neighbour it would cover (neither would read).
-        keep = []
-        for k, (i, rect, shifted) in enumerate(out):
-            neighbours = [r for _i, r, _s in out[max(0, k - 1):k] + out[k + 1:k + 2]]
+        placed = []
+        for k, (i, rect, shifted, narrow) in enumerate(out):
+            neighbours = [r for _i, r, _s, n in out[max(0, k - 1):k] + out[k + 1:k + 2] if not n]
             if shifted and any(rect.intersects(r) for r in neighbours):
                 continue
-            keep.append((i, rect))
+            placed.append((i, rect, narrow))
+        # Narrow bands' labels go where no other label is: this line, else the next.
+        keep = [(i, rect) for i, rect, narrow in placed if not narrow]
+        for i, rect, narrow in placed:
+            if not narrow:
+                continue
+            for down in (0.0, line):
+                moved = rect.translated(0.0, down)
+                if not any(moved.intersects(r) for _j, r in keep):
+                    keep.append((i, moved))
+                    break
+        keep.sort(key=lambda item: item[0])
         return keep
 
 

@@ -62,3 +62,16 @@ def test_rows_subset_and_missing_marker_columns():
     t = BeatTable({"sweep": [0, 0], "t_upstroke_s": [0.1, 0.9]})
     assert len(phase_spans(t)) == 0  # no marker times, no spans
     assert set(phase_spans(_table(), rows=np.array([1])).row) == {1}
+
+
+def test_a_beat_without_apd90_has_no_span_after_its_peak():
+    # Row 0 as a beat whose 90 % repolarisation is unknown (a sweep's first beat without its
+    # diastole, or one cut by the sweep's end): no phase 3 from its peak to the next MDP, and
+    # its phase 4 and 0 stay where their markers are (common practice, no source).
+    t = _table(t_apd90_s=[np.nan, 1.60, 0.58])
+    assert phase_spans(t).of_row(0) == {4: (0.20, 0.46), 0: (0.46, 0.52)}
+    # No take-off either (no diastole recorded before it): nothing at all is shaded.
+    t = _table(t_apd90_s=[np.nan, 1.60, 0.58], t_mdp_s=[np.nan, 1.00, np.nan], t_top_s=[np.nan, 1.26, np.nan])
+    assert phase_spans(t).of_row(0) == {}
+    # Row 2 (sweep 1's first beat) has its APD90 but no MDP or take-off: phase 3 only.
+    assert phase_spans(_table()).of_row(2) == {3: (0.42, 0.58)}

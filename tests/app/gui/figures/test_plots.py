@@ -46,7 +46,7 @@ def test_fits_and_pairs_are_the_cores(panel):
     base = np.flatnonzero(data.beats["condition"] == "baseline")
     assert np.array_equal(x, data.beats["cl_ms"][base][1:-1]) and np.array_equal(y, data.beats["cl_ms"][base][2:])
     avg = w.figures["aligned"].averages["baseline"]
-    assert np.allclose(avg.mean, np.nanmean(avg.traces, axis=0))  # numpy reference
+    assert np.allclose(avg.mean, np.nanmedian(avg.traces, axis=0))  # numpy reference: the sample-wise median
 
 
 def test_export_png_and_svg(panel, tmp_path):
@@ -125,7 +125,7 @@ def test_aligned_beats_are_the_summarys_steady_window(steady_window, tmp_path):
     assert figure.legend_texts()[0] == f"baseline: n = {n} (steady window)"
     avg = figure.averages["baseline"]
     assert np.array_equal(np.sort(avg.rows), by_hand)  # the very beats the summary used
-    assert np.allclose(avg.mean, np.nanmean(avg.traces, axis=0), equal_nan=True)  # numpy reference
+    assert np.allclose(avg.mean, np.nanmedian(avg.traces, axis=0), equal_nan=True)  # numpy reference: the sample-wise median
 
     # A beat inside the window rejected: the figure follows the summary once its job is back.
     w.select_beat(int(by_hand[by_hand.size // 2]))
