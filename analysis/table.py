@@ -132,9 +132,17 @@ class BeatTable:
     # -- derived tables -----------------------------------------------------------------------
     def with_columns(self, **columns: object) -> "BeatTable":
         """A new table with columns added or replaced."""
-        merged: dict[str, object] = dict(self._cols)
-        merged.update(columns)
-        return BeatTable(merged)
+        # The columns kept are already checked and read-only: only the new ones are converted.
+        added = BeatTable(columns)._cols
+        n = len(self) if self._cols else None
+        for name, arr in added.items():
+            if n is None:
+                n = len(arr)
+            elif len(arr) != n:
+                raise ValueError(f"column {name!r} has {len(arr)} rows, expected {n}")
+        out = BeatTable()
+        out._cols = {**self._cols, **added}
+        return out
 
     def take(self, index: object) -> "BeatTable":
         """A new table of the rows a boolean mask or an index array selects (for views only)."""
