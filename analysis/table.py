@@ -146,7 +146,15 @@ class BeatTable:
 
     def take(self, index: object) -> "BeatTable":
         """A new table of the rows a boolean mask or an index array selects (for views only)."""
-        return BeatTable({n: a[index] for n, a in self._cols.items()})
+        if not isinstance(index, (np.ndarray, slice, list)):
+            return BeatTable({n: a[index] for n, a in self._cols.items()})
+        # Rows of checked columns keep their kind: nothing to convert again.
+        cols = {n: a[index] for n, a in self._cols.items()}
+        for arr in cols.values():
+            arr.setflags(write=False)
+        out = BeatTable()
+        out._cols = cols
+        return out
 
     def equals(self, other: "BeatTable") -> bool:
         """Same columns in the same order with identical values (NaN equal to NaN)."""
