@@ -71,6 +71,7 @@ __all__ = [
     "beat_status",
     "held_for_review",
     "now_utc",
+    "update_status",
     "REPRODUCIBLE_CLOCK_ENV",
 ]
 
@@ -381,3 +382,42 @@ def apply_status(table, decisions: DecisionLog | None = None, review_flags: Iter
         accepted=st.used.astype(np.int64), reject_reason=st.reason, verdict=st.status,
         decided_by=st.decided_by, reviewed=(st.decided_by == USER).astype(np.int64),
     )
+
+
+def update_status(view, table, entries: Sequence[Decision], review_flags: Iterable[str] = (), *,
+                  tolerance_s: float = MATCH_TOLERANCE_S):
+    """``view`` after ``entries`` were appended to the log it was made with: only the beats those
+    entries apply to are worked out again (a review key's verdict changes one row).
+
+    Parameters
+    ----------
+    view : BeatTable
+        ``apply_status(table, log, review_flags)`` (more columns may follow).
+    table : BeatTable
+        The automatic table ``view`` was made from.
+    entries : sequence of Decision
+        The entries appended to ``log`` since; being the latest, each wins on the beat it
+        applies to.
+
+    Returns
+    -------
+    BeatTable
+        Equal to ``apply_status(table, log + entries, review_flags)`` in the status columns, the
+        other columns of ``view`` as they are.
+    """
+    new = DecisionLog(entries)
+    latest, _ = new.match(table["sweep"], table["t_upstroke_s"], tolerance_s=tolerance_s)
+    rows = np.flatnonzero(latest >= 0)
+    if not rows.size:
+        return view
+    # A beat's nearest entry among all beats is also its nearest among the beats the entries
+    # apply to, so matching the entries again on those rows alone gives the same verdicts.
+    st = beat_status(table.take(rows), new, review_flags, tolerance_s=tolerance_s)
+    changed = {"accepted": st.used.astype(np.int64), "reject_reason": st.reason, "verdict": st.status,
+               "decided_by": st.decided_by, "reviewed": (st.decided_by == USER).astype(np.int64)}
+    columns = {}
+    for name, values in changed.items():
+        column = np.array(view[name], copy=True)
+        column[rows] = values
+        columns[name] = column
+    return view.with_columns(**columns)

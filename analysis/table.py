@@ -132,13 +132,29 @@ class BeatTable:
     # -- derived tables -----------------------------------------------------------------------
     def with_columns(self, **columns: object) -> "BeatTable":
         """A new table with columns added or replaced."""
-        merged: dict[str, object] = dict(self._cols)
-        merged.update(columns)
-        return BeatTable(merged)
+        # The columns kept are already checked and read-only: only the new ones are converted.
+        added = BeatTable(columns)._cols
+        n = len(self) if self._cols else None
+        for name, arr in added.items():
+            if n is None:
+                n = len(arr)
+            elif len(arr) != n:
+                raise ValueError(f"column {name!r} has {len(arr)} rows, expected {n}")
+        out = BeatTable()
+        out._cols = {**self._cols, **added}
+        return out
 
     def take(self, index: object) -> "BeatTable":
         """A new table of the rows a boolean mask or an index array selects (for views only)."""
-        return BeatTable({n: a[index] for n, a in self._cols.items()})
+        if not isinstance(index, (np.ndarray, slice, list)):
+            return BeatTable({n: a[index] for n, a in self._cols.items()})
+        # Rows of checked columns keep their kind: nothing to convert again.
+        cols = {n: a[index] for n, a in self._cols.items()}
+        for arr in cols.values():
+            arr.setflags(write=False)
+        out = BeatTable()
+        out._cols = cols
+        return out
 
     def equals(self, other: "BeatTable") -> bool:
         """Same columns in the same order with identical values (NaN equal to NaN)."""

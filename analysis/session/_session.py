@@ -84,6 +84,7 @@ from analysis.session._types import (
     key_of,
     mV_scale,
     reviewed_table,
+    reviewed_table_after,
 )
 from analysis.session._work import SessionWork
 from analysis.settings import Settings
@@ -280,10 +281,13 @@ class Session(SessionHistory, SessionWork):
         """
         e = self._entry(key)
         # Kept while nothing it is made of has changed: a review key asks for it more than once.
-        stamp = (e.version, id(e.table), id(e.decisions), len(e.decisions), e.conditions, id(e.settings),
-                 self.match_tolerance_s)
+        stamp = (e.version, len(e.decisions), id(e.table), id(e.decisions), e.conditions, id(e.settings),
+                 self.match_tolerance_s, e.info.sweep_starts_s, e.info.sha256)
         cached = self._views.get(key)
-        if cached is None or cached[0] != stamp:
+        if cached is not None and cached[0] != stamp and cached[0][2:] == stamp[2:] and cached[0][1] < stamp[1]:
+            # Only verdicts were added (a review key): the beats they apply to change, no other.
+            cached = self._views[key] = (stamp, reviewed_table_after(e, cached[1], cached[0][1], self.match_tolerance_s))
+        elif cached is None or cached[0] != stamp:
             cached = self._views[key] = (stamp, reviewed_table(e, self.match_tolerance_s))
         return cached[1]
 

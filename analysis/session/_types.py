@@ -13,7 +13,7 @@ from typing import Any, Callable, Protocol, Sequence
 import numpy as np
 
 from analysis.conditions import Condition, assign_conditions
-from analysis.decisions import DecisionLog, apply_status
+from analysis.decisions import DecisionLog, apply_status, update_status
 import analysis.flags as flags
 from analysis.pipeline import analyze, stage_of_change
 from analysis.recording import Recording, recording_id
@@ -224,9 +224,19 @@ def reviewed_table(e: "Entry", tolerance_s: float) -> BeatTable:
     starts = np.asarray(e.info.sweep_starts_s, dtype=np.float64)
     t_rec = starts[sweep] + t_up if n else np.empty(0)
     condition = assign_conditions(sweep, t_rec, e.conditions)
-    review_flags = getattr(getattr(e.settings, "quality", None), "review_flags", ())
-    view = apply_status(t, e.decisions, review_flags, tolerance_s=tolerance_s)
+    view = apply_status(t, e.decisions, _review_flags(e), tolerance_s=tolerance_s)
     return view.with_columns(condition=condition, recording_id=np.full(n, recording_id(e.info.sha256), dtype=object))
+
+
+def reviewed_table_after(e: "Entry", view: BeatTable, decided: int, tolerance_s: float) -> BeatTable:
+    """:func:`reviewed_table` of an entry whose log has grown since ``view`` was made from its
+    first ``decided`` entries, nothing else having changed: only the beats the new entries
+    apply to are worked out again."""
+    return update_status(view, e.table, e.decisions[decided:], _review_flags(e), tolerance_s=tolerance_s)
+
+
+def _review_flags(e: "Entry") -> tuple[str, ...]:
+    return getattr(getattr(e.settings, "quality", None), "review_flags", ())
 
 
 def key_of(source: str) -> str:

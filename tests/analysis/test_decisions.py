@@ -15,7 +15,7 @@ import pytest
 from analysis.columns import FLAG_VOCABULARY
 from analysis.decisions import (
     ACCEPT, ACCEPTED, AUTO, CLEAR, REJECT, REJECTED, TO_REVIEW, USER, Decision, DecisionLog, apply_status,
-    beat_status, held_for_review,
+    beat_status, held_for_review, update_status,
 )
 from analysis.errors import SettingsError
 from analysis.settings import QualitySettings, Settings
@@ -136,3 +136,52 @@ def test_a_session_holds_flagged_beats_until_the_user_judges_them():
     assert (view["verdict"][3], view["accepted"][3], view["decided_by"][3], view["reviewed"][3]) == (ACCEPTED, 1, USER, 1)
     s.undo()
     assert s.beats(key)["verdict"][3] == TO_REVIEW
+
+
+def _entry(row: int, t: float, accepted: int, reason: str = "", sweep: int = 0) -> Decision:
+    return Decision(sweep, row, t, accepted, reason, "2024-01-01T00:00:00.000Z", "review")
+
+
+def test_a_verdict_added_updates_only_its_beat_and_equals_the_whole_table_worked_out_again():
+    # The whole computation (apply_status over the grown log) is the reference; the rows each
+    # entry names can be read off _table().
+    table = _table()
+    earlier = [_entry(2, 2.1, ACCEPT), _entry(4, 3.7, REJECT, "noise")]
+    view = apply_status(table, DecisionLog(earlier), DEFAULT_REVIEW)
+    steps = [
+        [_entry(3, 2.9, REJECT, "seal trouble")],                # a held beat rejected
+        [_entry(2, 2.1 + 0.004, CLEAR)],                         # within the tolerance: back to the rule
+        [_entry(1, 1.3, ACCEPT), _entry(1, 1.3, REJECT, "x")],   # the later of two entries wins
+        [_entry(6, 9.9, ACCEPT)],                                # applies to no beat: nothing changes
+        [_entry(4, 3.7, ACCEPT, sweep=1)],                       # another sweep: no beat there
+    ]
+    log = list(earlier)
+    for new in steps:
+        log += new
+        after = update_status(view, table, new, DEFAULT_REVIEW)
+        whole = apply_status(table, DecisionLog(log), DEFAULT_REVIEW)
+        assert after.equals(whole)
+        view = after
+    assert view["verdict"].tolist() == [ACCEPTED, REJECTED, TO_REVIEW, REJECTED, REJECTED, ACCEPTED, REJECTED]
+    assert view["reject_reason"][1] == "x" and view["reject_reason"][3] == "seal trouble"
+
+
+def test_a_sessions_reviewed_table_after_review_keys_equals_the_one_made_afresh():
+    from analysis.session import Session
+    from analysis.session._types import reviewed_table
+    from analysis.synthetic import preset, synthesize
+
+    syn = synthesize(preset("nodal-like"), duration_s=8.0, fs_hz=5_000.0, seed=3)
+    s = Session(Settings().replace("quality.review_flags", ("pause", "noisy")))
+    key = s.add(syn.recording, label="cell-07")
+    s.beats(key)
+    s.accept(key, [2])
+    s.reject(key, [3, 4], "noise")
+    s.undo()
+    s.clear_decisions(key, [2])
+    s.reject(key, [5], "seal or access trouble")
+    view = s.beats(key)
+    assert view.equals(reviewed_table(s._entry(key), s.match_tolerance_s))
+    assert view["verdict"][5] == REJECTED and view["reject_reason"][5] == "seal or access trouble"
+    auto = beat_status(s.auto_beats(key), None, ("pause", "noisy"))
+    assert view["decided_by"][2] == AUTO and view["verdict"][2] == auto.status[2]  # cleared: the rules' verdict

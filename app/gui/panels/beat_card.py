@@ -1,6 +1,6 @@
 """Reviewing beats: the reason picker and the card describing the beat under review.
 
-A rejection always carries a reason. The picker pops up beside the beat with the reasons
+A rejection always carries a reason. The picker opens beside the beat with the reasons
 numbered for good: the built-in ones 1-8, then the user's own in the order they were first
 typed (9, 10, ...), kept in ``reasons.json`` in the app's configuration folder so that a number
 means the same reason tomorrow. A digit picks its reason (two digits in a row for 10 and up);
@@ -50,16 +50,26 @@ class ReasonBook:
     def __init__(self, folder: Path | None = None) -> None:
         self.path = Path(folder) / "reasons.json" if folder is not None else None
         self._kept: list[str] = []
+        self._read: tuple[tuple[int, int], list[str]] | None = None
 
     def own(self) -> list[str]:
         """The user's own reasons, in the order they were first used."""
         if self.path is None:
             return list(self._kept)
         try:
-            items = json.loads(self.path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
+            st = self.path.stat()
+            stamp = (st.st_mtime_ns, st.st_size)
+        except OSError:
             return []
-        return [str(r) for r in items if isinstance(r, str) and r.strip()] if isinstance(items, list) else []
+        if self._read is None or self._read[0] != stamp:
+            # Read again only when the file changed (another window may have added a reason).
+            try:
+                items = json.loads(self.path.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                items = []
+            own = [str(r) for r in items if isinstance(r, str) and r.strip()] if isinstance(items, list) else []
+            self._read = (stamp, own)
+        return list(self._read[1])
 
     def numbered(self) -> list[tuple[int, str]]:
         """Every reason with its number (1 up)."""
@@ -82,20 +92,60 @@ class ReasonBook:
         return len(REASONS) + len(own)
 
 
-class ReasonPicker(QtWidgets.QMenu):
-    """A non-blocking menu of numbered reasons. ``picked(str)`` gives the reason chosen."""
+class ReasonPicker(QtWidgets.QFrame):
+    """The numbered reasons, a panel inside the window. ``picked(str)`` gives the reason chosen.
+
+    It is built once per list of reasons and shown and hidden on each R: no window of its own
+    opens, so the window under review stays the active one and nothing beneath it is drawn
+    again for the picker's sake. It takes the keyboard while shown (a digit picks, Escape or a
+    click elsewhere closes it); each reason is also a button for the mouse.
+    """
 
     picked = QtCore.Signal(str)
 
     def __init__(self, parent: QtWidgets.QWidget | None = None, *, book: ReasonBook | None = None) -> None:
         super().__init__(parent)
         self.setObjectName("reason_picker")
+        self.setFrameShape(QtWidgets.QFrame.StyledPanel)
+        self.setAutoFillBackground(True)
+        self.setFocusPolicy(QtCore.Qt.StrongFocus)
+        if parent is None:
+            self.setWindowFlags(QtCore.Qt.Tool | QtCore.Qt.FramelessWindowHint)
         self.book = book if book is not None else ReasonBook()
         self.last_reason: str | None = None
         self._typed = ""
         self._built: list[tuple[int, str]] | None = None
-        self._head: QtGui.QAction | None = None
-        self.triggered.connect(self._on_triggered)
+        self._layout = QtWidgets.QVBoxLayout(self)
+        self._layout.setContentsMargins(6, 4, 6, 4)
+        self._layout.setSpacing(0)
+        self._head = QtWidgets.QLabel(self)
+        self._head.setStyleSheet("font-weight: bold")
+        self._layout.addWidget(self._head)
+        self._buttons: list[QtWidgets.QToolButton] = []
+        self._return_to: QtWidgets.QWidget | None = None
+        self.hide()
+
+    def _build(self, numbered: list[tuple[int, str]]) -> None:
+        for button in self._buttons:
+            self.removeAction(button.defaultAction())
+            button.deleteLater()
+        self._buttons = []
+        for number, reason in [*numbered, (0, "")]:
+            action = QtGui.QAction(f"{number}  {reason}" if reason else "0  other…", self)
+            action.setData(reason)
+            action.triggered.connect(lambda _checked=False, a=action: self._on_triggered(a))
+            self.addAction(action)
+            button = QtWidgets.QToolButton(self)
+            button.setDefaultAction(action)
+            button.setAutoRaise(True)
+            button.setFocusPolicy(QtCore.Qt.NoFocus)
+            button.setToolButtonStyle(QtCore.Qt.ToolButtonTextOnly)
+            button.setSizePolicy(QtWidgets.QSizePolicy.Expanding, QtWidgets.QSizePolicy.Fixed)
+            button.setStyleSheet("text-align: left")
+            self._layout.addWidget(button)
+            self._buttons.append(button)
+        self._built = numbered
+        self.adjustSize()
 
     def open_at(self, global_pos: QtCore.QPoint, title: str = "Reject because…", *,
                 avoid: QtCore.QRect | None = None) -> None:
@@ -107,32 +157,52 @@ class ReasonPicker(QtWidgets.QMenu):
         self._typed = ""
         numbered = self.book.numbered()
         if self._built != numbered:
-            # Built once per list of reasons: opening the picker on every R costs no widgets.
-            self.clear()
-            self._head = self.addAction(title)
-            self._head.setEnabled(False)
-            for number, reason in numbered:
-                self.addAction(f"{number}  {reason}").setData(reason)
-            self.addSeparator()
-            self.addAction("0  other…").setData("")
-            self._built = numbered
-        self._head.setText(title)
+            self._build(numbered)
+        if self._head.text() != title:
+            self._head.setText(title)
+            self.adjustSize()
         for action in self.reason_actions():
             reason = action.data()
             if reason:
-                number = self.book.number_of(reason)
-                text = f"{number}  {reason}" + ("  ◂ last" if reason == self.last_reason else "")
+                text = f"{self.book.number_of(reason)}  {reason}" + ("  ◂ last" if reason == self.last_reason else "")
                 if action.text() != text:
                     action.setText(text)
-        self.popup(self.place(global_pos, avoid))
+                    self.adjustSize()
+        corner = self.place(global_pos, avoid)
+        parent = self.parentWidget()
+        self.move(parent.mapFromGlobal(corner) if parent is not None else corner)
+        if not self.isVisible():
+            before = QtWidgets.QApplication.focusWidget()
+            self._return_to = before if before is not None and before is not self else None
+        self.raise_()
+        self.show()
+        self.setFocus(QtCore.Qt.PopupFocusReason)
+
+    def close(self) -> bool:
+        """Hide the picker and give the keyboard back to the window."""
+        had_focus = self.hasFocus()
+        self.hide()
+        back = self._return_to
+        self._return_to = None
+        if had_focus:
+            if back is not None and back.isVisible():
+                back.setFocus(QtCore.Qt.PopupFocusReason)
+            elif self.parentWidget() is not None:
+                self.parentWidget().window().setFocus(QtCore.Qt.PopupFocusReason)
+        return True
 
     def place(self, global_pos: QtCore.QPoint, avoid: QtCore.QRect | None) -> QtCore.QPoint:
         """Where the picker's top-left corner goes so that it leaves ``avoid`` uncovered."""
         if avoid is None:
             return global_pos
         size = self.sizeHint()
-        screen = QtGui.QGuiApplication.screenAt(avoid.center()) or QtGui.QGuiApplication.primaryScreen()
-        area = screen.availableGeometry() if screen is not None else QtCore.QRect(0, 0, 10_000, 10_000)
+        parent = self.parentWidget()
+        if parent is not None:
+            # Inside the window: beside the beat, within the window's own bounds.
+            area = QtCore.QRect(parent.mapToGlobal(QtCore.QPoint(0, 0)), parent.size())
+        else:
+            screen = QtGui.QGuiApplication.screenAt(avoid.center()) or QtGui.QGuiApplication.primaryScreen()
+            area = screen.availableGeometry() if screen is not None else QtCore.QRect(0, 0, 10_000, 10_000)
         top = max(area.top(), min(avoid.top(), area.bottom() - size.height()))
         if avoid.right() + 12 + size.width() <= area.right():
             return QtCore.QPoint(avoid.right() + 12, top)
@@ -147,7 +217,15 @@ class ReasonPicker(QtWidgets.QMenu):
             return ""
         return dict(self.book.numbered()).get(number)
 
+    def focusOutEvent(self, event: QtGui.QFocusEvent) -> None:  # noqa: N802
+        super().focusOutEvent(event)
+        if event.reason() == QtCore.Qt.MouseFocusReason:
+            self.hide()  # a click elsewhere dismisses it, as a menu would be
+
     def keyPressEvent(self, event: QtGui.QKeyEvent) -> None:  # noqa: N802
+        if event.key() == QtCore.Qt.Key_Escape:
+            self.close()
+            return
         text = event.text()
         if not (text.isdigit() and len(text) == 1):
             super().keyPressEvent(event)
@@ -176,9 +254,6 @@ class ReasonPicker(QtWidgets.QMenu):
                 return
             self.book.remember(reason)
         self.last_reason = reason
-        window = self.parentWidget().window() if self.parentWidget() is not None else None
-        if window is not None:
-            window.activateWindow()  # the keys go back to the window's shortcuts
         self.picked.emit(reason)
 
 

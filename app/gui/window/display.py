@@ -73,6 +73,9 @@ class Display:
         # The overview follows the trace view a few times a second, not on every frame of a pan:
         # redrawing both widgets each frame would halve the frame rate.
         self._rate_stale = False
+        #: True while a verdict is given on a beat the review then moves on from: the beat card
+        #: is filled for the next beat only (see :meth:`refresh_verdicts`).
+        self.moving_on = False
         self.overview_timer = QtCore.QTimer(parent, singleShot=True, interval=60, timeout=self.sync_overview_window)
 
     # -- sweeps --------------------------------------------------------------------------------
@@ -329,7 +332,7 @@ class Display:
         v.trace_view.set_beats(b)
         v.table.set_table(b, changed=rows)
         self._rate_stale = True  # the overview's rate strip follows with the summaries
-        if 0 <= st.current_row < len(b):
+        if 0 <= st.current_row < len(b) and not self.moving_on:
             where = st.sweep_rows()
             v.beat_card.show_beat(b, st.current_row, len(where), int(np.searchsorted(
                 np.asarray(b["t_upstroke_s"])[where], b["t_upstroke_s"][st.current_row])))

@@ -111,8 +111,7 @@ class Reviewer:
         """Accept the beat under review and move on."""
         if self._can_edit() and self.state.current_row >= 0:
             row = self.state.current_row
-            self.state.session.accept(self.state.key, [row])
-            self._advance_from(row)
+            self._decide_and_move_on(row, lambda: self.state.session.accept(self.state.key, [row]))
 
     def ask_reject_current(self) -> None:
         """Open the reason picker beside the beat under review."""
@@ -125,8 +124,7 @@ class Reviewer:
         """Reject the beat under review with a reason and move on."""
         if self._can_edit() and self.state.current_row >= 0:
             row = self.state.current_row
-            self.state.session.reject(self.state.key, [row], reason)
-            self._advance_from(row)
+            self._decide_and_move_on(row, lambda: self.state.session.reject(self.state.key, [row], reason))
 
     def clear_current(self) -> None:
         """Return the beat under review to the automatic verdict."""
@@ -166,7 +164,14 @@ class Reviewer:
         else:
             self.reject_current(reason)
 
-    def _advance_from(self, row: int) -> None:
+    def _decide_and_move_on(self, row: int, decide) -> None:
+        """Give a verdict on the beat under review, then show the next beat: the beat card is
+        filled once, for the next beat (the one judged is left behind)."""
+        self.display.moving_on = True
+        try:
+            decide()
+        finally:
+            self.display.moving_on = False
         if self.state.current_row == row:
             self.next_beat()
 
