@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 import os
+from types import SimpleNamespace
 
 import numpy as np
 
@@ -18,9 +19,11 @@ from analysis.conditions import ConditionError, check_conditions
 from analysis.decisions import apply_status
 from analysis.errors import ResultsFileError, SettingsError
 from analysis.results import RecordingFacts, ResultsFile, StoredRecording, facts_values, load_results, save_results
+from analysis.session._jobs import summaries_of
 from analysis.session._types import Entry as _Entry
 from analysis.session._types import SessionCore
 from analysis.session._types import key_of as _key_of
+from analysis.session._types import reviewed_table
 from analysis.settings import Settings
 from analysis.stats import (
     PARAMETERS,
@@ -176,11 +179,6 @@ def _recomputed_summaries(r: StoredRecording, loaded: dict, info: RecordingFacts
     """Summaries of a file whose summary columns another version wrote, recomputed from its
     reviewed table; each keeps the ensemble beat stored for the same sweep group and condition
     when that ensemble averaged as many beats as the summary now uses (the samples may be gone)."""
-    from types import SimpleNamespace
-
-    from analysis.session._jobs import summaries_of
-    from analysis.session._types import reviewed_table
-
     kept = _older_ensembles(r)
     if not kept:
         return None
