@@ -116,9 +116,13 @@ class Summary:
 def eligible_mask(beats: BeatTable) -> np.ndarray:
     """True for beats a summary may use: accepted and not ``no_diastole`` or ``truncated``."""
     accepted = np.asarray(beats["accepted"]) == 1
-    flags = beats["flags"]
-    clean = np.array([not any(f in str(x).split(";") for f in _EXCLUDED_FLAGS) for x in flags], dtype=bool)
-    return accepted & clean if len(beats) else np.zeros(0, bool)
+    if not len(beats):
+        return np.zeros(0, bool)
+    # Judged once per distinct flag string (a table holds few), not once per beat.
+    flags = np.asarray(beats["flags"], dtype=object)
+    distinct, where = np.unique(flags.astype(str), return_inverse=True)
+    clean = np.array([not any(f in x.split(";") for f in _EXCLUDED_FLAGS) for x in distinct], dtype=bool)
+    return accepted & clean[where.reshape(-1)]
 
 
 def _window_slopes(t: np.ndarray, y: np.ndarray, start: np.ndarray, stop: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -272,3 +272,14 @@ def test_summary_counts_are_unambiguous_and_the_means_are_those_of_the_beats_use
         x = np.asarray(t[col], float)[expected]
         x = x[np.isfinite(x)]
         assert v[f"{stem}_mean_{unit}"] == pytest.approx(np.mean(x), rel=1e-12)
+
+
+def test_eligible_mask_reads_each_flag_of_a_combined_flag_string():
+    # MEASUREMENTS.md, Beats: `no_diastole` and `truncated` beats stay in the table but out of
+    # summaries; other flags (here `noisy`) do not keep a beat out, and a flag is a whole name
+    # in the `;`-separated list ("no_diastole_like" is not `no_diastole`: common practice, no source).
+    flags = ["", "noisy", "no_diastole", "noisy;truncated", "no_diastole_like", "truncated;no_diastole", "noisy", ""]
+    accepted = [1, 1, 1, 1, 1, 1, 0, 0]
+    t = BeatTable({"accepted": np.array(accepted), "flags": np.array(flags, dtype=object)})
+    assert eligible_mask(t).tolist() == [True, True, False, False, True, False, False, False]
+    assert eligible_mask(t.take(np.array([], dtype=np.int64))).shape == (0,)
