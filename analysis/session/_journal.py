@@ -208,9 +208,11 @@ class Journal:
                  "steady_kind": c.steady.kind, "steady_value": c.steady.value}
                 for c in session.conditions(self.key)
             ],
-            "decisions": {k: [v.item() if hasattr(v, "item") else v for v in arr] for k, arr in log.items()},
+            "decisions": {k: arr.tolist() for k, arr in log.items()},
         }
-        write_durably(self.path, json.dumps(data, indent=0, allow_nan=False))
+        # Compact, so that json's C encoder writes it: the log grows with every verdict, and
+        # the journal is written after each one.
+        write_durably(self.path, json.dumps(data, separators=(",", ":"), allow_nan=False))
 
     def discard(self) -> None:
         with contextlib.suppress(FileNotFoundError):
