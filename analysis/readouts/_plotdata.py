@@ -134,6 +134,8 @@ def aligned_beats(
         lo, hi = centre - pre, centre + post + 1
         seg = recording.sweep(sweep, channel, start=max(0, lo), stop=hi)
         traces[k, max(0, -lo) : max(0, -lo) + seg.size] = seg - offset_mV
+    if rows.size == 1:  # the median of one beat is that beat (the beat card's overlay)
+        return AlignedBeats(t_ms, traces, rows, traces[0].copy())
     mean = np.full(t_ms.size, np.nan)
     some = np.isfinite(traces).any(axis=0)
     if some.any():

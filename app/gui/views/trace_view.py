@@ -210,7 +210,7 @@ class TraceView(pg.PlotWidget):
     def set_current_beat(self, row: int, *, follow: bool = True) -> None:
         """Highlight a beat (row of the full table); with ``follow``, scroll it into view."""
         self._current_row = int(row)
-        if self._beats is None or row < 0 or row not in set(self._rows.tolist()):
+        if self._beats is None or row < 0 or not np.any(self._rows == row):
             self.current_band.set_bands([], [], [])
             return
         t_up = float(self._beats["t_upstroke_s"][row])

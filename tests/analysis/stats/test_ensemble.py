@@ -7,6 +7,8 @@ without it, so any difference is the spike's.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 
@@ -70,3 +72,16 @@ def test_robust_average_is_numpys_median_then_a_weighted_mean_of_group_medians()
     ref = (g * np.median(many[:g], axis=0) + g * np.median(many[g:2 * g], axis=0)
            + (g + 10) * np.median(many[2 * g:], axis=0)) / many.shape[0]
     assert np.allclose(avg.result(), ref)  # numpy reference
+
+
+def test_aligned_beats_of_one_beat_is_that_beat_with_nans_off_the_recording(pair):
+    # The beat card's overlay cuts one beat: its "mean" is numpy's nanmedian of that one row,
+    # i.e. the row itself, NaN where the window runs off the start of the recording (numpy).
+    clean, _spiky, beats, rows = pair
+    first = aligned_beats(clean.recording, beats, rows[:1], before_ms=5000.0, after_ms=300.0)
+    assert np.isnan(first.traces[0, 0])  # 5 s before the first upstroke is before the recording
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # numpy warns of the all-NaN columns
+        reference = np.nanmedian(first.traces, axis=0)  # numpy: all-NaN columns give NaN
+    np.testing.assert_array_equal(first.mean, reference)
+    assert not np.shares_memory(first.mean, first.traces)
