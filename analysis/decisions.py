@@ -415,9 +415,4 @@ def update_status(view, table, entries: Sequence[Decision], review_flags: Iterab
     st = beat_status(table.take(rows), new, review_flags, tolerance_s=tolerance_s)
     changed = {"accepted": st.used.astype(np.int64), "reject_reason": st.reason, "verdict": st.status,
                "decided_by": st.decided_by, "reviewed": (st.decided_by == USER).astype(np.int64)}
-    columns = {}
-    for name, values in changed.items():
-        column = np.array(view[name], copy=True)
-        column[rows] = values
-        columns[name] = column
-    return view.with_columns(**columns)
+    return view.with_rows_set(rows, **changed)

@@ -144,6 +144,23 @@ class BeatTable:
         out._cols = {**self._cols, **added}
         return out
 
+    def with_rows_set(self, rows: np.ndarray, **values: object) -> "BeatTable":
+        """A new table with ``values[name]`` written into rows ``rows`` of existing columns.
+
+        Only those rows are converted to the column's kind; the rest of each column is copied
+        as it is (a review verdict changes one row of a table of thousands).
+        """
+        rows = np.asarray(rows, dtype=np.int64).reshape(-1)
+        cols = dict(self._cols)
+        for name, new in values.items():
+            column = np.array(self[name], copy=True)
+            column[rows] = _as_column(name, new)
+            column.setflags(write=False)
+            cols[name] = column
+        out = BeatTable()
+        out._cols = cols
+        return out
+
     def take(self, index: object) -> "BeatTable":
         """A new table of the rows a boolean mask or an index array selects (for views only)."""
         if not isinstance(index, (np.ndarray, slice, list)):

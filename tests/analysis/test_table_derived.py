@@ -39,3 +39,18 @@ def test_columns_added_are_checked_and_the_others_kept():
     assert out["cl_ms"] is t["cl_ms"]  # kept, not converted again
     with pytest.raises(ValueError, match="accepted"):
         t.with_columns(accepted=[1, 0])
+
+
+def test_rows_set_equal_the_table_built_with_those_values():
+    # The reference is the constructor on the whole columns with the rows replaced by hand
+    # (CONTRACT.md's column kinds: a None in a text column reads as "", ints stay int64).
+    t = _table().with_columns(accepted=[1, 1, 0, 1])
+    out = t.with_rows_set(np.array([2, 0]), flags=[None, "ead"], accepted=[1, 0])
+    afresh = BeatTable({**{n: t[n].tolist() for n in t.names}, "flags": ["ead", "noisy", "", "ead"],
+                        "accepted": [0, 1, 1, 1]})
+    assert out.equals(afresh)
+    assert out["accepted"].dtype == np.int64 and out["flags"].dtype == object
+    assert out["cl_ms"] is t["cl_ms"] and t["accepted"].tolist() == [1, 1, 0, 1]  # the source is untouched
+    assert not any(out[n].flags.writeable for n in out.names)
+    with pytest.raises(KeyError, match="verdict"):
+        t.with_rows_set(np.array([0]), verdict=["accepted"])
