@@ -61,6 +61,9 @@ class BeatOverlay(pg.PlotWidget):
                 plot = self.getPlotItem()
                 plot.setXRange(float(x[ok].min()), float(x[ok].max()), padding=0.02)
                 plot.setYRange(float(y[ok].min()), float(y[ok].max()), padding=0.06)
+                # The new range reaches the items now: left to the paint, it would move them
+                # while painting and so have the plot painted twice.
+                plot.getViewBox().updateMatrix()
 
     def blank(self) -> None:
         """Nothing drawn (no beat under review). Not ``clear``: a plot widget's ``clear``
