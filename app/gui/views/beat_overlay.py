@@ -13,7 +13,10 @@ from PySide6 import QtCore
 
 from .. import palette
 
-__all__ = ["BeatOverlay"]
+__all__ = ["BeatOverlay", "Y_STEP_MV"]
+
+#: The overlay's potential axis runs between whole multiples of this (mV).
+Y_STEP_MV = 5.0
 
 
 class BeatOverlay(pg.PlotWidget):
@@ -58,12 +61,24 @@ class BeatOverlay(pg.PlotWidget):
             y = np.concatenate([np.asarray(p[1], float) for p in parts])
             ok = np.isfinite(x) & np.isfinite(y)
             if ok.any():
-                plot = self.getPlotItem()
-                plot.setXRange(float(x[ok].min()), float(x[ok].max()), padding=0.02)
-                plot.setYRange(float(y[ok].min()), float(y[ok].max()), padding=0.06)
-                # The new range reaches the items now: left to the paint, it would move them
-                # while painting and so have the plot painted twice.
-                plot.getViewBox().updateMatrix()
+                self._fit(x[ok], y[ok])
+
+    def _fit(self, x: np.ndarray, y: np.ndarray) -> None:
+        """Fit the plot to the points: time with a 2 % margin, potential with 6 % rounded out
+        to whole :data:`Y_STEP_MV` steps, so that the scale stays still from one beat of a
+        condition to the next (a beat reads against the same scale as its neighbours, and the
+        axes are not laid out again)."""
+        x0, x1 = float(x.min()), float(x.max())
+        y0, y1 = float(y.min()), float(y.max())
+        px, py = 0.02 * (x1 - x0), 0.06 * (y1 - y0)
+        y0, y1 = Y_STEP_MV * np.floor((y0 - py) / Y_STEP_MV), Y_STEP_MV * np.ceil((y1 + py) / Y_STEP_MV)
+        if y1 <= y0:
+            y1 = y0 + Y_STEP_MV
+        box = self.getPlotItem().getViewBox()
+        box.setRange(xRange=(x0 - px, x1 + px), yRange=(float(y0), float(y1)), padding=0.0)
+        # The new range reaches the items now: left to the paint, it would move them while
+        # painting and so have the plot painted twice.
+        box.updateMatrix()
 
     def blank(self) -> None:
         """Nothing drawn (no beat under review). Not ``clear``: a plot widget's ``clear``

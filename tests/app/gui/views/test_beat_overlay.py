@@ -10,7 +10,7 @@ pytest.importorskip("pytestqt")
 import pyqtgraph as pg  # noqa: E402
 from PySide6 import QtCore, QtWidgets  # noqa: E402
 
-from app.gui.views.beat_overlay import BeatOverlay  # noqa: E402
+from app.gui.views.beat_overlay import Y_STEP_MV, BeatOverlay  # noqa: E402
 
 
 def _beat(shift_ms: float, t_ms: np.ndarray) -> np.ndarray:
@@ -45,6 +45,12 @@ def test_each_new_beat_fits_the_plot_and_paints_it_once(qtbot, monkeypatch):
         # the paint, so the items do not move while they are painted.
         assert painted.count(w) == 1, k
         (x0, x1), (y0, y1) = w.getPlotItem().getViewBox().viewRange()
-        assert x0 < -250.0 and x1 > 500.0  # the whole window, 2 % padding (pyqtgraph's setXRange)
-        assert y0 < 0.9 * beat.min() and y1 > beat.max()
+        assert (x0, x1) == pytest.approx((-250.0 - 15.0, 500.0 + 15.0))  # 2 % of 750 ms each side
+        # Potential: 6 % of the span each side, rounded out to whole 5 mV steps (by hand:
+        # -60 mV and 0.9 * -60 = -54 mV at rest, 80 + shift above).
+        lo, hi = -60.0, -60.0 + 80.0 + shift
+        pad = 0.06 * (hi - lo)
+        assert (y0, y1) == pytest.approx((Y_STEP_MV * np.floor((lo - pad) / Y_STEP_MV),
+                                          Y_STEP_MV * np.ceil((hi + pad) / Y_STEP_MV)))
+        assert y0 % Y_STEP_MV == 0 and y1 % Y_STEP_MV == 0
     assert w.drawn()["beat"][1] == pytest.approx(_beat(30.0, t))
