@@ -73,6 +73,9 @@ class TraceView(pg.PlotWidget):
         # every frame and cost more than the trace itself while panning.
         grid = pg.GridItem(pen=pg.mkPen(palette.GRID), textPen=None)
         grid.setZValue(-50)
+        # Kept as pixels between moves of the view: a verdict repaints the whole plot (its
+        # markers span it), and the grid's thousand faint lines would be drawn again each time.
+        grid.setCacheMode(QtWidgets.QGraphicsItem.CacheMode.DeviceCoordinateCache)
         plot.addItem(grid, ignoreBounds=True)
         plot.setLabel("bottom", "time in sweep", units="s")
         plot.setMenuEnabled(False)
