@@ -30,9 +30,8 @@ from analysis.results import (
 )
 from analysis.session._jobs import summaries_of
 from analysis.session._types import Entry as _Entry
-from analysis.session._types import SessionCore
+from analysis.session._types import SessionCore, reviewed_table
 from analysis.session._types import key_of as _key_of
-from analysis.session._types import reviewed_table
 from analysis.settings import Settings
 from analysis.stats import (
     PARAMETERS,
