@@ -41,8 +41,13 @@ _QUIET_SD = 4.0
 
 
 def hum_pad_samples(fs_hz: float, block_s: float) -> int:
-    """Context needed on each side of a chunk for :func:`remove_hum` to be chunk-independent."""
-    return int(math.ceil((block_s + 2 * _MEAN_S) * fs_hz)) + 4
+    """Context needed on each side of a chunk for :func:`remove_hum` to be chunk-independent.
+
+    Half a window for the sliding estimate, one window more for the estimate carried into a
+    stretch without quiet samples (the window is ``block_s`` rounded to a whole 100 ms: at most
+    50 ms longer), and 100 ms for the residual's mean and the quiet test.
+    """
+    return int(math.ceil((1.5 * block_s + 2 * _MEAN_S) * fs_hz)) + 4
 
 
 def _running_max(x: np.ndarray, size: int) -> np.ndarray:
@@ -66,6 +71,28 @@ def _running_max(x: np.ndarray, size: int) -> np.ndarray:
     # window [i, i + size) of the padded array = samples [i - h, i - h + size) of x
     i = np.arange(n)
     return np.maximum(right[i], left[np.minimum(i + size - 1, left.size - 1)])
+
+
+def _carried(ok: np.ndarray, reach: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Where the hum estimate is carried from, for the samples without one of their own.
+
+    Returns (samples within ``reach`` of an estimated one, the nearest estimated sample of each,
+    samples farther than ``reach`` from any). The estimate is trusted as far as the window over
+    which it was made: a stretch without quiet samples takes the nearest estimate up to one window
+    away and no hum beyond, so the answer never depends on samples farther off than that (a chunk
+    with :func:`hum_pad_samples` of context gives the same samples as the whole sweep).
+    """
+    idx = np.flatnonzero(ok)
+    lost = np.flatnonzero(~ok)
+    if idx.size == 0:
+        return np.empty(0, np.int64), np.empty(0, np.int64), lost
+    pos = np.searchsorted(idx, lost)
+    right = idx[np.minimum(pos, idx.size - 1)]
+    left = idx[np.maximum(pos - 1, 0)]
+    # Ties go to the earlier estimate.
+    near = np.where(np.abs(lost - left) <= np.abs(right - lost), left, right)
+    within = np.abs(near - lost) <= reach
+    return lost[within], near[within], lost[~within]
 
 
 def _freqs(fs_hz: float, mains_hz, harmonics: int) -> list[tuple[float, int]]:
@@ -247,6 +274,7 @@ def remove_hum(
     ok = weight > 0.05
     if not ok.any():
         return x.copy(), 0.0
+    fill = None if ok.all() else _carried(ok, window)
     wr = w * r
     t = (np.arange(n, dtype=np.float64) + offset) / fs_hz
     out = x.copy()
@@ -258,10 +286,9 @@ def remove_hum(
         z = base[f] if k == 1 else base[f] ** k
         amp = 2.0 * (_moving_mean(wr * z.real, window) + 1j * _moving_mean(wr * z.imag, window))
         amp[ok] /= weight[ok]
-        if not ok.all():
-            # Where the cell leaves no quiet samples in the window, carry the nearest estimate.
-            idx = np.flatnonzero(ok)
-            amp[~ok] = amp[idx[np.clip(np.searchsorted(idx, np.flatnonzero(~ok)), 0, idx.size - 1)]]
+        if fill is not None:
+            amp[fill[0]] = amp[fill[1]]
+            amp[fill[2]] = 0.0
         # hum = Re(A exp(+i w t)) and z = exp(-i w t)
         out -= amp.real * z.real + amp.imag * z.imag
         biggest = max(biggest, float(np.median(np.abs(amp))))
