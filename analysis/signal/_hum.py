@@ -14,13 +14,15 @@ millivolt. Hum, unlike the cell, is a steady sinusoid, so Upstroke estimates it 
 3. each component's complex amplitude is the weighted mean of ``r exp(-i 2 pi f t)`` over a
    sliding window of ``hum_block_s`` (complex demodulation: over a whole number of periods of
    every component, the other components and the cross terms average out), divided by the
-   window's mean weight;
+   window's mean weight; where the window holds almost no quiet samples (under 5 % of its
+   weight), the nearest estimate up to two windows away is carried in, and beyond that no hum
+   is removed;
 4. ``sum of Re(A_k(t) exp(i 2 pi f_k t))`` is subtracted.
 
 Which components are there and the residual's SD are judged once per sweep (:func:`hum_survey`,
 on evenly spaced pieces). Every later step slides along the samples: nothing is aligned to the
 start of the sweep, so recording from earlier changes the estimate only within half a window of
-the first sample, and a chunk with :func:`hum_pad_samples` of context on each side gives the
+the first sample (two and a half in a stretch without quiet samples), and a chunk with :func:`hum_pad_samples` of context on each side gives the
 same samples as the whole sweep.
 """
 
@@ -43,11 +45,11 @@ _QUIET_SD = 4.0
 def hum_pad_samples(fs_hz: float, block_s: float) -> int:
     """Context needed on each side of a chunk for :func:`remove_hum` to be chunk-independent.
 
-    Half a window for the sliding estimate, one window more for the estimate carried into a
+    Half a window for the sliding estimate, two windows more for the estimate carried into a
     stretch without quiet samples (the window is ``block_s`` rounded to a whole 100 ms: at most
     50 ms longer), and 100 ms for the residual's mean and the quiet test.
     """
-    return int(math.ceil((1.5 * block_s + 2 * _MEAN_S) * fs_hz)) + 4
+    return int(math.ceil((2.5 * block_s + 3 * _MEAN_S) * fs_hz)) + 4
 
 
 def _running_max(x: np.ndarray, size: int) -> np.ndarray:
@@ -77,10 +79,12 @@ def _carried(ok: np.ndarray, reach: int) -> tuple[np.ndarray, np.ndarray, np.nda
     """Where the hum estimate is carried from, for the samples without one of their own.
 
     Returns (samples within ``reach`` of an estimated one, the nearest estimated sample of each,
-    samples farther than ``reach`` from any). The estimate is trusted as far as the window over
-    which it was made: a stretch without quiet samples takes the nearest estimate up to one window
-    away and no hum beyond, so the answer never depends on samples farther off than that (a chunk
-    with :func:`hum_pad_samples` of context gives the same samples as the whole sweep).
+    samples farther than ``reach`` from any). :func:`remove_hum` carries an estimate two windows
+    into a stretch without quiet samples (a leaky seal's noise, a burst of fast beats) and removes
+    no hum beyond: mains hum keeps its phase for seconds, but not for ever (a mains frequency off
+    by 0.02 Hz turns it by 0.25 rad in 2 s), and a bounded reach keeps the answer independent of
+    samples farther off (a chunk with :func:`hum_pad_samples` of context gives the same samples
+    as the whole sweep).
     """
     idx = np.flatnonzero(ok)
     lost = np.flatnonzero(~ok)
@@ -274,7 +278,7 @@ def remove_hum(
     ok = weight > 0.05
     if not ok.any():
         return x.copy(), 0.0
-    fill = None if ok.all() else _carried(ok, window)
+    fill = None if ok.all() else _carried(ok, 2 * window)
     wr = w * r
     t = (np.arange(n, dtype=np.float64) + offset) / fs_hz
     out = x.copy()
