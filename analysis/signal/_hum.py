@@ -99,6 +99,15 @@ def _carried(ok: np.ndarray, reach: int) -> tuple[np.ndarray, np.ndarray, np.nda
     return lost[within], near[within], lost[~within]
 
 
+def _phasor(f_hz: float, n: int, offset: int, fs_hz: float, block: int = 4096) -> np.ndarray:
+    """``exp(-i 2 pi f (offset + j) / fs)`` for ``j < n``: one block of exponentials turned by
+    one exponential per block (a product per sample instead of an exponential)."""
+    step = -2.0 * np.pi * f_hz / fs_hz
+    head = np.exp(1j * step * np.arange(min(block, max(n, 1)), dtype=np.float64))
+    starts = offset + head.size * np.arange(-(-n // head.size), dtype=np.float64)
+    return (np.exp(1j * step * starts)[:, None] * head[None, :]).ravel()[:n]
+
+
 def _freqs(fs_hz: float, mains_hz, harmonics: int) -> list[tuple[float, int]]:
     """(fundamental, harmonic) pairs below a quarter of the sampling rate."""
     return [(f, k) for f in mains_hz for k in range(1, harmonics + 1) if f * k < fs_hz / 4]
@@ -280,20 +289,23 @@ def remove_hum(
         return x.copy(), 0.0
     fill = None if ok.all() else _carried(ok, 2 * window)
     wr = w * r
-    t = (np.arange(n, dtype=np.float64) + offset) / fs_hz
     out = x.copy()
     biggest = 0.0
-    base: dict[float, np.ndarray] = {}
     for f, k in survey.components:
-        if f not in base:
-            base[f] = np.exp(-2j * np.pi * f * t)
-        z = base[f] if k == 1 else base[f] ** k
-        amp = 2.0 * (_moving_mean(wr * z.real, window) + 1j * _moving_mean(wr * z.imag, window))
-        amp[ok] /= weight[ok]
-        if fill is not None:
-            amp[fill[0]] = amp[fill[1]]
-            amp[fill[2]] = 0.0
-        # hum = Re(A exp(+i w t)) and z = exp(-i w t)
-        out -= amp.real * z.real + amp.imag * z.imag
-        biggest = max(biggest, float(np.median(np.abs(amp))))
+        z = _phasor(f * k, n, offset, fs_hz)
+        zr, zi = z.real, z.imag
+        # The complex amplitude A = ar + i ai, half of it (hum = 2 Re(A exp(+i w t)), z = exp(-i w t)).
+        ar, ai = _moving_mean(wr * zr, window), _moving_mean(wr * zi, window)
+        if fill is None:
+            ar /= weight
+            ai /= weight
+        else:
+            np.divide(ar, weight, out=ar, where=ok)
+            np.divide(ai, weight, out=ai, where=ok)
+            for part in (ar, ai):
+                part[fill[0]] = part[fill[1]]
+                part[fill[2]] = 0.0
+        out -= 2.0 * (ar * zr + ai * zi)
+        # Its size over the stretch (the amplitude varies slowly: every 16th sample is enough).
+        biggest = max(biggest, 2.0 * float(np.median(np.hypot(ar[::16], ai[::16]))))
     return out, biggest
