@@ -191,11 +191,19 @@ def upstroke_velocity(
         # rise that a slow approach to the peak lengthens, or widened against the noise.
         width = half_height_width(d, j)
         n_cap = _odd_at_most(PEAK_WIDTH_FRACTION * width, 5) if math.isfinite(width) else n_max
-        cap = min(n_max, n_cap)
+        # ... but never below the window at which the peak stands PEAK_SNR noise SDs clear of the
+        # noise: on a noisy stretch (seal trouble) a noise spike's width is no upstroke's width.
+        n_floor = 5
+        if local_noise > 0 and d[j] > 0:
+            n_floor = _quiet_window(5, n_max, fs_hz, d[j] / (PEAK_SNR * local_noise))
+        cap = min(n_max, max(n_cap, n_floor))
         if n > cap and attempt < 3:
             n = cap
             continue
-        off, value = top_fit_peak(d, j, fraction=_top_fraction(d[j], _sg_noise(n, fs_hz) * local_noise))
+        # A peak the width caps is narrow: its fit keeps to the top quarter; a broad one may use
+        # the top half, where the noise needs it, so that its time does not jitter.
+        narrow = n_cap < n_max
+        off, value = top_fit_peak(d, j, fraction=_top_fraction(d[j], _sg_noise(n, fs_hz) * local_noise, narrow))
         if noise_mV <= 0 or value <= 0:
             break
         n_new = _quiet_window(n, cap, fs_hz, noise_fraction * value / noise_mV)
@@ -242,6 +250,10 @@ def derivative_trace(v_mV: np.ndarray, fs_hz: float, window_ms: float) -> np.nda
     return out
 
 
+#: The width cap never shrinks the window to where the derivative's noise exceeds 1/PEAK_SNR of
+#: the peak (common practice, no source: ten noise SDs to call a peak a peak).
+PEAK_SNR = 10.0
+
 #: The dV/dt max window spans at most this fraction of the dV/dt peak's half-height width. An
 #: order-3 Savitzky-Golay derivative clips a peak by about 2 % x (window / width)^4 on the
 #: DiFrancesco-Noble 1985 upstroke (sharper than a smooth bump), so 0.9 clips about 1.3 % there
@@ -283,11 +295,17 @@ TOP_FIT_NOISE = 20.0
 #: upstroke (myokit); through the top quarter it follows it (common practice, no source).
 TOP_FIT_MIN_FRACTION = 0.75
 
+#: ... while on a broad peak (one the window is not capped by: a slow nodal upstroke) the fit may
+#: reach down to half the peak, which holds the time of dV/dt max still under noise (common
+#: practice, no source).
+TOP_FIT_BROAD_MIN_FRACTION = 0.5
 
-def _top_fraction(peak: float, noise: float) -> float:
+
+def _top_fraction(peak: float, noise: float, narrow: bool = True) -> float:
     if peak <= 0 or noise <= 0:
         return 0.9
-    return 1.0 - min(max(0.1, TOP_FIT_NOISE * noise / peak), 1.0 - TOP_FIT_MIN_FRACTION)
+    lowest = TOP_FIT_MIN_FRACTION if narrow else TOP_FIT_BROAD_MIN_FRACTION
+    return 1.0 - min(max(0.1, TOP_FIT_NOISE * noise / peak), 1.0 - lowest)
 
 
 def _quiet_window(n: int, n_max: int, fs_hz: float, limit: float) -> int:

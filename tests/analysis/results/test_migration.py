@@ -67,8 +67,12 @@ def test_a_schema_1_file_opens_and_exports_what_its_version_exported():
     # settings_hash covers every settings field, and later versions add fields (with defaults
     # that keep the stored values' meaning): it is the hash of the settings as read now.
     got = _rows(summary_csv(session.summary_table()))
-    _same_cells(got, _kept("results_v1_summary.csv"), skip=("settings_hash",))
+    # The cell type is now judged once per recording, on its baseline, and its rule says so.
+    kept = _kept("results_v1_summary.csv")
+    _same_cells(got, kept, skip=("settings_hash", "cell_type_rule"))
     assert {g["settings_hash"] for g in got} == {session.settings(a).short_hash()}
+    assert [g["cell_type_rule"] for g in got] == [
+        kept[0]["cell_type_rule"] + " (judged once, on baseline)"] * 2 + [kept[2]["cell_type_rule"] + " (judged once, on washout)"]  # its only condition
     # The ensemble beats the file holds survive the recomputed summaries (their sources are gone).
     assert [g["ensemble_n"] for g in got] == ["1", "3", "5"]
 
