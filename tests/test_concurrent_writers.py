@@ -68,3 +68,27 @@ def test_batch_and_analyze_into_one_file_keep_both(tmp_path):
         assert status == 0, stderr
     kept = sorted(os.path.basename(r.source_path) for r in load_results(out, verify_sources=False).recordings)
     assert kept == ["cell0.abf", "cell1.abf", "cell2.abf"]
+
+
+def test_the_app_saving_keeps_what_the_command_line_added_meanwhile(tmp_path):
+    # The app's session holds cell0; while it is open, `upstroke analyze cell1 --out` adds cell1
+    # to the same file. Saving the session keeps cell1 (issue: "nothing is ever lost"), and a
+    # recording the user removed in the app stays removed. The reference is load_results on the
+    # saved file.
+    from analysis.session import Session
+
+    cells = _cells(tmp_path, 3)
+    out = tmp_path / "shared.h5"
+    assert _finish([_start(["analyze", str(cells[0]), str(cells[2]), "--out", str(out)], tmp_path)])[0][0] == 0
+    app = Session.open(out)
+    assert _finish([_start(["analyze", str(cells[1]), "--out", str(out)], tmp_path)])[0][0] == 0
+    first, third = app.recordings
+    app.reject(first, [0], "noise")  # the app's own edit
+    app.remove(third)  # the user takes cell2 out of the study
+    app.save(out)
+    kept = {os.path.basename(r.source_path): r for r in load_results(out, verify_sources=False).recordings}
+    assert sorted(kept) == ["cell0.abf", "cell1.abf"]
+    assert [d.reason for d in kept["cell0.abf"].decisions][-1:] == ["noise"]
+    # Saved again (cell1 now counts as seen by the app), nothing comes back or goes.
+    app.save(out)
+    assert sorted(os.path.basename(r.source_path) for r in load_results(out, verify_sources=False).recordings) == ["cell0.abf", "cell1.abf"]

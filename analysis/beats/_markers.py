@@ -143,7 +143,7 @@ def measure_beats(
         vals[f"t_{apd_name(p)}_s"] = np.full(k, np.nan)
     out_up = np.full(k, -1, dtype=np.int64)
     flags: list[list[str]] = [[] for _ in range(k)]
-    ctx = _Context(v, fs_hz, s, noise_mV)
+    ctx = _Context(v, fs_hz, s, noise_mV, offset)
     if offset == 0:
         # A sweep's first beat is measured from the diastole recorded before it, when whole.
         for b in np.flatnonzero(prev < 0):
@@ -213,15 +213,18 @@ def measure_beats(
 class _Context(TakeoffSteps):
     """Per-call constants (windows in samples) and the per-beat marker steps."""
 
-    def __init__(self, v: np.ndarray, fs: float, s: MeasurementSettings, noise_mV: float) -> None:
+    def __init__(self, v: np.ndarray, fs: float, s: MeasurementSettings, noise_mV: float, offset: int = 0) -> None:
         self.v, self.fs, self.s, self.noise = v, fs, s, noise_mV
         self.n = v.size
         self.w_mdp = window_samples(s.mdp_smoothing_ms, fs, polyorder=3) if s.mdp_smoothing_ms > 0 else 1
         # V averaged over the MDP window, once for the whole stretch and at every q-th sample
         # (an eighth of the window: it moves little in between): where each diastole's minimum
-        # lies, for the MDP and for the end of the peak's search.
+        # lies, for the MDP and for the end of the peak's search. The samples averaged are those at
+        # multiples of q in the sweep (``offset`` is ``v[0]``'s index there), so that a stretch
+        # read from anywhere in the sweep sees the same averages.
         self.q_box = max(1, self.w_mdp // 8)
-        self.box_q = _strided_mean(v, self.w_mdp, self.q_box)
+        self.q0 = -offset % self.q_box
+        self.box_q = _strided_mean(v[self.q0:], self.w_mdp, self.q_box)
         top_ms = noise_matched_window_ms(
             noise_mV, fs, criterion_V_per_s=s.top_dvdt_V_per_s, fraction=s.top_noise_fraction,
             min_ms=s.top_derivative_window_ms, max_ms=max(s.top_derivative_max_window_ms, s.top_derivative_window_ms),
@@ -241,11 +244,11 @@ class _Context(TakeoffSteps):
 
     def box_argmin(self, a: int, b: int) -> int:
         """Index of the lowest MDP-window average of V in [a, b), to an eighth of the window."""
-        q = self.q_box
-        ia, ib = -(-a // q), -(-b // q)
+        q, q0 = self.q_box, self.q0
+        ia, ib = -(-(a - q0) // q), -(-(b - q0) // q)
         if ib <= ia:
             return a
-        return min(max((ia + int(np.argmin(self.box_q[ia:ib]))) * q, a), b - 1)
+        return min(max(q0 + (ia + int(np.argmin(self.box_q[ia:ib]))) * q, a), b - 1)
 
     def smooth(self, a: int, b: int, w: int) -> tuple[np.ndarray, int]:
         """V smoothed over w samples on [a, b) (with context), and the index of its first sample."""

@@ -116,11 +116,22 @@ def as_sweeps(source: Any) -> Any:
     return ArraySweeps(source)
 
 
+#: A time this close (in samples) below halfway between two samples counts as halfway.
+_HALF_SAMPLE_SLACK = 1e-6
+
+
 def _index(t_s: np.ndarray, fs_hz: float, n: int) -> np.ndarray:
-    """Sample indices of times (NaN -> -1), clipped into the sweep."""
+    """Sample indices of times (NaN -> -1), clipped into the sweep.
+
+    Each time goes to the nearest sample, and a time halfway between two samples to the later
+    one. Halfway times are common (the vertex between two equal samples of a quantised trace),
+    and the same time carries different rounding errors when measured from different chunks of
+    the sweep: up to ``_HALF_SAMPLE_SLACK`` of a sample below halfway still goes to the later
+    sample, so those errors cannot move a beat's window by one sample.
+    """
     out = np.full(t_s.shape, -1, dtype=np.int64)
     ok = np.isfinite(t_s)
-    out[ok] = np.clip(np.rint(t_s[ok] * fs_hz).astype(np.int64), 0, n - 1)
+    out[ok] = np.clip(np.floor(t_s[ok] * fs_hz + (0.5 + _HALF_SAMPLE_SLACK)).astype(np.int64), 0, n - 1)
     return out
 
 

@@ -310,6 +310,7 @@ class LazyTables:
         self._summary_columns = index.get("summary_columns", np.empty(0, dtype=object))
         self._spans = spans
         self._pending = set(range(len(self._beat_columns)))
+        self._block: tuple | None = None  # (first row, its tables, its ensemble samples, its rows)
         self.recordings: list = []  # weak references: a recording no one holds is not filled
 
     def close(self) -> None:
@@ -322,27 +323,34 @@ class LazyTables:
         self._release()
 
     def _release(self) -> None:
+        self._block = None
         f, self._f = self._f, None
         if f is not None:
             f.close()
 
     def fill(self, row: int) -> None:
+        """Fill one recording's tables. The file is read a block of recordings at a time (one
+        read per column for up to READ_BLOCK recordings), and the block's columns are kept until
+        another block is read; only the recording asked for is built, so the first use of one
+        recording costs the same whatever the number of recordings."""
         lo = row - row % READ_BLOCK
-        rows = [
-            i for i in range(lo, min(lo + READ_BLOCK, len(self.recordings)))
-            if i in self._pending and (i == row or self.recordings[i]() is not None)
-        ]
         try:
-            tables = {name: self._read_span(name, rows) for name in LAZY_FIELDS}
-            samples = self._samples(tables["ensembles"])
-            filled = {i: self._one(i, tables, samples) for i in rows}
+            if self._block is None or self._block[0] != lo or row not in self._block[3]:
+                self._block = None  # the previous block's columns go before the next is read
+                rows = [
+                    i for i in range(lo, min(lo + READ_BLOCK, len(self.recordings)))
+                    if i in self._pending and (i == row or self.recordings[i]() is not None)
+                ]
+                tables = {name: self._read_span(name, rows) for name in LAZY_FIELDS}
+                self._block = (lo, tables, self._samples(tables["ensembles"]), set(rows))
+            _, tables, samples, _ = self._block
+            values = self._one(row, tables, samples)
         except (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexError) as exc:
             raise damaged(self.path, exc) from None
-        for i, values in filled.items():
-            r = self.recordings[i]()
-            if r is not None:
-                r.__dict__.update(values)
-            self._pending.discard(i)
+        r = self.recordings[row]()
+        if r is not None:
+            r.__dict__.update(values)
+        self._pending.discard(row)
         if not self._pending:
             self._release()
 

@@ -8,6 +8,7 @@ with the decision log, the session is rebuilt exactly.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import math
 import os
@@ -18,12 +19,19 @@ import numpy as np
 from analysis.conditions import ConditionError, check_conditions
 from analysis.decisions import apply_status
 from analysis.errors import ResultsFileError, SettingsError
-from analysis.results import RecordingFacts, ResultsFile, StoredRecording, facts_values, load_results, save_results
+from analysis.results import (
+    RecordingFacts,
+    ResultsFile,
+    StoredRecording,
+    facts_values,
+    load_results,
+    results_lock,
+    save_results,
+)
 from analysis.session._jobs import summaries_of
 from analysis.session._types import Entry as _Entry
-from analysis.session._types import SessionCore
+from analysis.session._types import SessionCore, reviewed_table
 from analysis.session._types import key_of as _key_of
-from analysis.session._types import reviewed_table
 from analysis.settings import Settings
 from analysis.stats import (
     PARAMETERS,
@@ -68,10 +76,37 @@ def stored_recordings(session: SessionCore) -> list[StoredRecording]:
 
 
 def save_session(session: SessionCore, path: str | os.PathLike, *, atomic: bool = True) -> None:
-    """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``)."""
+    """Write a session atomically (see :func:`analysis.results.save_results` for ``atomic``).
+
+    Saving into the file the session came from (or was last saved to) keeps what other writers
+    (``upstroke analyze --out``, ``upstroke batch``, another window) added to it meanwhile: under
+    the results file's lock (:func:`analysis.results.results_lock`) the file is read again, and
+    each recording of it that the session does not hold follows the session's own, unless the
+    user removed it from the session (:attr:`Session.removed_keys`): that one stays removed.
+    """
     default = json.dumps(session.default_settings.to_dict(), sort_keys=True, indent=1, allow_nan=False)
-    # The file the session came from lends the new file any groups of other modules it holds.
-    save_results(path, ResultsFile(stored_recordings(session), default, path=session.path), atomic=atomic)
+    target = os.path.abspath(os.fspath(path))
+    with results_lock(target) if atomic else contextlib.nullcontext():
+        mine = stored_recordings(session)
+        others = _added_by_others(session, target)
+        # The file the session came from lends the new file any groups of other modules it holds.
+        save_results(path, ResultsFile(mine + others, default, path=session.path), atomic=atomic)
+
+
+def _stored_key(r: StoredRecording) -> str:
+    return _key_of(r.source_path) if r.sha256 else r.label
+
+
+def _added_by_others(session: SessionCore, target: str) -> list[StoredRecording]:
+    """The recordings another writer added to ``target`` since the session read or wrote it."""
+    if session.path is None or os.path.abspath(session.path) != target or not os.path.isfile(target):
+        return []
+    try:
+        content = load_results(target, verify_sources=False)
+    except ResultsFileError:
+        return []  # not (or no longer) a results file: it is replaced, as before
+    skip = set(session.recordings) | set(getattr(session, "removed_keys", ()))
+    return [r for r in content.recordings if _stored_key(r) not in skip]
 
 
 def _settings(text: str, path: str, label: str):

@@ -117,6 +117,9 @@ class Session(SessionHistory, SessionWork):
         self._entries: dict[str, Entry] = {}
         self._views: dict[str, tuple[tuple, BeatTable]] = {}  # key -> (what it is made of, reviewed table)
         self.path: str | None = None
+        #: Keys of recordings the user removed: saving into the session's file leaves them out
+        #: even when the file still holds them.
+        self.removed_keys: set[str] = set()
         self.open_warnings: list[str] = []
 
     # -- recordings --------------------------------------------------------------------------
@@ -201,6 +204,7 @@ class Session(SessionHistory, SessionWork):
         """Take a recording out of the session (not undoable; its history is dropped)."""
         self._entry(key)
         del self._entries[key]
+        self.removed_keys.add(key)  # saving into its file does not bring it back (save_session)
         self._drop_history(key)
         self._touch()
         self._emit("recording_removed", key)

@@ -143,11 +143,13 @@ class DetectionSettings(Section):
     )
     chunk_s: float = setting(
         60.0, unit="s", min=0.5, max=36_000.0, source=_NO_SOURCE,
-        doc="long sweeps are worked in chunks of this length (bounds memory)",
+        doc="long sweeps are worked in chunks of this length, rounded up to whole level windows "
+        "(bounds memory; the results do not depend on it)",
     )
     chunk_overlap_s: float = setting(
         4.0, unit="s", min=0.1, max=600.0, source=_NO_SOURCE,
-        doc="context read on each side of a chunk; must exceed the longest cycle expected",
+        doc="context read on each side of a chunk, rounded up to whole level windows; must exceed the "
+        "longest cycle expected (reading costs grow with 1 + 2 x overlap / chunk)",
     )
 
 

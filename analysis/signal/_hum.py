@@ -14,13 +14,15 @@ millivolt. Hum, unlike the cell, is a steady sinusoid, so Upstroke estimates it 
 3. each component's complex amplitude is the weighted mean of ``r exp(-i 2 pi f t)`` over a
    sliding window of ``hum_block_s`` (complex demodulation: over a whole number of periods of
    every component, the other components and the cross terms average out), divided by the
-   window's mean weight;
+   window's mean weight; where the window holds almost no quiet samples (under 5 % of its
+   weight), the nearest estimate up to two windows away is carried in, and beyond that no hum
+   is removed;
 4. ``sum of Re(A_k(t) exp(i 2 pi f_k t))`` is subtracted.
 
 Which components are there and the residual's SD are judged once per sweep (:func:`hum_survey`,
 on evenly spaced pieces). Every later step slides along the samples: nothing is aligned to the
 start of the sweep, so recording from earlier changes the estimate only within half a window of
-the first sample, and a chunk with :func:`hum_pad_samples` of context on each side gives the
+the first sample (two and a half in a stretch without quiet samples), and a chunk with :func:`hum_pad_samples` of context on each side gives the
 same samples as the whole sweep.
 """
 
@@ -41,8 +43,13 @@ _QUIET_SD = 4.0
 
 
 def hum_pad_samples(fs_hz: float, block_s: float) -> int:
-    """Context needed on each side of a chunk for :func:`remove_hum` to be chunk-independent."""
-    return int(math.ceil((block_s + 2 * _MEAN_S) * fs_hz)) + 4
+    """Context needed on each side of a chunk for :func:`remove_hum` to be chunk-independent.
+
+    Half a window for the sliding estimate, two windows more for the estimate carried into a
+    stretch without quiet samples (the window is ``block_s`` rounded to a whole 100 ms: at most
+    50 ms longer), and 100 ms for the residual's mean and the quiet test.
+    """
+    return int(math.ceil((2.5 * block_s + 3 * _MEAN_S) * fs_hz)) + 4
 
 
 def _running_max(x: np.ndarray, size: int) -> np.ndarray:
@@ -66,6 +73,39 @@ def _running_max(x: np.ndarray, size: int) -> np.ndarray:
     # window [i, i + size) of the padded array = samples [i - h, i - h + size) of x
     i = np.arange(n)
     return np.maximum(right[i], left[np.minimum(i + size - 1, left.size - 1)])
+
+
+def _carried(ok: np.ndarray, reach: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Where the hum estimate is carried from, for the samples without one of their own.
+
+    Returns (samples within ``reach`` of an estimated one, the nearest estimated sample of each,
+    samples farther than ``reach`` from any). :func:`remove_hum` carries an estimate two windows
+    into a stretch without quiet samples (a leaky seal's noise, a burst of fast beats) and removes
+    no hum beyond: mains hum keeps its phase for seconds, but not for ever (a mains frequency off
+    by 0.02 Hz turns it by 0.25 rad in 2 s), and a bounded reach keeps the answer independent of
+    samples farther off (a chunk with :func:`hum_pad_samples` of context gives the same samples
+    as the whole sweep).
+    """
+    idx = np.flatnonzero(ok)
+    lost = np.flatnonzero(~ok)
+    if idx.size == 0:
+        return np.empty(0, np.int64), np.empty(0, np.int64), lost
+    pos = np.searchsorted(idx, lost)
+    right = idx[np.minimum(pos, idx.size - 1)]
+    left = idx[np.maximum(pos - 1, 0)]
+    # Ties go to the earlier estimate.
+    near = np.where(np.abs(lost - left) <= np.abs(right - lost), left, right)
+    within = np.abs(near - lost) <= reach
+    return lost[within], near[within], lost[~within]
+
+
+def _phasor(f_hz: float, n: int, offset: int, fs_hz: float, block: int = 4096) -> np.ndarray:
+    """``exp(-i 2 pi f (offset + j) / fs)`` for ``j < n``: one block of exponentials turned by
+    one exponential per block (a product per sample instead of an exponential)."""
+    step = -2.0 * np.pi * f_hz / fs_hz
+    head = np.exp(1j * step * np.arange(min(block, max(n, 1)), dtype=np.float64))
+    starts = offset + head.size * np.arange(-(-n // head.size), dtype=np.float64)
+    return (np.exp(1j * step * starts)[:, None] * head[None, :]).ravel()[:n]
 
 
 def _freqs(fs_hz: float, mains_hz, harmonics: int) -> list[tuple[float, int]]:
@@ -247,22 +287,25 @@ def remove_hum(
     ok = weight > 0.05
     if not ok.any():
         return x.copy(), 0.0
+    fill = None if ok.all() else _carried(ok, 2 * window)
     wr = w * r
-    t = (np.arange(n, dtype=np.float64) + offset) / fs_hz
     out = x.copy()
     biggest = 0.0
-    base: dict[float, np.ndarray] = {}
     for f, k in survey.components:
-        if f not in base:
-            base[f] = np.exp(-2j * np.pi * f * t)
-        z = base[f] if k == 1 else base[f] ** k
-        amp = 2.0 * (_moving_mean(wr * z.real, window) + 1j * _moving_mean(wr * z.imag, window))
-        amp[ok] /= weight[ok]
-        if not ok.all():
-            # Where the cell leaves no quiet samples in the window, carry the nearest estimate.
-            idx = np.flatnonzero(ok)
-            amp[~ok] = amp[idx[np.clip(np.searchsorted(idx, np.flatnonzero(~ok)), 0, idx.size - 1)]]
-        # hum = Re(A exp(+i w t)) and z = exp(-i w t)
-        out -= amp.real * z.real + amp.imag * z.imag
-        biggest = max(biggest, float(np.median(np.abs(amp))))
+        z = _phasor(f * k, n, offset, fs_hz)
+        zr, zi = z.real, z.imag
+        # The complex amplitude A = ar + i ai, half of it (hum = 2 Re(A exp(+i w t)), z = exp(-i w t)).
+        ar, ai = _moving_mean(wr * zr, window), _moving_mean(wr * zi, window)
+        if fill is None:
+            ar /= weight
+            ai /= weight
+        else:
+            np.divide(ar, weight, out=ar, where=ok)
+            np.divide(ai, weight, out=ai, where=ok)
+            for part in (ar, ai):
+                part[fill[0]] = part[fill[1]]
+                part[fill[2]] = 0.0
+        out -= 2.0 * (ar * zr + ai * zi)
+        # Its size over the stretch (the amplitude varies slowly: every 16th sample is enough).
+        biggest = max(biggest, 2.0 * float(np.median(np.hypot(ar[::16], ai[::16]))))
     return out, biggest

@@ -10,9 +10,11 @@ from analysis.study._compare import COMPARISON_COLUMNS, compare
 from analysis.study._table import (
     VARIABILITY,
     cell_condition_table,
+    condition_means,
+    group_values,
     parameter_columns,
     table_csv,
 )
 from analysis.study_layout import StudyEntry, StudyError, StudyLayout
 
-__all__ = ["COMPARISON_COLUMNS", "VARIABILITY", "StudyEntry", "StudyError", "StudyLayout", "cell_condition_table", "compare", "parameter_columns", "table_csv"]
+__all__ = ["COMPARISON_COLUMNS", "VARIABILITY", "StudyEntry", "StudyError", "StudyLayout", "cell_condition_table", "compare", "condition_means", "group_values", "parameter_columns", "table_csv"]

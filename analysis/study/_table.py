@@ -232,3 +232,35 @@ def _cell(value: Any, digits: int) -> str:
     if isinstance(value, float):
         return f"{value:.{digits}g}" if math.isfinite(value) else ""
     return str(value)
+
+
+def group_values(table: Mapping[str, Sequence], column: str, conditions: Sequence[str], group: str) -> tuple[
+        list[str], np.ndarray]:
+    """A group's cells and their values of one column of :func:`cell_condition_table` (cells x
+    conditions, NaN where a cell lacks a condition), cells in the table's order."""
+    cells_col = [str(c) for c in table["cell"]]
+    conds = [str(c) for c in table["condition"]]
+    groups = [str(g) for g in table.get("group", [""] * len(cells_col))]
+    values = np.asarray(table[column], dtype=np.float64)
+    cells = list(dict.fromkeys(c for c, g in zip(cells_col, groups) if g == group))
+    where = {c: i for i, c in enumerate(cells)}
+    order = {k: j for j, k in enumerate(conditions)}
+    out = np.full((len(cells), len(conditions)), np.nan)
+    for c, k, g, v in zip(cells_col, conds, groups, values):
+        if g == group and k in order:
+            out[where[c], order[k]] = v
+    return cells, out
+
+
+def condition_means(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per condition (column of ``values``, cells x conditions): the mean over the cells that
+    have a value, its standard error (sample SD with n - 1, over the square root of n; NaN below
+    two cells) and n. The comparison figures of the app and of ``upstroke export`` both draw these."""
+    values = np.asarray(values, dtype=np.float64)
+    n = np.sum(np.isfinite(values), axis=0)
+    k = values.shape[1] if values.ndim == 2 else 0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.array([np.nanmean(values[:, j]) if n[j] else np.nan for j in range(k)])
+        sd = np.array([np.nanstd(values[:, j], ddof=1) if n[j] >= 2 else np.nan for j in range(k)])
+        sem = sd / np.sqrt(np.maximum(n, 1))
+    return mean, sem, n.astype(np.int64)

@@ -14,6 +14,7 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 
 from analysis.columns import summarised_columns
+from analysis.study import condition_means, group_values
 
 from .elements import document, escape, num
 from .figures import nice_ticks
@@ -26,21 +27,6 @@ COMPARISON_PANELS: tuple[tuple[str, str], ...] = tuple(
 )
 _PANEL_W, _PANEL_H, _COLS, _LEFT, _GAP_X, _TOP, _GAP_Y, _BOTTOM = 250, 170, 3, 62, 70, 52, 64, 30
 _CELL_LINE, _MEAN = "#9aa5b1", "#1b2a41"
-
-
-def group_values(table: Mapping[str, Sequence], column: str, conditions: Sequence[str], group: str) -> tuple[
-        list[str], np.ndarray]:
-    """The group's cells and their values (cells x conditions, NaN where missing) of one column."""
-    cells_col = [str(c) for c in table["cell"]]
-    conds = [str(c) for c in table["condition"]]
-    groups = [str(g) for g in table.get("group", [""] * len(cells_col))]
-    values = np.asarray(table[column], dtype=np.float64)
-    cells = list(dict.fromkeys(c for c, g in zip(cells_col, groups) if g == group))
-    out = np.full((len(cells), len(conditions)), np.nan)
-    for i, (c, k, g) in enumerate(zip(cells_col, conds, groups)):
-        if g == group and k in conditions:
-            out[cells.index(c), list(conditions).index(k)] = values[i]
-    return cells, out
 
 
 def comparison_svg(
@@ -92,11 +78,7 @@ def comparison_svg(
 def _panel(table, column, label, conditions, group, left, top, n_cond) -> list[str]:
     cells, values = group_values(table, column, conditions, group)
     finite = values[np.isfinite(values)]
-    n = np.sum(np.isfinite(values), axis=0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.array([np.nanmean(values[:, k]) if n[k] else np.nan for k in range(n_cond)])
-        sd = np.array([np.nanstd(values[:, k], ddof=1) if n[k] >= 2 else np.nan for k in range(n_cond)])
-        sem = sd / np.sqrt(np.maximum(n, 1))
+    mean, sem, n = condition_means(values)
     ends = np.concatenate([finite, (mean - sem)[np.isfinite(sem)], (mean + sem)[np.isfinite(sem)]])
     lo, hi = (float(np.min(ends)), float(np.max(ends))) if ends.size else (0.0, 1.0)
     pad = 0.08 * (hi - lo) if hi > lo else max(abs(lo) * 0.05, 1.0)

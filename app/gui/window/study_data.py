@@ -17,7 +17,13 @@ import numpy as np
 from analysis.columns import column
 from analysis.session import Session, key_of
 from analysis.stats import PARAMETERS, summary_columns
-from analysis.study import StudyLayout, cell_condition_table, compare
+from analysis.study import (
+    StudyLayout,
+    cell_condition_table,
+    compare,
+    condition_means,
+    group_values,
+)
 
 from ..figures.comparison_plot import CellLine, ComparisonPanel, GroupMean
 from ..views.study_grid import GridEntry
@@ -133,44 +139,36 @@ def _notes(c: Mapping[str, np.ndarray], sel: np.ndarray, rows: np.ndarray, unit:
 
 def comparison_panels(tables: StudyTables, parameters: Sequence[str], *, current_cell: str = "",
                       colours: Mapping[str, str] | None = None) -> list[ComparisonPanel]:
-    """The figure's panels (one per beats column in ``parameters``) from the core's comparison.
+    """The figure's panels (one per beats column in ``parameters``) from the core's tables.
 
-    Each cell's line joins its baseline value to its value under each other condition, as the
-    comparison pairs them; each group's mean and SEM at the baseline are those of the pairs of
-    the first condition compared (they are the same cells unless a cell lacks a condition).
+    Each cell's line joins its values in every condition it has (the per cell x condition
+    table); each group's mean and SEM in a condition are over the cells that have that condition
+    (:func:`analysis.study.condition_means`, as the exported figure draws them). The paired
+    comparison's numbers (change, tests) go to the panel's notes.
     """
     c = tables.comparison
     conditions = tuple(tables.layout.conditions)
-    k = len(conditions)
-    rows = np.asarray(c["row"], dtype=object)
+    rows = np.asarray(c["row"], dtype=object) if c else np.empty(0, dtype=object)
+    groups = list(tables.layout.groups) or [""]
     panels = []
     for name in parameters:
         stem = _STEM_OF.get(name)
-        sel = np.flatnonzero(np.asarray(c["parameter"], dtype=object) == stem) if stem else np.empty(0, int)
-        cells: dict[str, list] = {}
-        group_of: dict[str, str] = {}
-        means: dict[str, dict[str, list]] = {}
-        for i in sel:
-            j = conditions.index(str(c["condition"][i])) if str(c["condition"][i]) in conditions else -1
-            if j < 0:
-                continue
-            group = str(c["group"][i])
-            if rows[i] == "cell":
-                cell = str(c["cell"][i])
-                line = cells.setdefault(cell, [math.nan] * k)
-                group_of[cell] = group
-                line[0] = float(c["baseline_value"][i]) if not math.isfinite(line[0]) else line[0]
-                line[j] = float(c["value"][i])
-            else:
-                g = means.setdefault(group, {"mean": [math.nan] * k, "sem": [math.nan] * k, "n": [0] * k})
-                if g["n"][0] == 0:
-                    g["mean"][0], g["sem"][0] = float(c["baseline_value"][i]), float(c["baseline_sem"][i])
-                    g["n"][0] = int(c["n"][i])
-                g["mean"][j], g["sem"][j], g["n"][j] = float(c["value"][i]), float(c["value_sem"][i]), int(c["n"][i])
+        sel = np.flatnonzero(np.asarray(c["parameter"], dtype=object) == stem) if (stem and c) else np.empty(0, int)
+        col = column(name)
+        table_column = f"{col.stem}_mean_{col.unit_in_name}"
+        lines: list[CellLine] = []
+        means: list[GroupMean] = []
+        if tables.table and table_column in tables.table:
+            for group in groups:
+                cells, values = group_values(tables.table, table_column, conditions, group)
+                if not cells:
+                    continue
+                lines += [CellLine(cell, group, tuple(float(x) for x in v)) for cell, v in zip(cells, values)]
+                mean, sem, n = condition_means(values)
+                means.append(GroupMean(group, tuple(float(x) for x in mean), tuple(float(x) for x in sem),
+                                       tuple(int(x) for x in n)))
         panels.append(ComparisonPanel(
-            parameter=name, conditions=conditions, notes=_notes(c, sel, rows, column(name).unit),
-            cells=tuple(CellLine(cell, group_of[cell], tuple(v)) for cell, v in cells.items()),
-            groups=tuple(GroupMean(g, tuple(m["mean"]), tuple(m["sem"]), tuple(m["n"])) for g, m in means.items()),
-            current_cell=current_cell, colours=dict(colours or {}),
+            parameter=name, conditions=conditions, notes=_notes(c, sel, rows, col.unit),
+            cells=tuple(lines), groups=tuple(means), current_cell=current_cell, colours=dict(colours or {}),
         ))
     return panels

@@ -107,3 +107,29 @@ def test_exports_png_and_svg_with_every_item(figure, tmp_path):
     text = svg.read_text(encoding="utf-8")
     assert text.startswith("<?xml") or "<svg" in text[:400]
     assert "washout" in text and "UP-113" in text
+
+
+def test_a_cell_with_only_a_baseline_counts_in_the_baseline_mean_as_in_the_exported_figure(figure):
+    # The app's panel and the exported SVG draw the same means: over the cells that have each
+    # condition (numpy and scipy.stats.sem as the reference), not only over the compared pairs.
+    from analysis.study import StudyEntry, StudyLayout
+    from app.gui.window.study_data import StudyTables, comparison_panels
+
+    rates = {**RATES, "NL-0709": (71.0, math.nan, math.nan)}
+    table = {"cell": [], "condition": [], "group": [], "rate_mean_bpm": []}
+    for cell, values in rates.items():
+        for cond, v in zip(CONDITIONS, values):
+            if math.isfinite(v):
+                table["cell"].append(cell)
+                table["condition"].append(cond)
+                table["group"].append("")
+                table["rate_mean_bpm"].append(v)
+    layout = StudyLayout("/study", tuple(StudyEntry(f"{c}/{k}.abf", c, k) for c, k in zip(table["cell"], table["condition"])),
+                         CONDITIONS)
+    tables = StudyTables(layout, table, compare(table, conditions=CONDITIONS, parameters=["rate"]), {})
+    (panel,) = comparison_panels(tables, ["rate_bpm"])
+    (group,) = panel.groups
+    baseline = np.array([v[0] for v in rates.values()])
+    assert group.n == (5, 4, 3)
+    assert group.mean[0] == pytest.approx(baseline.mean()) and group.sem[0] == pytest.approx(scipy.stats.sem(baseline))
+    assert "NL-0709" in {c.cell for c in panel.cells}
