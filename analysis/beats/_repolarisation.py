@@ -22,7 +22,7 @@ import math
 
 import numpy as np
 
-from analysis.signal import RunningSums, savgol_coeffs, savgol_smooth
+from analysis.signal import RunningSums, correlate_valid, savgol_coeffs, savgol_smooth
 
 __all__ = ["first_crossings", "first_crossings_one", "refine_crossings", "refine_crossing_one"]
 
@@ -74,23 +74,14 @@ def _smooth_rows_sums(x: np.ndarray, w: int) -> np.ndarray:
 def _smoothed(v: np.ndarray, w: int, lo: int, hi: int) -> np.ndarray:
     """Savitzky-Golay smoothing (order 3) of ``v`` at the samples ``lo:hi`` (``w // 2`` inside each end).
 
-    One pass over the stretch, however many beats' repolarisations it holds: a short window by
-    direct correlation, a long one by FFT convolution (running sums over a whole stretch would
-    lose digits to their long index weights).
+    One pass over the stretch, however many beats' repolarisations it holds, by FFT in blocks
+    (running sums over a whole stretch would lose digits to their long index weights).
     """
     h = w // 2
     x = np.asarray(v[lo - h:hi + h], dtype=np.float64)
     if w <= 1:
         return x.copy()
-    coeffs = savgol_coeffs(w, 3)  # symmetric: correlation and convolution agree
-    if w >= 31:
-        from scipy.signal import oaconvolve  # scipy.signal is slow to import; only long windows need it
-
-        return oaconvolve(x, coeffs, mode="valid")
-    from scipy.ndimage import correlate1d  # scipy.ndimage is slow to import; only measuring needs it
-
-    # About half the time of numpy's convolution over a chunk.
-    return correlate1d(x, coeffs, mode="nearest")[h:x.size - h]
+    return correlate_valid(x, savgol_coeffs(w, 3))  # symmetric: correlation and convolution agree
 
 
 def first_crossings_one(v: np.ndarray, w_rep: int, ip: int, limit: int, levels: list[float]) -> list[float]:
