@@ -73,24 +73,40 @@ def mdp_vertex_times(v: np.ndarray, fs_hz: float, w: int, band_mV: float, i_mdp:
         if not a <= m < z:
             continue
         ca, cz = max(0, a - 2 * h), min(n, z + 2 * h)
-        seg = v[ca:cz]
+        levels = (float(mdp[b]) + band_mV, float(mdp[b]) + noise_band_mV)
         if w >= 31 and ca == a - 2 * h and cz == z + 2 * h:
-            # the same smoothing from running sums: a cost independent of the window
-            sm = savgol_smooth_interior(seg, w)[a - ca - h:z - ca - h]
+            # The same smoothing from running sums (a cost independent of the window), first
+            # within 100 ms of the minimum, where troughs end (the band of a slow nodal
+            # diastole spans about 80 ms): the whole reach only when a stretch runs to that edge.
+            (left, right), (n_left, n_right) = _stretches_near(v, w, m, a, z, levels, int(0.1 * fs_hz))
         else:
+            seg = v[ca:cz]
             sm = savgol_smooth(seg, fs_hz, window_ms=w / fs_hz * 1e3, polyorder=3) if w > 1 else seg
             sm = sm[a - ca:z - ca]
-        j = m - a
-        left, right = _stretch(sm, j, float(mdp[b]) + band_mV)
-        if right - left >= 9:
-            n_left, n_right = _stretch(sm, j, float(mdp[b]) + noise_band_mV)
-            if n_right > n_left:
-                todo.append((b, a, left, n_left, n_right))
-                troughs.append(v[a + left:a + right])
+            (left, right), (n_left, n_right) = (_stretch(sm, m - a, level) for level in levels)
+        if right - left >= 9 and n_right > n_left:
+            todo.append((b, a, left, n_left, n_right))
+            troughs.append(v[a + left:a + right])
     # The troughs' fits all at once (the same numbers as one by one, without a pass per beat).
     for (b, a, left, n_left, n_right), t0 in zip(todo, _two_sided_vertices(troughs)):
         out[b] = a + min(max(left + t0, n_left - 0.5), n_right - 0.5)
     return out
+
+
+def _stretches_near(v: np.ndarray, w: int, m: int, a: int, z: int, levels: tuple[float, ...],
+                    near: int) -> list[tuple[int, int]]:
+    """:func:`_stretch` of each level around ``m``, relative to ``a``, in V smoothed over ``w``
+    samples by running sums (``v`` holds ``2 (w // 2)`` samples of context on each side of
+    ``a:z``): ``m - near:m + near + 1`` is smoothed first, all of ``a:z`` only when a stretch
+    found there runs to one of its edges."""
+    h = w // 2
+    lo, hi = max(a, m - near), min(z, m + near + 1)
+    while True:
+        sm = savgol_smooth_interior(v[lo - 2 * h:hi + 2 * h], w)[h:hi - lo + h]
+        found = [_stretch(sm, m - lo, level) for level in levels]
+        if (lo, hi) == (a, z) or all((left > 0 or lo == a) and (right < sm.size or hi == z) for left, right in found):
+            return [(left + lo - a, right + lo - a) for left, right in found]
+        lo, hi = a, z
 
 
 def _stretch(sm: np.ndarray, j: int, level: float) -> tuple[int, int]:

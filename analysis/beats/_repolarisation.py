@@ -71,28 +71,6 @@ def _smooth_rows_sums(x: np.ndarray, w: int) -> np.ndarray:
     return (s4k * s0 - s2k * k2y) / (w * s4k - s2k * s2k) + ref
 
 
-def _smoothed(v: np.ndarray, w: int, lo: int, hi: int) -> np.ndarray:
-    """Savitzky-Golay smoothing (order 3) of ``v`` at the samples ``lo:hi`` (``w // 2`` inside each end).
-
-    One pass over the stretch, however many beats' repolarisations it holds: a short window by
-    direct correlation, a long one by FFT convolution (running sums over a whole stretch would
-    lose digits to their long index weights).
-    """
-    h = w // 2
-    x = np.asarray(v[lo - h:hi + h], dtype=np.float64)
-    if w <= 1:
-        return x.copy()
-    coeffs = savgol_coeffs(w, 3)  # symmetric: correlation and convolution agree
-    if w >= 31:
-        from scipy.signal import oaconvolve  # scipy.signal is slow to import; only long windows need it
-
-        return oaconvolve(x, coeffs, mode="valid")
-    from scipy.ndimage import correlate1d  # scipy.ndimage is slow to import; only measuring needs it
-
-    # About half the time of numpy's convolution over a chunk.
-    return correlate1d(x, coeffs, mode="nearest")[h:x.size - h]
-
-
 def first_crossings_one(v: np.ndarray, w_rep: int, ip: int, limit: int, levels: list[float]) -> list[float]:
     """The first smoothed downward crossing of each level after ``ip``, before ``limit`` (one beat).
 
@@ -146,9 +124,8 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     """:func:`first_crossings_one` for every beat: ``levels`` has one row per beat (NaN: skip).
 
     Returns fractional indices, shape ``levels.shape`` (NaN where a level is not crossed). The
-    stretch the repolarisations cover is smoothed once; the smoothed repolarisations are then
-    gathered in stages of 50 ms after each peak, up to :data:`_GATHER_S`, each beat only about as
-    far as its deepest level lies.
+    repolarisations are gathered and smoothed in stages of 50 ms after each peak, up to
+    :data:`_GATHER_S`, each beat only about as far as its deepest level lies.
     """
     k, n_lv = levels.shape
     out = np.full((k, n_lv), np.nan)
@@ -161,10 +138,6 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
     start = np.zeros(k, np.int64)  # from this sample after the peak
     # Stages of 50 ms: a beat is gathered only about as far as its deepest level lies.
     stages = sorted({int(round(t * fs_hz)) for t in np.arange(0.05, _GATHER_S, 0.05)} | {cap})
-    if inside.any():
-        s_lo = int(ip[inside].min()) - 1
-        s_hi = int((ip + span)[inside].max()) + 1
-        smooth = _smoothed(v, w_rep, s_lo, s_hi)  # smooth[j - s_lo]: the smoothed sample j
     c_lo = 0
     for c_hi in stages:
         if c_hi <= c_lo:
@@ -172,9 +145,11 @@ def first_crossings(v: np.ndarray, fs_hz: float, w_rep: int, ip: np.ndarray, lim
         rows = np.flatnonzero(inside & (cur < n_lv) & (span > c_lo))
         if rows.size:
             # columns c_lo - 1 .. c_hi - 1 of the smoothed trace (one before, for interpolation)
+            # (the raw samples with h more on each side, smoothed along the rows: only the
+            # stretches still searched are smoothed, not the whole trace)
             c = np.arange(c_lo - 1, c_hi)
-            idx = np.clip(ip[rows, None] - s_lo + c[None, :], 0, smooth.size - 1)
-            sm = smooth[idx]
+            idx = np.clip(ip[rows, None] + np.arange(c_lo - 1 - h, c_hi + h)[None, :], 0, n - 1)
+            sm = _smooth_rows(v[idx], w_rep)
             col = np.arange(c.size)[None, :]
             for p in range(n_lv):
                 mine = cur[rows] == p

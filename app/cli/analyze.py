@@ -100,6 +100,10 @@ def _progress_bar(path: str, stream: Any, progress: Callable | None):
     if progress is not None:
         yield progress
         return
+    if not getattr(stream, "isatty", lambda: False)():
+        # No terminal, no bar (as tqdm itself decides): tqdm is not even imported.
+        yield lambda done, total: None
+        return
     from tqdm import tqdm
 
     with tqdm(total=1, desc=os.path.basename(path), file=stream, disable=None, leave=False, dynamic_ncols=True,
