@@ -38,6 +38,7 @@ class SpanBands(pg.GraphicsObject):
         self._brushes: list[QtGui.QBrush] = []
         self._hatch_brushes: list[QtGui.QBrush] = []
         self._labels: list[str] = []
+        self._colour_keys: list = []
         self._hatch = hatch
         self._label_row = int(label_row)
         self._label_pen = QtGui.QPen(QtGui.QColor(label_colour)) if label_colour else None
@@ -47,7 +48,12 @@ class SpanBands(pg.GraphicsObject):
         self.setZValue(z)
 
     def set_bands(self, t0, t1, colours, labels=None) -> None:
-        """Replace the bands. ``colours`` are RGBA tuples (one per band, or one for all)."""
+        """Replace the bands. ``colours`` are RGBA tuples (one per band, or one for all).
+
+        Only the part of the plot whose bands or labels changed is drawn again (a verdict adds
+        or removes one band among many), unless the bands' overall extent changed.
+        """
+        before = self._drawing()
         self._t0 = np.asarray(t0, dtype=np.float64).reshape(-1)
         self._t1 = np.asarray(t1, dtype=np.float64).reshape(-1)
         n = len(self._t0)
@@ -56,7 +62,7 @@ class SpanBands(pg.GraphicsObject):
         if len(colours) == 4 and isinstance(colours[0], (int, np.integer)):
             colours = [colours] * n
         cache: dict[object, tuple[QtGui.QBrush, QtGui.QBrush]] = {}
-        self._brushes, self._hatch_brushes = [], []
+        self._brushes, self._hatch_brushes, self._colour_keys = [], [], []
         for c in colours:
             key = tuple(c) if isinstance(c, (tuple, list)) else str(c)
             if key not in cache:
@@ -66,10 +72,48 @@ class SpanBands(pg.GraphicsObject):
                 cache[key] = (QtGui.QBrush(qc), QtGui.QBrush(hatch, QtCore.Qt.BDiagPattern))
             self._brushes.append(cache[key][0])
             self._hatch_brushes.append(cache[key][1])
+            self._colour_keys.append(key)
         self._labels = list(labels) if labels is not None else []
-        self.prepareGeometryChange()
-        self._update_bounds()
-        self.update()
+        bounds = self._bounds_now()
+        dirty = self._changed_part(before) if bounds == self._bounds else None
+        if dirty is None:
+            self.prepareGeometryChange()
+            self._bounds = bounds
+            self.update()
+        elif not dirty.isEmpty():
+            self.update(dirty)
+
+    def _drawing(self) -> tuple[set, set] | None:
+        """What is drawn now: the bands ``(t0, t1, colour)`` and the labels ``(text, rect in the
+        scene)``; None when the item is not in a view."""
+        vr, view = self.viewRect(), self.getViewWidget()
+        if vr is None or view is None:
+            return None
+        bands = set(zip(self._t0.tolist(), self._t1.tolist(), self._colour_keys))
+        if self._label_pen is None or not self._labels:
+            return bands, set()
+        visible = np.flatnonzero((self._t1 >= vr.left()) & (self._t0 <= vr.right()))
+        labels = {(self._labels[i], rect.getRect()) for i, rect in self._label_layout(self.sceneTransform(), vr, visible)}
+        return bands, labels
+
+    def _changed_part(self, before: tuple[set, set] | None) -> QtCore.QRectF | None:
+        """The part of the item (its own coordinates) where the bands or labels drawn differ
+        from ``before``; None when that cannot be told (the whole item changes)."""
+        after = self._drawing()
+        vr = self.viewRect()
+        if before is None or after is None or vr is None:
+            return None
+        dirty = QtCore.QRectF()
+        for t0, t1, _colour in before[0] ^ after[0]:
+            dirty = dirty.united(QtCore.QRectF(t0, vr.top(), t1 - t0, vr.height()))
+        changed = before[1] ^ after[1]
+        if changed:
+            to_item, invertible = self.sceneTransform().inverted()
+            if not invertible:
+                return None
+            for _text, rect in changed:
+                dirty = dirty.united(to_item.mapRect(QtCore.QRectF(*rect).adjusted(-2, -2, 2, 2)))
+        return dirty
 
     def band_at(self, x: float) -> int:
         """Index of the band containing data x, or -1."""
@@ -92,16 +136,15 @@ class SpanBands(pg.GraphicsObject):
         # so the bands follow the new range at once.
         self._cachedView = None
         self.prepareGeometryChange()
-        self._update_bounds()
+        self._bounds = self._bounds_now()
 
-    def _update_bounds(self) -> None:
+    def _bounds_now(self) -> QtCore.QRectF:
         vr = self.viewRect()
         if vr is None or not len(self._t0):
-            self._bounds = QtCore.QRectF()
-            return
+            return QtCore.QRectF()
         x0 = max(float(self._t0.min()), vr.left())
         x1 = min(float(self._t1.max()), vr.right())
-        self._bounds = QtCore.QRectF(x0, vr.top(), max(0.0, x1 - x0), vr.height())
+        return QtCore.QRectF(x0, vr.top(), max(0.0, x1 - x0), vr.height())
 
     def boundingRect(self) -> QtCore.QRectF:  # noqa: N802
         return self._bounds

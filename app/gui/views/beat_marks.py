@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
+from PySide6 import QtCore, QtGui, QtWidgets
 
 from analysis.decisions import REJECTED, TO_REVIEW
 from analysis.table import BeatTable
@@ -21,7 +22,10 @@ from analysis.table import BeatTable
 from .. import palette
 from .bands import SpanBands
 
-__all__ = ["MARKER_COLUMNS", "BeatMarks", "beat_extent", "column_of", "verdicts"]
+__all__ = ["MARKER_COLUMNS", "BeatMarks", "beat_extent", "column_of", "keep_as_pixels", "verdicts"]
+
+#: Room in Qt's pixmap cache for the items :func:`keep_as_pixels` keeps (KiB).
+PIXMAP_CACHE_KB = 64 * 1024
 
 #: The marker kinds and the beat-table columns giving each marker's time and potential.
 MARKER_COLUMNS = {
@@ -31,6 +35,48 @@ MARKER_COLUMNS = {
     "peak": ("t_peak_s", "peak_mV"),
     "apd90": ("t_apd90_s", None),
 }
+
+
+def keep_as_pixels(*items) -> None:
+    """Keep each item's rendering as pixels until the item itself or the view changes.
+
+    A review key repaints part of the trace view (the beat left, the beat reached, a reason
+    picker closed over it), and every item crossing that part would otherwise draw itself whole
+    again, clipped: the trace's thousands of segments, every marker kind, the grid and the axes.
+    Kept as pixels, an unchanged item is copied; only the items a verdict changed draw again.
+    """
+    # Each item kept costs a plot's worth of pixels in Qt's pixmap cache (10 MB by default,
+    # shared by every view): room for a trace view's dozen items on a large screen.
+    if QtGui.QPixmapCache.cacheLimit() < PIXMAP_CACHE_KB:
+        QtGui.QPixmapCache.setCacheLimit(PIXMAP_CACHE_KB)
+    for item in items:
+        item.setCacheMode(QtWidgets.QGraphicsItem.CacheMode.DeviceCoordinateCache)
+
+
+class MarkerItem(pg.ScatterPlotItem):
+    """A marker kind's points, whose bounding rectangle is worked out once per change.
+
+    Qt asks every item crossing a repainted part of the view for its bounding rectangle, several
+    times per repaint; pyqtgraph works it out anew each time (the points' bounds, padded by the
+    symbols' size in pixels). Kept until the points, their sizes or the view change (each gives
+    pyqtgraph new data bounds).
+    """
+
+    def __init__(self, *args, **kwargs) -> None:
+        self._rect: tuple[list, QtCore.QRectF] | None = None
+        super().__init__(*args, **kwargs)
+
+    def boundingRect(self) -> QtCore.QRectF:
+        kept = self._rect
+        if kept is not None and kept[0] is self.bounds:
+            return QtCore.QRectF(kept[1])
+        rect = super().boundingRect()
+        self._rect = (self.bounds, QtCore.QRectF(rect))
+        return rect
+
+    def prepareGeometryChange(self) -> None:
+        self._rect = None
+        super().prepareGeometryChange()
 
 
 def column_of(beats: BeatTable, name: str, rows: np.ndarray) -> np.ndarray:
@@ -81,13 +127,13 @@ class BeatMarks:
     def __init__(self, plot: pg.PlotItem, legend: pg.LegendItem) -> None:
         self.markers: dict[str, pg.ScatterPlotItem] = {}
         for kind, (label, colour, symbol, size) in palette.MARKERS.items():
-            item = pg.ScatterPlotItem(size=size, symbol=symbol, pen=pg.mkPen(palette.INK, width=0.6),
+            item = MarkerItem(size=size, symbol=symbol, pen=pg.mkPen(palette.INK, width=0.6),
                                       brush=pg.mkBrush(colour), name=label)
             item.setZValue(10)
             plot.addItem(item)
             legend.addItem(item, label)
             self.markers[kind] = item
-        self.rejected_markers = pg.ScatterPlotItem(size=8, symbol="x", pen=pg.mkPen(palette.REJECTED_MARKER, width=1.5),
+        self.rejected_markers = MarkerItem(size=8, symbol="x", pen=pg.mkPen(palette.REJECTED_MARKER, width=1.5),
                                                    brush=None, name="rejected beat")
         self.rejected_markers.setZValue(9)
         plot.addItem(self.rejected_markers)
@@ -96,6 +142,7 @@ class BeatMarks:
         self.flag_bands = SpanBands(label_colour=palette.FLAG_LABEL, z=-22, label_row=1)
         for item in (self.reject_bands, self.flag_bands):
             plot.addItem(item, ignoreBounds=True)
+        keep_as_pixels(*self.markers.values(), self.rejected_markers, self.reject_bands, self.flag_bands)
         self._beats: BeatTable | None = None
         self._rows = np.empty(0, dtype=np.int64)
         self._t_up = np.empty(0)

@@ -19,7 +19,13 @@ from analysis.table import BeatTable
 
 from .. import palette
 from .bands import SpanBands
-from .beat_marks import MARKER_COLUMNS, BeatMarks, beat_extent, column_of
+from .beat_marks import (
+    MARKER_COLUMNS,
+    BeatMarks,
+    beat_extent,
+    column_of,
+    keep_as_pixels,
+)
 from .cursor_tags import CursorTags
 from .trace_data import DrawData, SweepLevels
 
@@ -73,9 +79,8 @@ class TraceView(pg.PlotWidget):
         # every frame and cost more than the trace itself while panning.
         grid = pg.GridItem(pen=pg.mkPen(palette.GRID), textPen=None)
         grid.setZValue(-50)
-        # Kept as pixels between moves of the view: a verdict repaints the whole plot (its
-        # markers span it), and the grid's thousand faint lines would be drawn again each time.
-        grid.setCacheMode(QtWidgets.QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        # Kept as pixels between moves of the view (see :func:`keep_as_pixels`).
+        keep_as_pixels(grid)
         plot.addItem(grid, ignoreBounds=True)
         plot.setLabel("bottom", "time in sweep", units="s")
         plot.setMenuEnabled(False)
@@ -92,11 +97,13 @@ class TraceView(pg.PlotWidget):
         plot.setClipToView(True)
         plot.setDownsampling(auto=True, mode="peak")
         plot.addItem(self.curve)
+        keep_as_pixels(self.curve.curve)
 
         self.phase_bands = SpanBands(label_colour=palette.INK, z=-30)
         self.current_band = SpanBands(z=-25)
         for item in (self.phase_bands, self.current_band):
             plot.addItem(item, ignoreBounds=True)
+        keep_as_pixels(self.phase_bands, *(plot.getAxis(a) for a in ("left", "bottom")))
         self.phase_bands.setVisible(False)
 
         # The legend sits in a title row above the data, in one line, so it never hides a beat.
