@@ -28,11 +28,15 @@ class SpanBands(pg.GraphicsObject):
         Colour of the per-band labels, drawn along the top when a band is wide enough.
     label_row : int
         Which line from the top the labels go on (so several kinds of band can be labelled).
+    whole_view : bool
+        Claim the whole view while there is any band, so that a band added or removed at
+        either end changes only its own part of the view (for many bands kept as pixels).
     """
 
     def __init__(self, *, hatch: bool = False, label_colour: str | None = None, z: float = -10,
-                 label_row: int = 0) -> None:
+                 label_row: int = 0, whole_view: bool = False) -> None:
         super().__init__()
+        self._whole_view = bool(whole_view)
         self._t0 = np.empty(0)
         self._t1 = np.empty(0)
         self._brushes: list[QtGui.QBrush] = []
@@ -142,6 +146,8 @@ class SpanBands(pg.GraphicsObject):
         vr = self.viewRect()
         if vr is None or not len(self._t0):
             return QtCore.QRectF()
+        if self._whole_view:
+            return QtCore.QRectF(vr)
         x0 = max(float(self._t0.min()), vr.left())
         x1 = min(float(self._t1.max()), vr.right())
         return QtCore.QRectF(x0, vr.top(), max(0.0, x1 - x0), vr.height())
@@ -159,8 +165,17 @@ class SpanBands(pg.GraphicsObject):
         for i in visible:
             rect = QtCore.QRectF(self._t0[i], top, self._t1[i] - self._t0[i], height)
             painter.fillRect(rect, self._brushes[i])
-            if self._hatch:
-                painter.fillRect(rect, self._hatch_brushes[i])
+        if self._hatch and len(visible):
+            # The hatch in pixels, its pattern anchored at the view's corner: the same lines
+            # whether the bands are drawn whole or one changed band at a time.
+            tr = painter.transform()
+            painter.save()
+            painter.resetTransform()
+            painter.setBrushOrigin(tr.map(vr.topLeft()).toPoint())
+            for i in visible:
+                rect = QtCore.QRectF(self._t0[i], top, self._t1[i] - self._t0[i], height)
+                painter.fillRect(tr.mapRect(rect), self._hatch_brushes[i])
+            painter.restore()
         if self._label_pen is None or not self._labels:
             return
         # Labels in pixels: scale the painter by the inverse of the data-to-pixel scale at each

@@ -54,17 +54,51 @@ def keep_as_pixels(*items) -> None:
 
 
 class MarkerItem(pg.ScatterPlotItem):
-    """A marker kind's points, whose bounding rectangle is worked out once per change.
+    """A marker kind's points; a change of a few points repaints only around them.
 
-    Qt asks every item crossing a repainted part of the view for its bounding rectangle, several
-    times per repaint; pyqtgraph works it out anew each time (the points' bounds, padded by the
-    symbols' size in pixels). Kept until the points, their sizes or the view change (each gives
-    pyqtgraph new data bounds).
+    pyqtgraph repaints a scatter item whole on any change of its points, and works its bounding
+    rectangle out anew each time Qt asks (several times per repaint). Here the rectangle is kept
+    until the points, their sizes or the view change, and :meth:`set_points` marks as changed
+    only the points that came or went (a verdict changes one beat), unless the points' overall
+    bounds moved.
     """
 
     def __init__(self, *args, **kwargs) -> None:
         self._rect: tuple[list, QtCore.QRectF] | None = None
+        self._quiet = False
         super().__init__(*args, **kwargs)
+
+    def set_points(self, t: np.ndarray, v: np.ndarray, rows: np.ndarray) -> None:
+        """Replace the points (``rows`` is each point's data)."""
+        x0, y0 = np.asarray(self.data["x"], float), np.asarray(self.data["y"], float)
+        t, v = np.asarray(t, float), np.asarray(v, float)
+        same_bounds = bool(x0.size and t.size) and all(
+            np.nanmin(a) == np.nanmin(b) and np.nanmax(a) == np.nanmax(b) for a, b in ((x0, t), (y0, v)))
+        if not same_bounds:
+            self.setData(t, v, data=rows)
+            return
+        came = _rows_not_in(np.column_stack([t, v]), np.column_stack([x0, y0]))
+        went = _rows_not_in(np.column_stack([x0, y0]), np.column_stack([t, v]))
+        bounds, rect = self.bounds, self._rect
+        self._quiet = True
+        try:
+            self.setData(t, v, data=rows)
+        finally:
+            self._quiet = False
+        # The same bounds, so the same rectangle (pyqtgraph only forgot it).
+        self.bounds[:] = bounds
+        self._rect = (self.bounds, rect[1]) if rect is not None and rect[0] is bounds else None
+        px, py = self.pixelVectors()
+        if px is None or py is None:
+            super().update()
+            return
+        pad_x, pad_y = (self.pixelPadding() + 2) * px.length(), (self.pixelPadding() + 2) * py.length()
+        for x, y in np.concatenate([came, went]):
+            super().update(QtCore.QRectF(x - pad_x, y - pad_y, 2 * pad_x, 2 * pad_y))
+
+    def update(self, *args) -> None:
+        if not self._quiet:
+            super().update(*args)
 
     def boundingRect(self) -> QtCore.QRectF:
         kept = self._rect
@@ -75,8 +109,18 @@ class MarkerItem(pg.ScatterPlotItem):
         return rect
 
     def prepareGeometryChange(self) -> None:
+        if self._quiet:
+            return
         self._rect = None
         super().prepareGeometryChange()
+
+
+def _rows_not_in(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """The rows of ``a`` (points, one per row) that ``b`` lacks."""
+    if not len(b):
+        return a
+    theirs = {tuple(p) for p in b.tolist()}
+    return a[[tuple(p) not in theirs for p in a.tolist()]].reshape(-1, 2)
 
 
 def column_of(beats: BeatTable, name: str, rows: np.ndarray) -> np.ndarray:
@@ -138,8 +182,8 @@ class BeatMarks:
         self.rejected_markers.setZValue(9)
         plot.addItem(self.rejected_markers)
         legend.addItem(self.rejected_markers, "rejected")
-        self.reject_bands = SpanBands(hatch=True, label_colour=palette.REJECTED_LABEL, z=-20, label_row=1)
-        self.flag_bands = SpanBands(label_colour=palette.FLAG_LABEL, z=-22, label_row=1)
+        self.reject_bands = SpanBands(hatch=True, label_colour=palette.REJECTED_LABEL, z=-20, label_row=1, whole_view=True)
+        self.flag_bands = SpanBands(label_colour=palette.FLAG_LABEL, z=-22, label_row=1, whole_view=True)
         for item in (self.reject_bands, self.flag_bands):
             plot.addItem(item, ignoreBounds=True)
         keep_as_pixels(*self.markers.values(), self.rejected_markers, self.reject_bands, self.flag_bands)
@@ -225,12 +269,12 @@ class BeatMarks:
         colours = [palette.REVIEW_BAND if wait else palette.FLAG_BAND for wait, m in zip(waiting, marked) if m]
         self._set_bands(self.flag_bands, fa, fe, colours, labels)
 
-    def _set_points(self, kind: str, item: pg.ScatterPlotItem, t: np.ndarray, v: np.ndarray, rows: np.ndarray) -> None:
+    def _set_points(self, kind: str, item: MarkerItem, t: np.ndarray, v: np.ndarray, rows: np.ndarray) -> None:
         """Give a marker item its points, unless it has them already (a verdict changes one
         beat: the other kinds keep theirs, and pyqtgraph builds nothing again)."""
         before = self._points.get(kind)
         if before is None or not all(np.array_equal(a, b, equal_nan=True) for a, b in zip(before, (t, v, rows))):
-            item.setData(t, v, data=rows)
+            item.set_points(t, v, rows)
             self._points[kind] = (t, v, rows)
         self._drawn[kind] = (t, v, rows)
 
