@@ -31,3 +31,28 @@ def test_running_sums_give_the_same_fits_as_the_samples():
         # running sums over 3000 samples hold ~12 digits: within 1e-6 of the fit's own scale
         np.testing.assert_allclose(sums.fit(a, b, u0), direct, rtol=0, atol=1e-6 * np.abs(direct).max())
     assert sums.covers(1000, 4000) and not sums.covers(999, 1010)
+
+
+def test_poly_lsq_grid_gives_the_per_fit_polynomials_on_real_upstrokes(real_abf_dir):
+    """The cached grid operator against the fit it replaces (poly_lsq) and numpy.polynomial, on
+    the dV/dt tops of the upstrokes of a recording from a working lab (../shared/real-abf)."""
+    from analysis.beats import detect_beats
+    from analysis.readers import open_recording
+    from analysis.signal import poly_lsq, poly_lsq_grid, savgol_derivative
+
+    rec = open_recording(real_abf_dir / "File_axon_2.abf")
+    fs = rec.sampling_rate_hz
+    v = rec.sweep(0, rec.current_clamp_channels()[0])
+    ups = detect_beats(v, fs).i_upstroke[:20]
+    assert ups.size >= 5
+    d = savgol_derivative(v, fs, window=7, polyorder=3) / 1000.0
+    for g in ups:
+        i = int(g) - 40 + int(np.argmax(d[int(g) - 40:int(g) + 40]))
+        for lo, hi, deg in ((i - 9, i + 14, 3), (i - 3, i + 3, 2), (i - 30, i + 11, 4)):
+            x = np.arange(lo, hi + 1, dtype=np.float64) - i
+            scale = max(abs(x[0]), abs(x[-1]), 1.0)
+            y = d[lo:hi + 1]
+            got = poly_lsq_grid(y, lo - i, scale, deg)
+            np.testing.assert_allclose(got, poly_lsq(x / scale, y, deg), rtol=1e-9, atol=1e-9 * np.abs(y).max())
+            ref = np.polynomial.polynomial.polyfit(x / scale, y, deg)  # reference library: numpy.polynomial
+            np.testing.assert_allclose(got, ref, rtol=1e-9, atol=1e-9 * np.abs(y).max())
