@@ -49,7 +49,6 @@ from analysis.signal import (
     noise_rms_mV,
     parabolic_peak,
     poly_lsq,
-    poly_lsq_grid,
     savgol_smooth,
     savgol_smooth_interior,
     window_samples,
@@ -388,7 +387,8 @@ class _Context(TakeoffSteps):
             x = np.arange(lo, hi, dtype=np.float64) - j
             y = self.v[a + lo:a + hi]
             scale = max(hi - lo, 1)
-            coef = poly_lsq_grid(y, lo - j, scale, 4)
+            u = x / scale
+            coef = poly_lsq(u, y, 4)
             top_at = _quartic_max(coef, x[0] / scale, x[-1] / scale, hi - lo)
             if top_at is not None:
                 return a + j + top_at[0] * scale, top_at[1]
