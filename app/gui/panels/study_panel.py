@@ -27,6 +27,11 @@ from ..views.study_grid import GridEntry, StudyGridView
 __all__ = ["ComparisonPanel", "StudyPanel", "progress_text"]
 
 
+def _count(n: int, noun: str) -> str:
+    """``n`` and its noun, plural unless there is one ("1 cell", "3 cells")."""
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
+
+
 def progress_text(entries: Sequence[GridEntry]) -> str:
     """The line above the grid: recordings, beats to review and where."""
     shown = [e for e in entries if e.key is not None]
@@ -34,12 +39,12 @@ def progress_text(entries: Sequence[GridEntry]) -> str:
     to_review = sum(e.n_to_review for e in waiting)
     cells = len({e.cell for e in entries})
     conditions = len({e.condition for e in entries})
-    head = f"{cells} cells × {conditions} conditions, {len(shown)} recordings"
+    head = f"{_count(cells, 'cell')} × {_count(conditions, 'condition')}, {_count(len(shown), 'recording')}"
     if not shown:
         return head
     if not waiting:
         return f"{head}; no beat waiting for review"
-    return f"{head}; {to_review} beats to review in {len(waiting)} recording{'s' if len(waiting) != 1 else ''}"
+    return f"{head}; {_count(to_review, 'beat')} to review in {_count(len(waiting), 'recording')}"
 
 
 class StudyPanel(QtWidgets.QWidget):
