@@ -70,16 +70,18 @@ def _children_cpu_s() -> float:
     return use.ru_utime + use.ru_stime
 
 
-def measure(args: list[str], label: str) -> tuple[float, float, float, float, str]:
+def measure(args: list[str], label: str, tree: str | None = None) -> tuple[float, float, float, float, str]:
     """Run ``python <args>`` in a fresh process; (wall s, CPU s, peak MB of that process, peak MB
-    of the largest worker it forked (0 when none), output).
+    of the largest worker it forked (0 when none), output). With ``tree``, the process runs the
+    project's code from that checkout (working directory and PYTHONPATH).
 
     The CPU time is the difference of the finished children's user + system time around the
     run, so it is that one child's own, its workers included.
     """
     cpu0 = _children_cpu_s()
     start = time.perf_counter()
-    proc = subprocess.run([sys.executable, "-c", _RSS_WRAP, *args], capture_output=True, text=True)
+    env = None if tree is None else {**os.environ, "PYTHONPATH": tree}
+    proc = subprocess.run([sys.executable, "-c", _RSS_WRAP, *args], capture_output=True, text=True, cwd=tree, env=env)
     wall = time.perf_counter() - start
     cpu = _children_cpu_s() - cpu0
     if proc.returncode != 0:
@@ -143,19 +145,27 @@ STRAIGHTFORWARD = textwrap.dedent(
 )
 
 
-def bench_cell(kind: str, minutes: float, folder: str, repeat: int) -> dict:
-    """The four processes on one kind of cell; prints its table and returns its ratios."""
+def bench_cell(kind: str, minutes: float, folder: str, repeat: int, baseline: str | None = None) -> dict:
+    """The four processes on one kind of cell (six with a baseline checkout, whose analyze runs
+    in turn with this one's); prints its table and returns its ratios."""
     abf_path, n_beats = cells.make(kind, minutes, folder)
     csv_path = os.path.join(folder, f"bench_beats_{kind}.csv")
     size_mb = os.path.getsize(abf_path) / 1e6
     print(f"\n== {kind}-like: {abf_path}: {size_mb:.0f} MB, {n_beats} beats built in", flush=True)
     runs: dict[str, list[tuple[float, ...]]] = {"floor": [], "analyze": [], "analyze1": [], "script": []}
+    if baseline:
+        runs.update({"base": [], "base1": []})
+    base_csv = os.path.join(folder, f"bench_beats_{kind}_baseline.csv")
     naive_out = ""
     for _ in range(max(1, repeat)):
         runs["floor"].append(measure(["-c", FLOOR, abf_path], "floor")[:4])
-        runs["analyze"].append(measure(["app", "analyze", abf_path, "--csv", csv_path], "upstroke analyze")[:4])
-        runs["analyze1"].append(
-            measure(["app", "analyze", abf_path, "--csv", csv_path, "--workers", "1"], "upstroke analyze")[:4])
+        for name, tree, out in (("analyze", None, csv_path), ("base", baseline, base_csv)):
+            if name in runs:
+                runs[name].append(measure(["app", "analyze", abf_path, "--csv", out], "upstroke analyze", tree)[:4])
+        for name, tree, out in (("analyze1", None, csv_path), ("base1", baseline, base_csv)):
+            if name in runs:
+                runs[name].append(measure(["app", "analyze", abf_path, "--csv", out, "--workers", "1"],
+                                          "upstroke analyze", tree)[:4])
         *figures, naive_out = measure(["-c", STRAIGHTFORWARD, abf_path], "straightforward script")
         runs["script"].append(tuple(figures))
     with open(csv_path, newline="") as fh:
@@ -171,8 +181,11 @@ def bench_cell(kind: str, minutes: float, folder: str, repeat: int) -> dict:
 
     cores = default_workers()  # the processes upstroke analyze starts here by default
     print(f"{'':34s}{'wall s':>9s}{'(median)':>10s}{'CPU s':>9s}{'(median)':>10s}{'peak MB':>10s}{'worker MB':>11s}")
-    for name, label in (("floor", "floor (read + one pass)"), ("analyze", f"upstroke analyze ({cores} workers)"),
-                        ("analyze1", "upstroke analyze --workers 1"), ("script", "straightforward script")):
+    rows = [("floor", "floor (read + one pass)"), ("analyze", f"upstroke analyze ({cores} workers)"),
+            ("analyze1", "upstroke analyze --workers 1"), ("script", "straightforward script")]
+    if baseline:
+        rows[3:3] = [("base", f"baseline analyze ({cores} workers)"), ("base1", "baseline analyze --workers 1")]
+    for name, label in rows:
         print(f"{label:34s}{best(name, 0):9.2f}{median(name, 0):10.2f}{best(name, 1):9.2f}"
               f"{median(name, 1):10.2f}{max(r[2] for r in runs[name]):10.0f}{max(r[3] for r in runs[name]):11.0f}")
     print(f"(best and median of {len(runs['analyze'])} run(s) each; CPU includes the workers'; worker MB: "
@@ -180,6 +193,12 @@ def bench_cell(kind: str, minutes: float, folder: str, repeat: int) -> dict:
     for name, what in (("analyze", "   "), ("analyze1", " 1w")):
         for k, unit in ((0, "wall"), (1, "CPU ")):
             print(f"analyze{what} / floor           = {best(name, k) / best('floor', k):6.2f}x {unit} (target <= 8x)")
+    if baseline:
+        for name, what in (("base", "   "), ("base1", " 1w")):
+            for k, unit in ((0, "wall"), (1, "CPU ")):
+                print(f"baseline{what} / floor          = {best(name, k) / best('floor', k):6.2f}x {unit}")
+        with open(csv_path, "rb") as a, open(base_csv, "rb") as b:
+            print(f"beats CSV against the baseline's = {'the same bytes' if a.read() == b.read() else 'DIFFERENT'}")
     for name, what in (("analyze", "   "), ("analyze1", " 1w")):
         for k, unit in ((0, "wall"), (1, "CPU ")):
             print(f"straightforward / analyze{what} = {best('script', k) / best(name, k):6.2f}x {unit} (target >= 10x)")
@@ -187,8 +206,12 @@ def bench_cell(kind: str, minutes: float, folder: str, repeat: int) -> dict:
     print(f"analyze peak memory             = {peak:6.0f} MB, this process plus its workers at most (target <= 600 MB)")
     print(f"beats found / built in          = {found} / {n_beats}   ({'right' if abs(found - n_beats) <= 1 else 'WRONG'})")
     print(f"straightforward script          : {naive_out.strip().splitlines()[0]}")
-    return {"wall": best("analyze", 0) / best("floor", 0), "cpu": best("analyze", 1) / best("floor", 1),
-            "wall1": best("analyze1", 0) / best("floor", 0), "script": best("script", 0) / best("analyze", 0)}
+    out = {"wall": best("analyze", 0) / best("floor", 0), "cpu": best("analyze", 1) / best("floor", 1),
+           "wall1": best("analyze1", 0) / best("floor", 0), "cpu1": best("analyze1", 1) / best("floor", 1),
+           "script": best("script", 0) / best("analyze", 0)}
+    if baseline:
+        out.update(base=best("base", 1) / best("floor", 1), base1=best("base1", 1) / best("floor", 1))
+    return out
 
 
 def main() -> int:
@@ -198,6 +221,9 @@ def main() -> int:
     parser.add_argument("--cells", default=",".join(cells.KINDS),
                         help=f"kinds of cell, comma-separated (default: {','.join(cells.KINDS)})")
     parser.add_argument("--keep", metavar="DIR", help="keep the generated recordings and outputs here")
+    parser.add_argument("--baseline", metavar="CHECKOUT",
+                        help="another checkout of the project (a git worktree of an earlier commit, say) whose "
+                             "analyze runs in turn with this one's, as the baseline of the same run")
     args = parser.parse_args()
     folder = args.keep or tempfile.mkdtemp(prefix="upstroke-bench-")
     os.makedirs(folder, exist_ok=True)
@@ -205,15 +231,19 @@ def main() -> int:
     # compile the project once here, so that no measured run pays for compiling it, even where
     # PYTHONDONTWRITEBYTECODE is set.
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    for package in ("analysis", "app"):
-        compileall.compile_dir(os.path.join(root, package), quiet=1)
+    for tree in (root, args.baseline) if args.baseline else (root,):
+        for package in ("analysis", "app"):
+            compileall.compile_dir(os.path.join(tree, package), quiet=1)
     try:
-        ratios = {kind: bench_cell(kind, args.minutes, folder, args.repeat) for kind in args.cells.split(",")}
+        ratios = {kind: bench_cell(kind, args.minutes, folder, args.repeat, args.baseline)
+                  for kind in args.cells.split(",")}
         print("\n== every cell type (best wall and CPU of analyze over the floor; target <= 8x)")
         for kind, r in ratios.items():
             met = "met" if max(r["wall"], r["cpu"]) <= 8.0 else "MISSED"
             print(f"{kind:12s} analyze/floor {r['wall']:6.2f}x wall {r['cpu']:6.2f}x CPU, --workers 1 "
-                  f"{r['wall1']:6.2f}x wall; script/analyze {r['script']:6.2f}x wall  ({met})")
+                  f"{r['wall1']:6.2f}x wall {r['cpu1']:6.2f}x CPU; script/analyze {r['script']:6.2f}x wall  ({met})"
+                  + (f"; baseline {r['base']:6.2f}x CPU, --workers 1 {r['base1']:6.2f}x CPU" if "base" in r else ""))
+        print(f"load average at the end: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     finally:
         if not args.keep:
             shutil.rmtree(folder, ignore_errors=True)

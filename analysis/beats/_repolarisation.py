@@ -40,8 +40,14 @@ def _smooth_rows(x: np.ndarray, w: int) -> np.ndarray:
         return _smooth_rows_sums(x, w)
 
     c = savgol_coeffs(w, 3)  # reversed for convolution; symmetric for smoothing
+    # Each output is sum_k c[k] x[:, i + k], accumulated over k in order: a product of the rows'
+    # sliding windows with c does that in one pass (numpy's own loop for strided operands, the
+    # same additions in the same order as a pass per tap, so the same numbers).
+    # (A single window per row would go to BLAS, whose sums run in another order: a pass per tap.)
     m = x.shape[1] - w + 1
-    out = np.zeros((x.shape[0], m))
+    if m >= 2:
+        return np.lib.stride_tricks.sliding_window_view(np.asarray(x, dtype=np.float64), w, axis=1) @ c
+    out = np.zeros((x.shape[0], max(m, 0)))
     for k in range(w):
         out += c[k] * x[:, k:k + m]
     return out

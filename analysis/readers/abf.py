@@ -212,11 +212,16 @@ class _AbfSamples:
                 shape=(lay.n_frames, lay.n_channels),
             )
         first = int(lay.frame_starts[sweep])
-        out = self._map[first + start:first + stop, channel].astype(np.float64)
+        raw = self._map[first + start:first + stop, channel]
         if lay.dtype.kind == "i":
-            out *= lay.gains[channel]
-            out += lay.offsets[channel]
+            # Converted and scaled in one pass (the integers are exact in float64, so the
+            # products are those of converting first); a zero offset adds nothing (but the
+            # +0.0 that adding it makes of a -0.0 where the gain is negative).
+            out = np.multiply(raw, lay.gains[channel], dtype=np.float64)
+            if lay.offsets[channel] != 0.0 or lay.gains[channel] < 0:
+                out += lay.offsets[channel]
         else:
+            out = raw.astype(np.float64)
             _check_finite_slice(out, self._origin, sweep, channel, start)
         return out
 

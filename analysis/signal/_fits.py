@@ -4,11 +4,12 @@ Polynomials through a few tens to hundreds of samples (:func:`poly_lsq`, :func:`
 :class:`RunningSums`) and the tops of peaks (:func:`parabolic_peak`, :func:`top_fit_peak`).
 """
 
+import functools
 import math
 
 import numpy as np
 
-__all__ = ["quadratic_fit", "quadratic_from_sums", "RunningSums", "poly_lsq", "parabolic_peak", "top_fit_peak"]
+__all__ = ["quadratic_fit", "quadratic_from_sums", "RunningSums", "poly_lsq", "poly_lsq_centred", "parabolic_peak", "top_fit_peak"]
 
 
 def quadratic_fit(y: np.ndarray, u0: float) -> tuple[float, float, float]:
@@ -128,6 +129,26 @@ def poly_lsq(x: np.ndarray, y: np.ndarray, deg: int) -> np.ndarray:
     return np.array(sol)
 
 
+def poly_lsq_centred(y: np.ndarray, deg: int) -> np.ndarray:
+    """:func:`poly_lsq` of ``y`` at ``u`` evenly spaced from -1 to 1 (``u_k = (k - c) / c`` with
+    ``c = (len(y) - 1) / 2``), lowest order first.
+
+    The fits made per beat (the tops of peaks) take this form once the abscissa is centred on the
+    window, so the least-squares solution operator of each length (the pseudo-inverse of its
+    Vandermonde matrix) is computed once per process and a fit is one small product with it: the
+    coefficients are those of :func:`poly_lsq` on the same ``u`` to rounding.
+    """
+    y = np.asarray(y, dtype=np.float64)
+    return _centred_operator(y.size, int(deg)).dot(y)
+
+
+@functools.lru_cache(maxsize=1024)
+def _centred_operator(n: int, deg: int) -> np.ndarray:
+    c = (n - 1) / 2.0
+    u = (np.arange(n, dtype=np.float64) - c) / max(c, 1.0)
+    return np.ascontiguousarray(np.linalg.pinv(np.vander(u, deg + 1, increasing=True)))
+
+
 def _solve_small(a: list[list[float]], b: list[float]) -> list[float] | None:
     """``a x = b`` for a small system, by Gaussian elimination with partial pivoting (None when
     singular)."""
@@ -174,12 +195,14 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
     hi = int(below[k]) - 1 if k < below.size else b - 1
     if hi - lo < 3:
         return parabolic_peak(y, i)
-    x = np.arange(lo, hi + 1, dtype=np.float64) - i
     yy = np.asarray(y[lo:hi + 1], dtype=np.float64)
+    # The fits are in u from -1 to 1 across the window (sample lo + half + half u):
+    # :func:`poly_lsq_centred`.
+    half = (hi - lo) / 2.0
+    centre = lo - i + half
     if hi - lo >= 6:
         # A cubic follows an asymmetric top (an upstroke's dV/dt rises and falls at different rates).
-        scale = max(abs(x[0]), abs(x[-1]), 1.0)
-        c = poly_lsq(x / scale, yy, 3)
+        c = poly_lsq_centred(yy, 3)
         best = None
         # Where the cubic's slope c1 + 2 c2 u + 3 c3 u^2 is zero (closed form).
         qa, qb, qc = 3.0 * c[3], 2.0 * c[2], c[1]
@@ -192,16 +215,16 @@ def top_fit_peak(y: np.ndarray, i: int, *, fraction: float = 0.9, max_half: int 
             q = -0.5 * (qb + math.copysign(math.sqrt(disc), qb))
             roots = tuple(r for r in ((q / qa) if qa != 0.0 else None, (qc / q) if q != 0.0 else None) if r is not None)
         for u in roots:
-            if x[0] <= u * scale <= x[-1]:
+            if -1.0 <= u <= 1.0:
                 val = c[0] + u * (c[1] + u * (c[2] + u * c[3]))
                 if best is None or val > best[1]:
-                    best = (u * scale, val)
+                    best = (centre + half * u, val)
         if best is not None:
             return float(best[0]), float(best[1])
-    c0, c1, c2 = poly_lsq(x, yy, 2)
+    c0, c1, c2 = poly_lsq_centred(yy, 2)
     if c2 >= 0:
         return parabolic_peak(y, i)
     off = -c1 / (2 * c2)
-    if not (x[0] <= off <= x[-1]):
+    if not (-1.0 <= off <= 1.0):
         return parabolic_peak(y, i)
-    return float(off), float(c0 - c1 * c1 / (4 * c2))
+    return float(centre + half * off), float(c0 - c1 * c1 / (4 * c2))
