@@ -66,12 +66,13 @@ def test_lines_means_and_error_bars_are_drawn_where_the_numbers_say(figure):
     assert texts[0] == "mean ± SEM (n = 3–4 cells)" and "NL-0702 (under review)" in texts
 
 
-def test_means_from_the_cores_comparison_match_numpy_and_scipy(figure):
+def _rate_panel(rates):
+    """The app's rate panel built from a cell x condition table of these rates (NaN: absent)."""
     from analysis.study import StudyEntry, StudyLayout
     from app.gui.window.study_data import StudyTables, comparison_panels
 
     table = {"cell": [], "condition": [], "group": [], "rate_mean_bpm": []}
-    for cell, values in RATES.items():
+    for cell, values in rates.items():
         for cond, v in zip(CONDITIONS, values):
             if math.isfinite(v):
                 table["cell"].append(cell)
@@ -82,6 +83,11 @@ def test_means_from_the_cores_comparison_match_numpy_and_scipy(figure):
                          CONDITIONS)
     tables = StudyTables(layout, table, compare(table, conditions=CONDITIONS, parameters=["rate"]), {})
     (panel,) = comparison_panels(tables, ["rate_bpm"])
+    return panel
+
+
+def test_means_from_the_cores_comparison_match_numpy_and_scipy(figure):
+    panel = _rate_panel(RATES)
     (group,) = panel.groups
     washout = np.array([v[2] for v in RATES.values() if math.isfinite(v[2])])
     drug = np.array([v[1] for v in RATES.values()])
@@ -112,22 +118,8 @@ def test_exports_png_and_svg_with_every_item(figure, tmp_path):
 def test_a_cell_with_only_a_baseline_counts_in_the_baseline_mean_as_in_the_exported_figure(figure):
     # The app's panel and the exported SVG draw the same means: over the cells that have each
     # condition (numpy and scipy.stats.sem as the reference), not only over the compared pairs.
-    from analysis.study import StudyEntry, StudyLayout
-    from app.gui.window.study_data import StudyTables, comparison_panels
-
     rates = {**RATES, "NL-0709": (71.0, math.nan, math.nan)}
-    table = {"cell": [], "condition": [], "group": [], "rate_mean_bpm": []}
-    for cell, values in rates.items():
-        for cond, v in zip(CONDITIONS, values):
-            if math.isfinite(v):
-                table["cell"].append(cell)
-                table["condition"].append(cond)
-                table["group"].append("")
-                table["rate_mean_bpm"].append(v)
-    layout = StudyLayout("/study", tuple(StudyEntry(f"{c}/{k}.abf", c, k) for c, k in zip(table["cell"], table["condition"])),
-                         CONDITIONS)
-    tables = StudyTables(layout, table, compare(table, conditions=CONDITIONS, parameters=["rate"]), {})
-    (panel,) = comparison_panels(tables, ["rate_bpm"])
+    panel = _rate_panel(rates)
     (group,) = panel.groups
     baseline = np.array([v[0] for v in rates.values()])
     assert group.n == (5, 4, 3)
