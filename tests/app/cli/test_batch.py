@@ -116,8 +116,10 @@ def test_a_reviewed_recording_is_not_replaced_by_a_batch(folder, tmp_path, capsy
 
 @pytest.mark.slow
 def test_ctrl_c_mid_batch_leaves_no_results_file(tmp_path):
+    # Files long enough (2 min each) that a batch on a quick machine is still running when the
+    # first one is done.
     for i in range(12):
-        write_long_abf1(tmp_path / f"cell{i:02d}.abf", 20.0, 10_000.0, seed=i)
+        write_long_abf1(tmp_path / f"cell{i:02d}.abf", 120.0, 10_000.0, seed=i)
     out = tmp_path / "r.h5"
     env = dict(os.environ, PYTHONPATH=str(REPO))
     proc = subprocess.Popen(
